@@ -1,0 +1,128 @@
+"""Unit x week arrays behind first cases and episodes (private to :mod:`marchland.spread`).
+
+The as-of counts are spread onto a dense unit x week grid so that the confirmation window
+and the quiet-period rule are array operations (cumulative sums), with no loop over units.
+A cell is *reported* only when a row for that unit-week exists: a missing week is not a zero.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+WEEK = pd.Timedelta(days=7)
+
+
+@dataclass(frozen=True)
+class Timeline:
+    """Dense view of one as-of count table.
+
+    ``positive[u, t]``: a report with ``cases >= min_cases``; ``quiet[u, t]``: a report with
+    fewer cases (a reported zero, or below the threshold); neither: no report that week.
+    """
+
+    ids: pd.Index
+    weeks: pd.DatetimeIndex
+    cases: np.ndarray
+    positive: np.ndarray
+    quiet: np.ndarray
+
+
+def build_timeline(view: pd.DataFrame, min_cases: int) -> Timeline:
+    """Spread an as-of view (one row per unit-week) onto a unit x week grid."""
+    view = view[view["cases"].notna()]
+    ids = pd.Index(pd.unique(view["unit_id"]), name="unit_id").sort_values()
+    if view.empty:
+        empty = np.zeros((len(ids), 0), dtype=bool)
+        return Timeline(ids, pd.DatetimeIndex([]), empty.astype(float), empty, empty)
+    week = pd.DatetimeIndex(view["week"])
+    start = week.min()
+    offset = (week - start) / WEEK
+    if not np.allclose(offset, np.round(offset)):
+        raise ValueError(
+            "'week' values need to be whole weeks apart (one calendar, week start dates); "
+            "found dates that are not"
+        )
+    col = np.round(offset).astype(int)
+    weeks = pd.date_range(start, periods=int(col.max()) + 1, freq="7D", unit=week.unit)
+    row = ids.get_indexer(view["unit_id"])
+    cases = np.full((len(ids), len(weeks)), np.nan)
+    cases[row, col] = view["cases"].to_numpy(dtype=float)
+    reported = ~np.isnan(cases)
+    positive = reported & (np.nan_to_num(cases) >= min_cases)
+    quiet = reported & ~positive
+    return Timeline(ids, weeks, cases, positive, quiet)
+
+
+def confirmed(positive: np.ndarray, confirm: tuple[int, int] | None) -> np.ndarray:
+    """Positive weeks that open a run of at least k positive weeks within n calendar weeks.
+
+    A week not reported inside the window does not count towards k (nor against it): the rule
+    needs k reported positive weeks, so confirmation waits until they are reported.
+    """
+    if confirm is None:
+        return positive
+    k, n = confirm
+    # Forward window sum [t, t + n - 1] from a cumulative sum padded with n zero columns.
+    padded = np.concatenate([positive, np.zeros((positive.shape[0], n), dtype=bool)], axis=1)
+    csum = np.concatenate(
+        [np.zeros((positive.shape[0], 1), dtype=int), np.cumsum(padded, axis=1)], axis=1
+    )
+    width = positive.shape[1]
+    window = csum[:, n : n + width] - csum[:, :width]
+    return positive & (window >= k)
+
+
+def episodes(tl: Timeline, confirm: tuple[int, int] | None, quiet_weeks: int | None):
+    """Episodes as a long table: one row per (unit, episode).
+
+    Positive weeks are grouped into one episode until ``quiet_weeks`` reported non-positive
+    weeks pass between two positive weeks (``None``: never, a single episode). An episode
+    counts only if it holds a confirmed week; it starts at its first confirmed week.
+    """
+    ok = confirmed(tl.positive, confirm)
+    u, t = np.nonzero(tl.positive)  # row-major: sorted by unit then week
+    cols = ["unit_id", "episode", "start", "end", "weeks_positive", "cases"]
+    if len(u) == 0:
+        return pd.DataFrame({c: [] for c in cols}).astype(
+            {"start": "datetime64[ns]", "end": "datetime64[ns]"}
+        )
+    quiet_cum = np.cumsum(tl.quiet, axis=1)
+    new_unit = np.r_[True, u[1:] != u[:-1]]
+    if quiet_weeks is None:
+        new_ep = new_unit
+    else:
+        prev_q = np.r_[0, quiet_cum[u[:-1], t[:-1]]]
+        gap = quiet_cum[u, t] - prev_q
+        new_ep = new_unit | (gap >= quiet_weeks)
+    ep = np.cumsum(new_ep)
+    long = pd.DataFrame(
+        {
+            "ep": ep,
+            "unit": u,
+            "t": t,
+            "ok_t": np.where(ok[u, t], t, np.iinfo(np.int64).max),
+            "cases": tl.cases[u, t],
+        }
+    )
+    g = long.groupby("ep", sort=True).agg(
+        unit=("unit", "first"),
+        first_ok=("ok_t", "min"),
+        end=("t", "max"),
+        weeks_positive=("t", "size"),
+        cases=("cases", "sum"),
+    )
+    g = g[g["first_ok"] < np.iinfo(np.int64).max]
+    out = pd.DataFrame(
+        {
+            "unit_id": tl.ids[g["unit"].to_numpy()],
+            "start": tl.weeks[g["first_ok"].to_numpy()],
+            "end": tl.weeks[g["end"].to_numpy()],
+            "weeks_positive": g["weeks_positive"].to_numpy(),
+            "cases": g["cases"].to_numpy().astype(int),
+        }
+    )
+    out.insert(1, "episode", out.groupby("unit_id").cumcount() + 1)
+    return out.reset_index(drop=True)
