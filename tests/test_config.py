@@ -1,0 +1,191 @@
+"""Config loading: defaults, paths, and every kind of mistake rejected by name.
+
+Covered: a minimal config with defaults; relative paths resolved against the file's folder;
+globs; unknown sections and keys (nested, with key paths); wrong types; values outside the
+allowed set; missing files; a loaded Config passed through; bool is not an int.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from pathlib import Path
+
+import pytest
+
+from marchland.config import Config, config_from_dict, load_config
+from marchland.errors import ConfigError
+
+MINIMAL = """
+[[boundaries]]
+path = "b.gpkg"
+id = "code"
+name = "name"
+country = "TVR"
+level = 2
+parent = "prov_code"
+
+[[reports]]
+name = "tvr"
+path = "rep_*.csv"
+country = "tvr"
+[reports.columns]
+place = "district"
+week = "week_start"
+cases = "cases"
+received = "received"
+"""
+
+
+@pytest.fixture()
+def folder(tmp_path: Path) -> Path:
+    for f in ("b.gpkg", "rep_01.csv", "rep_02.csv", "aliases.csv", "links.csv"):
+        (tmp_path / f).write_text("x")
+    return tmp_path
+
+
+def write(folder: Path, text: str) -> Path:
+    p = folder / "scenario.toml"
+    p.write_text(text)
+    return p
+
+
+def test_minimal_defaults(folder: Path) -> None:
+    cfg = load_config(write(folder, MINIMAL))
+    assert cfg.region.calendar == "iso"
+    assert cfg.boundaries[0].path == (folder / "b.gpkg").resolve()
+    rep = cfg.reports[0]
+    assert rep.country == "TVR"
+    assert [f.name for f in rep.files] == ["rep_01.csv", "rep_02.csv"]
+    assert rep.columns.deaths is None
+    assert cfg.graph.links is None and cfg.graph.tolerance_m == 300.0
+    assert cfg.supplies.planning_attack_rate.mid == pytest.approx(0.003)
+    assert cfg.output.dir == (folder / "out").resolve()
+    assert load_config(cfg) is cfg
+    assert isinstance(cfg, Config)
+
+
+def test_full_sections(folder: Path) -> None:
+    text = (
+        MINIMAL
+        + """
+[region]
+name = "x"
+crs = "EPSG:3035"
+calendar = "sunday"
+seed = 7
+[matching]
+aliases = "aliases.csv"
+fuzzy_score = 90
+strip_words = ["district of"]
+[graph]
+links = "links.csv"
+weighting = "binary"
+[analysis]
+windows_weeks = [2, 4]
+[supplies]
+planning_attack_rate = { low = 0.001, mid = 0.002, high = 0.01, severe_share = 0.25 }
+[output]
+dir = "../o"
+"""
+    )
+    cfg = load_config(write(folder, text))
+    assert cfg.region.crs == "EPSG:3035" and cfg.region.seed == 7
+    assert cfg.matching.aliases == (folder / "aliases.csv").resolve()
+    assert cfg.matching.fuzzy_score == 90.0
+    assert cfg.graph.links.name == "links.csv"
+    assert cfg.analysis.windows_weeks == (2, 4)
+    assert cfg.supplies.severe_share == 0.25
+    assert cfg.output.dir == (folder.parent / "o").resolve()
+
+
+@pytest.mark.parametrize(
+    ("extra", "key"),
+    [
+        ("[regoin]\nname='x'\n", "regoin"),
+        ("[region]\nnmae='x'\n", "region.nmae"),
+        ("[region]\nseed='x'\n", "region.seed"),
+        ("[region]\nseed=true\n", "region.seed"),
+        ("[region]\ncalendar='lunar'\n", "region.calendar"),
+        ("[region]\ncrs='EPSG:4326'\n", "region.crs"),
+        ("[region]\ncrs='not a crs'\n", "region.crs"),
+        ("[graph]\ntolerance_m=-1\n", "graph.tolerance_m"),
+        ("[graph]\nlinks='nowhere.csv'\n", "graph.links"),
+        ("[analysis]\nwindows_weeks=[4, 'x']\n", "analysis.windows_weeks[1]"),
+        ("[analysis]\nfdr=1.5\n", "analysis.fdr"),
+        ("[checks]\ndeaths_over_cases='drop'\n", "checks.deaths_over_cases"),
+        ("[supplies]\nplanning_attack_rate={low=0.1, mid=0.01, high=0.2}\n", "planning_attack"),
+        ("[supplies]\nplanning_attack_rate={lo=0.1}\n", "supplies.planning_attack_rate.lo"),
+    ],
+)
+def test_mistakes_named(folder: Path, extra: str, key: str) -> None:
+    with pytest.raises(ConfigError) as info:
+        load_config(write(folder, MINIMAL + extra))
+    msg = str(info.value)
+    assert key in msg
+    assert "scenario.toml" in msg
+
+
+def test_allowed_values_message(folder: Path) -> None:
+    with pytest.raises(ConfigError) as info:
+        load_config(write(folder, MINIMAL.replace('country = "tvr"', 'country = "tvr"\nshape="x"')))
+    assert "'shape' needs to be one of ('weekly', 'workbook', 'linelist'). 'x' was given" in str(
+        info.value
+    )
+    assert "reports[0].shape" in str(info.value)
+
+
+def test_report_column_key_path(folder: Path) -> None:
+    text = MINIMAL + (
+        '\n[[reports]]\nname = "b"\npath = "rep_01.csv"\ncountry = "OSK"\n'
+        '[reports.columns]\nplace = "p"\nweek = "w"\ncases = 3\nreceived = "r"\n'
+    )
+    with pytest.raises(ConfigError, match=r"reports\[1\]\.columns\.cases"):
+        load_config(write(folder, text))
+    text = text.replace("cases = 3", "cases = 'c'\ncasez = 'c'")
+    with pytest.raises(ConfigError, match=r"reports\[1\]\.columns\.casez"):
+        load_config(write(folder, text))
+
+
+def test_missing_files(folder: Path) -> None:
+    with pytest.raises(ConfigError, match=r"boundaries\[0\]\.path"):
+        load_config(write(folder, MINIMAL.replace("b.gpkg", "missing.gpkg")))
+    with pytest.raises(ConfigError, match=r"reports\[0\]\.path.*no file matches"):
+        load_config(write(folder, MINIMAL.replace("rep_*.csv", "none_*.csv")))
+    with pytest.raises(ConfigError, match="cannot read"):
+        load_config(folder / "nope.toml")
+    (folder / "broken.toml").write_text("[region\n")
+    with pytest.raises(ConfigError, match="not valid TOML"):
+        load_config(folder / "broken.toml")
+
+
+def test_required_keys(folder: Path) -> None:
+    with pytest.raises(ConfigError, match=r"boundaries\[0\]\.id.*required"):
+        load_config(write(folder, MINIMAL.replace('id = "code"\n', "")))
+    with pytest.raises(ConfigError, match="country"):
+        load_config(write(folder, MINIMAL.replace('country = "TVR"\n', "")))
+    with pytest.raises(ConfigError, match=r"reports\[0\]\.columns\.received"):
+        load_config(write(folder, MINIMAL.replace('received = "received"\n', "")))
+    with pytest.raises(ConfigError, match="at least one"):
+        load_config(write(folder, "[region]\nname='x'\n"))
+
+
+def test_linelist_fields_and_dates(folder: Path) -> None:
+    text = (
+        MINIMAL.replace('place = "district"', 'place = "district"\nonset = "o"')
+        .replace('received = "received"', 'died_values = ["died", "dead"]')
+        .replace(
+            'country = "tvr"', 'country = "tvr"\nshape = "linelist"\nreceived_date = 2026-03-01'
+        )
+    )
+    rep = load_config(write(folder, text)).reports[0]
+    assert rep.columns.onset == "o"
+    assert rep.died_values == ("died", "dead")
+    assert rep.received_date == dt.date(2026, 3, 1)
+
+
+def test_config_from_dict(folder: Path) -> None:
+    import tomllib
+
+    cfg = config_from_dict(tomllib.loads(MINIMAL), base_dir=folder)
+    assert cfg.path is None
+    assert cfg.reports[0].files[0].parent == folder.resolve()
