@@ -1,0 +1,718 @@
+"""Attack rates, case fatality, empirical Bayes smoothing, and rates up the unit hierarchy.
+
+Every function takes pandas objects indexed by ``unit_id`` and returns new ones on the same
+index; none changes its inputs. Counts are whole numbers of reported cases (or deaths);
+``<NA>`` means "not reported" and is carried through as a missing rate, never read as zero.
+
+Windows
+-------
+``attack_rates`` and ``case_fatality`` also take a DataFrame of counts with one column per time
+window (for example ``cumulative``, ``last_4w``, ``month``, as made by :func:`window_counts`).
+The result then has two column levels, ``(window, field)``, so ``result["last_4w"]`` is exactly
+the one-window table. Population may be one Series (the same for every window) or a DataFrame
+with the same window columns.
+
+Small numbers are unstable: a district of 2,000 people with 3 cases has an attack rate of
+150 per 100,000 and an interval from 31 to 438. Read the limits, not only the rate.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .errors import InputError
+from .graph import BorderGraph, as_border_graph
+
+RATE_COLUMNS = ("cases", "population", "rate", "lower", "upper")
+CFR_COLUMNS = ("deaths", "cases", "cfr", "lower", "upper", "too_few", "above_threshold")
+WINDOW_FIELDS = ("cases", "deaths", "cases_with_deaths", "weeks_reported")
+
+# Common practice, not a source: with treatment, a CFR above 1% for cholera-like disease is
+# usually read as a sign of late care seeking or poor access to treatment.
+CFR_THRESHOLD = 0.01
+# Common practice: below about 10 cases a CFR is too unstable to read on its own.
+CFR_MIN_CASES = 10
+
+
+# --- input checks ----------------------------------------------------------------------------
+def _as_float(values: pd.Series, name: str) -> np.ndarray:
+    """Values as float with <NA> -> NaN, or an InputError naming the first bad unit."""
+    try:
+        arr = (
+            pd.to_numeric(values, errors="raise")
+            .astype("Float64")
+            .to_numpy(dtype=float, na_value=np.nan)
+        )
+    except (TypeError, ValueError) as exc:
+        raise InputError(f"{name} must be numbers per unit_id ({exc})", column=name) from None
+    return arr
+
+
+def _counts(values: pd.Series, name: str) -> np.ndarray:
+    """Whole, non-negative counts (NaN for not reported)."""
+    arr = _as_float(values, name)
+    bad = np.isfinite(arr) & ((arr < 0) | (arr != np.round(arr)))
+    bad |= np.isinf(arr)
+    if bad.any():
+        unit = values.index[np.flatnonzero(bad)[0]]
+        raise InputError(
+            f"{name} must be whole numbers >= 0; unit {unit!r} has {arr[bad][0]!r}",
+            column=name,
+            value=arr[bad][0],
+        )
+    return arr
+
+
+def _population(values: pd.Series) -> np.ndarray:
+    arr = _as_float(values, "population")
+    bad = np.isfinite(arr) & (arr < 0) | np.isinf(arr)
+    if bad.any():
+        unit = values.index[np.flatnonzero(bad)[0]]
+        raise InputError(
+            f"population must be >= 0; unit {unit!r} has {arr[bad][0]!r}",
+            column="population",
+            value=arr[bad][0],
+        )
+    return arr
+
+
+def _align(values: pd.Series, index: pd.Index, name: str, other: str) -> pd.Series:
+    """``values`` reordered to ``index``; every unit must be in both."""
+    if not isinstance(values, pd.Series):
+        raise TypeError(
+            f"'{name}' needs to be a pandas Series indexed by unit_id. "
+            f"{type(values).__name__} was given instead."
+        )
+    if not values.index.is_unique:
+        dup = values.index[values.index.duplicated()][0]
+        raise InputError(f"{name} lists unit {dup!r} more than once", column=name, value=dup)
+    missing = index.difference(values.index)
+    extra = values.index.difference(index)
+    if len(missing) or len(extra):
+        parts = []
+        if len(missing):
+            parts.append(
+                f"{len(missing)} unit(s) of {other} missing from {name}, e.g. {list(missing[:3])}"
+            )
+        if len(extra):
+            parts.append(f"{len(extra)} unit(s) of {name} not in {other}, e.g. {list(extra[:3])}")
+        raise InputError(
+            f"{name} and {other} must have the same unit_ids: " + "; ".join(parts), column=name
+        )
+    return values.reindex(index)
+
+
+def _check_conf(conf: float) -> float:
+    if not 0 < conf < 1:
+        raise ValueError(f"'conf' needs to be between 0 and 1. {conf!r} was given instead.")
+    return 1.0 - conf
+
+
+def _per_window(
+    func: Callable[..., pd.DataFrame], first: object, second: object, **kwargs: object
+) -> pd.DataFrame:
+    """Apply a one-window function to each column of a windowed DataFrame."""
+    if not isinstance(first, pd.DataFrame):
+        return func(first, second, **kwargs)
+    out = {}
+    for window in first.columns:
+        other = second[window] if isinstance(second, pd.DataFrame) else second
+        out[window] = func(first[window], other, **kwargs)
+    result = pd.concat(out, axis=1, names=["window", "field"])
+    return result
+
+
+# --- attack rates ----------------------------------------------------------------------------
+def poisson_limits(counts: np.ndarray, conf: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
+    """Exact (Garwood 1936) confidence limits for a Poisson count.
+
+    Lower limit ``chi2(alpha/2, 2x) / 2`` (0 when ``x`` is 0), upper limit
+    ``chi2(1 - alpha/2, 2x + 2) / 2``; NaN counts give NaN limits.
+
+    Parameters
+    ----------
+    counts : array-like
+        Observed counts.
+    conf : float
+        Two-sided confidence level.
+
+    Returns
+    -------
+    lower, upper : numpy.ndarray
+
+    References
+    ----------
+    Garwood, F. (1936). Fiducial limits for the Poisson distribution. Biometrika 28, 437-442.
+
+    Examples
+    --------
+    >>> lo, hi = poisson_limits([0, 10])
+    >>> lo.round(3).tolist(), hi.round(3).tolist()
+    ([0.0, 4.795], [3.689, 18.39])
+    """
+    alpha = _check_conf(conf)
+    x = np.asarray(counts, dtype=float)
+    with np.errstate(invalid="ignore"):
+        lower = np.where(x > 0, stats.chi2.ppf(alpha / 2, 2 * np.where(x > 0, x, 1)) / 2, 0.0)
+        upper = stats.chi2.ppf(1 - alpha / 2, 2 * x + 2) / 2
+    lower = np.where(np.isnan(x), np.nan, lower)
+    return lower, upper
+
+
+def _attack_rates_one(
+    cases: pd.Series, population: pd.Series, *, per: float, conf: float
+) -> pd.DataFrame:
+    pop_s = _align(population, cases.index, "population", "cases")
+    x = _counts(cases, "cases")
+    pop = _population(pop_s)
+    lower, upper = poisson_limits(x, conf)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scale = np.where(pop > 0, per / pop, np.nan)
+    out = pd.DataFrame(
+        {
+            "cases": pd.array(np.where(np.isnan(x), pd.NA, x), dtype="Int64"),
+            "population": pop,
+            "rate": x * scale,
+            "lower": lower * scale,
+            "upper": upper * scale,
+        },
+        index=pd.Index(cases.index, name="unit_id"),
+    )
+    return out
+
+
+def attack_rates(
+    cases: pd.Series | pd.DataFrame,
+    population: pd.Series | pd.DataFrame,
+    *,
+    per: float = 100_000,
+    conf: float = 0.95,
+) -> pd.DataFrame:
+    """Attack rate per ``per`` people with exact Poisson (Garwood) confidence limits.
+
+    Parameters
+    ----------
+    cases : pandas.Series or pandas.DataFrame
+        Cases per unit_id (``<NA>`` = not reported). A DataFrame holds one column per time
+        window (see :func:`window_counts`).
+    population : pandas.Series or pandas.DataFrame
+        Population per unit_id, with the same unit_ids as ``cases``; a DataFrame must have the
+        same window columns.
+    per : float
+        Rate denominator, 100,000 by default.
+    conf : float
+        Two-sided confidence level of the limits.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by unit_id with columns ``cases population rate lower upper``. Rates are NaN
+        where cases were not reported or the population is 0 or missing. A 0 count has lower
+        limit 0 and a finite upper limit. For windowed input the columns are
+        ``(window, field)``.
+
+    References
+    ----------
+    Garwood, F. (1936). Fiducial limits for the Poisson distribution. Biometrika 28, 437-442.
+
+    Examples
+    --------
+    >>> cases = pd.Series({"TVR-01": 0, "TVR-02": 12}, name="cases")
+    >>> pop = pd.Series({"TVR-01": 20_000, "TVR-02": 48_000})
+    >>> attack_rates(cases, pop).round(1)
+             cases  population  rate  lower  upper
+    unit_id
+    TVR-01       0     20000.0   0.0    0.0   18.4
+    TVR-02      12     48000.0  25.0   12.9   43.7
+    >>> windows = pd.DataFrame({"cumulative": [5, 12], "last_4w": [0, 3]},
+    ...                        index=cases.index)
+    >>> attack_rates(windows, pop)["last_4w"]["rate"].round(2).tolist()
+    [0.0, 6.25]
+    """
+    if per <= 0:
+        raise ValueError(f"'per' needs to be > 0. {per!r} was given instead.")
+    _check_conf(conf)
+    return _per_window(_attack_rates_one, cases, population, per=per, conf=conf)
+
+
+# --- case fatality ---------------------------------------------------------------------------
+def _case_fatality_one(
+    deaths: pd.Series, cases: pd.Series, *, conf: float, min_cases: int, threshold: float
+) -> pd.DataFrame:
+    from statsmodels.stats.proportion import proportion_confint
+
+    cases = _align(cases, deaths.index, "cases", "deaths")
+    d = _counts(deaths, "deaths")
+    n = _counts(cases, "cases")
+    over = np.isfinite(d) & np.isfinite(n) & (d > n)
+    if over.any():
+        unit = deaths.index[np.flatnonzero(over)[0]]
+        raise InputError(
+            f"deaths cannot exceed cases; unit {unit!r} has {d[over][0]:.0f} deaths and "
+            f"{n[over][0]:.0f} cases",
+            column="deaths",
+            value=d[over][0],
+        )
+    ok = np.isfinite(d) & np.isfinite(n) & (n > 0)
+    cfr = np.full(len(d), np.nan)
+    lower = np.full(len(d), np.nan)
+    upper = np.full(len(d), np.nan)
+    if ok.any():
+        cfr[ok] = d[ok] / n[ok]
+        lo, hi = proportion_confint(d[ok], n[ok], alpha=1 - conf, method="wilson")
+        lower[ok], upper[ok] = lo, hi
+    known = np.isfinite(n)
+    too_few = pd.array(np.where(known, n < min_cases, pd.NA), dtype="boolean")
+    above = pd.array(np.where(ok, cfr > threshold, pd.NA), dtype="boolean")
+    return pd.DataFrame(
+        {
+            "deaths": pd.array(np.where(np.isnan(d), pd.NA, d), dtype="Int64"),
+            "cases": pd.array(np.where(np.isnan(n), pd.NA, n), dtype="Int64"),
+            "cfr": cfr,
+            "lower": lower,
+            "upper": upper,
+            "too_few": too_few,
+            "above_threshold": above,
+        },
+        index=pd.Index(deaths.index, name="unit_id"),
+    )
+
+
+def case_fatality(
+    deaths: pd.Series | pd.DataFrame,
+    cases: pd.Series | pd.DataFrame,
+    *,
+    conf: float = 0.95,
+    min_cases: int = CFR_MIN_CASES,
+    threshold: float = CFR_THRESHOLD,
+) -> pd.DataFrame:
+    """Case fatality ratio (deaths / cases) with Wilson score limits, flagged not hidden.
+
+    Parameters
+    ----------
+    deaths, cases : pandas.Series or pandas.DataFrame
+        Counts per unit_id (``<NA>`` = not reported). Use as ``cases`` only the cases of the
+        weeks whose deaths were reported (``window_counts(...)["cases_with_deaths"]``), so
+        numerator and denominator cover the same weeks. DataFrames hold one column per window.
+    conf : float
+        Two-sided confidence level of the limits.
+    min_cases : int
+        Units with fewer cases are flagged ``too_few`` (common practice: 10).
+    threshold : float
+        ``above_threshold`` flags a CFR above this proportion. The default 1% is a common
+        rule of thumb for treated cholera-like disease, not a sourced standard.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by unit_id with columns ``deaths cases cfr lower upper too_few
+        above_threshold`` (CFR as a proportion, 0-1). ``cfr`` is NaN where there are no cases
+        or either count is missing; the flags are then ``<NA>``.
+
+    References
+    ----------
+    Wilson, E. B. (1927). Probable inference, the law of succession, and statistical
+    inference. J. Am. Stat. Assoc. 22, 209-212. Newcombe, R. G. (1998). Two-sided confidence
+    intervals for the single proportion. Stat. Med. 17, 857-872.
+
+    Examples
+    --------
+    >>> deaths = pd.Series({"OSK-01": 2, "OSK-02": 0})
+    >>> cases = pd.Series({"OSK-01": 80, "OSK-02": 4})
+    >>> case_fatality(deaths, cases).round(4)
+             deaths  cases    cfr   lower   upper  too_few  above_threshold
+    unit_id
+    OSK-01        2     80  0.025  0.0069  0.0866    False             True
+    OSK-02        0      4  0.000  0.0000  0.4899     True            False
+    """
+    if min_cases < 0:
+        raise ValueError(f"'min_cases' needs to be >= 0. {min_cases!r} was given instead.")
+    _check_conf(conf)
+    return _per_window(
+        _case_fatality_one, deaths, cases, conf=conf, min_cases=min_cases, threshold=threshold
+    )
+
+
+# --- windows from the counts table -----------------------------------------------------------
+def _month_of_week(weeks: pd.Series) -> pd.Series:
+    # A week belongs to the month holding its fourth day (the ISO rule for years, applied to
+    # months), so each week counts in exactly one month.
+    return (weeks + pd.Timedelta(days=3)).dt.to_period("M")
+
+
+def window_counts(
+    counts: pd.DataFrame,
+    as_of: object,
+    *,
+    windows_weeks: Sequence[int] = (4,),
+    month: str | pd.Period | None = None,
+    units: pd.Index | None = None,
+) -> pd.DataFrame:
+    """Sum the counts known on ``as_of`` per unit over the standard time windows.
+
+    Windows: ``cumulative`` (every week since the outbreak's first report up to ``as_of``),
+    ``last_<N>w`` for each N in ``windows_weeks`` (the N complete weeks ending with the last
+    week finished by ``as_of``), and ``month`` (the weeks of ``month``, each week belonging to
+    the month of its fourth day) when ``month`` is given.
+
+    Parameters
+    ----------
+    counts : pandas.DataFrame
+        The counts contract: ``unit_id week cases deaths received source row`` with every
+        accepted version; the as-of view is taken with :func:`marchland.reports.as_of`.
+    as_of : date-like
+        The date the data are read as known on.
+    windows_weeks : sequence of int
+        Lengths of the trailing windows, in weeks.
+    month : str or pandas.Period, optional
+        A calendar month such as ``"2026-03"``.
+    units : pandas.Index, optional
+        Every unit to report on; units with no report get ``<NA>``. By default the units
+        that appear in ``counts``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by unit_id with two column levels ``(field, window)``; fields are
+        ``cases``, ``deaths``, ``cases_with_deaths`` (cases of the weeks whose deaths were
+        reported, the CFR denominator) and ``weeks_reported``. Sums run over the weeks that
+        were reported: a unit-week absent from the table is not reported, not zero, and a
+        unit with no reported week in a window gets ``<NA>`` there. ``weeks_reported`` says
+        how many weeks each sum covers; the frame's ``attrs["weeks_in_window"]`` gives how
+        many weeks each window spans.
+
+    Examples
+    --------
+    >>> c = pd.DataFrame({"unit_id": ["a", "a", "a", "b"],
+    ...                   "week": pd.to_datetime(["2026-02-23", "2026-03-02", "2026-03-09",
+    ...                                           "2026-03-09"]),
+    ...                   "cases": pd.array([4, 2, 1, 0], dtype="Int64"),
+    ...                   "deaths": pd.array([0, 1, pd.NA, 0], dtype="Int64"),
+    ...                   "received": pd.to_datetime(["2026-03-01", "2026-03-08",
+    ...                                               "2026-03-16", "2026-03-16"]),
+    ...                   "source": "x", "row": [1, 2, 3, 4]})
+    >>> w = window_counts(c, "2026-03-31", windows_weeks=(2,), month="2026-03")
+    >>> w["cases"]
+    window   cumulative  last_2w  month
+    unit_id
+    a                 7     <NA>      3
+    b                 0     <NA>      0
+    >>> w["weeks_reported"]["month"].tolist()
+    [2, 1]
+    """
+    from .reports import as_of as _as_of
+
+    as_of_ts = pd.Timestamp(as_of)
+    known = _as_of(counts, as_of_ts)
+    known = known[known["week"] <= as_of_ts]
+    if units is None:
+        units = pd.Index(pd.unique(counts["unit_id"]), name="unit_id")
+    units = pd.Index(units, name="unit_id")
+    outside = ~known["unit_id"].isin(units)
+    if outside.any():
+        bad = known.loc[outside].iloc[0]
+        raise InputError(
+            f"counts name unit {bad['unit_id']!r}, which is not among the units",
+            file=bad["source"],
+            row=int(bad["row"]),
+            column="unit_id",
+            value=bad["unit_id"],
+        )
+    weeks = known["week"]
+    # The calendar's first weekday comes from the data (Monday for ISO, Sunday otherwise).
+    start_day = int(weeks.dt.day_of_week.iloc[0]) if len(weeks) else 0
+    current = as_of_ts.normalize() - pd.Timedelta(days=(as_of_ts.day_of_week - start_day) % 7)
+    last_complete = (
+        current
+        if as_of_ts.normalize() >= current + pd.Timedelta(days=6)
+        else (current - pd.Timedelta(days=7))
+    )
+
+    # Since outbreak start: every week reported up to as_of (the current week included).
+    masks: dict[str, np.ndarray] = {"cumulative": np.ones(len(known), dtype=bool)}
+    spans: dict[str, int | None] = {"cumulative": None}
+    for n_weeks in windows_weeks:
+        if int(n_weeks) < 1:
+            raise ValueError(f"'windows_weeks' needs whole numbers >= 1. {n_weeks!r} given.")
+        first = last_complete - pd.Timedelta(weeks=int(n_weeks) - 1)
+        masks[f"last_{int(n_weeks)}w"] = ((weeks >= first) & (weeks <= last_complete)).to_numpy()
+        spans[f"last_{int(n_weeks)}w"] = int(n_weeks)
+    if month is not None:
+        period = pd.Period(month, freq="M")
+        masks["month"] = (_month_of_week(weeks) == period).to_numpy()
+        first_week = (period.start_time - pd.Timedelta(days=3)).normalize()
+        all_weeks = pd.date_range(first_week, period.end_time, freq="D")
+        all_weeks = all_weeks[all_weeks.day_of_week == start_day]
+        spans["month"] = int((_month_of_week(pd.Series(all_weeks)) == period).sum())
+
+    cases = known["cases"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
+    deaths = known["deaths"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
+    unit_pos = units.get_indexer(known["unit_id"])
+    fields: dict[tuple[str, str], object] = {}
+    n_units = len(units)
+    for window, mask in masks.items():
+        rep = mask & np.isfinite(cases)
+        drep = rep & np.isfinite(deaths)
+        n_rep = np.bincount(unit_pos[rep], minlength=n_units)
+        n_drep = np.bincount(unit_pos[drep], minlength=n_units)
+        s_cases = np.bincount(unit_pos[rep], weights=cases[rep], minlength=n_units)
+        s_deaths = np.bincount(unit_pos[drep], weights=deaths[drep], minlength=n_units)
+        s_cwd = np.bincount(unit_pos[drep], weights=cases[drep], minlength=n_units)
+        fields[("cases", window)] = pd.array(np.where(n_rep > 0, s_cases, pd.NA), dtype="Int64")
+        fields[("deaths", window)] = pd.array(np.where(n_drep > 0, s_deaths, pd.NA), dtype="Int64")
+        fields[("cases_with_deaths", window)] = pd.array(
+            np.where(n_drep > 0, s_cwd, pd.NA), dtype="Int64"
+        )
+        fields[("weeks_reported", window)] = n_rep
+    out = pd.DataFrame(fields, index=units)
+    out.columns = pd.MultiIndex.from_tuples(out.columns, names=["field", "window"])
+    out = out.reindex(
+        columns=pd.MultiIndex.from_product([WINDOW_FIELDS, list(masks)], names=["field", "window"])
+    )
+    out.attrs["weeks_in_window"] = spans
+    out.attrs["as_of"] = as_of_ts
+    out.attrs["last_complete_week"] = last_complete
+    return out
+
+
+# --- smoothing -------------------------------------------------------------------------------
+def _rates_inputs(
+    cases: pd.Series, population: pd.Series
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    pop_s = _align(population, cases.index, "population", "cases")
+    e = _counts(cases, "cases")
+    b = _population(pop_s)
+    valid = np.isfinite(e) & np.isfinite(b) & (b > 0)
+    return e, b, valid
+
+
+def _global_eb(e: np.ndarray, b: np.ndarray) -> np.ndarray:
+    r_mean = e.sum() / b.sum()
+    rate = e / b
+    # Method-of-moments prior variance (Marshall 1991, eq. 8); truncated at 0 as Marshall
+    # advises, where esda's Empirical_Bayes lets it go negative.
+    r_var = max((b * (rate - r_mean) ** 2).sum() / b.sum() - r_mean / b.mean(), 0.0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        weight = r_var / (r_var + r_mean / b)
+    weight = np.where(np.isfinite(weight), weight, 0.0)
+    return weight * rate + (1.0 - weight) * r_mean
+
+
+def _spatial_eb(e: np.ndarray, b: np.ndarray, valid: np.ndarray, graph: BorderGraph) -> np.ndarray:
+    # Each unit's prior is the rate of its neighbourhood, itself included (binary weights),
+    # as in esda's Spatial_Empirical_Bayes; written on the edge list so it is vectorised and
+    # units without a usable population are left out of their neighbours' sums.
+    n = len(graph.ids)
+    pos = pd.Series(np.arange(n), index=graph.ids)
+    rows = np.concatenate([pos.loc[graph.edges["focal"]].to_numpy(), np.arange(n)])
+    cols = np.concatenate([pos.loc[graph.edges["neighbor"]].to_numpy(), np.arange(n)])
+    keep = valid[cols]
+    rows, cols = rows[keep], cols[keep]
+    e0 = np.where(valid, e, 0.0)
+    b0 = np.where(valid, b, 0.0)
+    sum_e = np.bincount(rows, weights=e0[cols], minlength=n)
+    sum_b = np.bincount(rows, weights=b0[cols], minlength=n)
+    count = np.bincount(rows, minlength=n)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r_mean = sum_e / sum_b
+        rate = e0 / b0
+        dev = b0[cols] * (rate[cols] - r_mean[rows]) ** 2
+        r_var = np.bincount(rows, weights=dev, minlength=n) / sum_b - r_mean / (sum_b / count)
+        r_var = np.where(r_var < 0, 0.0, r_var)
+        smooth = r_mean + (rate - r_mean) * (r_var / (r_var + r_mean / b0))
+        # A neighbourhood with no cases at all shrinks to its (zero) mean.
+        smooth = np.where((r_var == 0) & np.isfinite(r_mean), r_mean, smooth)
+    return np.where(valid, smooth, np.nan)
+
+
+def smooth_rates(
+    cases: pd.Series,
+    population: pd.Series,
+    *,
+    graph: BorderGraph | object | None = None,
+    per: float = 100_000,
+) -> pd.Series:
+    """Empirical Bayes smoothed rates: global (Marshall 1991) or spatial, with a graph.
+
+    Each raw rate is pulled toward a prior mean by an amount that grows as the unit's
+    population shrinks, so small units with a few cases stop dominating the map. The global
+    prior is the whole region's rate; the spatial prior is the rate of the unit and its
+    neighbours (binary contiguity, the unit itself included).
+
+    Parameters
+    ----------
+    cases, population : pandas.Series
+        Per unit_id, the same unit_ids in both.
+    graph : BorderGraph or libpysal.graph.Graph, optional
+        Neighbours for the spatial version; its ids must match the unit_ids.
+    per : float
+        Rate denominator, as in :func:`attack_rates`.
+
+    Returns
+    -------
+    pandas.Series
+        ``rate_smoothed`` per ``per`` people, indexed by unit_id; NaN where cases were not
+        reported or the population is 0 or missing (those units are left out of the priors).
+
+    References
+    ----------
+    Marshall, R. J. (1991). Mapping disease and mortality rates using empirical Bayes
+    estimators. Applied Statistics 40, 283-294.
+
+    Examples
+    --------
+    >>> cases = pd.Series({"a": 0, "b": 10, "c": 3, "d": 40})
+    >>> pop = pd.Series({"a": 500, "b": 20_000, "c": 1_000, "d": 90_000})
+    >>> smooth_rates(cases, pop).round(1).tolist()
+    [45.5, 49.1, 68.0, 44.8]
+    """
+    e, b, valid = _rates_inputs(cases, population)
+    out = np.full(len(e), np.nan)
+    if graph is None:
+        if valid.any():
+            out[valid] = _global_eb(e[valid], b[valid])
+        index = pd.Index(cases.index, name="unit_id")
+    else:
+        bg = as_border_graph(graph)
+        index = bg.ids
+        _align(cases, bg.ids, "cases", "the graph")
+        e, b, valid = _rates_inputs(cases.reindex(bg.ids), population)
+        out = _spatial_eb(e, b, valid, bg)
+    return pd.Series(out * per, index=index, name="rate_smoothed")
+
+
+def eb_standardised(cases: pd.Series, population: pd.Series) -> pd.Series:
+    """Rates standardised by their empirical Bayes mean and variance (Assuncao & Reis 1999).
+
+    ``(r_i - m) / sqrt(a + m / n_i)`` with ``m`` the region's rate and ``a`` the
+    method-of-moments prior variance; where ``a + m / n_i`` is negative, ``m / n_i`` is used.
+    This is the variable the rate-adjusted Moran's I is computed on. Written here (not
+    esda's ``assuncao_rate``) to leave out units without a usable population and to stay
+    vectorised; the test checks it against esda.
+
+    Parameters
+    ----------
+    cases, population : pandas.Series
+        Per unit_id, the same unit_ids in both.
+
+    Returns
+    -------
+    pandas.Series
+        ``rate_z`` indexed by unit_id, NaN where cases or population are missing or
+        population is 0.
+
+    References
+    ----------
+    Assuncao, R. M. & Reis, E. A. (1999). A new proposal to adjust Moran's I for population
+    density. Statistics in Medicine 18, 2147-2162.
+
+    Examples
+    --------
+    >>> e = pd.Series([30, 25, 25, 15, 33, 21, 30, 20], index=list("abcdefgh"))
+    >>> b = pd.Series([100, 100, 110, 90, 100, 90, 110, 90], index=list("abcdefgh"))
+    >>> eb_standardised(e, b).round(3).tolist()[:4]
+    [1.038, -0.041, -0.563, -1.731]
+    """
+    e, b, valid = _rates_inputs(cases, population)
+    out = np.full(len(e), np.nan)
+    if valid.any():
+        ev, bv = e[valid], b[valid]
+        m = ev.sum() / bv.sum()
+        rate = ev / bv
+        a = (bv * (rate - m) ** 2).sum() / bv.sum() - m / bv.mean()
+        var = a + m / bv
+        var = np.where(var < 0, m / bv, var)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out[valid] = (rate - m) / np.sqrt(var)
+    return pd.Series(out, index=pd.Index(cases.index, name="unit_id"), name="rate_z")
+
+
+# --- up the hierarchy ------------------------------------------------------------------------
+def _aggregate_one(
+    cases: pd.Series, population: pd.Series, *, groups: pd.DataFrame, per: float, conf: float
+) -> pd.DataFrame:
+    pop_s = _align(population, cases.index, "population", "cases")
+    x = _counts(cases, "cases")
+    pop = _population(pop_s)
+    frames = []
+    for level in groups.columns:
+        key = groups[level].reindex(cases.index)
+        if key.isna().any():
+            unit = key.index[key.isna()][0]
+            raise InputError(
+                f"groups[{level!r}] has no group for unit {unit!r}", column=str(level), value=unit
+            )
+        df = pd.DataFrame({"group": key.to_numpy(), "x": x, "pop": pop, "reported": np.isfinite(x)})
+        g = df.groupby("group", sort=True)
+        summed = pd.DataFrame(
+            {
+                "cases": g["x"].sum(min_count=1),
+                "population": g["pop"].sum(min_count=1),
+                "units": g.size(),
+                "units_reported": g["reported"].sum(),
+            }
+        )
+        # Rates come from summed counts over summed population, never from averaged rates;
+        # population counts only the units whose cases were reported.
+        pop_rep = df[df["reported"]].groupby("group")["pop"].sum().reindex(summed.index)
+        rates = _attack_rates_one(summed["cases"], pop_rep.fillna(0.0), per=per, conf=conf)
+        rates["units"] = summed["units"].astype("int64")
+        rates["units_reported"] = summed["units_reported"].astype("int64")
+        rates["population_all"] = summed["population"]
+        rates.index = pd.MultiIndex.from_arrays(
+            [np.repeat(str(level), len(rates)), rates.index], names=["level", "group"]
+        )
+        frames.append(rates)
+    return pd.concat(frames)
+
+
+def aggregate_rates(
+    cases: pd.Series | pd.DataFrame,
+    population: pd.Series | pd.DataFrame,
+    groups: pd.Series | pd.DataFrame | None = None,
+    *,
+    per: float = 100_000,
+    conf: float = 0.95,
+) -> pd.DataFrame:
+    """Attack rates of provinces, countries or the whole region, from summed counts.
+
+    Parameters
+    ----------
+    cases, population : pandas.Series or pandas.DataFrame
+        Per unit_id, as for :func:`attack_rates` (DataFrames: one column per window).
+    groups : pandas.Series or pandas.DataFrame, optional
+        The group of each unit_id (e.g. ``units["parent_id"]``), or one column per level
+        (e.g. ``province``, ``country``). ``None`` gives one row for the whole region.
+    per, conf : float
+        As for :func:`attack_rates`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``(level, group)`` with ``cases population rate lower upper`` plus
+        ``units`` (units in the group), ``units_reported`` (units whose cases were reported)
+        and ``population_all`` (population of every unit in the group). ``cases`` sums the
+        reported units and ``population`` is the population of those units, so the rate is
+        not diluted by units that did not report.
+
+    Examples
+    --------
+    >>> cases = pd.Series({"TVR-01-01": 5, "TVR-01-02": 0, "OSK-01-01": 20})
+    >>> pop = pd.Series({"TVR-01-01": 10_000, "TVR-01-02": 40_000, "OSK-01-01": 50_000})
+    >>> country = pd.Series({"TVR-01-01": "TVR", "TVR-01-02": "TVR", "OSK-01-01": "OSK"})
+    >>> aggregate_rates(cases, pop, country.rename("country"))["rate"].tolist()
+    [40.0, 10.0]
+    """
+    if groups is None:
+        index = cases.index
+        groups = pd.DataFrame({"region": "all"}, index=index)
+    elif isinstance(groups, pd.Series):
+        groups = groups.to_frame(groups.name if groups.name is not None else "group")
+    if per <= 0:
+        raise ValueError(f"'per' needs to be > 0. {per!r} was given instead.")
+    _check_conf(conf)
+    return _per_window(_aggregate_one, cases, population, groups=groups, per=per, conf=conf)
