@@ -1,0 +1,71 @@
+"""Array work behind :func:`marchland.supplies.choose_depots`: distances and the covering model.
+
+Plain numpy in, plain numpy out; the public layer in :mod:`marchland.supplies` checks inputs
+and builds the tables.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pulp
+from scipy.spatial.distance import cdist
+from spopt.locate import MCLP
+
+
+def distance_km(client_xy: np.ndarray, site_xy: np.ndarray) -> np.ndarray:
+    """Straight-line distances in km (clients x sites) from coordinates in metres."""
+    if len(client_xy) == 0 or len(site_xy) == 0:
+        return np.zeros((len(client_xy), len(site_xy)))
+    return cdist(client_xy, site_xy) / 1000.0
+
+
+def solve_mclp(
+    dist_km: np.ndarray, weights: np.ndarray, reach_km: float, n_open: int, fixed: np.ndarray
+) -> np.ndarray:
+    """Open ``n_open`` sites (the ``fixed`` ones among them) maximising the covered weight.
+
+    Returns a boolean mask over sites. spopt builds the model (Church & ReVelle 1974) and its
+    bundled CBC solves it; a client counts as covered at ``distance <= reach_km``, spopt's own
+    rule, which :func:`assign` repeats.
+    """
+    n_sites = dist_km.shape[1]
+    if n_open >= n_sites:
+        return np.ones(n_sites, dtype=bool)
+    if dist_km.shape[0] == 0:
+        # No clients: nothing to cover, keep the fixed sites and fill up in table order.
+        mask = fixed.astype(bool).copy()
+        mask[np.flatnonzero(~mask)[: n_open - int(mask.sum())]] = True
+        return mask
+    # spopt 0.7 builds variables the way PuLP 3.3 deprecates, and PULP_CBC_CMD (the bundled
+    # CBC) is itself flagged for PuLP 4; neither is the user's to act on, so keep them quiet.
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", category=DeprecationWarning, module=r"pulp(\.|$)")
+        model = MCLP.from_cost_matrix(
+            dist_km,
+            weights.astype(float),
+            service_radius=reach_km,
+            p_facilities=n_open,
+            predefined_facilities_arr=fixed.astype(int) if fixed.any() else None,
+        )
+        model = model.solve(pulp.PULP_CBC_CMD(msg=False), results=False)
+    return np.array([(v.value() or 0) > 0.5 for v in model.fac_vars], dtype=bool)
+
+
+def assign(
+    dist_km: np.ndarray, open_mask: np.ndarray, reach_km: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Nearest open site per client: (site position or -1, distance km or NaN, covered)."""
+    n_clients = dist_km.shape[0]
+    if n_clients == 0 or not open_mask.any():
+        return (
+            np.full(n_clients, -1),
+            np.full(n_clients, np.nan),
+            np.zeros(n_clients, dtype=bool),
+        )
+    open_pos = np.flatnonzero(open_mask)
+    sub = dist_km[:, open_pos]
+    best = sub.argmin(axis=1)
+    dist = sub[np.arange(n_clients), best]
+    return open_pos[best], dist, dist <= reach_km

@@ -1,0 +1,510 @@
+"""Tests for marchland.supplies: priority list, planning quantities, totals, depot choice.
+
+Covered here:
+- quantities against a hand-computed example (arithmetic stated beside each value), the
+  floating-point trap of ceil(), missing population, rank order, inputs left unchanged;
+- risk-weighted totals per country and per depot catchment, by hand;
+- the readers (supply items, depot sites) and every bad input named by file, row and column;
+- depots: existing depots always open, k = 0 assignment only, the uncovered list, the
+  region check, the CRS check; hypothesis: covered weight never falls as k grows and never
+  exceeds the total weight.
+The comparison of spopt's answer with exhaustive search is in
+tests/reference/test_supplies_reference.py.
+"""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from pyproj import Transformer
+from shapely.geometry import box
+
+from marchland.errors import InputError
+from marchland.supplies import (
+    ITEM_UNITS,
+    SupplyPlan,
+    assign_depots,
+    choose_depots,
+    prioritise,
+    read_depots,
+    read_supply_items,
+    totals,
+)
+
+CRS = "EPSG:3035"
+ITEMS_CSV = """# Example values for the test, not guidance.
+item,unit,per_case,basis,buffer_share
+ors,sachet,10,all,0.2
+iv_fluid,litre,8,severe,0.1
+aqua_tabs,tablet,30,all,
+"""
+
+
+def _units() -> gpd.GeoDataFrame:
+    ids = pd.Index(["TVR-01-01", "TVR-01-02", "OSK-02-01", "OSK-02-02"], name="unit_id")
+    return gpd.GeoDataFrame(
+        {
+            "name": ["Aldo", "Brin", "Cass", "Dorn"],
+            "country": ["TVR", "TVR", "OSK", "OSK"],
+            "population": [50_000, 12_345, 20_000, np.nan],
+        },
+        geometry=[box(x, 0, x + 10_000, 10_000) for x in (0, 20_000, 40_000, 60_000)],
+        index=ids,
+        crs=CRS,
+    )
+
+
+def _risk() -> pd.DataFrame:
+    ids = _units().index
+    return pd.DataFrame(
+        {
+            "probability": [0.3, 0.1, 0.6, 0.2],
+            "rank": [2, 4, 1, 3],
+            "cross_border": [True, False, True, False],
+            "part_distance": [0.1, 0.2, 0.3, 0.4],
+        },
+        index=ids,
+    )
+
+
+def _plan(severe_share: float = 0.2) -> SupplyPlan:
+    items = read_supply_items(io.StringIO(ITEMS_CSV))
+    return SupplyPlan(items, 0.001, 0.003, 0.008, severe_share=severe_share)
+
+
+# --- quantities ------------------------------------------------------------------------------
+def test_quantities_by_hand():
+    out = prioritise(_risk(), _units(), plan=_plan())
+    aldo = out.loc["TVR-01-01"]
+    # Aldo: 50,000 people x 0.003 = 150 planning cases (low 50,000 x 0.001 = 50, high x 0.008 = 400)
+    assert aldo["planning_cases"] == pytest.approx(150.0)
+    assert aldo["planning_cases_low"] == pytest.approx(50.0)
+    assert aldo["planning_cases_high"] == pytest.approx(400.0)
+    # ors: 150 x 10 x 1.2 = 1800 exactly
+    assert aldo["ors"] == 1800
+    # iv_fluid (severe): 150 x 0.2 x 8 x 1.1 = 264 exactly; in floating point 264.00000000000006,
+    # which a bare ceil() would turn into 265
+    assert aldo["iv_fluid"] == 264
+    # aqua_tabs, empty buffer = 0: 150 x 30 = 4500
+    assert aldo["aqua_tabs"] == 4500
+    brin = out.loc["TVR-01-02"]
+    # Brin: 12,345 x 0.003 = 37.035 cases
+    assert brin["planning_cases"] == pytest.approx(37.035)
+    # ors: 37.035 x 10 x 1.2 = 444.42 -> 445
+    assert brin["ors"] == 445
+    # iv_fluid: 37.035 x 0.2 x 8 x 1.1 = 65.1816 -> 66
+    assert brin["iv_fluid"] == 66
+    # aqua_tabs: 37.035 x 30 = 1111.05 -> 1112
+    assert brin["aqua_tabs"] == 1112
+
+
+def test_severe_share_changes_only_severe_items():
+    a = prioritise(_risk(), _units(), plan=_plan(0.2))
+    b = prioritise(_risk(), _units(), plan=_plan(0.4))
+    assert (a["ors"] == b["ors"]).all() and (a["aqua_tabs"] == b["aqua_tabs"]).all()
+    # 150 x 0.4 x 8 x 1.1 = 528
+    assert b.loc["TVR-01-01", "iv_fluid"] == 528
+
+
+def test_priority_table_shape_and_order():
+    risk, units = _risk(), _units()
+    risk_copy, units_copy = risk.copy(), units.copy()
+    out = prioritise(risk, units, plan=_plan())
+    assert list(out.index) == ["OSK-02-01", "TVR-01-01", "OSK-02-02", "TVR-01-02"]
+    assert out.index.name == "unit_id"
+    assert list(out.columns) == [
+        "rank",
+        "name",
+        "country",
+        "probability",
+        "population",
+        "planning_cases_low",
+        "planning_cases",
+        "planning_cases_high",
+        "cross_border",
+        "ors",
+        "iv_fluid",
+        "aqua_tabs",
+    ]
+    assert str(out["ors"].dtype) == "Int64"
+    # Dorn has no population: no planning cases, no quantities, but it stays on the list
+    assert pd.isna(out.loc["OSK-02-02", "planning_cases"])
+    assert pd.isna(out.loc["OSK-02-02", "ors"])
+    pd.testing.assert_frame_equal(risk, risk_copy)
+    pd.testing.assert_frame_equal(units, units_copy)
+
+
+def test_silent_is_carried():
+    risk = _risk().assign(silent=[False, True, False, False])
+    out = prioritise(risk, _units(), plan=_plan())
+    assert bool(out.loc["TVR-01-02", "silent"]) is True
+
+
+def test_prioritise_bad_input():
+    risk = _risk()
+    risk.index = ["TVR-01-01", "TVR-01-02", "OSK-02-01", "QLN-09-09"]
+    with pytest.raises(InputError, match="QLN-09-09"):
+        prioritise(risk, _units(), plan=_plan())
+    units = _units()
+    units.loc["TVR-01-01", "population"] = -5
+    with pytest.raises(InputError, match="population"):
+        prioritise(_risk(), units, plan=_plan())
+    with pytest.raises(InputError, match="probability"):
+        prioritise(_risk().drop(columns="probability"), _units(), plan=_plan())
+
+
+# --- totals ----------------------------------------------------------------------------------
+def test_totals_per_country_by_hand():
+    plan = _plan()
+    pri = prioritise(_risk(), _units(), plan=plan)
+    out = totals(pri, plan=plan)
+    assert list(out.index) == ["OSK", "TVR"]
+    tvr = out.loc["TVR"]
+    assert tvr["units"] == 2
+    # ors if it arrives everywhere: 1800 + 445 = 2245
+    assert tvr["ors"] == 2245
+    # risk-weighted: 0.3 x 1800 + 0.1 x 445 = 540 + 44.5 = 584.5 -> 585
+    assert tvr["ors_risk_weighted"] == 585
+    # expected cases: 0.3 x 150 + 0.1 x 37.035 = 48.7035
+    assert tvr["expected_cases"] == pytest.approx(48.7035)
+    osk = out.loc["OSK"]
+    # Cass 20,000 x 0.003 = 60 cases, ors 60 x 12 = 720; Dorn has no population
+    assert osk["ors"] == 720
+    # 0.6 x 720 = 432
+    assert osk["ors_risk_weighted"] == 432
+
+
+def test_totals_per_catchment():
+    plan = _plan()
+    pri = prioritise(_risk(), _units(), plan=plan)
+    catchment = pd.Series({"TVR-01-01": "D1", "OSK-02-01": "D1", "TVR-01-02": "D2"}, name="depot")
+    out = totals(pri, plan=plan, by=catchment)
+    assert out.index.name == "depot"
+    # D1 = Aldo + Cass: ors 1800 + 720 = 2520; risk-weighted 0.3 x 1800 + 0.6 x 720 = 972
+    assert out.loc["D1", "ors"] == 2520
+    assert out.loc["D1", "ors_risk_weighted"] == 972
+    assert out.loc["(none)", "units"] == 1
+    assert out["units"].sum() == len(pri)
+    with pytest.raises(InputError, match="nowhere"):
+        totals(pri, plan=plan, by="nowhere")
+
+
+# --- readers and plan ------------------------------------------------------------------------
+def test_read_supply_items():
+    items = read_supply_items(io.StringIO(ITEMS_CSV))
+    assert items["item"].tolist() == ["ors", "iv_fluid", "aqua_tabs"]
+    assert items["buffer_share"].tolist() == [0.2, 0.1, 0.0]
+    assert items.attrs["note"] == "Example values for the test, not guidance."
+    assert set(items["unit"]) <= set(ITEM_UNITS)
+
+
+def _bad_items(tmp_path: Path, row: str) -> Path:
+    path = tmp_path / "items.csv"
+    path.write_text(
+        "# test\nitem,unit,per_case,basis,buffer_share\nors,sachet,10,all,0.2\n" + row + "\n"
+    )
+    return path
+
+
+@pytest.mark.parametrize(
+    ("row", "column", "words"),
+    [
+        ("soap,crate,2,all,0", "unit", "one of"),
+        ("soap,piece,-2,all,0", "per_case", ">= 0"),
+        ("soap,piece,two,all,0", "per_case", ">= 0"),
+        ("soap,piece,2,all,-0.1", "buffer_share", ">= 0"),
+        ("soap,piece,2,mild,0", "basis", "one of"),
+        ("ors,piece,2,all,0", "item", "repeated"),
+        ("population,piece,2,all,0", "item", "reserved"),
+        (",piece,2,all,0", "item", "empty"),
+    ],
+)
+def test_bad_supply_items(tmp_path, row, column, words):
+    path = _bad_items(tmp_path, row)
+    with pytest.raises(InputError, match=words) as info:
+        read_supply_items(path)
+    assert info.value.file == str(path)
+    assert info.value.row == 2
+    assert info.value.column == column
+
+
+def test_supply_items_missing_column(tmp_path):
+    path = tmp_path / "items.csv"
+    path.write_text("item,unit,per_case,basis\nors,sachet,10,all\n")
+    with pytest.raises(InputError) as info:
+        read_supply_items(path)
+    assert info.value.column == "buffer_share"
+
+
+def test_plan_checks_rates():
+    items = read_supply_items(io.StringIO(ITEMS_CSV))
+    with pytest.raises(InputError, match="low <= mid <= high"):
+        SupplyPlan(items, 0.01, 0.003, 0.008)
+    with pytest.raises(InputError, match="between 0 and 1"):
+        SupplyPlan(items, 0.001, 0.003, 1.5)
+    with pytest.raises(InputError, match="severe_share"):
+        SupplyPlan(items, 0.001, 0.003, 0.008, severe_share=-0.1)
+
+
+def test_plan_from_config_dataclass_and_mapping(tmp_path):
+    from marchland.config import PlanningRates, SuppliesConfig
+
+    path = tmp_path / "items.csv"
+    path.write_text(ITEMS_CSV)
+    cfg = SuppliesConfig(
+        items=path, planning_attack_rate=PlanningRates(0.002, 0.004, 0.01), severe_share=0.3
+    )
+    plan = SupplyPlan.from_config(cfg)
+    assert (plan.attack_rate_low, plan.attack_rate_mid, plan.attack_rate_high) == (
+        0.002,
+        0.004,
+        0.01,
+    )
+    assert plan.severe_share == 0.3
+    assert plan.note == "Example values for the test, not guidance."
+    same = SupplyPlan.from_config(
+        {"items": "items.csv", "planning_attack_rate": {"low": 0.002, "mid": 0.004, "high": 0.01}},
+        base=tmp_path,
+    )
+    assert same.item_names == plan.item_names
+    with pytest.raises(InputError, match="planning_attack_rate"):
+        SupplyPlan.from_config({"items": path})
+
+
+# --- depot sites -----------------------------------------------------------------------------
+DEPOTS_CSV = """site,name,lon,lat,existing
+D1,North store,10.0,52.0,yes
+D2,River store,10.5,52.2,
+D3,Lake store,11.0,51.8,no
+"""
+
+
+def test_read_depots_reprojects():
+    sites = read_depots(io.StringIO(DEPOTS_CSV), CRS)
+    assert sites.index.name == "site"
+    assert sites["existing"].tolist() == [True, False, False]
+    assert sites["row"].tolist() == [1, 2, 3]
+    # pyproj directly, as the independent transform
+    x, y = Transformer.from_crs("EPSG:4326", CRS, always_xy=True).transform(10.5, 52.2)
+    assert sites.geometry["D2"].x == pytest.approx(x)
+    assert sites.geometry["D2"].y == pytest.approx(y)
+    assert sites.crs == CRS
+
+
+@pytest.mark.parametrize(
+    ("row", "column"),
+    [
+        ("D4,Far,200,52,no", "lon"),
+        ("D4,Far,10,lat,no", "lat"),
+        ("D4,Far,10,52,maybe", "existing"),
+        ("D1,Again,10,52,no", "site"),
+    ],
+)
+def test_bad_depots(tmp_path, row, column):
+    path = tmp_path / "depots.csv"
+    path.write_text(DEPOTS_CSV + row + "\n")
+    with pytest.raises(InputError) as info:
+        read_depots(path, CRS)
+    assert info.value.file == str(path)
+    assert info.value.row == 4
+    assert info.value.column == column
+
+
+# --- depot choice ----------------------------------------------------------------------------
+def _line_instance():
+    """Five districts 50 km apart on a line; four sites near them."""
+    ids = pd.Index([f"U{i}" for i in range(5)], name="unit_id")
+    units = gpd.GeoDataFrame(
+        {
+            "probability": [0.5, 0.2, 0.9, 0.4, 0.1],
+            "population": [1000, 4000, 1000, 2000, 3000],
+        },
+        geometry=[box(x, 0, x + 10_000, 10_000) for x in range(0, 250_000, 50_000)],
+        index=ids,
+        crs=CRS,
+    )
+    sites = gpd.GeoDataFrame(
+        {"name": list("abcd"), "existing": [True, False, False, False]},
+        geometry=gpd.points_from_xy([5_000, 55_000, 155_000, 205_000], [5_000] * 4),
+        index=pd.Index(["S0", "S1", "S2", "S3"], name="site"),
+        crs=CRS,
+    )
+    return units, sites
+
+
+def test_existing_depot_stays_open():
+    units, sites = _line_instance()
+    out = choose_depots(units, sites, k=1, reach_km=60)
+    assert "S0" in out.index and len(out) == 2
+    # weights 500, 800, 900, 800, 300; centres at 5, 55, 105, 155, 205 km. S0 (5 km) covers
+    # U0, U1 (1300). Best extra site: S2 (155 km) covers U2, U3, U4 (900 + 800 + 300 = 2000);
+    # S3 (205 km) covers U3, U4 (1100); S1 (55 km) adds only U2 (900).
+    assert set(out.index) == {"S0", "S2"}
+    assert out["covered_weight"].sum() == pytest.approx(3300.0)
+    assert out.loc["S0", "existing"] and out.loc["S2", "new"]
+    # 1000 + 2000 + 3000 people
+    assert out.loc["S2", "covered_population"] == pytest.approx(6000.0)
+    assert (out["reach_km"] == 60).all()
+
+
+def test_k_zero_is_assignment_to_existing():
+    units, sites = _line_instance()
+    out = choose_depots(units, sites, k=0, reach_km=60)
+    assert list(out.index) == ["S0"]
+    assert out.loc["S0", "covered_units"] == 2
+    assign = assign_depots(units, out)
+    assert (assign["depot"] == "S0").all()
+    assert assign["covered"].tolist() == [True, True, False, False, False]
+    assert out.loc["S0", "covered_weight"] == pytest.approx(1300.0)
+    # U4's centre is at 205 km, S0 at 5 km
+    assert assign.loc["U4", "distance_km"] == pytest.approx(200.0)
+
+
+def test_k_zero_without_existing_depots():
+    units, sites = _line_instance()
+    sites = sites.assign(existing=False)
+    out = choose_depots(units, sites, k=0, reach_km=60)
+    assert len(out) == 0
+    assign = assign_depots(units, out, reach_km=60)
+    assert assign["depot"].isna().all() and not assign["covered"].any()
+
+
+def test_uncovered_and_catchment_agree_with_depots():
+    units, sites = _line_instance()
+    out = choose_depots(units, sites, k=1, reach_km=60)
+    assign = assign_depots(units, out)
+    covered = assign[assign["covered"]]
+    by_depot = covered.groupby("depot")["weight"].sum()
+    pd.testing.assert_series_equal(
+        by_depot.sort_index(), out["covered_weight"].sort_index(), check_names=False
+    )
+    uncovered = assign[~assign["covered"]]
+    assert uncovered.empty
+    out = choose_depots(units, sites.assign(existing=False), k=1, reach_km=60)
+    uncovered = assign_depots(units, out).query("~covered")
+    # one depot: S1 covers U0-U2 (500 + 800 + 900 = 2200), more than S2 with U2-U4 (2000)
+    assert list(out.index) == ["S1"]
+    assert list(uncovered.index) == ["U3", "U4"]
+
+
+def test_candidates_and_units_separately():
+    units, sites = _line_instance()
+    candidates = pd.DataFrame(units.drop(columns="geometry")).iloc[[1, 2, 3]]
+    out = choose_depots(candidates, sites, k=1, reach_km=60, units=units)
+    # only U1 (800), U2 (900), U3 (800) count; S0 covers U1, S2 covers U2 and U3
+    assert set(out.index) == {"S0", "S2"}
+    assert out["covered_weight"].sum() == pytest.approx(2500.0)
+
+
+def test_plain_site_table_with_lon_lat():
+    units, _ = _line_instance()
+    wgs = gpd.GeoSeries(gpd.points_from_xy([5_000, 155_000], [5_000, 5_000]), crs=CRS).to_crs(
+        "EPSG:4326"
+    )
+    table = pd.DataFrame(
+        {"site": ["A", "B"], "name": ["a", "b"], "lon": wgs.x, "lat": wgs.y, "existing": ["", ""]}
+    )
+    out = choose_depots(units, table, k=1, reach_km=60)
+    assert list(out.index) == ["B"]
+    assert out.loc["B", "x"] == pytest.approx(155_000, abs=0.01)
+
+
+@pytest.mark.parametrize("k", [-1, 4, 1.5, True])
+def test_bad_k(k):
+    units, sites = _line_instance()
+    with pytest.raises(InputError) as info:
+        choose_depots(units, sites, k=k, reach_km=60)
+    assert info.value.column == "k"
+
+
+@pytest.mark.parametrize("reach", [0, -5, float("nan"), "far"])
+def test_bad_reach(reach):
+    units, sites = _line_instance()
+    with pytest.raises(InputError) as info:
+        choose_depots(units, sites, k=1, reach_km=reach)
+    assert info.value.column == "reach_km"
+
+
+def test_site_outside_region_is_named(tmp_path):
+    units, _ = _line_instance()
+    inside = gpd.GeoSeries(gpd.points_from_xy([5_000], [5_000]), crs=CRS).to_crs("EPSG:4326")
+    far = gpd.GeoSeries(gpd.points_from_xy([5_000], [400_000]), crs=CRS).to_crs("EPSG:4326")
+    near = gpd.GeoSeries(gpd.points_from_xy([5_000], [60_000]), crs=CRS).to_crs("EPSG:4326")
+    path = tmp_path / "depots.csv"
+    path.write_text(
+        "site,name,lon,lat\n"
+        f"A,in,{inside.x[0]},{inside.y[0]}\n"
+        f"B,just outside,{near.x[0]},{near.y[0]}\n"
+        f"C,far,{far.x[0]},{far.y[0]}\n"
+    )
+    sites = read_depots(path, CRS)
+    with pytest.raises(InputError, match="outside the region") as info:
+        choose_depots(units, sites, k=1, reach_km=60)
+    assert info.value.file == str(path)
+    assert info.value.row == 3
+    # B lies 50 km outside the units, within the 60 km reach: allowed
+    out = choose_depots(units, sites.drop(index="C"), k=2, reach_km=60)
+    assert set(out.index) == {"A", "B"}
+
+
+def test_geographic_crs_is_refused():
+    units, sites = _line_instance()
+    with pytest.raises(InputError, match="projected CRS in metres"):
+        choose_depots(units.to_crs("EPSG:4326"), sites, k=1, reach_km=60)
+
+
+def test_depots_leave_inputs_alone():
+    units, sites = _line_instance()
+    u, s = units.copy(), sites.copy()
+    choose_depots(units, sites, k=2, reach_km=60)
+    pd.testing.assert_frame_equal(units, u)
+    pd.testing.assert_frame_equal(sites, s)
+
+
+# --- properties ------------------------------------------------------------------------------
+@st.composite
+def _instances(draw):
+    n_units = draw(st.integers(1, 12))
+    n_sites = draw(st.integers(1, 6))
+    seed = draw(st.integers(0, 2**32 - 1))
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 200_000, size=(n_units, 2))
+    units = gpd.GeoDataFrame(
+        {
+            "probability": rng.uniform(0, 1, n_units),
+            "population": rng.integers(0, 50_000, n_units),
+        },
+        geometry=[box(x - 2_000, y - 2_000, x + 2_000, y + 2_000) for x, y in xy],
+        index=pd.Index([f"U{i}" for i in range(n_units)], name="unit_id"),
+        crs=CRS,
+    )
+    # each site within 15 km of some district, so none is outside the region at any reach
+    site_xy = xy[rng.integers(0, n_units, n_sites)] + rng.uniform(-10_000, 10_000, (n_sites, 2))
+    sites = gpd.GeoDataFrame(
+        {"name": [f"s{i}" for i in range(n_sites)], "existing": rng.uniform(size=n_sites) < 0.2},
+        geometry=gpd.points_from_xy(site_xy[:, 0], site_xy[:, 1]),
+        index=pd.Index([f"S{i}" for i in range(n_sites)], name="site"),
+        crs=CRS,
+    )
+    return units, sites
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(_instances(), st.floats(20, 150))
+def test_covered_weight_grows_with_k(instance, reach):
+    units, sites = instance
+    total = float((units["probability"] * units["population"]).sum())
+    n_new = int((~sites["existing"]).sum())
+    previous = -1.0
+    for k in range(n_new + 1):
+        covered = choose_depots(units, sites, k=k, reach_km=reach)["covered_weight"].sum()
+        assert covered >= previous - 1e-6 * max(total, 1.0)
+        assert covered <= total * (1 + 1e-9) + 1e-9
+        previous = covered
