@@ -33,6 +33,7 @@ from marchland.supplies import (
     assign_depots,
     choose_depots,
     prioritise,
+    reach_areas,
     read_depots,
     read_supply_items,
     totals,
@@ -508,3 +509,57 @@ def test_covered_weight_grows_with_k(instance, reach):
         assert covered >= previous - 1e-6 * max(total, 1.0)
         assert covered <= total * (1 + 1e-9) + 1e-9
         previous = covered
+
+
+# --- distance along the graph (checked against networkx in tests/reference) ------------------
+def _line_graph(units):
+    from marchland.graph import BorderGraph
+
+    ids = list(units.index)
+    pairs = [(a, b) for a, b in zip(ids[:-1], ids[1:], strict=True) if (a, b) != ("U1", "U2")]
+    edges = pd.DataFrame(
+        {
+            "focal": [a for a, _ in pairs] + [b for _, b in pairs],
+            "neighbor": [b for _, b in pairs] + [a for a, _ in pairs],
+            "shared_m": 1.0,
+            "gap_m": 0.0,
+            "cross_border": False,
+            "kind": "shared-boundary",
+        }
+    )
+    return BorderGraph(edges, units.index)
+
+
+def test_graph_distance_goes_round_a_gap():
+    units, sites = _line_instance()
+    graph = _line_graph(units)  # U1 and U2 not linked: no way between the two halves
+    out = choose_depots(units, sites, k=0, reach_km=60, distance="graph", graph=graph)
+    assert out.loc["S0", "distance"] == "graph"
+    assign = assign_depots(units, out, graph=graph)
+    assert assign.loc["U1", "distance_km"] == pytest.approx(50.0)
+    assert np.isinf(assign.loc["U2", "distance_km"]) and not assign.loc["U2", "covered"]
+    # the same graph as a plain libpysal Graph gives the same answer
+    out2 = choose_depots(units, sites, k=0, reach_km=60, distance="graph", graph=graph.graph)
+    assert out2["covered_weight"].tolist() == out["covered_weight"].tolist()
+
+
+def test_graph_distance_bad_input():
+    units, sites = _line_instance()
+    with pytest.raises(InputError, match="one of"):
+        choose_depots(units, sites, k=1, reach_km=60, distance="road")
+    with pytest.raises(InputError, match="graph="):
+        choose_depots(units, sites, k=1, reach_km=60, distance="graph")
+    graph = _line_graph(units)
+    with pytest.raises(InputError, match="not in the units table"):
+        choose_depots(units.iloc[1:], sites, k=1, reach_km=60, distance="graph", graph=graph)
+
+
+def test_reach_areas():
+    units, sites = _line_instance()
+    out = choose_depots(units, sites, k=1, reach_km=60)
+    areas = reach_areas(out)
+    assert list(areas.index) == list(out.index)
+    # every centre assigned as covered lies inside its depot's circle
+    assign = assign_depots(units, out)
+    for unit, row in assign[assign["covered"]].iterrows():
+        assert areas.geometry[row["depot"]].contains(units.geometry[unit].centroid)

@@ -10,6 +10,8 @@ import warnings
 
 import numpy as np
 import pulp
+from scipy import sparse
+from scipy.sparse import csgraph
 from scipy.spatial.distance import cdist
 from spopt.locate import MCLP
 
@@ -69,3 +71,31 @@ def assign(
     best = sub.argmin(axis=1)
     dist = sub[np.arange(n_clients), best]
     return open_pos[best], dist, dist <= reach_km
+
+
+def graph_distance_km(
+    site_xy: np.ndarray,
+    host: np.ndarray,
+    node_xy: np.ndarray,
+    focal: np.ndarray,
+    neighbor: np.ndarray,
+    target: np.ndarray,
+) -> np.ndarray:
+    """Distances in km (targets x sites) along the unit graph, through district centres.
+
+    A site reaches its host unit's centre in a straight line, then moves from centre to centre
+    along graph edges (each as long as the straight line between the two centres). Every leg is
+    a straight segment, so the result is never shorter than the straight-line distance; units
+    the graph does not connect to the host are infinitely far.
+    """
+    n = len(node_xy)
+    if len(site_xy) == 0 or len(target) == 0:
+        return np.zeros((len(target), len(site_xy)))
+    length = np.hypot(*(node_xy[focal] - node_xy[neighbor]).T) / 1000.0
+    # csgraph reads a stored zero as "no edge"; two units sharing a centre are a hair apart.
+    length = np.maximum(length, 1e-9)
+    matrix = sparse.csr_matrix((length, (focal, neighbor)), shape=(n, n))
+    hosts, which = np.unique(host, return_inverse=True)
+    along = csgraph.dijkstra(matrix, directed=False, indices=hosts)  # hosts x nodes
+    lead = np.hypot(*(site_xy - node_xy[host]).T) / 1000.0  # site -> its host's centre
+    return (along[which][:, target] + lead[:, None]).T

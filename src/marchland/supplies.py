@@ -28,6 +28,7 @@ from typing import Any
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+from libpysal.graph import Graph
 
 from . import _covering
 from ._supplyinput import (
@@ -39,6 +40,7 @@ from ._supplyinput import (
     _check_inside,
     _check_items,
     _check_k,
+    _check_metric,
     _check_reach,
     _depots_from_frame,
     _file_name,
@@ -49,10 +51,12 @@ from ._supplyinput import (
     _weights,
 )
 from .errors import InputError
+from .graph import BorderGraph, as_border_graph
 
 __all__ = [
     "DEFAULT_SEVERE_SHARE",
     "DEPOT_COLUMNS",
+    "DISTANCES",
     "ITEM_BASES",
     "ITEM_COLUMNS",
     "ITEM_UNITS",
@@ -60,6 +64,7 @@ __all__ = [
     "assign_depots",
     "choose_depots",
     "prioritise",
+    "reach_areas",
     "read_depots",
     "read_supply_items",
     "totals",
@@ -68,6 +73,7 @@ __all__ = [
 # Planning share of cases that are severe when the config gives none: common practice for
 # cholera planning, recalled from memory; an example value, not guidance.
 DEFAULT_SEVERE_SHARE = 0.2
+DISTANCES = ("straight", "graph")
 # Products like 150 * 0.2 * 8 * 1.1 land a hair above a whole number in binary floating point;
 # rounding first keeps ceil() from adding a phantom unit.
 _CEIL_DECIMALS = 9
@@ -446,6 +452,8 @@ def choose_depots(
     reach_km: float,
     units: gpd.GeoDataFrame | None = None,
     weight: str | None = None,
+    distance: str = "straight",
+    graph: BorderGraph | Graph | None = None,
 ) -> gpd.GeoDataFrame:
     """Choose ``k`` depots to open, besides the existing ones, to cover the most risk.
 
@@ -453,8 +461,10 @@ def choose_depots(
     its bundled CBC: open the existing sites plus ``k`` more so that the total weight of
     candidate districts whose centre lies within ``reach_km`` of an open depot is largest. A
     district weighs probability x population. Distance is the straight line from the site to the
-    district's centroid in the working equal-area CRS. (Distance along the graph is not offered:
-    centroid-to-centroid hops are no measure of road travel.)
+    district's centroid in the working equal-area CRS, or, with ``distance="graph"``, the way
+    through the unit graph: straight to the centre of the unit the site lies in (or nearest
+    to), then from centre to centre along graph edges, so a lake or a closed stretch of border
+    without a link is gone around. Neither is road travel time.
 
     Parameters
     ----------
@@ -473,14 +483,18 @@ def choose_depots(
         The analysis units (working CRS): candidate geometry, and the region sites must serve.
     weight : str, optional
         A column of ``candidates`` to use as the weight instead of probability x population.
+    distance : {"straight", "graph"}
+        How distance is measured (see above).
+    graph : BorderGraph or libpysal.graph.Graph, optional
+        The unit graph, needed for ``distance="graph"``; its units must be in ``units``.
 
     Returns
     -------
     geopandas.GeoDataFrame
         One row per open depot (existing or new), indexed by ``site``, sorted by covered weight:
-        ``name existing new lon lat x y reach_km covered_units covered_population
-        covered_weight geometry`` (points, working CRS). Each covered district counts once,
-        at its nearest open depot, so ``covered_weight`` sums to the covered total. What stays
+        ``name existing new lon lat x y reach_km distance covered_units covered_population
+        covered_weight geometry`` (points, working CRS). Each covered district counts once, at
+        its nearest open depot, so ``covered_weight`` sums to the covered total. What stays
         uncovered, and each district's depot, comes from :func:`assign_depots`.
 
     Raises
@@ -519,9 +533,8 @@ def choose_depots(
     k = _check_k(k, len(site_table) - n_existing)
     _check_inside(site_table, region, reach)
     w = _weights(candidates, weight)
-    xy_c = np.column_stack([centres.x.to_numpy(), centres.y.to_numpy()])
-    xy_s = np.column_stack([site_table.geometry.x.to_numpy(), site_table.geometry.y.to_numpy()])
-    dist = _covering.distance_km(xy_c, xy_s)
+    dist = _distance_matrix(candidates.index, centres, region, site_table, distance, graph)
+    xy_s = _xy(site_table.geometry)
     fixed = site_table["existing"].to_numpy(dtype=bool)
     # k = 0: nothing to choose, the existing depots stay as they are.
     open_mask = fixed if k == 0 else _covering.solve_mclp(dist, w, reach, n_existing + k, fixed)
@@ -539,6 +552,7 @@ def choose_depots(
     out["x"] = xy_s[open_mask, 0]
     out["y"] = xy_s[open_mask, 1]
     out["reach_km"] = reach
+    out["distance"] = distance
     out["covered_units"] = np.bincount(hit, minlength=n_sites)[open_mask]
     out["covered_population"] = np.bincount(
         hit, weights=np.nan_to_num(pop[covered]), minlength=n_sites
@@ -548,6 +562,47 @@ def choose_depots(
     return out.sort_values("covered_weight", ascending=False, kind="stable")
 
 
+def _xy(points: gpd.GeoSeries) -> np.ndarray:
+    return np.column_stack([points.x.to_numpy(), points.y.to_numpy()])
+
+
+def _distance_matrix(
+    ids: pd.Index,
+    centres: gpd.GeoSeries,
+    region: gpd.GeoSeries,
+    sites: gpd.GeoDataFrame,
+    distance: str,
+    graph: BorderGraph | Graph | None,
+) -> np.ndarray:
+    """Km from every site to every candidate centre (candidates x sites)."""
+    if distance not in DISTANCES:
+        raise InputError(
+            f"'distance' needs to be one of {DISTANCES}; {distance!r} was given instead",
+            column="distance",
+            value=distance,
+        )
+    if distance == "straight":
+        return _covering.distance_km(_xy(centres), _xy(sites.geometry))
+    if graph is None:
+        raise InputError('distance="graph" needs the unit graph (graph=)', column="distance")
+    edges = as_border_graph(graph).edges
+    focal = region.index.get_indexer(edges["focal"])
+    neighbor = region.index.get_indexer(edges["neighbor"])
+    if (focal < 0).any() or (neighbor < 0).any():
+        raise InputError(
+            "the graph names units that are not in the units table; pass units= (all units)",
+            column="unit_id",
+        )
+    nodes = region.centroid
+    # The unit a site lies in, or the nearest one for a site just outside the region.
+    found = region.sindex.nearest(sites.geometry.to_numpy(), return_all=False)
+    host = np.empty(len(sites), dtype=int)
+    host[found[0]] = found[1]
+    return _covering.graph_distance_km(
+        _xy(sites.geometry), host, _xy(nodes), focal, neighbor, region.index.get_indexer(ids)
+    )
+
+
 def assign_depots(
     candidates: pd.DataFrame,
     depots: gpd.GeoDataFrame,
@@ -555,6 +610,8 @@ def assign_depots(
     units: gpd.GeoDataFrame | None = None,
     reach_km: float | None = None,
     weight: str | None = None,
+    distance: str | None = None,
+    graph: BorderGraph | Graph | None = None,
 ) -> pd.DataFrame:
     """Give each candidate district its nearest open depot and say whether it is in reach.
 
@@ -570,6 +627,10 @@ def assign_depots(
     reach_km : float, optional
         Defaults to the ``reach_km`` column of ``depots``.
     weight : str, optional
+        As for :func:`choose_depots`.
+    distance : {"straight", "graph"}, optional
+        Defaults to the ``distance`` column of ``depots``, else ``"straight"``.
+    graph : BorderGraph or libpysal.graph.Graph, optional
         As for :func:`choose_depots`.
 
     Returns
@@ -604,12 +665,13 @@ def assign_depots(
             raise InputError("give reach_km= (the depots table has no reach_km column)")
         reach_km = float(depots["reach_km"].iloc[0])
     reach = _check_reach(reach_km)
+    if distance is None:
+        has_column = "distance" in depots.columns and len(depots)
+        distance = str(depots["distance"].iloc[0]) if has_column else "straight"
     centres, region = _candidate_points(candidates, units)
     table = _sites(depots, region.crs)
     w = _weights(candidates, weight)
-    xy_c = np.column_stack([centres.x.to_numpy(), centres.y.to_numpy()])
-    xy_s = np.column_stack([table.geometry.x.to_numpy(), table.geometry.y.to_numpy()])
-    dist = _covering.distance_km(xy_c, xy_s)
+    dist = _distance_matrix(candidates.index, centres, region, table, distance, graph)
     pos, nearest, covered = _covering.assign(dist, np.ones(len(table), dtype=bool), reach)
     site_ids = np.asarray(table.index, dtype=object)
     names = np.asarray(table["name"], dtype=object)
@@ -626,3 +688,36 @@ def assign_depots(
         },
         index=pd.Index(candidates.index, name="unit_id"),
     )
+
+
+def reach_areas(depots: gpd.GeoDataFrame, *, resolution: int = 32) -> gpd.GeoDataFrame:
+    """Circles of each depot's reach, for maps.
+
+    Parameters
+    ----------
+    depots : geopandas.GeoDataFrame
+        :func:`choose_depots` output (needs ``reach_km`` and point geometry in metres).
+    resolution : int
+        Segments per quarter circle (shapely's ``quad_segs``).
+
+    Returns
+    -------
+    geopandas.GeoDataFrame
+        Indexed by ``site``: ``name existing new reach_km geometry`` (circle polygons). With
+        ``distance = "graph"`` the circle is an outer bound: the way along the graph is never
+        shorter than the straight line, so every covered centre lies inside it.
+
+    Examples
+    --------
+    >>> sites = gpd.GeoDataFrame({"name": ["west"], "existing": [True], "reach_km": [50.0]},
+    ...     geometry=gpd.points_from_xy([0.0], [0.0]), crs="EPSG:3035",
+    ...     index=pd.Index(["S1"], name="site"))
+    >>> round(reach_areas(sites).area.iloc[0] / 1e6)  # km2, close to pi x 50^2 = 7854
+    7851
+    """
+    _check_metric(depots.crs, "the depots")
+    if "reach_km" not in depots.columns:
+        raise InputError("the depots table needs a 'reach_km' column", column="reach_km")
+    keep = [c for c in ("name", "existing", "new", "reach_km") if c in depots.columns]
+    circles = depots.geometry.buffer(depots["reach_km"].to_numpy(float) * 1000.0, resolution)
+    return gpd.GeoDataFrame(depots[keep].copy(), geometry=circles, crs=depots.crs)

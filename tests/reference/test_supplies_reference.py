@@ -86,3 +86,101 @@ def test_mclp_equals_exhaustive_search(seed, n_existing, reach_km):
         assign = assign_depots(units, out)
         assert assign.loc[assign["covered"], "weight"].sum() == pytest.approx(expected, rel=1e-9)
         assert assign["covered"].to_numpy().tolist() == within[:, chosen].any(axis=1).tolist()
+
+
+# --- distance along the graph, against networkx ----------------------------------------------
+# Source of truth: networkx.shortest_path_length (Dijkstra) on a graph we build here from the
+# same description: unit centres joined along rook neighbours, each site joined to the unit it
+# lies in; edge lengths are straight lines between those points. A "lake" removes the links
+# between columns 1 and 2 in rows 0-3, so the way round is through row 4.
+SIDE = 20_000.0
+GRID = 5
+
+
+def _grid_instance(seed: int):
+    rng = np.random.default_rng(seed)
+    cells = [(r, c) for r in range(GRID) for c in range(GRID)]
+    ids = pd.Index([f"G{r}{c}" for r, c in cells], name="unit_id")
+    units = gpd.GeoDataFrame(
+        {
+            "probability": rng.uniform(0, 1, len(cells)),
+            "population": rng.integers(1_000, 50_000, len(cells)),
+        },
+        geometry=[box(c * SIDE, r * SIDE, (c + 1) * SIDE, (r + 1) * SIDE) for r, c in cells],
+        index=ids,
+        crs=CRS,
+    )
+    pairs = []
+    for r, c in cells:
+        for dr, dc in ((0, 1), (1, 0)):
+            rr, cc = r + dr, c + dc
+            if rr >= GRID or cc >= GRID:
+                continue
+            if dc == 1 and c == 1 and r <= 3:  # the lake
+                continue
+            pairs.append((f"G{r}{c}", f"G{rr}{cc}"))
+    focal = [a for a, b in pairs] + [b for a, b in pairs]
+    neighbor = [b for a, b in pairs] + [a for a, b in pairs]
+    edges = pd.DataFrame(
+        {
+            "focal": focal,
+            "neighbor": neighbor,
+            "shared_m": SIDE,
+            "gap_m": 0.0,
+            "cross_border": False,
+            "kind": "shared-boundary",
+        }
+    )
+    from marchland.graph import BorderGraph
+
+    graph = BorderGraph(edges, ids)
+    site_xy = rng.uniform(0, GRID * SIDE, size=(8, 2))
+    sites = gpd.GeoDataFrame(
+        {"name": [f"site {i}" for i in range(8)], "existing": False},
+        geometry=gpd.points_from_xy(site_xy[:, 0], site_xy[:, 1]),
+        index=pd.Index([f"S{i}" for i in range(8)], name="site"),
+        crs=CRS,
+    )
+    return units, sites, graph, pairs, site_xy
+
+
+def _networkx_km(units, pairs, site_xy):
+    import networkx as nx
+
+    centre = {u: (g.centroid.x, g.centroid.y) for u, g in units.geometry.items()}
+    g = nx.Graph()
+    for a, b in pairs:
+        g.add_edge(a, b, length=float(np.hypot(*np.subtract(centre[a], centre[b]))) / 1000)
+    out = np.empty((len(units), len(site_xy)))
+    for j, (x, y) in enumerate(site_xy):
+        c, r = min(int(x // SIDE), GRID - 1), min(int(y // SIDE), GRID - 1)
+        host = f"G{r}{c}"
+        g.add_edge(
+            "site", host, length=float(np.hypot(x - centre[host][0], y - centre[host][1])) / 1000
+        )
+        lengths = nx.shortest_path_length(g, "site", weight="length")
+        out[:, j] = [lengths[u] for u in units.index]
+        g.remove_node("site")
+    return out
+
+
+@pytest.mark.parametrize("seed", [4, 5])
+def test_graph_distance_equals_networkx(seed):
+    units, sites, graph, pairs, site_xy = _grid_instance(seed)
+    expected = _networkx_km(units, pairs, site_xy)
+    straight = cdist(np.column_stack([units.centroid.x, units.centroid.y]), site_xy) / 1000
+    assert (expected >= straight - 1e-9).all()
+    assert (expected > straight + 1).any()  # the lake matters somewhere
+    assign = assign_depots(units, sites, reach_km=50, distance="graph", graph=graph)
+    np.testing.assert_allclose(assign["distance_km"], expected.min(axis=1), rtol=1e-12)
+    nearest = np.asarray(sites.index)[expected.argmin(axis=1)]
+    assert assign["depot"].tolist() == nearest.tolist()
+    weights = (units["probability"] * units["population"]).to_numpy()
+    within = expected <= 50
+    for k in (1, 2, 3):
+        best = max(
+            float(weights[within[:, list(c)].any(axis=1)].sum())
+            for c in combinations(range(len(sites)), k)
+        )
+        out = choose_depots(units, sites, k=k, reach_km=50, distance="graph", graph=graph)
+        assert out["covered_weight"].sum() == pytest.approx(best, rel=1e-9)
