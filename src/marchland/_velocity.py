@@ -1,0 +1,133 @@
+"""Speed of spread from arrival times at unit centroids (private to :mod:`marchland.spread`).
+
+Two estimators, both ordinary least squares in statsmodels:
+
+* **trend surface**: arrival week as a polynomial in the centroid coordinates (km); the local
+  speed is ``1 / |grad T|`` at each unit, summarised by the median over units. Its interval
+  comes from drawing coefficient vectors from the fit's sampling distribution (multivariate
+  normal with the OLS covariance) and taking quantiles of the median speed: one vectorised
+  array operation, no refitting loop.
+* **distance regression**: arrival week on distance (km) from the origin; speed = 1 / slope.
+  The interval is the inverse of the slope's interval, valid only when that interval lies
+  above zero; otherwise the upper limit is infinite (speed not bounded by the data).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import statsmodels.api as sm
+
+# Fewest units per polynomial coefficient before the degree is lowered (common practice:
+# several observations per parameter keep a trend surface from chasing noise).
+UNITS_PER_TERM = 5
+MIN_UNITS = 4
+
+
+def _terms(degree: int) -> list[tuple[int, int]]:
+    return [(i, j) for d in range(degree + 1) for i in range(d + 1) for j in [d - i]]
+
+
+def _design(xs: np.ndarray, ys: np.ndarray, terms) -> np.ndarray:
+    return np.column_stack([xs**i * ys**j for i, j in terms])
+
+
+def _gradient(beta: np.ndarray, xs: np.ndarray, ys: np.ndarray, terms) -> tuple:
+    """Partial derivatives of the polynomial; beta may be (p,) or (draws, p)."""
+    beta = np.atleast_2d(beta)
+    dx = np.zeros((beta.shape[0], len(xs)))
+    dy = np.zeros_like(dx)
+    for k, (i, j) in enumerate(terms):  # loop over the <= 10 terms, not over units
+        if i > 0:
+            dx += beta[:, [k]] * (i * xs ** (i - 1) * ys**j)
+        if j > 0:
+            dy += beta[:, [k]] * (j * xs**i * ys ** (j - 1))
+    return dx, dy
+
+
+def trend_surface(x_km, y_km, t_weeks, *, degree: int, conf: float, draws: int, rng) -> dict:
+    """Median local speed (km/week) of a polynomial trend surface, with a simulation interval."""
+    n = len(t_weeks)
+    if n < MIN_UNITS:
+        return _empty("trend_surface", n, f"needs at least {MIN_UNITS} affected units")
+    used = degree
+    while used > 1 and n < UNITS_PER_TERM * len(_terms(used)):
+        used -= 1
+    if n <= len(_terms(used)):
+        return _empty("trend_surface", n, "too few units for a linear surface")
+    # Centre and scale so the polynomial is well conditioned; undo the scale in the gradient.
+    cx, cy = x_km.mean(), y_km.mean()
+    scale = max(np.ptp(x_km), np.ptp(y_km)) / 2 or 1.0
+    xs, ys = (x_km - cx) / scale, (y_km - cy) / scale
+    # Lower the degree until the design has full rank (units along a line or a few rows).
+    while True:
+        terms = _terms(used)
+        design = _design(xs, ys, terms)
+        if np.linalg.matrix_rank(design) == len(terms):
+            break
+        if used == 1:
+            return _empty(
+                "trend_surface",
+                n,
+                "unit centroids lie (nearly) on a line: a surface "
+                "cannot be fitted; use the distance regression",
+            )
+        used -= 1
+    fit = sm.OLS(t_weeks, design).fit()
+    dx, dy = _gradient(fit.params, xs, ys, terms)
+    speed = scale / np.hypot(dx, dy)[0]
+    est = float(np.median(speed))
+    cov = np.asarray(fit.cov_params())
+    if not np.all(np.isfinite(cov)):
+        lo = hi = np.nan
+    else:
+        sims = rng.multivariate_normal(np.asarray(fit.params), cov, size=draws, method="svd")
+        sdx, sdy = _gradient(sims, xs, ys, terms)
+        med = np.median(scale / np.hypot(sdx, sdy), axis=1)
+        a = (1 - conf) / 2
+        lo, hi = (float(v) for v in np.quantile(med, [a, 1 - a]))
+    note = f"degree {used}" + (f" (lowered from {degree}: {n} units)" if used < degree else "")
+    note += f"; R2 {fit.rsquared:.2f}"
+    return {
+        "km_per_week": est,
+        "lower": lo,
+        "upper": hi,
+        "n_units": n,
+        "method": "trend_surface",
+        "note": note,
+    }
+
+
+def distance_regression(d_km, t_weeks, *, conf: float) -> dict:
+    """Speed (km/week) as the inverse slope of arrival week on distance from the origin."""
+    n = len(t_weeks)
+    if n < 3 or np.ptp(d_km) == 0:
+        return _empty("distance_regression", n, "needs 3 units at different distances")
+    fit = sm.OLS(t_weeks, sm.add_constant(d_km, has_constant="add")).fit()
+    slope = float(fit.params[1])
+    s_lo, s_hi = (float(v) for v in np.asarray(fit.conf_int(alpha=1 - conf))[1])
+    note = f"slope {slope:.4g} weeks/km [{s_lo:.4g}, {s_hi:.4g}]; R2 {fit.rsquared:.2f}"
+    if slope <= 0:
+        return _empty("distance_regression", n, "arrival does not get later with distance; " + note)
+    lower = 1 / s_hi if s_hi > 0 else np.nan
+    upper = 1 / s_lo if s_lo > 0 else np.inf
+    if s_lo <= 0:
+        note += "; slope interval includes 0, so the speed has no upper bound"
+    return {
+        "km_per_week": 1 / slope,
+        "lower": lower,
+        "upper": upper,
+        "n_units": n,
+        "method": "distance_regression",
+        "note": note,
+    }
+
+
+def _empty(method: str, n: int, why: str) -> dict:
+    return {
+        "km_per_week": np.nan,
+        "lower": np.nan,
+        "upper": np.nan,
+        "n_units": n,
+        "method": method,
+        "note": why,
+    }
