@@ -563,3 +563,22 @@ def test_reach_areas():
     assign = assign_depots(units, out)
     for unit, row in assign[assign["covered"]].iterrows():
         assert areas.geometry[row["depot"]].contains(units.geometry[unit].centroid)
+
+
+@pytest.mark.parametrize("reader", [read_supply_items, lambda p: read_depots(p, CRS)])
+def test_unreadable_tables(tmp_path, reader):
+    empty = tmp_path / "empty.csv"
+    empty.write_text("")
+    with pytest.raises(InputError) as info:
+        reader(empty)
+    assert info.value.file == str(empty)
+    with pytest.raises(InputError, match="cannot read"):
+        reader(tmp_path / "missing.csv")
+
+
+def test_plan_from_single_rate_and_note(tmp_path):
+    items = read_supply_items(io.StringIO(ITEMS_CSV))
+    plan = SupplyPlan.from_config({"items": items, "planning_attack_rate": 0.004})
+    assert plan.attack_rate_low == plan.attack_rate_high == 0.004
+    # the note rides along with the items table read by read_supply_items
+    assert plan.note == "Example values for the test, not guidance."

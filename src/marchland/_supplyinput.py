@@ -71,9 +71,21 @@ def _read_items(path: Any) -> tuple[pd.DataFrame, str | None]:
     if lines and lines[0].lstrip().startswith("#"):
         note = lines[0].lstrip().lstrip("#").strip()
         lines = lines[1:]
-    frame = pd.read_csv(io.StringIO("\n".join(lines)), dtype=str, keep_default_na=False)
-    frame.columns = [c.strip() for c in frame.columns]
+    frame = _read_csv(io.StringIO("\n".join(lines)), name, "supply items", comment=None)
     return _check_items(frame, file=name), note
+
+
+def _read_csv(source: Any, name: str | None, what: str, *, comment: str | None) -> pd.DataFrame:
+    """Read every cell as text (the checks parse numbers themselves, naming the bad cell)."""
+    try:
+        frame = pd.read_csv(source, dtype=str, keep_default_na=False, comment=comment)
+    except OSError as err:
+        raise InputError(f"cannot read the {what} table: {err.strerror or err}", file=name) from err
+    except (pd.errors.EmptyDataError, pd.errors.ParserError, UnicodeDecodeError) as err:
+        reason = str(err).splitlines()[0] if str(err) else type(err).__name__
+        raise InputError(f"the {what} table is not a readable CSV: {reason}", file=name) from err
+    frame.columns = [str(c).strip() for c in frame.columns]
+    return frame
 
 
 def _is_path(obj: Any) -> bool:

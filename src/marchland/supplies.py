@@ -45,6 +45,7 @@ from ._supplyinput import (
     _depots_from_frame,
     _file_name,
     _get,
+    _read_csv,
     _read_items,
     _share,
     _sites,
@@ -133,6 +134,8 @@ class SupplyPlan:
                 column="planning_attack_rate",
             )
         _share(self.severe_share, "severe_share")
+        if self.note is None:
+            object.__setattr__(self, "note", self.items.attrs.get("note"))
         object.__setattr__(self, "items", _check_items(self.items, file=None))
 
     @property
@@ -150,7 +153,8 @@ class SupplyPlan:
         ----------
         supplies : object or mapping
             Has ``items`` (path to the items table, or a DataFrame), ``planning_attack_rate``
-            (``low``/``mid``/``high``, a mapping or an object) and optionally ``severe_share``.
+            (``low``/``mid``/``high``, a mapping or an object; a single number means no range)
+            and optionally ``severe_share`` (default :data:`DEFAULT_SEVERE_SHARE`).
             Plain numbers and mappings are accepted as well as config dataclasses.
         base : path, optional
             Folder that relative item paths are resolved against (the config file's folder).
@@ -183,7 +187,10 @@ class SupplyPlan:
                 "the [supplies] section needs planning_attack_rate = {low, mid, high}",
                 column="supplies.planning_attack_rate",
             )
-        low, mid, high = (_get(rate, key) for key in ("low", "mid", "high"))
+        if isinstance(rate, (int, float)) and not isinstance(rate, bool):
+            low = mid = high = rate  # one number: no range
+        else:
+            low, mid, high = (_get(rate, key) for key in ("low", "mid", "high"))
         severe = _get(supplies, "severe_share")
         return cls(
             items,
@@ -436,11 +443,7 @@ def read_depots(path: str | os.PathLike[str], crs: Any) -> gpd.GeoDataFrame:
     D1    Harbour store      True
     """
     name = _file_name(path)
-    try:
-        frame = pd.read_csv(path, dtype=str, keep_default_na=False, comment="#")
-    except OSError as err:
-        raise InputError(f"cannot read the depot sites table: {err.strerror}", file=name) from err
-    frame.columns = [c.strip() for c in frame.columns]
+    frame = _read_csv(path, name, "depot sites", comment="#")
     return _depots_from_frame(frame, crs, file=name)
 
 
