@@ -142,10 +142,12 @@ def test_priority_table_shape_and_order():
     pd.testing.assert_frame_equal(units, units_copy)
 
 
-def test_silent_is_carried():
-    risk = _risk().assign(silent=[False, True, False, False])
+def test_silent_and_drivers_are_carried():
+    risk = _risk().assign(silent=[False, True, False, False], drivers=["OSK-02-01", "", "", ""])
     out = prioritise(risk, _units(), plan=_plan())
     assert bool(out.loc["TVR-01-02", "silent"]) is True
+    assert out.loc["TVR-01-01", "drivers"] == "OSK-02-01"
+    assert "part_distance" not in out.columns
 
 
 def test_prioritise_bad_input():

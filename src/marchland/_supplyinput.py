@@ -37,6 +37,7 @@ _RESERVED = frozenset(
         "planning_cases_high",
         "cross_border",
         "silent",
+        "drivers",
         "units",
         "expected_cases",
         "geometry",

@@ -250,7 +250,8 @@ def prioritise(risk: pd.DataFrame, units: pd.DataFrame, *, plan: SupplyPlan) -> 
     ----------
     risk : pandas.DataFrame
         :func:`marchland.border_risk` output, indexed by ``unit_id``, with at least
-        ``probability`` and ``rank`` (``cross_border``, ``silent`` are carried if present).
+        ``probability`` and ``rank`` (``cross_border``, ``silent``, ``drivers`` are carried if
+        present).
     units : pandas.DataFrame or geopandas.GeoDataFrame
         Analysis units indexed by ``unit_id`` with ``name``, ``country``, ``population``.
     plan : SupplyPlan
@@ -261,7 +262,7 @@ def prioritise(risk: pd.DataFrame, units: pd.DataFrame, *, plan: SupplyPlan) -> 
     pandas.DataFrame
         Indexed by ``unit_id``, sorted by ``rank``, with columns ``rank name country
         probability population planning_cases_low planning_cases planning_cases_high``, then
-        ``cross_border`` and ``silent`` when ``risk`` has them, then one nullable-integer
+        ``cross_border``, ``silent``, ``drivers`` when ``risk`` has them, then one nullable-integer
         column per item (named as in ``plan.item_names``).
 
         ``planning_cases`` = population x mid attack rate (unrounded; ``_low``/``_high`` with
@@ -320,7 +321,7 @@ def prioritise(risk: pd.DataFrame, units: pd.DataFrame, *, plan: SupplyPlan) -> 
     out["planning_cases_low"] = population * plan.attack_rate_low
     out["planning_cases"] = population * plan.attack_rate_mid
     out["planning_cases_high"] = population * plan.attack_rate_high
-    for col in ("cross_border", "silent"):
+    for col in ("cross_border", "silent", "drivers"):
         if col in risk.columns:
             out[col] = risk[col]
     quantities = _quantities(out["planning_cases"].to_numpy(), plan)
