@@ -584,3 +584,11 @@ def test_plan_from_single_rate_and_note(tmp_path):
     assert plan.attack_rate_low == plan.attack_rate_high == 0.004
     # the note rides along with the items table read by read_supply_items
     assert plan.note == "Example values for the test, not guidance."
+
+
+def test_depot_without_id(tmp_path):
+    path = tmp_path / "depots.csv"
+    path.write_text(DEPOTS_CSV + " ,Nameless,10,52,no\n")
+    with pytest.raises(InputError, match="needs an id") as info:
+        read_depots(path, CRS)
+    assert (info.value.row, info.value.column) == (4, "site")

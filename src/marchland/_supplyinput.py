@@ -180,9 +180,10 @@ def _depots_from_frame(frame: pd.DataFrame, crs: Any, *, file: str | None) -> gp
     n = len(frame)
     rows = np.arange(1, n + 1)
     site = frame["site"].astype(str).str.strip()
-    for row, value in zip(rows, site, strict=True):
-        if not value:
-            raise InputError("each site needs an id", file=file, row=int(row), column="site")
+    empty = (site == "").to_numpy()
+    if empty.any():
+        row = int(rows[empty][0])
+        raise InputError("each site needs an id", file=file, row=row, column="site")
     dup = site.duplicated()
     if dup.any():
         row = int(rows[dup.to_numpy()][0])
