@@ -9,6 +9,7 @@ one chunk evaluated as one array operation. pointpats is the outside check in th
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 from scipy import stats
 from scipy.spatial import cKDTree
 
@@ -58,4 +59,56 @@ def poisson_p(statistic: int, expected: float) -> tuple[float, float]:
     """P(X >= observed) (reported) and P(X > observed) (pointpats' convention), X ~ Poisson."""
     return float(stats.poisson.sf(statistic - 1, expected)), float(
         stats.poisson.sf(statistic, expected)
+    )
+
+
+def as_arrays(points, times, interval) -> tuple[np.ndarray, np.ndarray, float]:
+    """Coordinates (n, 2), times as floats (datetimes -> days) and the interval to match."""
+    if hasattr(points, "geometry"):
+        geom = points.geometry
+        xy = np.column_stack([geom.x.to_numpy(), geom.y.to_numpy()])
+    else:
+        xy = np.asarray(points, dtype=float)
+    t = pd.Series(np.asarray(times).ravel())
+    if pd.api.types.is_datetime64_any_dtype(t):
+        t = (t - t.min()) / pd.Timedelta(days=1)
+        if isinstance(interval, pd.Timedelta):
+            interval = interval / pd.Timedelta(days=1)
+    t = t.to_numpy(dtype=float)
+    if xy.ndim != 2 or xy.shape[1] != 2 or len(xy) != len(t):
+        raise ValueError(
+            f"'points' need to be n x 2 coordinates matching 'times'; got {xy.shape} points "
+            f"and {len(t)} times"
+        )
+    if len(t) < 3:
+        raise ValueError(f"the Knox test needs at least 3 cases; {len(t)} given")
+    if not (np.isfinite(xy).all() and np.isfinite(t).all()):
+        raise ValueError("'points' and 'times' must not contain missing values")
+    return xy, t, float(interval)
+
+
+def knox_test(xy, t, distance: float, interval: float, permutations: int, seed) -> dict:
+    """Observed count, Poisson p-values and the Monte Carlo p-value, as KnoxResult fields."""
+    rng = np.random.default_rng(seed)
+    c = knox_counts(xy, t, float(distance), float(interval))
+    expected = c["space_pairs"] * c["time_pairs"] / c["pairs"]
+    p_ge, p_gt = poisson_p(c["statistic"], expected)
+    if permutations > 0:
+        sims = permutation_counts(c["pair_index"], t, float(interval), permutations, rng)
+        p_sim = (1 + int((sims >= c["statistic"]).sum())) / (1 + permutations)
+    else:
+        p_sim = np.nan
+    return dict(
+        statistic=c["statistic"],
+        expected=float(expected),
+        p_sim=float(p_sim),
+        p_poisson=p_ge,
+        p_poisson_above=p_gt,
+        n_events=c["n"],
+        space_pairs=c["space_pairs"],
+        time_pairs=c["time_pairs"],
+        pairs=c["pairs"],
+        distance=float(distance),
+        interval=float(interval),
+        permutations=int(permutations),
     )

@@ -14,8 +14,13 @@ Two estimators, both ordinary least squares in statsmodels:
 
 from __future__ import annotations
 
+import geopandas as gpd
 import numpy as np
+import pandas as pd
 import statsmodels.api as sm
+
+VELOCITY_METHODS = ("trend_surface", "distance_regression")
+VELOCITY_COLUMNS = ("km_per_week", "lower", "upper", "n_units", "method", "note")
 
 # Fewest units per polynomial coefficient before the degree is lowered (common practice:
 # several observations per parameter keep a trend surface from chasing noise).
@@ -131,3 +136,72 @@ def _empty(method: str, n: int, why: str) -> dict:
         "method": method,
         "note": why,
     }
+
+
+def estimate(
+    cent: pd.DataFrame,
+    first: pd.Series,
+    origin,
+    groups: dict | None,
+    *,
+    degree: int,
+    conf: float,
+    draws: int,
+    rng,
+) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """Both estimators overall (table by method) and per group (or None)."""
+    t = first.reindex(cent.index)
+    affected = t.notna().to_numpy()
+    start = t.min()
+    weeks = ((t - start) / pd.Timedelta(days=7)).to_numpy(dtype=float)
+    if origin is None:
+        origin_xy = cent[(t == start).to_numpy()].mean().to_numpy()
+    elif isinstance(origin, tuple) and len(origin) == 2 and not isinstance(origin[0], str):
+        origin_xy = np.asarray(origin, dtype=float) / 1000
+    else:
+        ids = [origin] if isinstance(origin, str) else list(origin)
+        origin_xy = cent.loc[ids].mean().to_numpy()
+    opts = {"degree": degree, "conf": conf, "draws": draws, "rng": rng}
+    xy = cent[["x", "y"]].to_numpy()
+    table = velocity_table(xy[affected], weeks[affected], origin_xy, **opts)
+    by_group = None
+    if groups is not None:
+        parts = []
+        for name, members in groups.items():  # a handful of groups
+            sel = cent.index.isin(members) & affected
+            part = velocity_table(xy[sel], weeks[sel], origin_xy, **opts)
+            parts.append(part.assign(group=name))
+        by_group = (
+            pd.concat(parts)
+            .reset_index(drop=True)
+            .set_index(["group", "method"], drop=False)
+            .drop(columns="group")
+        )
+    return table, by_group
+
+
+def velocity_table(xy, t_weeks, origin_xy, *, degree, conf, draws, rng) -> pd.DataFrame:
+    """One row per estimator for the given units."""
+    x, y = xy[:, 0], xy[:, 1]
+    d = np.hypot(x - origin_xy[0], y - origin_xy[1])
+    rows = [
+        trend_surface(x, y, t_weeks, degree=degree, conf=conf, draws=draws, rng=rng),
+        distance_regression(d, t_weeks, conf=conf),
+    ]
+    return pd.DataFrame(rows, columns=list(VELOCITY_COLUMNS)).set_index("method", drop=False)
+
+
+def groups_of(groups, units: gpd.GeoDataFrame) -> dict:
+    """Group name -> unit ids, from a column name, a Series or a dict."""
+    if isinstance(groups, str):
+        if groups not in units.columns:
+            raise KeyError(f"'groups' names column {groups!r}, which units lack")
+        groups = units[groups]
+    if isinstance(groups, pd.Series):
+        return {k: v.index for k, v in groups.dropna().groupby(groups.dropna())}
+    if isinstance(groups, dict):
+        return {k: pd.Index(list(v)) for k, v in groups.items()}
+    raise TypeError(
+        "'groups' needs to be a column name of units, a Series (unit id -> group) or a dict "
+        f"(group -> unit ids). {type(groups).__name__} was given instead."
+    )

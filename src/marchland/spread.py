@@ -12,24 +12,31 @@ References
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
 from libpysal.graph import Graph
-from scipy import sparse
-from scipy.sparse import csgraph
 
-from ._knox import knox_counts, permutation_counts, poisson_p
+from ._arrival import (
+    FIRST_WEEK,
+    centroids_km,
+    first_on,
+    introductions_table,
+    month_of_week,
+    path_table,
+    resolve_countries,
+    time_respecting_path,
+    weeks_between,
+)
+from ._knox import as_arrays, knox_test
 from ._timeline import build_timeline, confirmed, episodes
-from ._velocity import distance_regression, trend_surface
-from .errors import DataWarning, InputError
+from ._velocity import VELOCITY_METHODS, estimate, groups_of
+from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 from .reports import as_of as _as_of_view
 
-FIRST_WEEK = "first_week"
 PERIODS = ("month", "week")
 
 
@@ -187,59 +194,6 @@ def affected_episodes(
     return episodes(tl, confirm, reintroduction_weeks)
 
 
-# --- shared helpers -------------------------------------------------------------------------
-def _first_on(first: pd.Series, ids: pd.Index) -> pd.Series:
-    """``first`` on the graph's ids (NaT where absent), warning about affected units left out."""
-    if not isinstance(first, pd.Series):
-        raise TypeError(
-            f"'first' needs to be a pandas Series of weeks. {type(first).__name__}"
-            " was given instead."
-        )
-    first = pd.to_datetime(first)
-    outside = first.index.difference(ids)
-    lost = first.reindex(outside).notna()
-    if lost.any():
-        warnings.warn(
-            f"{int(lost.sum())} affected unit(s) are not in the graph and are left out: "
-            f"{list(outside[lost.to_numpy()][:5])}",
-            DataWarning,
-            stacklevel=3,
-        )
-    return first.reindex(ids).rename(FIRST_WEEK)
-
-
-def _weeks_between(later: pd.Series, earlier) -> pd.Series:
-    return ((later - earlier) / pd.Timedelta(days=7)).round().astype("Int64")
-
-
-def _month_of_week(week: pd.Series) -> pd.Series:
-    # The month holding most of the week's days: that of its middle (fourth) day.
-    mid = week + pd.Timedelta(days=3)
-    return mid.dt.strftime("%Y-%m").where(week.notna(), pd.NA).astype("string")
-
-
-def _resolve_countries(bg: BorderGraph, countries: pd.Series | None) -> pd.Series | None:
-    if countries is not None:
-        return pd.Series(countries).reindex(bg.ids).astype("string")
-    own = getattr(bg, "countries", None)
-    if own is not None:
-        return pd.Series(own).reindex(bg.ids).astype("string")
-    # DEVELOPERS.md id contract: ids start with the three-letter country code ("TVR-03-07").
-    prefix = pd.Series(bg.ids, index=bg.ids).str.extract(r"^([A-Z]{3})-", expand=False)
-    return prefix.astype("string") if prefix.notna().all() else None
-
-
-def _centroids_km(units: gpd.GeoDataFrame) -> pd.DataFrame:
-    crs = units.crs
-    if crs is None or not crs.is_projected:
-        raise ValueError(
-            "'units' need a projected CRS in metres (the working equal-area CRS). "
-            f"{crs.to_string() if crs is not None else 'no CRS'} was given instead."
-        )
-    c = units.geometry.centroid
-    return pd.DataFrame({"x": c.x.to_numpy() / 1000, "y": c.y.to_numpy() / 1000}, index=units.index)
-
-
 # --- fronts ---------------------------------------------------------------------------------
 def spread_fronts(first: pd.Series, graph: BorderGraph | Graph) -> pd.DataFrame:
     """Arrival week, graph distance from the earliest units and period joined, per unit.
@@ -275,12 +229,12 @@ def spread_fronts(first: pd.Series, graph: BorderGraph | Graph) -> pd.DataFrame:
     c                     <NA>     <NA>     2
     """
     bg = as_border_graph(graph)
-    t = _first_on(first, bg.ids)
+    t = first_on(first, bg.ids)
     out = pd.DataFrame(index=bg.ids)
     out[FIRST_WEEK] = t
     start = t.min()
-    out["weeks_since_start"] = _weeks_between(t, start)
-    out["month"] = _month_of_week(t)
+    out["weeks_since_start"] = weeks_between(t, start)
+    out["month"] = month_of_week(t)
     origin = t.notna() & (t == start)
     out["hops"] = bg.hops_from(bg.ids[origin.to_numpy()])
     out["origin"] = origin
@@ -334,7 +288,7 @@ def front_outlines(
     missing = t.index.difference(units.index)
     if len(missing):
         raise KeyError(f"units lack geometry for affected unit(s): {list(missing[:5])}")
-    key = _month_of_week(t) if period == "month" else t.dt.strftime("%Y-%m-%d")
+    key = month_of_week(t) if period == "month" else t.dt.strftime("%Y-%m-%d")
     g = gpd.GeoDataFrame(
         {"period": key.to_numpy(), FIRST_WEEK: t.to_numpy(), "unit": t.index.to_numpy()},
         geometry=units.geometry.reindex(t.index).to_numpy(),
@@ -409,54 +363,8 @@ def cross_border_introductions(
             "libpysal Graph: without it no edge is known to cross a border"
         )
     bg = as_border_graph(graph, countries=countries)
-    t = _first_on(first, bg.ids)
-    nations = _resolve_countries(bg, countries)
-    e = bg.edges
-    tf = e["focal"].map(t).to_numpy()
-    tn = e["neighbor"].map(t).to_numpy()
-    earlier = pd.notna(tn) & pd.notna(tf) & (tn < tf)
-    cross = e["cross_border"].to_numpy(dtype=bool)
-    foreign = e[earlier & cross]
-    domestic_first = set(e.loc[earlier & ~cross, "focal"])
-    foreign = foreign[~foreign["focal"].isin(domestic_first)]
-    cols = [
-        FIRST_WEEK,
-        "country",
-        "sources",
-        "source_countries",
-        "n_sources",
-        "source_week",
-        "lag_weeks",
-        "evidence",
-    ]
-    if foreign.empty:
-        return pd.DataFrame(columns=cols, index=pd.Index([], name="unit_id"))
-    src = foreign.assign(
-        source_week=foreign["neighbor"].map(t).to_numpy(),
-        source_country=(
-            foreign["neighbor"].map(nations).to_numpy() if nations is not None else pd.NA
-        ),
-    ).sort_values(["focal", "source_week", "neighbor"])
-    grouped = src.groupby("focal", sort=False)
-    out = pd.DataFrame(
-        {
-            "sources": grouped["neighbor"].agg(", ".join),
-            "source_countries": grouped["source_country"].agg(_join_unique),
-            "n_sources": grouped["neighbor"].size().astype("Int64"),
-            "source_week": grouped["source_week"].min(),
-        }
-    )
-    out.index.name = "unit_id"
-    out.insert(0, FIRST_WEEK, t.reindex(out.index))
-    out.insert(1, "country", nations.reindex(out.index) if nations is not None else pd.NA)
-    out["lag_weeks"] = _weeks_between(out[FIRST_WEEK], out["source_week"])
-    out["evidence"] = "probable"
-    return out.sort_values([FIRST_WEEK, "country"]).loc[:, cols]
-
-
-def _join_unique(values: pd.Series) -> str | None:
-    vals = sorted({str(v) for v in values if pd.notna(v)})
-    return ", ".join(vals) if vals else None
+    t = first_on(first, bg.ids)
+    return introductions_table(bg, t, resolve_countries(bg, countries))
 
 
 def introductions_by_border(introductions: pd.DataFrame) -> pd.DataFrame:
@@ -568,7 +476,7 @@ def corridor(
     d          3                   4
     """
     bg = as_border_graph(graph)
-    t = _first_on(first, bg.ids)
+    t = first_on(first, bg.ids)
     for role, uid in (("source", source), ("target", target)):
         if uid not in bg.ids:
             raise InputError(f"{role} unit is not in the graph", value=uid)
@@ -580,65 +488,18 @@ def corridor(
             f"({t[source]:%Y-%m-%d}): no time-respecting path",
             value=target,
         )
-    e = bg.edges
-    tf = e["focal"].map(t).to_numpy()
-    tn = e["neighbor"].map(t).to_numpy()
-    keep = pd.notna(tf) & pd.notna(tn) & (tn >= tf)
-    e = e[keep]
-    centroids = None
-    if units is not None:
-        centroids = _centroids_km(units).reindex(bg.ids)
-        km = np.hypot(
-            centroids.loc[e["focal"], "x"].to_numpy()
-            - centroids.loc[e["neighbor"], "x"].to_numpy(),
-            centroids.loc[e["focal"], "y"].to_numpy()
-            - centroids.loc[e["neighbor"], "y"].to_numpy(),
-        )
-        km = np.nan_to_num(km, nan=0.0)
-    else:
-        km = np.zeros(len(e))
-    cost = 1.0 + km / (km.sum() + 1.0)
-    i = bg.ids.get_indexer(e["focal"])
-    j = bg.ids.get_indexer(e["neighbor"])
-    n = len(bg.ids)
-    mat = sparse.csr_matrix((cost, (i, j)), shape=(n, n))
-    s, g = bg.ids.get_loc(source), bg.ids.get_loc(target)
-    dist, pred = csgraph.dijkstra(mat, directed=True, indices=s, return_predecessors=True)
-    if not np.isfinite(dist[g]):
+    centroids = None if units is None else centroids_km(units).reindex(bg.ids)
+    path = time_respecting_path(bg, t, source, target, centroids)
+    if path is None:
         raise InputError(
             f"no time-respecting path from {source!r} to {target!r}: every chain of neighbours "
             "between them has a unit affected earlier than the one before it, or unaffected",
             value=target,
         )
-    # Walk the predecessor array back from the target (path length, not units, bounds it).
-    path = [g]
-    while path[-1] != s:
-        path.append(pred[path[-1]])
-    ids = bg.ids[path[::-1]]
-    out = pd.DataFrame(index=pd.Index(ids, name="unit_id"))
-    out["hop"] = np.arange(len(ids))
-    out[FIRST_WEEK] = t.reindex(ids).to_numpy()
-    out["weeks_since_source"] = _weeks_between(out[FIRST_WEEK], t[source])
-    if centroids is not None:
-        xy = centroids.reindex(ids)[["x", "y"]].to_numpy()
-        step = np.r_[0.0, np.hypot(*np.diff(xy, axis=0).T)]
-    else:
-        step = np.full(len(ids), np.nan)
-        step[0] = 0.0
-    out["km_step"] = step
-    out["km"] = np.cumsum(step)
-    pair = pd.MultiIndex.from_arrays([bg.edges["focal"], bg.edges["neighbor"]])
-    flag = pd.Series(bg.edges["cross_border"].to_numpy(dtype=bool), index=pair)
-    steps = pd.MultiIndex.from_arrays([ids[:-1], ids[1:]])
-    out["cross_border"] = np.r_[False, flag.reindex(steps).to_numpy(dtype=bool)]
-    return out
+    return path_table(bg, t, path, centroids)
 
 
 # --- velocity -------------------------------------------------------------------------------
-VELOCITY_METHODS = ("trend_surface", "distance_regression")
-VELOCITY_COLUMNS = ("km_per_week", "lower", "upper", "n_units", "method", "note")
-
-
 @dataclass(frozen=True, eq=False)
 class Velocity:
     """Speed of spread in km per week, with its interval, from one method (the headline).
@@ -657,31 +518,6 @@ class Velocity:
     by_method: pd.DataFrame = field(repr=False)
     by_group: pd.DataFrame | None = field(default=None, repr=False)
     conf: float = 0.95
-
-
-def _velocity_table(xy, t_weeks, origin_xy, *, degree, conf, draws, rng) -> pd.DataFrame:
-    x, y = xy[:, 0], xy[:, 1]
-    d = np.hypot(x - origin_xy[0], y - origin_xy[1])
-    rows = [
-        trend_surface(x, y, t_weeks, degree=degree, conf=conf, draws=draws, rng=rng),
-        distance_regression(d, t_weeks, conf=conf),
-    ]
-    return pd.DataFrame(rows, columns=list(VELOCITY_COLUMNS)).set_index("method", drop=False)
-
-
-def _groups(groups, units: gpd.GeoDataFrame) -> dict:
-    if isinstance(groups, str):
-        if groups not in units.columns:
-            raise KeyError(f"'groups' names column {groups!r}, which units lack")
-        groups = units[groups]
-    if isinstance(groups, pd.Series):
-        return {k: v.index for k, v in groups.dropna().groupby(groups.dropna())}
-    if isinstance(groups, dict):
-        return {k: pd.Index(list(v)) for k, v in groups.items()}
-    raise TypeError(
-        "'groups' needs to be a column name of units, a Series (unit id -> group) or a dict "
-        f"(group -> unit ids). {type(groups).__name__} was given instead."
-    )
 
 
 def spread_velocity(
@@ -766,35 +602,16 @@ def spread_velocity(
         )
     if not 0 < conf < 1:
         raise ValueError(f"'conf' needs to be between 0 and 1. {conf!r} was given instead.")
-    rng = np.random.default_rng(seed)
-    cent = _centroids_km(units)
-    t = pd.to_datetime(first).reindex(cent.index)
-    affected = t.notna().to_numpy()
-    start = t.min()
-    weeks = ((t - start) / pd.Timedelta(days=7)).to_numpy(dtype=float)
-    if origin is None:
-        origin_xy = cent[(t == start).to_numpy()].mean().to_numpy()
-    elif isinstance(origin, tuple) and len(origin) == 2:
-        origin_xy = np.asarray(origin, dtype=float) / 1000
-    else:
-        ids = [origin] if isinstance(origin, str) else list(origin)
-        origin_xy = cent.loc[ids].mean().to_numpy()
-    opts = {"degree": degree, "conf": conf, "draws": draws, "rng": rng}
-    xy = cent[["x", "y"]].to_numpy()
-    table = _velocity_table(xy[affected], weeks[affected], origin_xy, **opts)
-    by_group = None
-    if groups is not None:
-        parts = []
-        for name, members in _groups(groups, units).items():  # a handful of groups
-            sel = cent.index.isin(members) & affected
-            part = _velocity_table(xy[sel], weeks[sel], origin_xy, **opts)
-            parts.append(part.assign(group=name))
-        by_group = (
-            pd.concat(parts)
-            .reset_index(drop=True)
-            .set_index(["group", "method"], drop=False)
-            .drop(columns="group")
-        )
+    table, by_group = estimate(
+        centroids_km(units),
+        pd.to_datetime(first),
+        origin,
+        None if groups is None else groups_of(groups, units),
+        degree=degree,
+        conf=conf,
+        draws=draws,
+        rng=np.random.default_rng(seed),
+    )
     head = table.loc[method]
     return Velocity(
         km_per_week=float(head["km_per_week"]),
@@ -882,47 +699,5 @@ def knox(
     >>> r.statistic, r.space_pairs, r.time_pairs, r.pairs
     (1, 2, 3, 6)
     """
-    if hasattr(points, "geometry"):
-        geom = points.geometry
-        xy = np.column_stack([geom.x.to_numpy(), geom.y.to_numpy()])
-    else:
-        xy = np.asarray(points, dtype=float)
-    t = pd.Series(np.asarray(times).ravel())
-    if pd.api.types.is_datetime64_any_dtype(t):
-        t = (t - t.min()) / pd.Timedelta(days=1)
-        if isinstance(interval, pd.Timedelta):
-            interval = interval / pd.Timedelta(days=1)
-    t = t.to_numpy(dtype=float)
-    if xy.ndim != 2 or xy.shape[1] != 2 or len(xy) != len(t):
-        raise ValueError(
-            f"'points' need to be n x 2 coordinates matching 'times'; got {xy.shape} points "
-            f"and {len(t)} times"
-        )
-    if len(t) < 3:
-        raise ValueError(f"the Knox test needs at least 3 cases; {len(t)} given")
-    if not (np.isfinite(xy).all() and np.isfinite(t).all()):
-        raise ValueError("'points' and 'times' must not contain missing values")
-    c = knox_counts(xy, t, float(distance), float(interval))
-    expected = c["space_pairs"] * c["time_pairs"] / c["pairs"]
-    p_ge, p_gt = poisson_p(c["statistic"], expected)
-    if permutations > 0:
-        sims = permutation_counts(
-            c["pair_index"], t, float(interval), permutations, np.random.default_rng(seed)
-        )
-        p_sim = (1 + int((sims >= c["statistic"]).sum())) / (1 + permutations)
-    else:
-        p_sim = np.nan
-    return KnoxResult(
-        statistic=c["statistic"],
-        expected=float(expected),
-        p_sim=float(p_sim),
-        p_poisson=p_ge,
-        p_poisson_above=p_gt,
-        n_events=c["n"],
-        space_pairs=c["space_pairs"],
-        time_pairs=c["time_pairs"],
-        pairs=c["pairs"],
-        distance=float(distance),
-        interval=float(interval),
-        permutations=int(permutations),
-    )
+    xy, t, interval = as_arrays(points, times, interval)
+    return KnoxResult(**knox_test(xy, t, float(distance), interval, permutations, seed))
