@@ -4,24 +4,31 @@
 (both directions of every pair) and the full list of unit ids, is checked once when made and
 never changed afterwards; the libpysal ``Graph`` views and hop distances are derived from it.
 
-``border_graph`` (geometry -> BorderGraph) is built in :mod:`marchland._contiguity`.
+``border_graph`` (geometry -> BorderGraph) is built in :mod:`marchland._contiguity`, whose
+module docstring states the corner rule.
 """
 
 from __future__ import annotations
 
+import os
 from collections.abc import Iterable
 from dataclasses import dataclass
 from functools import cached_property
 
 import numpy as np
 import pandas as pd
+import shapely
 from libpysal.graph import Graph
 from scipy import sparse
 from scipy.sparse import csgraph
 
+from .errors import InputError
+
 EDGE_COLUMNS = ("focal", "neighbor", "shared_m", "gap_m", "cross_border", "kind")
+# Kinds from strongest to weakest evidence of contact; higher_order relies on this order.
 EDGE_KINDS = ("shared-boundary", "gap-bridged", "link")
 WEIGHTINGS = ("binary", "shared")
+RULES = ("queen", "rook")
 
 
 @dataclass(frozen=True, eq=False)
@@ -32,9 +39,12 @@ class BorderGraph:
     ----------
     edges : pandas.DataFrame
         Columns ``focal``, ``neighbor``, ``shared_m``, ``gap_m``, ``cross_border``, ``kind``;
-        one row per direction of each neighbouring pair (the table is symmetric).
+        one row per direction of each neighbouring pair (the table is symmetric). Further
+        columns (``border_graph`` adds ``link_kind`` and ``link_name``) are kept after these.
     ids : pandas.Index
         Every analysis-unit id, islands included, in the order the graph uses.
+    countries : pandas.Series, optional
+        Country code per unit id; lets :meth:`higher_order` mark cross-border pairs exactly.
 
     Notes
     -----
@@ -45,29 +55,41 @@ class BorderGraph:
 
     edges: pd.DataFrame
     ids: pd.Index
+    countries: pd.Series | None = None
 
     def __post_init__(self) -> None:
         missing = [c for c in EDGE_COLUMNS if c not in self.edges.columns]
         if missing:
             raise ValueError(f"edges needs columns {list(EDGE_COLUMNS)}; missing {missing}")
-        if not self.ids.is_unique:
+        ids = pd.Index(self.ids, name="unit_id")
+        if not ids.is_unique:
             raise ValueError("ids must be unique")
-        known = self.edges["focal"].isin(self.ids) & self.edges["neighbor"].isin(self.ids)
-        if not known.all():
+        e = self.edges
+        fi = ids.get_indexer(e["focal"])
+        ni = ids.get_indexer(e["neighbor"])
+        if (fi < 0).any() or (ni < 0).any():
             raise ValueError("edges name units that are not in ids")
-        if (self.edges["focal"] == self.edges["neighbor"]).any():
+        if (fi == ni).any():
             raise ValueError("edges must not contain self-loops")
-        bad_kind = set(self.edges["kind"]) - set(EDGE_KINDS)
+        bad_kind = set(pd.unique(e["kind"])) - set(EDGE_KINDS)
         if bad_kind:
             raise ValueError(f"'kind' needs to be one of {EDGE_KINDS}; {sorted(bad_kind)} given")
-        fwd = set(zip(self.edges["focal"], self.edges["neighbor"], strict=True))
-        if fwd != {(b, a) for a, b in fwd}:
-            raise ValueError("edges must list both directions of every pair")
-        if len(fwd) != len(self.edges):
+        n = np.int64(len(ids))
+        key = np.sort(fi.astype(np.int64) * n + ni)
+        if (key[1:] == key[:-1]).any():
             raise ValueError("edges lists a pair twice")
-        # Freeze a private copy: the caller's frame is never shared or changed.
-        object.__setattr__(self, "edges", self.edges.loc[:, list(EDGE_COLUMNS)].copy())
-        object.__setattr__(self, "ids", pd.Index(self.ids, name="unit_id"))
+        if not np.array_equal(key, np.sort(ni.astype(np.int64) * n + fi)):
+            raise ValueError("edges must list both directions of every pair")
+        # Freeze a private copy with fixed dtypes: the caller's frame is never shared or changed.
+        extra = [c for c in e.columns if c not in EDGE_COLUMNS]
+        e = e.loc[:, [*EDGE_COLUMNS, *extra]].reset_index(drop=True)
+        e = e.astype({"shared_m": float, "gap_m": float, "cross_border": bool, "kind": str})
+        object.__setattr__(self, "edges", e)
+        object.__setattr__(self, "ids", ids)
+        if self.countries is not None:
+            c = pd.Series(self.countries).reindex(ids).rename("country")
+            object.__setattr__(self, "countries", c)
+        object.__setattr__(self, "_weights_cache", {})
 
     # --- constructors -------------------------------------------------------------------
     @classmethod
@@ -105,14 +127,13 @@ class BorderGraph:
                 edges["focal"].map(countries).to_numpy()
                 != edges["neighbor"].map(countries).to_numpy()
             )
-        return cls(edges=edges, ids=pd.Index(graph.unique_ids))
+        return cls(edges=edges, ids=pd.Index(graph.unique_ids), countries=countries)
 
     # --- derived views --------------------------------------------------------------------
     @cached_property
     def islands(self) -> list:
         """Units with no neighbour, links included."""
-        linked = set(self.edges["focal"])
-        return [i for i in self.ids if i not in linked]
+        return self.ids[~self.ids.isin(self.edges["focal"])].tolist()
 
     @cached_property
     def graph(self) -> Graph:
@@ -120,7 +141,7 @@ class BorderGraph:
         return self.weights("binary")
 
     def weights(self, weighting: str = "binary", *, row_standardise: bool = False) -> Graph:
-        """A libpysal ``Graph`` with binary or shared-boundary-length weights.
+        """Return a libpysal ``Graph`` with binary or shared-boundary-length weights.
 
         Parameters
         ----------
@@ -129,11 +150,29 @@ class BorderGraph:
             edges of unknown length get the median shared length of the graph).
         row_standardise : bool
             Transform to row sums of one (libpysal's "r"), as the local Moran's I needs.
+
+        Returns
+        -------
+        libpysal.graph.Graph
+            Over ``ids`` in their order; islands have a zero self-weight.
+
+        Examples
+        --------
+        >>> import pandas as pd
+        >>> e = pd.DataFrame({"focal": list("abbc"), "neighbor": list("bacb"),
+        ...                   "shared_m": [1.0, 1.0, 3.0, 3.0], "gap_m": 0.0,
+        ...                   "cross_border": False, "kind": "shared-boundary"})
+        >>> w = BorderGraph(e, pd.Index(list("abc"))).weights("shared", row_standardise=True)
+        >>> w.adjacency.loc["b"].tolist()
+        [0.25, 0.75]
         """
         if weighting not in WEIGHTINGS:
             raise ValueError(
                 f"'weighting' needs to be one of {WEIGHTINGS}. {weighting!r} was given instead."
             )
+        cache = self._weights_cache
+        if (weighting, row_standardise) in cache:
+            return cache[weighting, row_standardise]
         e = self.edges
         if weighting == "binary":
             w = np.ones(len(e))
@@ -146,22 +185,46 @@ class BorderGraph:
         adj = pd.concat([adj, isl], ignore_index=True)
         order = pd.Categorical(adj["focal"], categories=self.ids)
         adj = adj.iloc[np.argsort(order.codes, kind="stable")]
-        g = Graph.from_adjacency(adj, focal_col="focal", neighbor_col="neighbor",
-                                 weight_col="weight")
-        return g.transform("r") if row_standardise else g
+        g = Graph.from_adjacency(
+            adj, focal_col="focal", neighbor_col="neighbor", weight_col="weight"
+        )
+        g = g.transform("r") if row_standardise else g
+        cache[weighting, row_standardise] = g
+        return g
+
+    @cached_property
+    def _positions(self) -> tuple[np.ndarray, np.ndarray]:
+        return (
+            self.ids.get_indexer(self.edges["focal"]),
+            self.ids.get_indexer(self.edges["neighbor"]),
+        )
+
+    def _adjacency(self, mask: np.ndarray | None = None) -> sparse.csr_matrix:
+        i, j = self._positions
+        if mask is not None:
+            i, j = i[mask], j[mask]
+        n = len(self.ids)
+        return sparse.csr_matrix((np.ones(len(i), dtype=np.int8), (i, j)), shape=(n, n))
 
     @cached_property
     def _csr(self) -> sparse.csr_matrix:
-        pos = pd.Series(np.arange(len(self.ids)), index=self.ids)
-        i = pos.loc[self.edges["focal"]].to_numpy()
-        j = pos.loc[self.edges["neighbor"]].to_numpy()
-        n = len(self.ids)
-        return sparse.csr_matrix((np.ones(len(i)), (i, j)), shape=(n, n))
+        return self._adjacency()
 
     def hops_from(self, sources: Iterable) -> pd.Series:
         """Graph distance (number of steps) from the nearest of ``sources`` to every unit.
 
-        Unreachable units get ``<NA>``. Sparse breadth-first search (scipy), no Python loop.
+        Unreachable units get ``<NA>``. One sparse breadth-first search from a virtual node
+        joined to every source (scipy), so the cost does not grow with the number of sources.
+
+        Parameters
+        ----------
+        sources : iterable of unit ids
+            Units at distance 0.
+
+        Returns
+        -------
+        pandas.Series
+            Nullable ``Int64`` named "hops", indexed by ``ids``.
 
         Examples
         --------
@@ -179,46 +242,131 @@ class BorderGraph:
         out = pd.Series(pd.NA, index=self.ids, dtype="Int64", name="hops")
         if not sources:
             return out
-        idx = self.ids.get_indexer(sources)
-        d = csgraph.shortest_path(self._csr, unweighted=True, indices=idx, directed=False)
-        d = np.atleast_2d(d).min(axis=0)
+        n = len(self.ids)
+        src = np.unique(self.ids.get_indexer(sources))
+        star = sparse.csr_matrix(
+            (np.ones(len(src), dtype=np.int8), (np.full(len(src), n), src)), shape=(n + 1, n + 1)
+        )
+        a = sparse.block_diag([self._csr, sparse.csr_matrix((1, 1), dtype=np.int8)]) + star
+        d = csgraph.dijkstra(a.tocsr(), directed=False, indices=n, unweighted=True)[:n] - 1
         ok = np.isfinite(d)
         out.iloc[np.flatnonzero(ok)] = d[ok].astype(int)
         return out
 
     def higher_order(self, k: int, *, lower_order: bool = False) -> BorderGraph:
-        """Neighbours at exactly ``k`` steps (or up to ``k`` with ``lower_order=True``).
+        """Neighbours at exactly ``k`` steps (or 1 to ``k`` steps with ``lower_order=True``).
 
-        The new graph's edges are of kind "link" only if every step is a link; they carry no
-        boundary length (NaN) and are cross-border when the two units' countries differ as
-        judged by the first-order edges (a pair is cross-border if any shortest path crosses).
+        Parameters
+        ----------
+        k : int
+            Number of steps (graph distance), at least 1.
+        lower_order : bool
+            Keep every pair within ``k`` steps instead of exactly ``k``.
+
+        Returns
+        -------
+        BorderGraph
+            Over the same ids. An extra column ``order`` holds each pair's graph distance.
+            ``kind`` is the weakest kind of edge a shortest path between the two must use
+            ("shared-boundary" if some shortest path runs over shared boundaries only, else
+            "gap-bridged" if some avoids links, else "link"). ``cross_border`` compares the
+            units' countries when the graph knows them; otherwise a pair is cross-border when
+            no path without a cross-border edge joins them. ``shared_m`` and ``gap_m`` are NaN.
+
+        Examples
+        --------
+        >>> import pandas as pd
+        >>> e = pd.DataFrame({"focal": list("abbc"), "neighbor": list("bacb"),
+        ...                   "shared_m": 1.0, "gap_m": 0.0, "kind": "shared-boundary",
+        ...                   "cross_border": [False, False, True, True]})
+        >>> h = BorderGraph(e, pd.Index(list("abc"))).higher_order(2)
+        >>> h.edges[["focal", "neighbor", "cross_border", "order"]].values.tolist()
+        [['a', 'c', True, 2], ['c', 'a', True, 2]]
         """
-        if k < 1:
-            raise ValueError(f"'k' needs to be >= 1. {k!r} was given instead.")
+        if int(k) != k or k < 1:
+            raise ValueError(f"'k' needs to be a whole number >= 1. {k!r} was given instead.")
+        k = int(k)
         n = len(self.ids)
-        d = csgraph.shortest_path(self._csr, unweighted=True, directed=False, limit=k)
-        mask = (d >= 1) & (d <= k) if lower_order else d == k
-        np.fill_diagonal(mask, False)
-        i, j = np.nonzero(mask)
+        d = _limited_distances(self._csr, k)
+        i, j, dist = d.row, d.col, d.data
+        if not lower_order:
+            keep = dist == k
+            i, j, dist = i[keep], j[keep], dist[keep]
+        key = i.astype(np.int64) * n + j
+        kind = np.full(len(i), "link", dtype=object)
+        rank = pd.Series(pd.Categorical(self.edges["kind"], categories=EDGE_KINDS).codes)
+        for level in (1, 0):  # weaker first, so the strongest qualifying kind wins
+            sub = _limited_distances(self._adjacency((rank <= level).to_numpy()), k)
+            sub_d = pd.Series(sub.data, index=sub.row.astype(np.int64) * n + sub.col)
+            same = sub_d.reindex(key).to_numpy() == dist
+            kind[same] = EDGE_KINDS[level]
+        if self.countries is not None and self.countries.notna().all():
+            c = self.countries.to_numpy()
+            cross = c[i] != c[j]
+        else:
+            inside = ~self.edges["cross_border"].to_numpy()
+            _, label = csgraph.connected_components(self._adjacency(inside), directed=False)
+            cross = label[i] != label[j]
         edges = pd.DataFrame(
             {
                 "focal": self.ids[i],
                 "neighbor": self.ids[j],
                 "shared_m": np.nan,
                 "gap_m": np.nan,
-                "cross_border": False,
-                "kind": "shared-boundary",
+                "cross_border": cross,
+                "kind": kind.astype(str),
+                "order": dist.astype(int),
             }
         )
-        del n
-        return BorderGraph(edges=edges, ids=self.ids)
+        return BorderGraph(edges=edges, ids=self.ids, countries=self.countries)
 
     def subgraph(self, ids: Iterable) -> BorderGraph:
-        """The graph restricted to ``ids`` (a new object)."""
+        """Return the graph restricted to ``ids`` (a new object).
+
+        Examples
+        --------
+        >>> import pandas as pd
+        >>> e = pd.DataFrame({"focal": list("abbc"), "neighbor": list("bacb"),
+        ...                   "shared_m": 1.0, "gap_m": 0.0, "cross_border": False,
+        ...                   "kind": "shared-boundary"})
+        >>> BorderGraph(e, pd.Index(list("abc"))).subgraph(["a", "c"]).islands
+        ['a', 'c']
+        """
         keep = pd.Index(list(ids))
         e = self.edges
         e = e[e["focal"].isin(keep) & e["neighbor"].isin(keep)]
-        return BorderGraph(edges=e, ids=self.ids[self.ids.isin(keep)])
+        c = None if self.countries is None else self.countries
+        return BorderGraph(edges=e, ids=self.ids[self.ids.isin(keep)], countries=c)
+
+
+def _limited_distances(a: sparse.csr_matrix, k: int) -> sparse.coo_matrix:
+    """Graph distances 1..k between all pairs as a sparse matrix (absent = farther or none).
+
+    Breadth-first layers as sparse products: k is small, and a dense all-pairs matrix (what
+    ``csgraph.shortest_path`` returns) would not fit for tens of thousands of units.
+    """
+    n = a.shape[0]
+    a = ((a + a.T) > 0).astype(np.int8).tocsr()
+    reached = sparse.identity(n, dtype=np.int8, format="csr")
+    frontier = reached
+    rows, cols, vals = [], [], []
+    for step in range(1, k + 1):
+        nxt = ((frontier @ a) > 0).astype(np.int8)
+        nxt = (nxt - nxt.multiply(reached)).tocsr()
+        nxt.eliminate_zeros()
+        if nxt.nnz == 0:
+            break
+        c = nxt.tocoo()
+        rows.append(c.row)
+        cols.append(c.col)
+        vals.append(np.full(c.nnz, step, dtype=np.int64))
+        reached = ((reached + nxt) > 0).astype(np.int8).tocsr()
+        frontier = nxt
+    if not rows:
+        return sparse.coo_matrix((n, n), dtype=np.int64)
+    return sparse.coo_matrix(
+        (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n)
+    )
 
 
 def as_border_graph(graph: BorderGraph | Graph, countries: pd.Series | None = None) -> BorderGraph:
@@ -243,8 +391,128 @@ def as_border_graph(graph: BorderGraph | Graph, countries: pd.Series | None = No
     )
 
 
-def border_graph(units, *, tolerance: float = 0.0, links=None, **options) -> BorderGraph:
-    """Build the cross-border contiguity graph of analysis units (see ``_contiguity``)."""
+def border_graph(
+    units,
+    *,
+    tolerance: float = 0.0,
+    links: pd.DataFrame | str | os.PathLike | None = None,
+    rule: str = "queen",
+    min_shared_m: float | None = None,
+    strict: bool = False,
+) -> BorderGraph:
+    """Build the cross-border contiguity graph of analysis units.
+
+    Within one boundary file (column ``source``) units are neighbours by exact contiguity
+    (libpysal ``Graph.build_contiguity``). Units of different files or different countries are
+    neighbours when their boundaries come within ``tolerance`` metres along at least
+    ``min_shared_m`` metres (the corner rule, stated in :mod:`marchland._contiguity`).
+    Rows of ``links`` add further neighbours (ferries, bridges, road crossings).
+
+    Parameters
+    ----------
+    units : geopandas.GeoDataFrame
+        Analysis units indexed by unit id with columns ``country``, ``geometry`` and
+        ``source`` (the boundary file; without it each country counts as one file), in a
+        projected CRS in metres. Units of mixed level are fine.
+    tolerance : float
+        Largest gap, in metres, bridged between units of different files or countries.
+    links : pandas.DataFrame or path of a CSV file, optional
+        Columns ``from_id``, ``to_id`` and optionally ``kind`` (e.g. "ferry") and ``name``.
+        An unknown id is an :class:`~marchland.errors.InputError` naming the row.
+    rule : {"queen", "rook"}
+        Within a file, whether a single shared point makes neighbours (queen) or a shared
+        edge is needed (rook).
+    min_shared_m : float, optional
+        Near-shared boundary length needed between files (default ``2 * tolerance``).
+    strict : bool
+        Use libpysal's geometric (slower) contiguity within files, for files whose
+        neighbouring polygons do not share vertices.
+
+    Returns
+    -------
+    BorderGraph
+        ``.edges`` has ``focal neighbor shared_m gap_m cross_border kind`` and ``link_kind``,
+        ``link_name`` (the link table's own kind and name, ``<NA>`` for boundary edges).
+
+    References
+    ----------
+    Anselin, L. (1988). *Spatial Econometrics: Methods and Models*. Kluwer (contiguity
+    weights, queen and rook).
+
+    Examples
+    --------
+    Two files, one per country, with a 100 m gap along the border:
+
+    >>> import geopandas as gpd, pandas as pd, shapely
+    >>> units = gpd.GeoDataFrame(
+    ...     {"country": ["AAA", "AAA", "BBB", "BBB"], "source": ["a", "a", "b", "b"]},
+    ...     geometry=[shapely.box(0, 0, 5000, 5000), shapely.box(0, 5000, 5000, 10000),
+    ...               shapely.box(5100, 0, 9000, 5000), shapely.box(5100, 5000, 9000, 10000)],
+    ...     index=pd.Index(["A1", "A2", "B1", "B2"], name="unit_id"), crs="EPSG:3035")
+    >>> bg = border_graph(units, tolerance=300)
+    >>> bg.edges[["focal", "neighbor", "gap_m", "kind"]].head(4)
+      focal neighbor  gap_m             kind
+    0    A1       A2    0.0  shared-boundary
+    1    A1       B1  100.0      gap-bridged
+    2    A2       A1    0.0  shared-boundary
+    3    A2       B2  100.0      gap-bridged
+
+    A1 and B2 come within 100 m only at a corner, so they are not joined:
+
+    >>> ("A1", "B2") in set(zip(bg.edges["focal"], bg.edges["neighbor"]))
+    False
+    """
     from ._contiguity import build_border_graph
 
-    return build_border_graph(units, tolerance=tolerance, links=links, **options)
+    return build_border_graph(
+        units,
+        tolerance=tolerance,
+        links=links,
+        rule=rule,
+        min_shared_m=min_shared_m,
+        strict=strict,
+    )
+
+
+def edges_layer(graph: BorderGraph | Graph, units) -> pd.DataFrame:
+    """Edges as centroid-to-centroid lines, one per unordered pair, for a GeoPackage layer.
+
+    Parameters
+    ----------
+    graph : BorderGraph or libpysal.graph.Graph
+        The graph.
+    units : geopandas.GeoDataFrame
+        Indexed by unit id and covering every unit of the graph; the layer keeps its CRS.
+
+    Returns
+    -------
+    geopandas.GeoDataFrame
+        The columns of ``graph.edges`` for the rows with ``focal`` before ``neighbor`` in the
+        graph's order, and LineString geometry from the focal to the neighbour centroid.
+
+    Examples
+    --------
+    >>> import geopandas as gpd, pandas as pd, shapely
+    >>> units = gpd.GeoDataFrame({"country": ["AAA", "BBB"]},
+    ...     geometry=[shapely.box(0, 0, 10, 10), shapely.box(10, 0, 20, 10)],
+    ...     index=pd.Index(["a", "b"], name="unit_id"), crs="EPSG:3035")
+    >>> layer = edges_layer(border_graph(units), units)
+    >>> layer[["focal", "neighbor", "cross_border"]].values.tolist(), layer.length.tolist()
+    ([['a', 'b', True]], [10.0])
+    """
+    import geopandas as gpd
+
+    bg = as_border_graph(graph)
+    missing = ~bg.ids.isin(units.index)
+    if missing.any():
+        raise InputError(
+            "units do not cover every unit of the graph",
+            column="unit_id",
+            value=bg.ids[missing][0],
+        )
+    fi, ni = bg._positions
+    first = fi < ni
+    e = bg.edges[first].reset_index(drop=True)
+    xy = shapely.get_coordinates(shapely.centroid(units.geometry.reindex(bg.ids).to_numpy()))
+    lines = shapely.linestrings(np.stack([xy[fi[first]], xy[ni[first]]], axis=1))
+    return gpd.GeoDataFrame(e, geometry=lines, crs=units.crs)

@@ -1,0 +1,131 @@
+"""Speed and memory of border_graph against libpysal's plain queen contiguity.
+
+Synthetic layers: a Voronoi tessellation of N random points split into four "countries" by two
+wavy borders; each country is its own boundary file whose coordinates are shifted by its own
+smooth displacement field (up to 100 m), so the files neither meet nor stop overlapping along
+the borders (gaps and overlaps up to ~200 m), while each file stays topologically clean inside.
+border_graph runs at the demo's tolerance (300 m) and corner rule (500 m); the plain queen is
+libpysal's Graph.build_contiguity(rook=False) on the same layer. Cross-border recovery is
+scored against the exact queen graph of the undisplaced tessellation (pairs sharing >= 500 m).
+
+Run:  .venv/bin/python benchmarks/bench_graph.py [N ...]
+
+Measured (fill in from the last run; 2 cores):
+"""
+
+from __future__ import annotations
+
+import gc
+import sys
+import time
+import tracemalloc
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import shapely
+from libpysal.graph import Graph
+
+from marchland.graph import border_graph
+
+TOLERANCE = 300.0
+MIN_SHARED = 500.0
+CELL = 5000.0  # mean spacing of the tessellation's points, metres
+
+
+def synthetic_layer(n: int, seed: int = 0) -> tuple[gpd.GeoDataFrame, gpd.GeoDataFrame]:
+    """Return (mismatched four-file layer, exact layer) of about ``n`` units."""
+    rng = np.random.default_rng(seed)
+    side = np.sqrt(n) * CELL
+    frame = shapely.box(0, 0, side, side)
+    pts = shapely.multipoints(rng.uniform(0, side, (n, 2)))
+    cells = shapely.get_parts(shapely.voronoi_polygons(pts, extend_to=frame))
+    cells = shapely.intersection(cells, frame)
+    c = shapely.get_coordinates(shapely.centroid(cells))
+    wave = 0.04 * side
+    east = c[:, 0] > side / 2 + wave * np.sin(c[:, 1] / side * 7)
+    north = c[:, 1] > side / 2 + wave * np.sin(c[:, 0] / side * 5)
+    country = np.array(["AAA", "BBB", "CCC", "DDD"])[east.astype(int) + 2 * north.astype(int)]
+    ids = pd.Index([f"U{k:06d}" for k in range(len(cells))], name="unit_id")
+    exact = gpd.GeoDataFrame(
+        {"country": country, "source": "one.gpkg"}, geometry=cells, index=ids, crs="EPSG:3035"
+    )
+    geoms = cells.copy()
+    for code in np.unique(country):
+        sel = country == code
+        ph = rng.uniform(0, 2 * np.pi, 4)
+        lam = rng.uniform(2000, 6000, 2)
+
+        def shift(xy, ph=ph, lam=lam):
+            # Smooth field: the same coordinate moves the same way, so the file stays clean.
+            dx = 70 * np.sin(xy[:, 1] / lam[0] + ph[0]) + 30 * np.sin(xy[:, 0] / 900 + ph[2])
+            dy = 70 * np.sin(xy[:, 0] / lam[1] + ph[1]) + 30 * np.sin(xy[:, 1] / 900 + ph[3])
+            return xy + np.column_stack([dx, dy])
+
+        geoms[sel] = shapely.transform(geoms[sel], shift)
+    mismatched = gpd.GeoDataFrame(
+        {"country": country, "source": [f"{k}.gpkg" for k in country]},
+        geometry=geoms,
+        index=ids,
+        crs="EPSG:3035",
+    )
+    return mismatched, exact
+
+
+def measure(fn, repeat: int = 2):
+    """Best wall time of ``repeat`` runs, then peak traced memory of one more run.
+
+    tracemalloc slows Python-heavy code several-fold, so time and memory are separate runs.
+    """
+    secs = []
+    for _ in range(repeat):
+        gc.collect()
+        t = time.perf_counter()
+        out = fn()
+        secs.append(time.perf_counter() - t)
+    gc.collect()
+    tracemalloc.start()
+    fn()
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    return out, min(secs), peak / 2**20
+
+
+def truth_pairs(exact: gpd.GeoDataFrame) -> set:
+    g = Graph.build_contiguity(exact, rook=False)
+    adj = g.adjacency.reset_index()
+    adj = adj[adj["focal"] < adj["neighbor"]]
+    geo = exact.geometry
+    shared = shapely.length(
+        shapely.intersection(
+            geo.loc[adj["focal"]].boundary.to_numpy(), geo.loc[adj["neighbor"]].boundary.to_numpy()
+        )
+    )
+    c = exact["country"]
+    cross = c.loc[adj["focal"]].to_numpy() != c.loc[adj["neighbor"]].to_numpy()
+    keep = cross & (shared >= MIN_SHARED)
+    return set(zip(adj["focal"][keep], adj["neighbor"][keep], strict=True))
+
+
+def main(sizes: list[int]) -> None:
+    print(f"tolerance {TOLERANCE:.0f} m, min_shared_m {MIN_SHARED:.0f} m")
+    for n in sizes:
+        layer, exact = synthetic_layer(n)
+        # Plain queen on the same mismatched layer, then ours.
+        _, qs, qm = measure(lambda layer=layer: Graph.build_contiguity(layer, rook=False))
+        bg, bs, bm = measure(
+            lambda layer=layer: border_graph(layer, tolerance=TOLERANCE, min_shared_m=MIN_SHARED)
+        )
+        e = bg.edges
+        cr = e[e["cross_border"] & (e["focal"] < e["neighbor"])]
+        found = set(zip(cr["focal"], cr["neighbor"], strict=True))
+        truth = truth_pairs(exact)
+        print(
+            f"n={len(layer):>6}  plain queen {qs:6.2f} s {qm:7.1f} MiB | border_graph {bs:6.2f} s"
+            f" {bm:7.1f} MiB | ratio {bs / qs:4.2f}x | cross-border pairs: truth {len(truth)},"
+            f" found {len(found)}, missed {len(truth - found)}, extra {len(found - truth)}"
+        )
+
+
+if __name__ == "__main__":
+    main([int(a) for a in sys.argv[1:]] or [10_000, 50_000])
