@@ -1,0 +1,339 @@
+"""Tests of border risk and its backtest.
+
+Must cover: both graph kinds (BorderGraph and plain libpysal Graph); shuffled input order of
+counts and units; the as-of contract (reports received after ``as_of`` never change the
+score); candidates (never affected, within two steps, links included; re-introduction window);
+the silent flag; the prior fallback; parts that add up to the linear predictor; inputs left
+unchanged; bad input as InputError; simulation recovery of known cloglog coefficients
+(50 replicates, fixed seeds); the backtest's determinism across worker counts, its agreement
+with ``border_risk`` at each origin, and that it beats the baselines on simulated diffusion.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from libpysal.graph import Graph
+
+from marchland import _hazard, _risksim
+from marchland.errors import InputError
+from marchland.graph import BorderGraph
+from marchland.risk import (
+    PRIOR_COEFFICIENTS,
+    backtest_risk,
+    border_risk,
+    fit_risk_model,
+    run_backtest,
+)
+from marchland.risk import _example as example
+
+PARTS = [
+    "part_near_pressure",
+    "part_far_pressure",
+    "part_cross_share",
+    "part_growth",
+    "part_distance_km",
+    "part_log_population",
+]
+
+
+@pytest.fixture(scope="module")
+def sim():
+    return _risksim.simulate(14, 14, weeks=34, seed=11, stripe=3)
+
+
+@pytest.fixture(scope="module")
+def sim_as_of(sim):
+    return pd.Timestamp("2026-05-20")
+
+
+def _plain(graph: BorderGraph) -> Graph:
+    e = graph.edges
+    return Graph.from_adjacency(
+        pd.DataFrame({"focal": e["focal"], "neighbor": e["neighbor"], "weight": 1.0})
+    )
+
+
+# --- the result ----------------------------------------------------------------------------
+def test_columns_ranks_and_attrs(sim, sim_as_of):
+    r = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    assert list(r.columns[:6]) == [
+        "probability",
+        "rank",
+        "cross_border",
+        "silent",
+        "drivers",
+        "country",
+    ]
+    assert [c for c in r.columns if c.startswith("part_")] == PARTS
+    assert r.index.name == "unit_id"
+    assert r["rank"].tolist() == list(range(1, len(r) + 1))
+    assert r["probability"].is_monotonic_decreasing
+    assert ((r["probability"] > 0) & (r["probability"] < 1)).all()
+    assert r.attrs["model"] == "fitted"
+    assert r.attrs["expected_new_units"] == pytest.approx(r["probability"].sum())
+    assert set(r.attrs["coefficients"]) == {"intercept", *(p[5:] for p in PARTS)}
+
+
+def test_parts_add_up_to_the_linear_predictor(sim, sim_as_of):
+    r = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    eta = r.attrs["baseline"] + r[PARTS].sum(axis=1)
+    np.testing.assert_allclose(_hazard.inverse_cloglog(eta.to_numpy()), r["probability"])
+
+
+def test_candidates_are_unaffected_units_within_two_steps(sim, sim_as_of):
+    from marchland.reports import as_of
+    from marchland.spread import first_cases
+
+    r = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    first = first_cases(as_of(sim.counts, sim_as_of))
+    week = pd.Timestamp(r.attrs["week"])
+    affected = first.index[first <= week]
+    hops = sim.graph.hops_from(affected)
+    expected = hops.index[(hops >= 1) & (hops <= 2)]
+    assert sorted(r.index) == sorted(expected)
+
+
+def test_cross_border_and_drivers(sim, sim_as_of):
+    r = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    from marchland.reports import as_of
+    from marchland.spread import first_cases
+
+    first = first_cases(as_of(sim.counts, sim_as_of))
+    affected = set(first.index[first <= pd.Timestamp(r.attrs["week"])])
+    country = sim.units["country"]
+    for uid, row in r.head(15).iterrows():
+        drivers = row["drivers"].split()
+        assert 1 <= len(drivers) <= 3
+        assert set(drivers) <= affected
+        hops = sim.graph.hops_from([uid])
+        within = [v for v in affected if hops[v] <= 2]
+        assert row["cross_border"] == any(country[v] != country[uid] for v in within)
+
+
+def test_both_graph_kinds_agree_when_lengths_are_equal():
+    counts, units, graph = example()
+    a = border_risk(counts, units, graph, as_of="2026-03-30", horizon_weeks=2)
+    b = border_risk(counts, units, _plain(graph), as_of="2026-03-30", horizon_weeks=2)
+    pd.testing.assert_frame_equal(a, b)
+    assert a["cross_border"].tolist() == [True, True]
+
+
+def test_shuffled_inputs_give_the_same_result(sim, sim_as_of):
+    a = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    counts = sim.counts.sample(frac=1.0, random_state=np.random.default_rng(3).integers(1e9))
+    units = sim.units.iloc[np.random.default_rng(4).permutation(len(sim.units))]
+    b = border_risk(counts, units, sim.graph, as_of=sim_as_of)
+    pd.testing.assert_frame_equal(a, b)
+
+
+def test_inputs_are_not_changed(sim, sim_as_of):
+    counts, units = sim.counts.copy(), sim.units.copy()
+    edges = sim.graph.edges.copy()
+    border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    pd.testing.assert_frame_equal(counts, sim.counts)
+    pd.testing.assert_frame_equal(units, sim.units)
+    pd.testing.assert_frame_equal(edges, sim.graph.edges)
+
+
+# --- the as-of contract ----------------------------------------------------------------
+def test_reports_received_after_as_of_never_change_the_score(sim, sim_as_of):
+    before = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    rng = np.random.default_rng(5)
+    late = sim.counts.sample(400, random_state=rng.integers(1e9)).copy()
+    # Revisions with many cases, received a day after as_of, for past and current weeks ...
+    late["cases"] = pd.array(rng.integers(50, 500, len(late)), dtype="Int64")
+    late["received"] = sim_as_of + pd.Timedelta(days=1)
+    # ... and first cases in every candidate, received long after.
+    fresh = sim.counts[sim.counts["unit_id"].isin(before.index)].copy()
+    fresh["cases"] = pd.array(np.full(len(fresh), 9), dtype="Int64")
+    fresh["received"] = sim_as_of + pd.Timedelta(days=60)
+    more = pd.concat([sim.counts, late, fresh], ignore_index=True)
+    after = border_risk(more, sim.units, sim.graph, as_of=sim_as_of)
+    pd.testing.assert_frame_equal(before, after)
+    assert not after.empty
+
+
+def test_a_late_report_known_by_as_of_does_change_the_score(sim, sim_as_of):
+    before = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    top = before.index[0]
+    late = sim.counts[sim.counts["unit_id"] == before.loc[top, "drivers"].split()[0]].copy()
+    late = late[late["week"] <= pd.Timestamp(before.attrs["week"])].tail(2)
+    late["cases"] = pd.array([400, 400], dtype="Int64")
+    late["received"] = sim_as_of
+    after = border_risk(pd.concat([sim.counts, late]), sim.units, sim.graph, as_of=sim_as_of)
+    pressure = ["near_pressure", "far_pressure"]
+    assert after.loc[top, pressure].sum() > before.loc[top, pressure].sum()
+
+
+# --- flags, prior, options ---------------------------------------------------------------
+def test_silent_candidates_are_flagged_and_still_ranked():
+    counts, units, graph = example()
+    # Known on 2026-03-30: weeks up to 2026-03-16; d's last report is for 2026-02-16.
+    quiet = ~((counts["unit_id"] == "d") & (counts["week"] >= "2026-02-23"))
+    r = border_risk(counts[quiet], units, graph, as_of="2026-03-30", horizon_weeks=2)
+    assert r.loc["d", "silent"]
+    assert not r.loc["c", "silent"]
+    assert r.loc["d", "rank"] == 2
+    r2 = border_risk(counts[quiet], units, graph, as_of="2026-03-30", silent_weeks=5)
+    assert not r2.loc["d", "silent"]
+
+
+def test_prior_is_used_and_said_when_events_are_few():
+    counts, units, graph = example()
+    m = fit_risk_model(counts, units, graph, as_of="2026-03-30", horizon_weeks=2)
+    assert m.kind == "prior"
+    assert "fewer than min_events=10" in m.note
+    for f, b in m.coefficients.iloc[1:].items():
+        assert b == PRIOR_COEFFICIENTS[f]
+    assert m.std_errors.isna().all()
+
+
+def test_fitted_model_used_when_events_suffice(sim, sim_as_of):
+    m = fit_risk_model(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    assert m.kind == "fitted" and m.n_events >= 10 and m.converged
+    assert np.isfinite(m.std_errors).all()
+    # A stronger penalty shrinks the standardised coefficients towards 0.
+    strong = fit_risk_model(sim.counts, sim.units, sim.graph, as_of=sim_as_of, penalty=1e4)
+    assert np.abs(strong.standardised.iloc[1:]).sum() < np.abs(m.standardised.iloc[1:]).sum()
+
+
+def test_model_argument_scores_with_a_given_model(sim, sim_as_of):
+    m = fit_risk_model(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    a = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
+    b = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of, model=m)
+    pd.testing.assert_frame_equal(a, b)
+
+
+def test_reintroduction_window_makes_quiet_units_candidates():
+    counts, units, graph = example()
+    r = border_risk(counts, units, graph, as_of="2026-03-30", horizon_weeks=2)
+    assert "a" not in r.index
+    r2 = border_risk(
+        counts, units, graph, as_of="2026-03-30", horizon_weeks=2, reintroduction_weeks=20
+    )
+    assert "a" not in r2.index  # a still reports cases
+    quiet = counts.copy()
+    quiet.loc[(quiet["unit_id"] == "a") & (quiet["week"] >= "2026-02-23"), "cases"] = 0
+    r3 = border_risk(
+        quiet, units, graph, as_of="2026-03-30", horizon_weeks=2, reintroduction_weeks=4
+    )
+    assert "a" in r3.index
+
+
+def test_covariates_become_features():
+    counts, units, graph = example()
+    cov = pd.DataFrame({"water_access": [0.2, 0.4, 0.9, 0.1, 0.5]}, index=units.index)
+    r = border_risk(counts, units, graph, as_of="2026-03-30", covariates=cov)
+    assert "part_water_access" in r.columns
+    assert r.attrs["coefficients"]["water_access"] == 0.0  # prior: neutral
+
+
+def test_nothing_affected_gives_an_empty_table():
+    counts, units, graph = example()
+    r = border_risk(counts, units, graph, as_of="2026-01-06")
+    assert r.empty and r.attrs["expected_new_units"] == 0.0
+    assert r.attrs["model"] == "prior"
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "match"),
+    [
+        ({"horizon_weeks": 0}, "horizon_weeks"),
+        ({"silent_weeks": -1}, "silent_weeks"),
+        ({"penalty": -1.0}, "penalty"),
+        ({"min_events": 1.5}, "min_events"),
+    ],
+)
+def test_bad_options(kwargs, match):
+    counts, units, graph = example()
+    with pytest.raises(InputError, match=match):
+        border_risk(counts, units, graph, as_of="2026-03-30", **kwargs)
+
+
+def test_bad_inputs_are_input_errors():
+    counts, units, graph = example()
+    u = units.copy()
+    u.loc["c", "population"] = np.nan
+    with pytest.raises(InputError, match="population"):
+        border_risk(counts, u, graph, as_of="2026-03-30")
+    c = counts.copy()
+    c.loc[0, "unit_id"] = "zz"
+    with pytest.raises(InputError, match="analysis units"):
+        border_risk(c, units, graph, as_of="2026-03-30")
+    with pytest.raises(InputError, match="received"):
+        border_risk(counts.drop(columns="received"), units, graph, as_of="2026-03-30")
+    with pytest.raises(InputError, match="graph names units"):
+        border_risk(counts, units.drop(index="e"), graph, as_of="2026-03-30")
+
+
+# --- simulation recovery ----------------------------------------------------------------
+def test_simulation_recovery_of_known_cloglog_coefficients():
+    """95% intervals cover the true weekly coefficients in >= 90% of 50 replicates."""
+    truth = pd.Series(_risksim.TRUE_WEEKLY)
+    covered = []
+    for seed in range(1000, 1050):
+        sim = _risksim.simulate(18, 18, weeks=36, seed=seed, stripe=3)
+        m = fit_risk_model(
+            sim.counts,
+            sim.units,
+            sim.graph,
+            as_of=sim.counts["received"].max(),
+            horizon_weeks=1,
+            penalty=0.0,
+            min_events=0,
+        )
+        assert m.kind == "fitted" and m.converged
+        iv = m.intervals(0.95)
+        covered.append((iv["lower"] <= truth) & (truth <= iv["upper"]))
+    coverage = pd.DataFrame(covered).mean()
+    assert (coverage >= 0.90).all(), coverage.to_dict()
+
+
+# --- the backtest -----------------------------------------------------------------------
+def test_backtest_table_shape(sim):
+    bt = backtest_risk(sim.counts, sim.units, sim.graph, top_k=5)
+    assert bt.index.tolist() == ["score", "distance", "neighbours"]
+    assert list(bt.columns[:4]) == ["auc", "brier", "hits_top_k", "n_origins"]
+    assert (bt["n_origins"] > 10).all()
+    assert (bt["hits_top_k"] <= 5).all()
+    by = backtest_risk(sim.counts, sim.units, sim.graph, top_k=5, by="country")
+    assert set(by.index.get_level_values("country")) == {"TVR", "OSK"}
+
+
+def test_backtest_beats_baselines_on_simulated_diffusion(sim):
+    bt = backtest_risk(sim.counts, sim.units, sim.graph)
+    assert bt.loc["score", "auc"] > bt.loc["distance", "auc"]
+    assert bt.loc["score", "auc"] > bt.loc["neighbours", "auc"]
+    assert bt.loc["score", "brier"] < bt.loc["distance", "brier"]
+
+
+def test_backtest_is_the_same_with_two_workers(sim):
+    a = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=1)
+    b = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=2)
+    pd.testing.assert_frame_equal(a.predictions, b.predictions)
+    pd.testing.assert_frame_equal(a.summary, b.summary)
+
+
+def test_backtest_scores_equal_border_risk_at_the_origin(sim):
+    bt = run_backtest(sim.counts, sim.units, sim.graph, report_lag_days=3)
+    origin = bt.predictions["origin"].unique()[8]
+    pred = bt.predictions[bt.predictions["origin"] == origin].set_index("unit_id")
+    as_of = pd.Timestamp(origin) + pd.Timedelta(days=9)
+    r = border_risk(sim.counts, sim.units, sim.graph, as_of=as_of)
+    assert sorted(pred.index) == sorted(r.index)
+    np.testing.assert_allclose(pred.loc[r.index, "score"], r["probability"], rtol=1e-9)
+
+
+def test_backtest_outcome_is_a_case_within_the_horizon(sim):
+    bt = run_backtest(sim.counts, sim.units, sim.graph, horizon_weeks=3)
+    p = bt.predictions
+    first = sim.first.reindex(p["unit_id"]).to_numpy()
+    end = p["origin"].to_numpy() + np.timedelta64(21, "D")
+    np.testing.assert_array_equal(p["outcome"].to_numpy(), first <= end)
+
+
+def test_backtest_origin_outside_the_data_is_an_input_error(sim):
+    with pytest.raises(InputError, match="origins"):
+        backtest_risk(sim.counts, sim.units, sim.graph, origins=["2030-01-01"])
