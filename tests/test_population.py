@@ -1,0 +1,138 @@
+"""Zonal population sums and table joins.
+
+Covered: rasters built so the exact answer is known (constant density over a many-sided
+polygon, a gradient over a box cutting cells in half), nodata cells, units partly and wholly
+outside the raster, a raster in another CRS than the units, a raster without a CRS, the table
+join and its errors, and the zero-population check for units with cases.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+import rasterio
+import shapely
+from affine import Affine
+
+from marchland.errors import DataWarning, InputError
+from marchland.population import population_from_table, require_population, zonal_population
+
+CELL = 100.0  # metres
+
+
+def make_raster(
+    path: Path, values: np.ndarray, *, crs="EPSG:3035", nodata=-1.0, x0=0.0, y0=None
+) -> Path:
+    rows, cols = values.shape
+    y0 = rows * CELL if y0 is None else y0
+    with rasterio.open(
+        path,
+        "w",
+        driver="GTiff",
+        width=cols,
+        height=rows,
+        count=1,
+        dtype="float64",
+        crs=crs,
+        nodata=nodata,
+        transform=Affine(CELL, 0, x0, 0, -CELL, y0),
+    ) as dst:
+        dst.write(values[None, :, :].astype("float64"))
+    return path
+
+
+def units_of(*geoms, crs="EPSG:3035") -> gpd.GeoDataFrame:
+    ids = pd.Index([f"u{i}" for i in range(len(geoms))], name="unit_id")
+    return gpd.GeoDataFrame(geometry=list(geoms), index=ids, crs=crs)
+
+
+def test_constant_density_polygon_exact(tmp_path: Path) -> None:
+    # 7 people per cell everywhere: the sum is 7 * (polygon area / cell area), exactly.
+    path = make_raster(tmp_path / "c.tif", np.full((20, 20), 7.0))
+    circle = shapely.Point(1000, 1000).buffer(730, quad_segs=64)
+    tri = shapely.Polygon([(130, 170), (1830, 250), (700, 1900)])
+    pop = zonal_population(units_of(circle, tri), path)
+    np.testing.assert_allclose(
+        pop.to_numpy(), 7 * np.array([circle.area, tri.area]) / CELL**2, rtol=1e-9
+    )
+    np.testing.assert_allclose(pop.attrs["covered"].to_numpy(), 1.0, rtol=1e-9)
+
+
+def test_gradient_half_cells_exact(tmp_path: Path) -> None:
+    # Cell value = its column number (0..9). A box from x=150 to x=450 covers half of column
+    # 1, all of columns 2 and 3, half of column 4, over 4 rows: 4 * (0.5*1 + 2 + 3 + 0.5*4).
+    values = np.tile(np.arange(10, dtype=float), (6, 1))
+    path = make_raster(tmp_path / "g.tif", values)
+    pop = zonal_population(units_of(shapely.box(150, 100, 450, 500)), path)
+    assert pop.iloc[0] == pytest.approx(4 * (0.5 + 2 + 3 + 2.0), rel=1e-12)
+
+
+def test_nodata_and_partial_coverage(tmp_path: Path) -> None:
+    values = np.full((10, 10), 2.0)
+    values[:, :5] = -1.0  # the left half is nodata
+    path = make_raster(tmp_path / "n.tif", values)
+    u = units_of(shapely.box(0, 0, 1000, 1000), shapely.box(600, 0, 1000, 1000))
+    with pytest.warns(DataWarning, match=r"u0 50\.0%"):
+        pop = zonal_population(u, path)
+    assert pop.tolist() == pytest.approx([2.0 * 50, 2.0 * 40])
+    assert pop.attrs["covered"].tolist() == pytest.approx([0.5, 1.0])
+
+
+def test_partly_and_wholly_outside(tmp_path: Path) -> None:
+    path = make_raster(tmp_path / "o.tif", np.ones((10, 10)))
+    with pytest.warns(DataWarning, match="partly covered"):
+        pop = zonal_population(units_of(shapely.box(800, 0, 1200, 100)), path)
+    assert pop.iloc[0] == pytest.approx(2.0)
+    with pytest.raises(InputError, match="outside the raster") as info:
+        zonal_population(
+            units_of(shapely.box(0, 0, 100, 100), shapely.box(5000, 0, 5100, 90)), path
+        )
+    assert "u1" in str(info.value) and "u0" not in str(info.value)
+
+
+def test_units_in_another_crs(tmp_path: Path) -> None:
+    path = make_raster(tmp_path / "p.tif", np.full((10, 10), 3.0), x0=4_000_000, y0=3_001_000)
+    box = units_of(shapely.box(4_000_200, 3_000_200, 4_000_700, 3_000_600))
+    direct = zonal_population(box, path).iloc[0]
+    moved = zonal_population(box.to_crs("EPSG:4326"), path).iloc[0]
+    assert direct == pytest.approx(3.0 * 20)
+    assert moved == pytest.approx(direct, rel=1e-6)
+
+
+def test_raster_errors(tmp_path: Path) -> None:
+    path = make_raster(tmp_path / "x.tif", np.ones((4, 4)), crs=None)
+    with pytest.raises(InputError, match="no CRS"):
+        zonal_population(units_of(shapely.box(0, 0, 100, 100)), path)
+    (tmp_path / "junk.tif").write_text("nope")
+    with pytest.raises(InputError, match="cannot read"):
+        zonal_population(units_of(shapely.box(0, 0, 100, 100)), tmp_path / "junk.tif")
+
+
+def test_table_join(tmp_path: Path) -> None:
+    u = units_of(shapely.box(0, 0, 1, 1), shapely.box(1, 0, 2, 1))
+    csv = tmp_path / "pop.csv"
+    csv.write_text("unit_id,population\nu0,1500\nu1,20\n")
+    assert population_from_table(u, csv).tolist() == [1500.0, 20.0]
+    csv.write_text("unit_id,population\nu0,1500\nu9,20\n")
+    with pytest.raises(InputError) as info:
+        population_from_table(u, csv)
+    assert info.value.row == 2 and info.value.column == "unit_id"
+    csv.write_text("unit_id,population\nu0,-5\n")
+    with pytest.raises(InputError, match=">= 0"):
+        population_from_table(u, csv)
+    csv.write_text("unit_id,population\nu0,5\nu0,6\n")
+    with pytest.raises(InputError, match="twice"):
+        population_from_table(u, csv)
+    with pytest.raises(InputError, match="no column 'pop'"):
+        population_from_table(u, csv, value_column="pop")
+
+
+def test_require_population() -> None:
+    counts = pd.DataFrame({"unit_id": ["a", "b", "c"], "cases": pd.array([3, 0, 1], "Int64")})
+    require_population(pd.Series({"a": 10.0, "b": 0.0, "c": 4.0}), counts)
+    with pytest.raises(InputError, match="c"):
+        require_population(pd.Series({"a": 10.0, "b": 5.0, "c": np.nan}), counts)
