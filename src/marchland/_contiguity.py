@@ -53,6 +53,7 @@ def build_border_graph(
     rule: str = "queen",
     min_shared_m: float | None = None,
     strict: bool = False,
+    parents: pd.Series | None = None,
 ):
     """Build a :class:`~marchland.graph.BorderGraph` from analysis units (see module docs)."""
     if rule not in RULES:
@@ -94,7 +95,7 @@ def build_border_graph(
 
     # 3. extra links from a table
     if links is not None:
-        pairs = _add_links(pairs, links, ids, geoms)
+        pairs = _add_links(pairs, links, ids, geoms, parents)
 
     cross = country[pairs["i"].to_numpy()] != country[pairs["j"].to_numpy()]
     pairs["cross_border"] = cross
@@ -337,7 +338,7 @@ def _read_links(links):
     )
 
 
-def _add_links(pairs: pd.DataFrame, links, ids, geoms) -> pd.DataFrame:
+def _add_links(pairs: pd.DataFrame, links, ids, geoms, parents=None) -> pd.DataFrame:
     table, path = _read_links(links)
     for col in ("from_id", "to_id"):
         if col not in table.columns:
@@ -352,16 +353,29 @@ def _add_links(pairs: pd.DataFrame, links, ids, geoms) -> pd.DataFrame:
     pos = pd.Series(np.arange(n), index=pd.Index(ids).astype(str))
     kinds = table["kind"] if "kind" in table.columns else pd.Series("link", index=table.index)
     names = table["name"] if "name" in table.columns else pd.Series("", index=table.index)
+    lift = None
+    if parents is not None:
+        lift = pd.Series(parents).dropna().astype(str)
+        lift.index = lift.index.astype(str)
     ends = []
     for col in ("from_id", "to_id"):
         val = table[col].astype(str).str.strip()
-        p = pos.reindex(val.to_numpy()).to_numpy()
+        name = val
+        if lift is not None:
+            # A link may name a district of a country analysed at province level: climb to the
+            # nearest ancestor that is an analysis unit (a few levels at most).
+            for _ in range(3):
+                up = ~name.isin(pos.index) & name.isin(lift.index)
+                if not up.any():
+                    break
+                name = name.where(~up, name.map(lift))
+        p = pos.reindex(name.to_numpy()).to_numpy()
         missing = np.flatnonzero(np.isnan(p))
         if len(missing):
             r = missing[0]
             raise InputError(
                 f"{val.iloc[r]!r} is not an analysis unit of this graph"
-                f"{_parent_hint(val.iloc[r], pos.index)}",
+                f"{_parent_hint(val.iloc[r], pos.index) if lift is None else ''}",
                 file=path,
                 row=r + 1,
                 column=col,
@@ -369,6 +383,23 @@ def _add_links(pairs: pd.DataFrame, links, ids, geoms) -> pd.DataFrame:
             )
         ends.append(p.astype(np.int64))
     a, b = ends
+    inner = a == b
+    if lift is not None and inner.any():
+        # Both ends inside one analysis unit: nothing to link at this level; say so.
+        r = np.flatnonzero(inner)
+        warnings.warn(
+            f"links table rows {(r + 1).tolist()} join places inside one analysis unit and "
+            "add no edge at this level",
+            DataWarning,
+            stacklevel=4,
+        )
+        table, a, b, kinds, names = (
+            table[~inner],
+            a[~inner],
+            b[~inner],
+            kinds[~inner],
+            names[~inner],
+        )
     self_loop = np.flatnonzero(a == b)
     if len(self_loop):
         r = self_loop[0]

@@ -399,6 +399,7 @@ def border_graph(
     rule: str = "queen",
     min_shared_m: float | None = None,
     strict: bool = False,
+    parents: pd.Series | None = None,
 ) -> BorderGraph:
     """Build the cross-border contiguity graph of analysis units.
 
@@ -427,6 +428,10 @@ def border_graph(
     strict : bool
         Use libpysal's geometric (slower) contiguity within files, for files whose
         neighbouring polygons do not share vertices.
+    parents : pandas.Series, optional
+        Parent id per unit id (e.g. ``read_units(...)["parent_id"]``): a link naming a district
+        of a country analysed at province level is moved up to its province. A link whose two
+        ends fall in one analysis unit then adds nothing (with a ``DataWarning``).
 
     Returns
     -------
@@ -471,6 +476,7 @@ def border_graph(
         rule=rule,
         min_shared_m=min_shared_m,
         strict=strict,
+        parents=parents,
     )
 
 
