@@ -337,3 +337,12 @@ def test_backtest_outcome_is_a_case_within_the_horizon(sim):
 def test_backtest_origin_outside_the_data_is_an_input_error(sim):
     with pytest.raises(InputError, match="origins"):
         backtest_risk(sim.counts, sim.units, sim.graph, origins=["2030-01-01"])
+
+
+def test_backtest_as_of_replays_only_what_was_known(sim):
+    as_of = pd.Timestamp("2026-06-15")
+    a = run_backtest(sim.counts, sim.units, sim.graph, as_of=as_of)
+    known = sim.counts[sim.counts["received"] <= as_of]
+    b = run_backtest(known, sim.units, sim.graph)
+    pd.testing.assert_frame_equal(a.predictions, b.predictions)
+    assert a.predictions["origin"].max() + pd.Timedelta(days=7 * 4 + 6) <= as_of

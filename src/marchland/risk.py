@@ -692,6 +692,7 @@ def run_backtest(
     min_cases: int = 1,
     covariates: pd.DataFrame | None = None,
     n_jobs: int = 1,
+    as_of: object = None,
 ) -> Backtest:
     """Rolling-origin backtest with the by-country and by-origin breakdowns.
 
@@ -717,6 +718,9 @@ penalty, min_cases, covariates
         ``hits_top_k`` counts events among the ``top_k`` highest-scored candidates per origin.
     n_jobs : int, default 1
         Worker processes over origins (joblib); results do not depend on it.
+    as_of : date-like, optional
+        Replay only what was known on this date: reports received later are dropped first,
+        so outcomes too are judged on the data of that date (for a monthly report).
 
     Returns
     -------
@@ -748,6 +752,8 @@ penalty, min_cases, covariates
         raise InputError(f"'n_jobs' needs to be a non-zero whole number. {n_jobs!r} given.")
     static = rf.build_static(units, graph, covariates)
     slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
+    if as_of is not None:
+        slim = slim[slim["received"] <= pd.Timestamp(as_of)]
     final = _as_of_view(slim, None)
     empty = _backtest(_empty_predictions(), top_k, horizon_weeks)
     if final.empty:
@@ -850,6 +856,7 @@ def backtest_risk(
     min_cases: int = 1,
     covariates: pd.DataFrame | None = None,
     n_jobs: int = 1,
+    as_of: object = None,
     by: str | None = None,
 ) -> pd.DataFrame:
     """Rolling-origin backtest of :func:`border_risk` against two baselines.
@@ -860,7 +867,8 @@ def backtest_risk(
     Parameters
     ----------
     counts, units, graph, horizon_weeks, origins, min_history_weeks, report_lag_days, top_k, \
-recent_weeks, reintroduction_weeks, min_events, penalty, min_cases, covariates, n_jobs
+recent_weeks, reintroduction_weeks, min_events, penalty, min_cases, covariates, n_jobs, \
+as_of
         As in :func:`run_backtest`.
     by : {None, "country"}, optional
         ``"country"``: one row per model and country instead of per model.
@@ -900,6 +908,7 @@ recent_weeks, reintroduction_weeks, min_events, penalty, min_cases, covariates, 
         min_cases=min_cases,
         covariates=covariates,
         n_jobs=n_jobs,
+        as_of=as_of,
     )
     return bt.summary if by is None else bt.by_country
 
