@@ -1,0 +1,323 @@
+"""Outside checks of marchland.hotspots.
+
+Sources: esda (``Moran_Local``, ``Moran_Local_Rate``, ``Moran``, ``Moran_Rate``, ``G_Local``,
+and its own test-suite value for desmith) on libpysal's built-in ``columbus`` (CRIME, queen
+contiguity built from the polygons), ``desmith`` (the 10-zone example of de Smith, Goodchild &
+Longley, Geospatial Analysis, Fig. 5-31, with its shipped .gal), ``sids2`` and ``stl`` (whose
+shipped .gal weights are rook contiguity); statsmodels' ``multipletests`` for the
+Benjamini-Hochberg step and the worked example of Benjamini & Hochberg (1995); the
+decomposition property of Anselin (1995). Anselin (1995) reports no Columbus local values (its
+application is African conflict data), so none are hard-coded from it.
+
+Every graph test runs over both input kinds (BorderGraph and plain libpysal Graph), with fixed
+seeds. esda's engine (without numba) seeds numpy's global generator; the ``esda_draws`` fixture
+restores the global state after each esda call so this suite leaves no global seeding behind.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import esda
+import geopandas as gpd
+import libpysal
+import numpy as np
+import pandas as pd
+import pytest
+from esda.crand import vec_permutations
+from libpysal.graph import Graph, read_gal
+from pyogrio import read_dataframe
+from scipy import sparse
+from statsmodels.stats.multitest import multipletests
+
+from marchland import _permute
+from marchland.graph import BorderGraph
+from marchland.hotspots import (
+    _gi_star_z,
+    _global_moran_sims,
+    bh_qvalues,
+    getis_ord,
+    global_moran,
+    global_moran_rate,
+    hotspots,
+    local_moran,
+)
+
+SEED = 12345  # esda's tests/test_moran.py seed
+KINDS = ["BorderGraph", "Graph"]
+ESDA_QUADRANT = {1: "High-High", 2: "Low-High", 3: "Low-Low", 4: "High-Low"}  # esda's codes
+
+
+def _kind(g: Graph, kind: str):
+    return BorderGraph.from_graph(g) if kind == "BorderGraph" else g
+
+
+def _str_graph(g: Graph, ids: pd.Index) -> Graph:
+    adj = g.adjacency.reset_index()
+    adj["focal"] = adj["focal"].astype(str)
+    adj["neighbor"] = adj["neighbor"].astype(str)
+    order = pd.Categorical(adj["focal"], categories=ids)
+    return Graph.from_adjacency(adj.iloc[np.argsort(order.codes, kind="stable")])
+
+
+@pytest.fixture(scope="module")
+def columbus():
+    df = gpd.read_file(libpysal.examples.get_path("columbus.shp"))
+    df.index = pd.Index(df["POLYID"].astype(str), name="unit_id")
+    g = Graph.build_contiguity(df, rook=False)  # queen contiguity
+    return pd.Series(df["CRIME"].to_numpy(), index=df.index), g
+
+
+@pytest.fixture(scope="module")
+def desmith():
+    t = pd.read_csv(libpysal.examples.get_path("desmith.txt"), skiprows=1)
+    ids = pd.Index(t["id"].astype(str), name="unit_id")
+    g = _str_graph(read_gal(libpysal.examples.get_path("desmith.gal")), ids)
+    return pd.Series(t["z"].to_numpy(), index=ids), g
+
+
+def _sids():
+    t = read_dataframe(libpysal.examples.get_path("sids2.dbf"), read_geometry=False)
+    ids = pd.Index(t["FIPSNO"].astype(str), name="unit_id")
+    g = _str_graph(read_gal(libpysal.examples.get_path("sids2.gal")), ids)  # rook
+    return (
+        pd.Series(t["SID79"].to_numpy(dtype=float), index=ids),
+        pd.Series(t["BIR79"].to_numpy(dtype=float), index=ids),
+        g,
+    )
+
+
+def _stl():
+    t = pd.read_csv(libpysal.examples.get_path("stl_hom.csv"))
+    ids = pd.Index([str(i) for i in range(1, len(t) + 1)], name="unit_id")
+    g = _str_graph(read_gal(libpysal.examples.get_path("stl.gal")), ids)  # rook
+    cases = pd.Series(t["HC8893"].to_numpy(), index=ids)
+    return cases, pd.Series(t["PO8893"].to_numpy(), index=ids), g
+
+
+RATE_DATA = {"sids2": _sids, "stl": _stl}
+
+
+@pytest.fixture
+def esda_draws(monkeypatch):
+    """Run our permutations on esda's own draw table (same seed), restoring global state."""
+    state = np.random.get_state()
+
+    def table(n, max_card, permutations, rng):
+        return vec_permutations(max_card, n, permutations, SEED)
+
+    monkeypatch.setattr(_permute, "permutation_table", table)
+    yield
+    np.random.set_state(state)
+
+
+def _esda(cls, *args, **kwargs):
+    state = np.random.get_state()
+    try:
+        with warnings.catch_warnings():
+            # esda warns that its default alternative will change; we compare with it as is
+            warnings.simplefilter("ignore", DeprecationWarning)
+            return cls(*args, **kwargs)
+    finally:
+        np.random.set_state(state)
+
+
+# --- local Moran's I ---------------------------------------------------------------------
+@pytest.mark.parametrize("kind", KINDS)
+def test_local_moran_statistic_matches_esda_on_columbus(columbus, kind):
+    y, g = columbus
+    ours = local_moran(y, _kind(g, kind), permutations=99, seed=SEED)
+    lm = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=0)
+    np.testing.assert_allclose(ours["I"].to_numpy(), lm.Is, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(ours["z"].to_numpy(), lm.z, rtol=1e-12)
+    assert ours["quadrant"].tolist() == [ESDA_QUADRANT[q] for q in lm.q]
+
+
+def _counts_on_esda_draws(y, g, method="auto"):
+    z = (y.to_numpy() - y.mean()) / y.to_numpy().std()
+    w = sparse.csr_matrix(g.transform("r").sparse)
+    n = len(z)
+    lm = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=999, seed=SEED)
+    table = _permute.permutation_table(n, int(np.diff(w.indptr).max()), 999, None)
+    scaling = (n - 1) / (z * z).sum()
+    counts = _permute.conditional_permutation(
+        z, w, lm.Is, table, lambda u, lag: z[u][:, None] * lag * scaling, method=method
+    )
+    return lm, counts
+
+
+@pytest.mark.parametrize("method", ["gather", "prefix"])
+def test_both_permutation_paths_equal_esda(columbus, method, esda_draws):
+    y, g = columbus
+    lm, (at_least, at_most, mean, std) = _counts_on_esda_draws(y, g, method)
+    # esda's definition applied to our counts gives esda's p-values bit for bit
+    np.testing.assert_array_equal((np.minimum(at_least, 999 - at_least) + 1) / 1000, lm.p_sim)
+    np.testing.assert_allclose(mean, lm.EI_sim, rtol=1e-9, atol=1e-14)
+    np.testing.assert_allclose(std, lm.seI_sim, rtol=1e-9)
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_local_moran_pvalues_equal_esda_given_esda_draws(columbus, kind, esda_draws):
+    y, g = columbus
+    ours = local_moran(y, _kind(g, kind), permutations=999, seed=SEED)["p"].to_numpy()
+    lm, (at_least, at_most, _, _) = _counts_on_esda_draws(y, g)
+    ties = at_least + at_most - 999  # permutations that redrew an equal neighbourhood
+    assert (ties >= 0).all() and (ties > 0).any()  # columbus (n=49) has some
+    no_tie = ties == 0
+    np.testing.assert_array_equal(ours[no_tie], lm.p_sim[no_tie])
+    # with ties ours counts them in both tails: never smaller, larger by at most the ties
+    assert np.all(ours[~no_tie] >= lm.p_sim[~no_tie])
+    assert np.all(ours[~no_tie] - lm.p_sim[~no_tie] <= ties[~no_tie] / 1000 + 1e-12)
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_desmith_matches_esda_test_suite_value(desmith, kind, esda_draws):
+    y, g = desmith
+    ours = local_moran(y, _kind(g, kind), permutations=99, seed=SEED)
+    # esda tests/test_moran.py, TestMoranLocal.test_defaults: z_sim[0] with seed 12345, 99 perms
+    assert ours["z_sim"].iloc[0] == pytest.approx(-0.6990291160835514, rel=1e-9)
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_local_moran_pvalues_agree_with_esda_statistically(columbus, kind):
+    # our own random stream (numpy Generator) against esda's: equal within Monte Carlo error
+    y, g = columbus
+    perms = 9999
+    ours = local_moran(y, _kind(g, kind), permutations=perms, seed=2024)["p"].to_numpy()
+    theirs = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=perms, seed=SEED).p_sim
+    sd = np.sqrt(2 * theirs * (1 - theirs) / perms)
+    assert np.all(np.abs(ours - theirs) <= 4.5 * sd + 2 / (perms + 1))
+
+
+def test_local_sum_decomposes_global_moran_as_in_anselin_1995(columbus):
+    # Anselin (1995), eq. 7: with I_i = z_i sum_j w_ij z_j / m2, sum_i I_i = S0 * I.
+    # marchland reports the (n - 1) scaling, so sum_i I_i = (n - 1) / n * S0 * I.
+    y, g = columbus
+    local = local_moran(y, g, permutations=9, seed=1)["I"]
+    glob = global_moran(y, g, permutations=9, seed=1)
+    n = len(y)
+    assert local.sum() == pytest.approx((n - 1) / n * n * glob.I, rel=1e-12)  # S0 = n (row-std)
+
+
+# --- rate-adjusted local Moran's I ----------------------------------------------------------
+@pytest.mark.parametrize("kind", KINDS)
+@pytest.mark.parametrize("data", list(RATE_DATA))
+def test_hotspots_match_esda_moran_local_rate(data, kind, esda_draws):
+    cases, pop, g = RATE_DATA[data]()
+    ours = hotspots(cases, pop, _kind(g, kind), permutations=999, seed=SEED)
+    lm = _esda(esda.Moran_Local_Rate, cases.to_numpy(), pop.to_numpy(), g, permutations=999,
+               seed=SEED)  # fmt: skip
+    np.testing.assert_allclose(ours["I"].to_numpy(), lm.Is, rtol=1e-10, atol=1e-13)
+    np.testing.assert_array_equal(ours["p"].to_numpy(), lm.p_sim)
+    assert ours["quadrant"].tolist() == [ESDA_QUADRANT[q] for q in lm.q]
+
+
+# --- Benjamini-Hochberg --------------------------------------------------------------------
+def test_bh_matches_statsmodels():
+    rng = np.random.default_rng(5)
+    p = np.concatenate([rng.uniform(size=200), rng.uniform(0, 0.01, size=30)])
+    np.testing.assert_allclose(bh_qvalues(p), multipletests(p, method="fdr_bh")[1], rtol=1e-12)
+    with_nan = p.copy()
+    with_nan[[3, 50]] = np.nan
+    keep = np.isfinite(with_nan)
+    q = bh_qvalues(with_nan)
+    assert np.isnan(q[[3, 50]]).all()
+    np.testing.assert_allclose(
+        q[keep], multipletests(with_nan[keep], method="fdr_bh")[1], rtol=1e-12
+    )
+
+
+def test_bh_worked_example_of_benjamini_hochberg_1995():
+    # Benjamini & Hochberg (1995), section 4: 15 p-values, FDR 0.05 rejects the first four.
+    # The p-values are from memory.
+    p = np.array([0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344, 0.0459,
+                  0.3240, 0.4262, 0.5719, 0.6528, 0.7590, 1.000])  # fmt: skip
+    assert (bh_qvalues(p) <= 0.05).sum() == 4
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_labels_use_q_values_from_the_p_values(columbus, kind):
+    y, g = columbus
+    res = local_moran(y, _kind(g, kind), permutations=999, seed=3, fdr=0.1)
+    np.testing.assert_allclose(res["q"], multipletests(res["p"], method="fdr_bh")[1])
+    labelled = res["label"] != "Not significant"
+    assert (labelled == (res["q"] < 0.1)).all()
+    assert (res.loc[labelled, "label"] == res.loc[labelled, "quadrant"]).all()
+
+
+# --- global Moran's I ----------------------------------------------------------------------
+@pytest.mark.parametrize("kind", KINDS)
+def test_global_moran_matches_esda_on_columbus_and_desmith(columbus, desmith, kind):
+    for y, g in (columbus, desmith):
+        ours = global_moran(y, _kind(g, kind), permutations=99, seed=SEED)
+        mi = _esda(esda.Moran, y.to_numpy(), g, permutations=0)
+        assert pytest.approx(mi.I, rel=1e-12) == ours.I
+        assert ours.expected == pytest.approx(mi.EI, rel=1e-12)
+        assert ours.variance == pytest.approx(mi.VI_rand, rel=1e-10)
+        assert ours.z == pytest.approx(mi.z_rand, rel=1e-10)
+        assert ours.p_norm == pytest.approx(mi.p_rand, rel=1e-8)  # esda: two-tailed
+    # Columbus CRIME, queen, row-standardised: I = 0.5002 (GeoDa workbook; from memory).
+    assert (
+        pytest.approx(0.5002, abs=5e-5)
+        == global_moran(columbus[0], columbus[1], permutations=9, seed=0).I
+    )
+
+
+def test_global_permutation_distribution_has_the_randomisation_moments(desmith):
+    # The Cliff-Ord randomisation mean and variance are the exact moments of the permutation
+    # distribution of I, so our permuted I must reproduce esda's EI and VI_rand.
+    y, g = desmith
+    mi = _esda(esda.Moran, y.to_numpy(), g, permutations=0)
+    z = y.to_numpy() - y.mean()
+    sims = _global_moran_sims(z, sparse.csr_matrix(g.transform("r").sparse), 40_000,
+                              np.random.default_rng(11))  # fmt: skip
+    se_mean = np.sqrt(mi.VI_rand / len(sims))
+    assert abs(sims.mean() - mi.EI) < 4.5 * se_mean
+    assert sims.var() == pytest.approx(mi.VI_rand, rel=0.03)
+
+
+@pytest.mark.parametrize("kind", KINDS)
+@pytest.mark.parametrize("data", list(RATE_DATA))
+def test_global_moran_rate_matches_esda(data, kind):
+    cases, pop, g = RATE_DATA[data]()
+    ours = global_moran_rate(cases, pop, _kind(g, kind), permutations=99, seed=SEED)
+    mi = _esda(esda.Moran_Rate, cases.to_numpy(), pop.to_numpy(), g, permutations=0)
+    assert pytest.approx(mi.I, rel=1e-10) == ours.I
+    assert ours.z == pytest.approx(mi.z_rand, rel=1e-8)
+
+
+# --- Getis-Ord Gi* -------------------------------------------------------------------------
+@pytest.mark.parametrize("kind", KINDS)
+def test_gi_star_matches_esda_binary_on_columbus(columbus, kind, esda_draws):
+    y, g = columbus
+    ours = getis_ord(y, _kind(g, kind), permutations=999, seed=SEED)
+    # n_jobs=1: esda's default of every core starts worker processes
+    lg = _esda(esda.G_Local, y.to_numpy(), g, transform="B", star=True, permutations=999,
+               seed=SEED, n_jobs=1, keep_simulations=False)  # fmt: skip
+    np.testing.assert_allclose(ours["G"].to_numpy(), lg.Gs, rtol=1e-12)
+    np.testing.assert_allclose(ours["z"].to_numpy(), lg.Zs, rtol=1e-10)
+    np.testing.assert_allclose(ours["p_norm"].to_numpy(), 2 * lg.p_norm, rtol=1e-9)
+    # ties (a redrawn neighbourhood of equal sum) count in both tails here, not in esda
+    yv, w = y.to_numpy(), sparse.csr_matrix(g.sparse)
+    table = _permute.permutation_table(len(yv), int(np.diff(w.indptr).max()), 999, None)
+    at_least, at_most, _, _ = _permute.conditional_permutation(
+        yv, w, lg.Gs, table, lambda u, lag: (lag + yv[u][:, None]) / yv.sum()
+    )
+    ties = at_least + at_most - 999
+    no_tie = ties == 0
+    assert no_tie.mean() > 0.5
+    p, esda_p = ours["p"].to_numpy(), lg.p_sim.astype(float)  # esda keeps float32 here
+    np.testing.assert_allclose(p[no_tie], esda_p[no_tie], rtol=1e-6)
+    assert np.all(p[~no_tie] - esda_p[~no_tie] <= ties[~no_tie] / 1000 + 1e-6)
+
+
+def test_gi_star_z_unchanged_when_a_row_of_weights_is_rescaled(columbus):
+    y, g = columbus
+    w = sparse.csr_matrix(g.sparse + sparse.identity(g.n))
+    _, z = _gi_star_z(y.to_numpy(), w)
+    lg = _esda(esda.G_Local, y.to_numpy(), g, transform="B", star=True, permutations=0)
+    np.testing.assert_allclose(z, lg.Zs, rtol=1e-10)  # binary: the same as esda
+    scaled = w.tolil()
+    scaled[7, :] = scaled[7, :] * 3.5
+    _, z_scaled = _gi_star_z(y.to_numpy(), sparse.csr_matrix(scaled))
+    np.testing.assert_allclose(z_scaled, z, rtol=1e-12)
