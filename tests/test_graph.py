@@ -486,3 +486,18 @@ def test_border_graph_validates_edges():
         BorderGraph(e, pd.Index(["a", "b"]))
     with pytest.raises(ValueError, match="not in ids"):
         BorderGraph(e, pd.Index(["a"]))
+
+
+def test_links_naming_districts_climb_to_province_units():
+    from marchland.errors import DataWarning
+
+    layer = grid(2, 1, prefix="P")  # two province-level units P00, P10
+    parents = pd.Series({"P00-01": "P00", "P00-02": "P00", "P10-07": "P10"})
+    table = links_table(("P00-01", "P10-07", "ferry", "x"), ("P00-01", "P00-02", "road", "y"))
+    with pytest.warns(DataWarning, match=r"rows \[2\]"):
+        bg = border_graph(layer, links=table, parents=parents)
+    # P00-P10 already share a boundary; the ferry is recorded on that edge.
+    assert bg.edges["link_kind"].tolist() == ["ferry", "ferry"]
+    with pytest.raises(InputError) as err:
+        border_graph(layer, links=links_table(("P99-01", "P10", "ferry", "")), parents=parents)
+    assert (err.value.row, err.value.column, err.value.value) == (1, "from_id", "P99-01")
