@@ -1,0 +1,146 @@
+"""The population raster: sparse countryside, a denser river corridor and lake shore, towns."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyproj
+import rasterio
+import shapely
+from rasterio.features import rasterize
+from rasterio.transform import from_origin
+
+from ._world import GEN_CRS, World
+
+CELL_DEG = 0.01  # about 1.1 km
+WEST, NORTH, NCOL, NROW = -22.0, -13.0, 600, 500
+NODATA = -9999.0
+POP_MIN, POP_MAX = 8_000, 800_000  # kept inside the 5,000-900,000 range with a margin
+
+
+@dataclass(frozen=True)
+class Population:
+    """The raster grid, its values, and district totals."""
+
+    values: np.ndarray  # float32 (NROW, NCOL), NODATA outside land, 0 on the lake
+    labels: np.ndarray  # int (NROW, NCOL): district position in world.districts, -1 elsewhere
+    totals: pd.Series  # people per district (cell-centre sums), index unit_id
+    towns: pd.DataFrame  # unit_id name x y population (GEN_CRS metres)
+
+
+def _grid_xy():
+    lon = WEST + CELL_DEG * (np.arange(NCOL) + 0.5)
+    lat = NORTH - CELL_DEG * (np.arange(NROW) + 0.5)
+    glon, glat = np.meshgrid(lon, lat)
+    tr = pyproj.Transformer.from_crs("EPSG:4326", GEN_CRS, always_xy=True)
+    x, y = tr.transform(glon, glat)
+    area_km2 = (CELL_DEG * 111.32 * np.cos(np.radians(glat))) * (CELL_DEG * 110.57)
+    return x, y, area_km2
+
+
+def build_population(world: World, rng: np.random.Generator) -> Population:
+    """Simulate people per cell and their district totals.
+
+    Parameters
+    ----------
+    world : World
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    Population
+    """
+    x, y, area = _grid_xy()
+    transform = from_origin(WEST, NORTH, CELL_DEG, CELL_DEG)
+    d = world.districts
+    to_ll = pyproj.Transformer.from_crs(GEN_CRS, "EPSG:4326", always_xy=True)
+    geoms_ll = shapely.transform(
+        d.geometry.values, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1]))
+    )
+    labels = rasterize(
+        ((g, i) for i, g in enumerate(geoms_ll)),
+        out_shape=(NROW, NCOL),
+        transform=transform,
+        fill=-1,
+        dtype="int32",
+    )
+    lake_ll = shapely.transform(
+        world.lake, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1]))
+    )
+    lake = rasterize(
+        [(lake_ll, 1)], out_shape=(NROW, NCOL), transform=transform, fill=0, dtype="uint8"
+    ).astype(bool) & (labels < 0)
+    pts = shapely.points(x.ravel(), y.ravel())
+    d_river = np.minimum(shapely.distance(pts, world.river), shapely.distance(pts, world.arm))
+    d_river = d_river.reshape(x.shape)
+    d_lake = shapely.distance(pts, world.lake.exterior).reshape(x.shape)
+    # Countryside: 4-40 people per km2 varying smoothly; more along the Senn and the lake.
+    waves = sum(
+        np.cos(x / rng.uniform(2e4, 8e4) + rng.uniform(0, 6.3))
+        * np.cos(y / rng.uniform(2e4, 8e4) + rng.uniform(0, 6.3))
+        for _ in range(4)
+    )
+    dens = 4 + 18 * (1 + waves / 4) ** 2
+    dens += 70 * np.exp(-((d_river / 5_000) ** 2)) + 40 * np.exp(-((d_lake / 6_000) ** 2))
+    # Towns: one per district, larger on the river; a handful of cities.
+    rp = shapely.point_on_surface(d.geometry.values)
+    tx, ty = shapely.get_x(rp), shapely.get_y(rp)
+    tpop = rng.lognormal(np.log(9_000), 0.7, len(d))
+    river_idx = np.flatnonzero(d["river"].values)
+    cities = rng.choice(river_idx, size=min(10, len(river_idx)), replace=False)
+    tpop[cities] = rng.uniform(60_000, 380_000, len(cities))
+    tpop[d["island"].values] = 6_000.0
+    people = dens * area
+    for k in range(len(d)):  # generator only: one small window per town
+        sigma = 1_800.0 if tpop[k] < 50_000 else 4_500.0
+        r = (x - tx[k]) ** 2 + (y - ty[k]) ** 2
+        w = np.exp(-r / (2 * sigma**2)) * (labels == k)
+        if w.sum() > 0:
+            people += tpop[k] * w / w.sum()
+    people = np.where(labels >= 0, people, 0.0)
+    # Keep every district inside the required range by rescaling its cells.
+    tot = np.bincount(labels[labels >= 0], weights=people[labels >= 0], minlength=len(d))
+    factor = np.clip(tot, POP_MIN, POP_MAX) / np.maximum(tot, 1e-9)
+    people = np.where(labels >= 0, people * factor[np.maximum(labels, 0)], 0.0)
+    values = np.where(labels >= 0, people, NODATA).astype("float32")
+    values[lake] = 0.0
+    tot = np.bincount(
+        labels[labels >= 0], weights=values[labels >= 0].astype(float), minlength=len(d)
+    )
+    totals = pd.Series(np.round(tot).astype(int), index=d.index, name="population")
+    towns = pd.DataFrame(
+        {
+            "unit_id": d.index,
+            "name": d["name"].values,
+            "x": tx,
+            "y": ty,
+            "population": np.round(tpop * factor).astype(int),
+        }
+    )
+    return Population(values, labels, totals, towns)
+
+
+def write_raster(pop: Population, path: Path) -> None:
+    """Write the raster as a deflate-compressed float32 GeoTIFF in EPSG:4326."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    profile = dict(
+        driver="GTiff",
+        width=NCOL,
+        height=NROW,
+        count=1,
+        dtype="float32",
+        crs="EPSG:4326",
+        transform=from_origin(WEST, NORTH, CELL_DEG, CELL_DEG),
+        nodata=NODATA,
+        compress="deflate",
+        predictor=3,
+        tiled=True,
+        blockxsize=256,
+        blockysize=256,
+    )
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(pop.values, 1)
+        dst.update_tags(description="people per cell, fictional Senn basin scenario")
