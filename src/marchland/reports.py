@@ -27,7 +27,15 @@ from .errors import DataWarning, InputError
 if TYPE_CHECKING:  # pragma: no cover
     from .config import ChecksConfig, Config, MatchingConfig, ReportSpec
 
-__all__ = ["Reports", "as_of", "epi_week", "load_aliases", "read_reports", "week_start"]
+__all__ = [
+    "Reports",
+    "as_of",
+    "epi_week",
+    "load_aliases",
+    "read_reports",
+    "reporting_completeness",
+    "week_start",
+]
 
 COUNT_COLUMNS = ("unit_id", "week", "cases", "deaths", "received", "source", "row")
 # Beside the contract's columns: the file and sheet a row came from, and whether a zero is
@@ -333,7 +341,9 @@ def _implied_zeros(
     if counts.empty or (spec.shape != "linelist" and spec.zeros != "cases-only"):
         return counts.iloc[:0]
     if spec.shape == "linelist":
-        last = week_start(pd.Series([counts["received"].max()]), calendar).iloc[0]
+        # The last week wholly over by the last report received.
+        final = counts["received"].max() - pd.Timedelta(days=6)
+        last = week_start(pd.Series([final]), calendar).iloc[0]
         weeks = pd.date_range(counts["week"].min(), last, freq="7D")
         got = np.sort(counts["received"].unique())
         ends = (weeks + pd.Timedelta(days=6)).to_numpy()
@@ -479,24 +489,29 @@ def _read_source(
 
 
 # --- completeness ----------------------------------------------------------------------------
-def _completeness(
-    counts: pd.DataFrame, expected: pd.DataFrame, calendar: str
+def reporting_completeness(
+    counts: pd.DataFrame, units: pd.DataFrame, specs: Sequence[ReportSpec]
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Share of expected unit-weeks reported, per unit and per country, over the region's span."""
-    by_unit_cols = [
-        "country",
-        "level",
-        "expected_weeks",
-        "reported_weeks",
-        "share",
-        "first_week",
-        "last_week",
-        "last_received",
-    ]
-    if counts.empty:
-        span = pd.DatetimeIndex([])
-    else:
-        span = pd.date_range(counts["week"].min(), counts["week"].max(), freq="7D")
+    """Share of expected unit-weeks reported, per unit and per country.
+
+    Expected: every unit of each source's country and level, every week from the country's
+    first reported week to the last week reported anywhere in the region (a country that
+    falls silent shows the gap; one whose outbreak starts late is not charged for before).
+    Implied zeros count as reported; weeks nobody sent do not.
+
+    Returns
+    -------
+    (by_unit, by_country) : tuple of pandas.DataFrame
+        As ``Reports.completeness`` and ``Reports.completeness_by_country``.
+    """
+    levels = pd.DataFrame([(s.country, s.level) for s in specs], columns=["country", "level"])
+    exp = units.reset_index().merge(levels.drop_duplicates(), on=["country", "level"])
+    exp = exp.set_index(units.index.name or "unit_id")[["country", "level"]]
+    exp = exp[~exp.index.duplicated()]
+    counts = counts.assign(country=counts["unit_id"].map(exp["country"]))
+    last = counts["week"].max() if len(counts) else pd.NaT
+    start = counts.groupby("country")["week"].min()
+    n_weeks = (((last - start).dt.days // 7) + 1).reindex(exp["country"].unique()).fillna(0)
     g = counts.groupby("unit_id")
     per = pd.DataFrame(
         {
@@ -506,26 +521,35 @@ def _completeness(
             "last_received": g["received"].max(),
         }
     )
-    unit = expected.join(per, how="left")
+    unit = exp.join(per, how="left")
     unit["reported_weeks"] = unit["reported_weeks"].fillna(0).astype(int)
-    unit["expected_weeks"] = len(span)
-    unit["share"] = unit["reported_weeks"] / max(len(span), 1)
-    unit = unit.loc[:, by_unit_cols]
+    unit["expected_weeks"] = unit["country"].map(n_weeks).astype(int)
+    unit["share"] = unit["reported_weeks"] / unit["expected_weeks"].clip(lower=1)
+    cols = [
+        "country",
+        "level",
+        "expected_weeks",
+        "reported_weeks",
+        "share",
+        "first_week",
+        "last_week",
+        "last_received",
+    ]
+    unit = unit.loc[:, cols]
     unit.index.name = "unit_id"
     cg = unit.groupby("country")
     country = pd.DataFrame(
         {
             "units": cg.size(),
-            "units_never": cg["reported_weeks"].apply(lambda s: int((s == 0).sum())),
+            "units_never": (unit["reported_weeks"] == 0).groupby(unit["country"]).sum(),
             "expected_weeks": cg["expected_weeks"].sum(),
             "reported_weeks": cg["reported_weeks"].sum(),
             "last_received": cg["last_received"].max(),
         }
     )
     country["share"] = country["reported_weeks"] / country["expected_weeks"].clip(lower=1)
-    wk = counts.assign(country=counts["unit_id"].map(expected["country"]))
-    sent = wk.groupby("country")["week"].nunique().reindex(country.index).fillna(0)
-    country["gap_weeks"] = (len(span) - sent).astype(int)
+    sent = counts.groupby("country")["week"].nunique().reindex(country.index).fillna(0)
+    country["gap_weeks"] = (country.index.map(n_weeks).to_numpy() - sent).astype(int)
     country.index.name = "country"
     return unit, country
 
@@ -654,11 +678,7 @@ def _assemble(
             ).set_index("source")
         )
     )
-    levels = pd.DataFrame([(s.country, s.level) for s in specs], columns=["country", "level"])
-    exp = units.reset_index().merge(levels.drop_duplicates(), on=["country", "level"])
-    exp = exp.set_index(units.index.name or "unit_id")[["country", "level"]]
-    exp = exp[~exp.index.duplicated()]
-    unit, country = _completeness(counts, exp, calendar)
+    unit, country = reporting_completeness(counts, units, specs)
     return Reports(
         counts=counts,
         rejects=rejects,

@@ -1,0 +1,166 @@
+"""open_region and check on the demo scenario, and bad inputs giving one-line errors.
+
+Covered: every deliberate dirty row of the demo (demo_data/truth/dirt.csv) rejected for its own
+reason at its own file, sheet, row and column, and nothing else rejected; spelling variants
+matched; every row of every report file accounted for; the mixed admin-1/admin-2 analysis
+units covering the region with no gap or overlap beyond the boundary files' own; counts on
+analysis units; the lazily built graph; check() with a source that cannot be read; bad
+configs and inputs raising InputError (never another exception).
+"""
+
+from __future__ import annotations
+
+import shutil
+import warnings
+from pathlib import Path
+
+import pandas as pd
+import pytest
+import shapely
+
+from marchland.config import load_config
+from marchland.errors import DataWarning, InputError
+from marchland.region import CheckReport, Region, check, open_region
+from marchland.reports import REASONS, as_of
+
+ROOT = Path(__file__).resolve().parents[1]
+SCENARIO = ROOT / "demo_data" / "scenario.toml"
+DIRT = ROOT / "demo_data" / "truth" / "dirt.csv"
+
+
+@pytest.fixture(scope="module")
+def region() -> Region:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)
+        return open_region(SCENARIO)
+
+
+@pytest.fixture(scope="module")
+def report() -> CheckReport:
+    return check(SCENARIO)
+
+
+def test_every_dirty_row_rejected_for_its_reason(region: Region) -> None:
+    dirt = pd.read_csv(DIRT, dtype=str, keep_default_na=False)
+    want = {
+        (Path(d.source_file).name, d.sheet, int(d.row)): (d.reason, d.column)
+        for d in dirt.itertuples()
+    }
+    rej = region.rejects
+    got = {
+        (f, s, int(r)): (why, col)
+        for f, s, r, why, col in zip(
+            rej["file"], rej["sheet"], rej["row"], rej["reason"], rej["column"], strict=True
+        )
+    }
+    assert got == want
+    assert set(rej["reason"]) <= set(REASONS)
+
+
+def test_every_row_accounted_for(region: Region) -> None:
+    acct = region.accounting
+    assert (acct["rows_in"] == acct["counted"] + acct["rejected"]).all()
+    # Rows in, counted independently of marchland: every data row of every file and sheet.
+    cfg = region.config
+    for spec in cfg.reports:
+        n = 0
+        for f in spec.files:
+            if f.suffix == ".xlsx":
+                n += sum(len(t) for t in pd.read_excel(f, sheet_name=None).values())
+            else:
+                n += len(pd.read_csv(f, dtype=str, skip_blank_lines=False))
+        assert acct.loc[spec.name, "rows_in"] == n, spec.name
+    assert len(region.rejects) == acct["rejected"].sum()
+
+
+def test_spelling_variants_matched(region: Region) -> None:
+    m = region.matches
+    unknown = set(region.rejects.loc[region.rejects["reason"] == "unknown-place", "value"])
+    unmatched = m[m["unit_id"].isna()]
+    assert set(unmatched["place"]) == unknown
+    ll = m[m["source"] == "mrw-linelist"]
+    assert {"exact-name", "normalised", "alias"} <= set(ll["method"])
+    # Accented, abbreviated and "District of" variants land on the same district.
+    by_unit = ll.dropna(subset=["unit_id"]).groupby("unit_id")["place"].nunique()
+    assert by_unit.max() >= 4
+
+
+def test_analysis_units_mixed_levels_cover_region(region: Region) -> None:
+    u, allu = region.units, region.all_units
+    assert u.groupby("country")["level"].unique().map(list).to_dict() == {
+        "MRW": [2],
+        "OSK": [1],
+        "QLN": [2],
+        "TVR": [2],
+    }
+    districts = allu[allu["level"] == 2]
+    # Same ground as the district files: no gap, no overlap beyond the files' own.
+    a = shapely.union_all(u.geometry.to_numpy())
+    d = shapely.union_all(districts.geometry.to_numpy())
+    assert a.symmetric_difference(d).area < 1e-6 * d.area
+    own_overlap = districts.area.sum() - d.area
+    our_overlap = u.area.sum() - a.area
+    assert our_overlap <= own_overlap + 1e-6 * d.area
+    # Province population is the sum of its districts'.
+    osk = districts[districts["country"] == "OSK"].groupby("parent_id")["population"].sum()
+    pd.testing.assert_series_equal(u.loc[osk.index, "population"], osk, check_names=False)
+    assert (u["population"] > 0).all()
+    assert u.crs.is_projected
+
+
+def test_counts_on_analysis_units(region: Region) -> None:
+    c = region.counts
+    assert set(c["unit_id"]) <= set(region.units.index)
+    assert c["week"].dt.day_of_week.eq(0).all()
+    latest = as_of(c)
+    assert not latest.duplicated(["unit_id", "week"]).any()
+    raw = as_of(region.reports.counts)
+    assert latest["cases"].sum() == raw["cases"].sum()
+
+
+def test_graph_is_built_lazily(region: Region) -> None:
+    g = region.graph
+    assert set(g.ids) == set(region.units.index)
+    assert (g.edges["kind"] == "link").any()
+    assert g is region.graph
+
+
+def test_check_report(report: CheckReport) -> None:
+    assert report.ok
+    s = report.sources[report.sources["kind"] == "reports"]
+    assert len(s) == 4
+    assert (s["rows_in"] == s["used"] + s["rejected"]).all()
+    dirt = pd.read_csv(DIRT)
+    assert s["rejected"].sum() == len(dirt)
+    assert report.rejected_by_reason.sum().sum() == len(dirt)
+    text = report.to_text()
+    for name in s.index:
+        assert name in text
+    assert "decision support" in text.lower()
+    assert set(report.units["analysis_level"]) == {1, 2}
+    assert report.completeness.loc["QLN", "gap_weeks"] > 0
+
+
+def test_check_survives_an_unreadable_source(tmp_path: Path) -> None:
+    # Copy the scenario and break one report file: the others are still read.
+    shutil.copytree(ROOT / "demo_data", tmp_path / "demo_data")
+    shutil.copytree(ROOT / "boundaries", tmp_path / "boundaries")
+    (tmp_path / "demo_data" / "reports" / "qln_weekly.csv").write_text("nothing,useful\n1,2\n")
+    r = check(tmp_path / "demo_data" / "scenario.toml")
+    assert not r.ok
+    assert r.sources.loc["qln-weekly", "status"] == "error"
+    assert "Region" in r.sources.loc["qln-weekly", "message"]
+    assert r.sources.loc["tvr-weekly", "status"] == "ok"
+    assert "ERR" in r.to_text()
+    with pytest.raises(InputError, match="qln_weekly.csv"):
+        open_region(tmp_path / "demo_data" / "scenario.toml")
+
+
+def test_bad_boundaries_are_input_errors(tmp_path: Path) -> None:
+    shutil.copytree(ROOT / "demo_data", tmp_path / "demo_data")
+    shutil.copytree(ROOT / "boundaries", tmp_path / "boundaries")
+    (tmp_path / "boundaries" / "osk_adm2.geojson").write_text("{not json")
+    r = check(tmp_path / "demo_data" / "scenario.toml")
+    assert not r.ok and "osk_adm2.geojson" in r.to_text()
+    with pytest.raises(InputError, match="osk_adm2.geojson"):
+        open_region(load_config(tmp_path / "demo_data" / "scenario.toml"))
