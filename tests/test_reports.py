@@ -366,3 +366,84 @@ def test_row_accounting_property(tmp_path: Path, units: pd.DataFrame, rows: list
     assert (r.counts["cases"] >= 0).all()
     assert (r.counts["deaths"].fillna(0) <= r.counts["cases"]).all()
     assert np.all(r.counts["week"] <= pd.Timestamp(TODAY))
+
+
+@pytest.mark.parametrize(
+    ("raw", "folded"),
+    [
+        ("Saint-Éloi", "saint eloi"),
+        ("St. Eloi", "saint eloi"),
+        ("ST ELOI", "saint eloi"),
+        ("District of N. Varre", "north varre"),
+        ("N Varre district", "north varre"),
+        ("Nölanne", "nolanne"),
+        ("Østre Lund", "ostre lund"),
+        ("Sant'Ivora", "santivora"),
+        ("  Bel   Orme ", "bel orme"),
+        ("District", "district"),  # a name that is only a stripped word keeps it
+    ],
+)
+def test_normalise(raw: str, folded: str) -> None:
+    from marchland._names import normalise
+
+    assert normalise(raw, ("district of", "district")) == folded
+
+
+def test_fuzzy_needs_margin(units: pd.DataFrame, tmp_path: Path) -> None:
+    # "Kesel" is as close to both Kessel districts: ambiguous, never a guess.
+    path = write(
+        tmp_path / "w.csv",
+        "district,week_start,cases,received\n"
+        "Kesel,2026-01-05,1,2026-01-12\nBel Ormee,2026-01-05,1,2026-01-12\n",
+    )
+    cols = dict(place="district", week="week_start", cases="cases", received="received")
+    r = read_reports(spec(path, columns=cols), units, today=TODAY)
+    assert r.rejects["reason"].tolist() == ["ambiguous-place"]
+    assert r.matches.set_index("place").loc["Bel Ormee", "method"] == "fuzzy"
+    strict = read_reports(
+        spec(path, columns=cols), units, today=TODAY, matching=MatchingConfig(fuzzy_score=99.0)
+    )
+    assert strict.rejects["reason"].tolist() == ["unknown-place", "unknown-place"]
+    assert "Bel Orme [TVR-01-02]" in strict.rejects["candidates"].iloc[1]
+
+
+def test_header_only_and_empty_files(units: pd.DataFrame, tmp_path: Path) -> None:
+    path = write(tmp_path / "w.csv", "district,week_start,cases,received\n")
+    cols = dict(place="district", week="week_start", cases="cases", received="received")
+    r = read_reports(spec(path, columns=cols), units, today=TODAY)
+    assert r.accounting.loc["src", "rows_in"] == 0 and r.counts.empty and r.rejects.empty
+    empty = tmp_path / "e.csv"
+    empty.write_text("")
+    with pytest.raises(InputError, match="not in the file"):
+        read_reports(spec(empty, columns=cols), units, today=TODAY)
+
+
+LL_ROW = st.tuples(
+    st.sampled_from(NAMES),
+    st.sampled_from(["2026-01-05", "2026-01-09", "2026-02-11", "", "2026-13-01", "2027-05-05"]),
+    st.sampled_from(["2026-01-10", "2026-02-20", "", "x"]),
+    st.sampled_from(["died", "recovered", "", "DIED"]),
+)
+
+
+@settings(
+    max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(rows=st.lists(LL_ROW, max_size=40))
+def test_linelist_accounting_property(tmp_path: Path, units: pd.DataFrame, rows: list) -> None:
+    table = pd.DataFrame(rows, columns=["place", "onset", "reported", "outcome"])
+    path = tmp_path / "ll.csv"
+    table.to_csv(path, index=False)
+    sp = spec(
+        path,
+        shape="linelist",
+        columns=dict(place="place", onset="onset", report_date="reported", outcome="outcome"),
+    )
+    r = read_reports(sp, units, today=TODAY)
+    acct = r.accounting.loc["src"]
+    assert acct["rows_in"] == len(rows) == acct["counted"] + acct["rejected"]
+    assert len(r.rejects) == acct["rejected"]
+    # The latest version of each place-week counts every accepted case once.
+    latest = as_of(r.counts)
+    assert latest["cases"].sum() == acct["counted"]
+    assert (latest["deaths"] <= latest["cases"]).all()
