@@ -32,7 +32,7 @@ _EXPORTS: dict[str, str] = {
     "prioritise": "supplies",
     "choose_depots": "supplies",
     "open_region": "region",
-    "run_month": "region",
+    "run_month": "monthly",
 }
 
 __all__ = list(_EXPORTS)

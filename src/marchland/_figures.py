@@ -1,0 +1,242 @@
+"""Which figures a month's bundle holds, drawn from a MonthResult with :mod:`marchland.maps`.
+
+Kept apart from ``maps`` (which draws from plain tables and knows no result object) and from
+``bundle`` (which writes files): this is the one place that picks the columns each figure shows.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from . import maps
+from .monthly import province_of
+
+
+def source_line(result: Any) -> str:
+    """Return the data-source line of every figure."""
+    names = [r.name for r in result.config.reports]
+    countries = sorted({r.country for r in result.config.reports})
+    return (
+        f"Source: weekly reports from {', '.join(countries)} ({len(names)} report sources) "
+        f"as received by the as-of date; {result.config.region.name}."
+    )
+
+
+def notes_for(result: Any) -> maps.MapNotes:
+    """Return the MapNotes of a result."""
+    return maps.MapNotes(
+        as_of=f"{result.as_of:%Y-%m-%d}",
+        source=source_line(result),
+        region=result.config.region.name,
+    )
+
+
+def _month_label(month: str) -> str:
+    return f"{pd.Period(month, freq='M'):%B %Y}"
+
+
+def draw_figures(result: Any) -> Iterator[tuple[str, Any, str]]:
+    """Yield ``(name, figure, caption)`` for every figure the result supports, in atlas order.
+
+    Figures are yielded one at a time and closed by the caller's saving, so memory stays flat.
+    """
+    notes = notes_for(result)
+    base = maps.base_map(result.units)
+    month = _month_label(result.month)
+
+    if result.rates is not None:
+        hist = result.rates_history
+        bins = maps.rate_classes(hist if hist is not None else result.rates["month_rate"])
+        rate = result.rates["month_rate"].where(result.rates["month_weeks_reported"] > 0)
+        yield (
+            "attack_rate",
+            maps.attack_rate_map(base, rate, notes, bins=bins, period=month),
+            f"Attack rate per 100,000 in {month}. Classes (Fisher-Jenks on the last six "
+            "months pooled) are the same as in the monthly panels.",
+        )
+        if hist is not None:
+            panels = hist.copy()
+            panels.columns = [f"{pd.Period(c, freq='M'):%b %Y}" for c in panels.columns]
+            yield (
+                "attack_rate_months",
+                maps.rate_small_multiples(base, panels, notes, bins=bins),
+                "Attack rate per 100,000 for each of the last six months, one shared class scheme.",
+            )
+    if result.hotspots is not None and result.cluster_colours is not None:
+        hs = result.hotspots
+        fdr = result.config.analysis.fdr
+        yield (
+            "hotspots",
+            maps.cluster_map(
+                base,
+                hs["label"],
+                result.cluster_colours,
+                notes,
+                legend=result.cluster_legend,
+                always=result.cluster_significant,
+                title=f"Hotspots, {month}",
+                subtitle=f"{notes.region}: rate-adjusted local Moran's I; coloured where the "
+                f"false discovery rate q < {fdr:g}",
+            ),
+            "Clusters of the month's attack rate (empirical Bayes standardised local Moran's I, "
+            f"{result.config.analysis.permutations} conditional permutations, Benjamini-Hochberg "
+            f"q < {fdr:g}).",
+        )
+    if result.fronts is not None:
+        yield (
+            "arrival",
+            maps.arrival_map(
+                base, result.fronts["first_week"], notes, fronts=result.front_outlines
+            ),
+            "Week of the first reported case per unit; thin outlines show the area newly "
+            "affected in each month.",
+        )
+    if result.risk is not None:
+        risk = result.risk
+        affected = []
+        if result.fronts is not None:
+            affected = result.fronts.index[result.fronts["first_week"].notna()]
+        silent = risk.index[risk["silent"].astype(bool)] if "silent" in risk else []
+        yield (
+            "border_risk",
+            maps.risk_map(
+                base,
+                risk["probability"],
+                affected,
+                notes,
+                silent=silent,
+                horizon_weeks=result.config.risk.horizon_weeks,
+                side_note=backtest_note(result),
+            ),
+            "Probability of a first case within the horizon for unaffected units within two "
+            "graph steps of an affected one; the side panel gives the backtest.",
+        )
+    if result.priorities is not None:
+        depots = result.depots
+        yield (
+            "priorities",
+            maps.priority_map(
+                base,
+                result.priorities["rank"],
+                notes,
+                depots=depots,
+                reach_km=result.config.supplies.reach_km,
+                sites=result.depot_sites,
+            ),
+            "Candidate districts ranked for pre-positioning, depots to open and their reach. "
+            "Quantities use example planning values, not guidance.",
+        )
+    yield from _epi_figures(result, notes)
+
+
+def backtest_note(result: Any) -> str:
+    """Backtest numbers as a short monospace block for the risk map's side panel."""
+    bt = result.backtest
+    if bt is None or not len(bt):
+        return "Backtest: not available."
+    lines = [
+        "How far to trust it",
+        "(rolling-origin backtest)",
+        "",
+        f"{'model':<11}{'AUC':>6}{'Brier':>7}",
+    ]
+    for model, row in bt.iterrows():
+        lines.append(f"{str(model):<11}{_f(row.get('auc'), 2):>6}{_f(row.get('brier'), 3):>7}")
+    k = result.config.risk.top_k
+    if "hits_top_k" in bt and "score" in bt.index:
+        lines.append("")
+        lines.append(f"score: {_f(bt.loc['score', 'hits_top_k'], 1)} of top {k}")
+        lines.append("hit within the horizon")
+    if "n_origins" in bt and "score" in bt.index:
+        lines.append(f"over {int(bt.loc['score', 'n_origins'])} past weeks")
+    return "\n".join(lines)
+
+
+def _f(v: Any, digits: int) -> str:
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return "-"
+    return "-" if not np.isfinite(x) else f"{x:.{digits}f}"
+
+
+def weekly_by(result: Any, key: pd.Series | None) -> dict[str, pd.DataFrame]:
+    """Weekly cases and deaths summed per group (``key``: unit id -> group; None = region)."""
+    w = result.weekly
+    if w is None or not len(w):
+        return {}
+    df = w.assign(cases=w["cases"].astype("Float64"), deaths=w["deaths"].astype("Float64"))
+    df["group"] = "region" if key is None else df["unit_id"].map(key)
+    g = df.groupby(["group", "week"])
+    summed = pd.DataFrame(
+        {"cases": g["cases"].sum(min_count=1), "deaths": g["deaths"].sum(min_count=1)}
+    )
+    out = {}
+    for name, part in summed.groupby(level=0, sort=True):
+        out[str(name)] = part.droplevel(0).astype(float)
+    return out
+
+
+def _epi_figures(result: Any, notes: maps.MapNotes) -> Iterator[tuple[str, Any, str]]:
+    delay = result.config.analysis.reporting_delay_weeks
+    as_of = result.as_of
+    week_days = 7
+    reg = weekly_by(result, None)
+    if not reg:
+        return
+    shaded = f"the last {delay} weeks before the as-of date are shaded: reporting incomplete"
+    yield (
+        "epi_region",
+        maps.epi_curves(
+            {notes.region or "Region": reg["region"]},
+            notes,
+            as_of=as_of,
+            delay_weeks=delay,
+            title="Weekly cases and deaths, whole region",
+            week_days=week_days,
+        ),
+        f"Weekly reported cases (bars) and deaths (line) for the whole region; {shaded}.",
+    )
+    units = result.units
+    countries = weekly_by(result, units["country"])
+    yield (
+        "epi_countries",
+        maps.epi_curves(
+            countries,
+            notes,
+            as_of=as_of,
+            delay_weeks=delay,
+            title="Weekly cases and deaths by country",
+            ncols=2,
+            week_days=week_days,
+        ),
+        f"Weekly reported cases and deaths per country; {shaded}.",
+    )
+    prov = province_of(units)
+    names = {}
+    if result.all_units is not None and "name" in result.all_units:
+        names = result.all_units["name"].to_dict()
+    per_prov = weekly_by(result, prov)
+    country_of_prov = units.groupby(prov)["country"].first()
+    for country in sorted(units["country"].unique()):
+        ids = sorted(p for p in per_prov if country_of_prov.get(p) == country)
+        if not ids:
+            continue
+        panels = {f"{names.get(p, p)} ({p})": per_prov[p] for p in ids}
+        yield (
+            f"epi_provinces_{country}",
+            maps.epi_curves(
+                panels,
+                notes,
+                as_of=as_of,
+                delay_weeks=delay,
+                title=f"Weekly cases and deaths by province, {country}",
+                ncols=3,
+                week_days=week_days,
+            ),
+            f"Weekly reported cases and deaths per province of {country}; {shaded}.",
+        )

@@ -1,0 +1,382 @@
+"""The ``marchland`` command line: one click group, one function per command.
+
+Commands are thin wrappers over the library (``region.check``, ``monthly.run_month``,
+``bundle.write_month``, ``risk.backtest_risk``). Analysis modules are imported inside the
+commands so that ``marchland --help`` answers at once.
+
+Exit codes: 0 success; 2 bad input (one line ``error: <file, row, column, value: reason>`` on
+stderr, no traceback); 1 an unexpected error (a hint to rerun with ``-v`` for the traceback).
+"""
+
+from __future__ import annotations
+
+import logging
+import re
+import sys
+import traceback
+from pathlib import Path
+from typing import Any
+
+import click
+
+from . import __version__
+from .errors import InputError
+
+log = logging.getLogger("marchland")
+
+CAUTIONS = (
+    "Decision support, not a diagnosis. Reporting is incomplete and delayed; small numbers are "
+    "unstable. Defer to national authorities and field epidemiologists."
+)
+
+_HELP = f"""Cross-border spatial risk analysis of waterborne outbreaks from weekly district
+reports: attack rates, hotspots, spread, border risk and supply pre-positioning, as maps,
+tables, GeoPackage layers and an HTML report for each month.
+
+\b
+$ marchland demo --out out
+$ marchland check demo_data/scenario.toml
+$ marchland run demo_data/scenario.toml --month 2026-10
+
+{CAUTIONS}
+"""
+
+_MONTH = re.compile(r"^\d{4}-(0[1-9]|1[0-2])$")
+
+# Verbosity of the current invocation: read by the error handler after click has unwound.
+_state: dict[str, int] = {"verbosity": 0}
+
+
+# --- error handling --------------------------------------------------------------------------
+class _Group(click.Group):
+    """A click group that turns errors into exit codes with one-line messages."""
+
+    def main(self, args: Any = None, prog_name: str | None = None, **extra: Any) -> Any:  # noqa: D102
+        extra.pop("standalone_mode", None)
+        _state["verbosity"] = 0
+        try:
+            rv = super().main(args, prog_name=prog_name, standalone_mode=False, **extra)
+        except click.exceptions.Abort:
+            click.echo("error: interrupted", err=True)
+            sys.exit(1)
+        except click.UsageError as exc:
+            click.echo(f"error: {_one_line(exc.format_message())}", err=True)
+            sys.exit(2)
+        except click.ClickException as exc:
+            click.echo(f"error: {_one_line(exc.format_message())}", err=True)
+            sys.exit(exc.exit_code)
+        except InputError as exc:
+            if _state["verbosity"] > 0:
+                traceback.print_exc()
+            click.echo(f"error: {_one_line(str(exc))}", err=True)
+            sys.exit(2)
+        except Exception as exc:  # a bug, not a user mistake: say so and how to see more
+            if _state["verbosity"] > 0:
+                traceback.print_exc()
+                click.echo(f"error: unexpected {type(exc).__name__}: {exc}", err=True)
+            else:
+                click.echo(
+                    f"error: unexpected {type(exc).__name__}: {_one_line(str(exc))} "
+                    "(rerun with -v for the traceback)",
+                    err=True,
+                )
+            sys.exit(1)
+        sys.exit(rv if isinstance(rv, int) else 0)
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+# --- shared options, defined once -------------------------------------------------------------
+_config_arg = click.argument(
+    "config", type=click.Path(exists=True, dir_okay=False, path_type=Path), metavar="CONFIG"
+)
+_out_opt = click.option(
+    "--out",
+    "out",
+    type=click.Path(file_okay=False, path_type=Path),
+    default=None,
+    help="Folder the monthly bundle goes into (as OUT/YYYY-MM/). Default: the config's "
+    "[output] dir.",
+)
+_overwrite_opt = click.option(
+    "--overwrite",
+    is_flag=True,
+    help="Replace an existing bundle for the month (the old one stays until the new one is "
+    "complete).",
+)
+
+
+def _month(ctx: click.Context, param: click.Parameter, value: str | None) -> str | None:
+    if value is not None and not _MONTH.match(value):
+        raise click.BadParameter(f"needs YYYY-MM (e.g. 2026-10); {value!r} was given instead.")
+    return value
+
+
+def _date(ctx: click.Context, param: click.Parameter, value: str | None) -> Any:
+    if value is None:
+        return None
+    import datetime as dt
+
+    try:
+        return dt.date.fromisoformat(value)
+    except ValueError:
+        raise click.BadParameter(
+            f"needs a date YYYY-MM-DD (e.g. 2026-11-03); {value!r} was given instead."
+        ) from None
+
+
+def _setup_logging(verbosity: int) -> None:
+    level = {-2: logging.ERROR, -1: logging.WARNING, 0: logging.WARNING, 1: logging.INFO}
+    logging.basicConfig(
+        level=level.get(max(-2, min(verbosity, 2)), logging.DEBUG),
+        format="%(levelname)s %(name)s: %(message)s",
+        force=True,
+    )
+
+
+# --- the group -------------------------------------------------------------------------------
+@click.group(cls=_Group, help=_HELP, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(
+    __version__, "--version", prog_name="marchland", message="%(prog)s %(version)s"
+)
+@click.option("-v", "--verbose", count=True, help="More detail: -v for steps, -vv for debug.")
+@click.option("-q", "--quiet", count=True, help="Less output: only errors and the summary line.")
+@click.pass_context
+def cli(ctx: click.Context, verbose: int, quiet: int) -> None:  # noqa: D103
+    _state["verbosity"] = verbose - quiet
+    ctx.obj = {"verbosity": verbose - quiet}
+    _setup_logging(verbose - quiet)
+
+
+def _console(ctx: click.Context):
+    from rich.console import Console
+
+    quiet = ctx.obj["verbosity"] < 0
+    return Console(file=sys.stdout, quiet=quiet, highlight=False, soft_wrap=True)
+
+
+def _load(config_path: Path):
+    from .config import load_config
+
+    return load_config(config_path)
+
+
+# --- commands --------------------------------------------------------------------------------
+@cli.command(short_help="Read a config's inputs and say what was read, used and rejected.")
+@_config_arg
+@click.pass_context
+def check(ctx: click.Context, config: Path) -> None:
+    r"""Read every boundary, population and report source of CONFIG and account for each row.
+
+    Prints, per source: rows read, used and rejected by reason, fuzzy matches made, weeks
+    covered and level of reporting. Exits 2 if a source cannot be read at all.
+
+    \b
+    $ marchland check demo_data/scenario.toml
+    """
+    from .region import check as _check
+
+    report = _check(_load(config))
+    click.echo(report.to_text())
+    if not report.ok:
+        ctx.exit(2)
+
+
+@cli.command(short_help="The whole monthly analysis of CONFIG, written as a bundle.")
+@_config_arg
+@click.option(
+    "--month",
+    required=True,
+    callback=_month,
+    metavar="YYYY-MM",
+    help="The month to analyse, e.g. 2026-10 (weeks belong to the month of their mid-week day).",
+)
+@_out_opt
+@_overwrite_opt
+@click.option(
+    "--as-of",
+    "as_of",
+    callback=_date,
+    metavar="YYYY-MM-DD",
+    help="Use the data as received by this date. Default: end of the month plus the config's "
+    "as_of_lag_days.",
+)
+@click.pass_context
+def run(
+    ctx: click.Context, config: Path, month: str, out: Path | None, overwrite: bool, as_of: Any
+) -> None:
+    r"""Run rates, hotspots, spread, border risk and supplies for one month of CONFIG.
+
+    Writes OUT/YYYY-MM/ (layers.gpkg, tables/, maps/, atlas.pdf, report.html, rejects.csv,
+    manifest.json) atomically: an existing month is replaced only with --overwrite, and only
+    once the new bundle is complete.
+
+    \b
+    $ marchland run demo_data/scenario.toml --month 2026-10 --out out
+    """
+    cfg = _load(config)
+    _run_and_write(ctx, cfg, month, out, overwrite, as_of)
+
+
+@cli.command(short_help="Run the bundled fictional scenario for its latest month.")
+@_out_opt
+@_overwrite_opt
+@click.pass_context
+def demo(ctx: click.Context, out: Path | None, overwrite: bool) -> None:
+    r"""Run the monthly analysis on the bundled fictional Senn basin scenario.
+
+    The month is the one of the latest reported week (2026-10 in the shipped scenario).
+
+    \b
+    $ marchland demo --out out --overwrite
+    """
+    from .demo import scenario_path
+
+    cfg = _load(scenario_path())
+    _run_and_write(ctx, cfg, None, out if out is not None else Path("out"), overwrite, None)
+
+
+@cli.command(short_help="How well the border-risk score would have done in past weeks.")
+@_config_arg
+@click.pass_context
+def backtest(ctx: click.Context, config: Path) -> None:
+    r"""Rolling-origin backtest of the border-risk score of CONFIG against simple baselines.
+
+    Prints AUC, Brier score and hits in the top k for the score and for two baselines
+    (distance to the nearest affected unit; count of affected neighbours).
+
+    \b
+    $ marchland backtest demo_data/scenario.toml
+    """
+    from .monthly import backtest_table
+
+    console = _console(ctx)
+    cfg = _load(config)
+    with _spinner(console, "backtest: fitting and scoring past origins"):
+        table = backtest_table(cfg)
+    console.print(_format_table(table, "Border-risk backtest (rolling origin)"))
+    console.print(f"[dim]{CAUTIONS}[/dim]")
+
+
+# --- helpers shared by run and demo ------------------------------------------------------------
+def _run_and_write(
+    ctx: click.Context, cfg: Any, month: str | None, out: Path | None, overwrite: bool, as_of: Any
+) -> None:
+    from .bundle import check_destination, write_month
+    from .monthly import latest_month, run_month
+
+    console = _console(ctx)
+    out_dir = Path(out) if out is not None else Path(cfg.output.dir)
+    if month is None:
+        month = latest_month(cfg)
+    # Refuse before spending a minute on the analysis.
+    check_destination(out_dir, month, overwrite=overwrite)
+    with _StepDisplay(console) as steps:
+        result = run_month(cfg, month, as_of=as_of, progress=steps)
+        steps("write bundle", "start", None)
+        import time
+
+        t0 = time.perf_counter()
+        dest = write_month(result, out_dir, overwrite=overwrite)
+        steps("write bundle", "done", time.perf_counter() - t0)
+    _summary(console, result, dest)
+
+
+def _summary(console: Any, result: Any, dest: Path) -> None:
+    files = sorted(p for p in dest.rglob("*") if p.is_file())
+    console.print(
+        f"[bold]marchland[/bold] {result.month} (as of {result.as_of:%Y-%m-%d}) written to {dest}"
+    )
+    groups: dict[str, int] = {}
+    for p in files:
+        rel = p.relative_to(dest)
+        key = rel.parts[0] + "/" if len(rel.parts) > 1 else rel.name
+        groups[key] = groups.get(key, 0) + 1
+    console.print(
+        "  " + ", ".join(f"{k} ({n})" if k.endswith("/") else k for k, n in groups.items())
+    )
+    total = sum(result.timings.values())
+    console.print(
+        f"  analysis steps took {total:.1f} s; slowest: "
+        + ", ".join(
+            f"{k} {v:.1f} s" for k, v in sorted(result.timings.items(), key=lambda kv: -kv[1])[:3]
+        )
+    )
+    for step, reason in result.absent.items():
+        console.print(f"  [yellow]not computed[/yellow] {step}: {reason}")
+    if result.warnings:
+        console.print(f"  [yellow]{len(result.warnings)} warning(s):[/yellow]")
+        for w in result.warnings:
+            console.print(f"    - {w}")
+    console.print(f"[dim]{CAUTIONS}[/dim]")
+
+
+class _StepDisplay:
+    """A rich status line per analysis step; used as run_month's ``progress`` callback."""
+
+    def __init__(self, console: Any) -> None:
+        self.console = console
+        self._status = None
+
+    def __enter__(self) -> _StepDisplay:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if self._status is not None:
+            self._status.stop()
+            self._status = None
+
+    def __call__(self, step: str, status: str, seconds: float | None) -> None:
+        if status == "start":
+            if self._status is None and self.console.is_terminal:
+                self._status = self.console.status(step)
+                self._status.start()
+            elif self._status is not None:
+                self._status.update(step)
+            log.info("step %s ...", step)
+        else:
+            log.info("step %s done in %.2f s", step, seconds or 0.0)
+            if self.console.is_terminal:
+                self.console.print(f"[green]done[/green] {step} [dim]{seconds or 0:.1f} s[/dim]")
+
+
+class _spinner:
+    def __init__(self, console: Any, text: str) -> None:
+        self.status = console.status(text) if console.is_terminal else None
+
+    def __enter__(self) -> None:
+        if self.status is not None:
+            self.status.start()
+
+    def __exit__(self, *exc: object) -> None:
+        if self.status is not None:
+            self.status.stop()
+
+
+def _format_table(df: Any, title: str) -> Any:
+    from rich.table import Table
+
+    table = Table(title=title)
+    table.add_column(df.index.name or "")
+    for c in df.columns:
+        table.add_column(str(c), justify="right")
+    for idx, row in df.iterrows():
+        table.add_row(str(idx), *(_fmt(v) for v in row))
+    return table
+
+
+def _fmt(v: Any) -> str:
+    if isinstance(v, float):
+        return "-" if v != v else f"{v:.3f}"
+    return str(v)
+
+
+def main() -> None:
+    """Console-script entry point (``marchland``)."""
+    cli.main(prog_name="marchland")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,681 @@
+"""The monthly run: every analysis for one month, composed, with no file output.
+
+:func:`run_month` reads the region (``region.open_region``) and runs, in order: rates (the
+month, the trailing windows, cumulative; smoothed beside raw; province, country and region
+aggregates), hotspots (rate-adjusted local Moran's I, global Moran's I, Getis-Ord Gi*), spread
+(first cases, fronts, velocity, probable cross-border introductions), border risk and its
+backtest, and supplies (priorities and depots). It returns a frozen :class:`MonthResult`
+holding every table the bundle writes, the time each step took and the warnings raised.
+
+A step whose module (or one of the steps it needs) is not available is recorded in
+``MonthResult.absent`` with the reason, and its fields stay ``None``: nothing is faked.
+
+Weeks and months: a week belongs to the month holding its fourth day (the ISO rule for years,
+applied to months), so each week counts in exactly one month. The default as-of date is the
+month's last day plus ``region.as_of_lag_days``.
+"""
+
+from __future__ import annotations
+
+import importlib
+import os
+import time
+import warnings
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from .config import Config, load_config
+from .errors import DataWarning, InputError
+
+Progress = Callable[[str, str, float | None], None]
+
+STEPS = ("read inputs", "rates", "hotspots", "spread", "border risk", "backtest", "supplies")
+
+
+class _Absent(Exception):
+    """A step cannot run because a module (or a step it needs) is missing."""
+
+
+@dataclass(frozen=True, eq=False)
+class MonthResult:
+    """Everything one month's bundle shows; built by :func:`run_month`.
+
+    Fields of a step that did not run are ``None`` and the step is named in ``absent`` with
+    the reason. Tables are pandas objects indexed by ``unit_id`` unless said otherwise.
+
+    Attributes
+    ----------
+    config : Config
+    month : str
+        ``"YYYY-MM"``.
+    as_of : pandas.Timestamp
+        The data are read as received by this date.
+    seed : int
+    units : geopandas.GeoDataFrame
+        Analysis units (``name country level parent_id population geometry``).
+    weekly : pandas.DataFrame
+        The as-of view of the counts up to the month's end: ``unit_id week cases deaths``.
+    rates : pandas.DataFrame
+        Per unit: ``<window>_cases _rate _lower _upper _weeks_reported`` for each window
+        (``month``, ``last_<N>w``, ``cumulative``), ``<window>_rate_eb`` (global empirical
+        Bayes) and ``<window>_rate_seb`` (spatial EB), and the cumulative CFR columns.
+    rates_history : pandas.DataFrame
+        Month attack rate per unit for the last six months (columns ``YYYY-MM``).
+    rates_by_area : pandas.DataFrame
+        Province, country and region rates from summed counts, one row per area and window.
+    hotspots : pandas.DataFrame
+        ``I p q quadrant label`` (+ Gi* columns ``gi_z gi_p`` when available).
+    global_moran : dict
+        ``I expected p permutations`` for the headline.
+    fronts, front_outlines, velocity, introductions, introductions_by_border
+        From :mod:`marchland.spread`.
+    risk : pandas.DataFrame
+        From :func:`marchland.risk.border_risk`; ``risk.attrs`` has ``expected_new_units``.
+    backtest, backtest_by_country : pandas.DataFrame
+        Indexed by ``model`` (``score distance neighbours``).
+    priorities, depots, depot_sites, depot_assignment, supply_totals
+        From :mod:`marchland.supplies`.
+    timings : dict
+        Seconds per step.
+    warnings : tuple of str
+        Data warnings raised during the run.
+    absent : dict
+        Step -> why it did not run.
+    """
+
+    config: Config
+    month: str
+    as_of: pd.Timestamp
+    seed: int
+    units: Any
+    all_units: Any = None
+    weekly: pd.DataFrame | None = None
+    rejects: pd.DataFrame | None = None
+    completeness: pd.DataFrame | None = None
+    accounting: Any = None
+    matches: pd.DataFrame | None = None
+    graph: Any = None
+    edges: Any = None
+    rates: pd.DataFrame | None = None
+    rates_history: pd.DataFrame | None = None
+    rates_by_area: pd.DataFrame | None = None
+    hotspots: pd.DataFrame | None = None
+    global_moran: dict | None = None
+    first_cases: pd.Series | None = None
+    fronts: pd.DataFrame | None = None
+    front_outlines: Any = None
+    velocity: Any = None
+    introductions: pd.DataFrame | None = None
+    introductions_by_border: pd.DataFrame | None = None
+    risk: pd.DataFrame | None = None
+    backtest: pd.DataFrame | None = None
+    backtest_by_country: pd.DataFrame | None = None
+    priorities: pd.DataFrame | None = None
+    supply_note: str | None = None
+    depots: Any = None
+    depot_sites: Any = None
+    depot_assignment: pd.DataFrame | None = None
+    supply_totals: pd.DataFrame | None = None
+    cluster_colours: Mapping[str, str] | None = None
+    cluster_legend: Mapping[str, str] | None = None
+    cluster_significant: tuple[str, ...] = ()
+    timings: dict[str, float] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    absent: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def month_weeks(self) -> pd.DatetimeIndex:
+        """Start days of the weeks that belong to the month (their fourth day in it)."""
+        weeks = (
+            pd.DatetimeIndex(sorted(self.weekly["week"].unique()))
+            if self.weekly is not None
+            else pd.DatetimeIndex([])
+        )
+        period = pd.Period(self.month, freq="M")
+        return weeks[(weeks + pd.Timedelta(days=3)).to_period("M") == period]
+
+    @property
+    def headline(self) -> dict[str, Any]:
+        """The report's headline numbers (``None`` where the step did not run)."""
+        h: dict[str, Any] = dict.fromkeys(
+            (
+                "cases",
+                "deaths",
+                "rate",
+                "rate_lower",
+                "rate_upper",
+                "newly_affected",
+                "affected",
+                "units",
+                "global_moran_i",
+                "global_moran_p",
+                "expected_new_units",
+                "candidates",
+            ),
+        )
+        h["units"] = len(self.units)
+        if self.rates_by_area is not None:
+            reg = self.rates_by_area
+            row = reg[(reg["level"] == "region") & (reg["window"] == "month")]
+            if len(row):
+                r = row.iloc[0]
+                h.update(
+                    cases=_num(r["cases"]),
+                    rate=_num(r["rate"]),
+                    rate_lower=_num(r["lower"]),
+                    rate_upper=_num(r["upper"]),
+                )
+        if self.rates is not None and "month_deaths" in self.rates:
+            d = self.rates["month_deaths"]
+            h["deaths"] = int(d.sum()) if d.notna().any() else None
+        if self.fronts is not None:
+            fw = pd.to_datetime(self.fronts["first_week"])
+            h["affected"] = int(fw.notna().sum())
+            h["newly_affected"] = int(fw.isin(self.month_weeks).sum())
+        if self.global_moran is not None:
+            h["global_moran_i"] = self.global_moran.get("I")
+            h["global_moran_p"] = self.global_moran.get("p")
+        if self.risk is not None:
+            h["expected_new_units"] = self.risk.attrs.get(
+                "expected_new_units", float(self.risk["probability"].sum())
+            )
+            h["candidates"] = len(self.risk)
+        return h
+
+    @property
+    def inputs(self) -> list[Path]:
+        """Every input file the config names (boundaries, raster, reports, tables)."""
+        return config_inputs(self.config)
+
+
+def _num(v: Any) -> float | None:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return None
+    return None if f != f else f
+
+
+# --- config helpers -------------------------------------------------------------------------
+def config_inputs(config: Config) -> list[Path]:
+    """Every existing input file named anywhere in the config, sorted, without duplicates.
+
+    Walks the config's dataclasses for ``Path`` values (and the report specs' matched files),
+    so a new input key is picked up without a change here.
+    """
+    found: set[Path] = set()
+
+    def walk(obj: Any) -> None:
+        if isinstance(obj, Path):
+            if obj.is_file():
+                found.add(obj.resolve())
+        elif isinstance(obj, (list, tuple)):
+            for o in obj:
+                walk(o)
+        elif hasattr(obj, "__dataclass_fields__"):
+            for name in obj.__dataclass_fields__:
+                if name == "path" and obj is config:
+                    continue
+                walk(getattr(obj, name))
+
+    walk(config)
+    return sorted(found)
+
+
+def parse_month(month: str | pd.Period) -> pd.Period:
+    """``"YYYY-MM"`` -> monthly Period, or an InputError naming the value."""
+    try:
+        if isinstance(month, str) and not (len(month) == 7 and month[4] == "-"):
+            raise ValueError
+        return pd.Period(month, freq="M")
+    except (ValueError, TypeError):
+        raise InputError(
+            "the month needs to be YYYY-MM (e.g. 2026-10)", column="month", value=month
+        ) from None
+
+
+def default_as_of(config: Config, month: str | pd.Period) -> pd.Timestamp:
+    """Return the month's last day plus the config's ``region.as_of_lag_days``."""
+    p = parse_month(month)
+    return p.end_time.normalize() + pd.Timedelta(days=config.region.as_of_lag_days)
+
+
+def latest_month(config: Config | str | os.PathLike[str]) -> str:
+    """Return the month of the latest reported week (the demo's analysis month)."""
+    cfg = config if isinstance(config, Config) else load_config(config)
+    region = _open_region(cfg)
+    weeks = pd.to_datetime(region.counts["week"])
+    if not len(weeks):
+        raise InputError(
+            "no report row was accepted, so there is no month to analyse", file=cfg.path
+        )
+    last = weeks.max() + pd.Timedelta(days=3)
+    return f"{last:%Y-%m}"
+
+
+def _open_region(cfg: Config) -> Any:
+    return _need("region", "open_region").open_region(cfg)
+
+
+def _need(module: str, *names: str) -> Any:
+    try:
+        mod = importlib.import_module(f"marchland.{module}")
+    except ModuleNotFoundError as exc:
+        if exc.name in (f"marchland.{module}",):
+            raise _Absent(f"module marchland.{module} is not available yet") from None
+        raise
+    missing = [n for n in names if not hasattr(mod, n)]
+    if missing:
+        raise _Absent(f"marchland.{module} lacks {', '.join(missing)}")
+    return mod
+
+
+# --- the run --------------------------------------------------------------------------------
+class _Runner:
+    def __init__(self, progress: Progress | None) -> None:
+        self.progress = progress
+        self.timings: dict[str, float] = {}
+        self.absent: dict[str, str] = {}
+
+    def __call__(self, name: str, fn: Callable[[], Any], *, needs: tuple[str, ...] = ()) -> Any:
+        for dep in needs:
+            if dep in self.absent:
+                self.absent[name] = f"needs the {dep} step ({self.absent[dep]})"
+                return None
+        if self.progress is not None:
+            self.progress(name, "start", None)
+        t0 = time.perf_counter()
+        try:
+            value = fn()
+        except _Absent as exc:
+            self.absent[name] = str(exc)
+            value = None
+        self.timings[name] = round(time.perf_counter() - t0, 3)
+        if self.progress is not None:
+            self.progress(name, "done", self.timings[name])
+        return value
+
+
+def run_month(
+    config: Config | str | os.PathLike[str],
+    month: str | pd.Period | None = None,
+    *,
+    as_of: object = None,
+    progress: Progress | None = None,
+) -> MonthResult:
+    """Run every analysis of one month and return the results (no file is written).
+
+    Parameters
+    ----------
+    config : Config or path
+        A loaded config or the path of its TOML file.
+    month : str, optional
+        ``"YYYY-MM"``; default the month of the latest reported week.
+    as_of : date-like, optional
+        Read the data as received by this date; default the month's end plus
+        ``region.as_of_lag_days``.
+    progress : callable, optional
+        Called as ``progress(step, "start", None)`` and ``progress(step, "done", seconds)``.
+
+    Returns
+    -------
+    MonthResult
+
+    Examples
+    --------
+    >>> from marchland.demo import scenario_path
+    >>> result = run_month(scenario_path(), "2026-10")  # doctest: +SKIP
+    >>> result.headline["cases"] > 0  # doctest: +SKIP
+    True
+    """
+    cfg = config if isinstance(config, Config) else load_config(config)
+    run = _Runner(progress)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", DataWarning)
+        region = run("read inputs", lambda: _open_region(cfg))
+        if region is None:
+            raise InputError(f"cannot read the region: {run.absent['read inputs']}", file=cfg.path)
+        period = (
+            parse_month(month)
+            if month is not None
+            else parse_month(_latest_week_month(region.counts))
+        )
+        as_of_ts = pd.Timestamp(as_of) if as_of is not None else default_as_of(cfg, period)
+        fields: dict[str, Any] = _region_fields(region, period, as_of_ts)
+        ctx = _Context(cfg, region, period, as_of_ts)
+
+        fields.update(run("rates", ctx.rates) or {})
+        fields.update(run("hotspots", ctx.hotspots) or {})
+        fields.update(run("spread", ctx.spread) or {})
+        risk = run("border risk", ctx.risk)
+        fields.update(risk or {})
+        fields.update(run("backtest", ctx.backtest) or {})
+        fields.update(
+            run("supplies", lambda: ctx.supplies(fields.get("risk")), needs=("border risk",)) or {}
+        )
+    messages = []
+    for w in caught:
+        if issubclass(w.category, DataWarning):
+            messages.append(str(w.message))
+        else:  # not ours to collect: hand it on as if never caught
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return MonthResult(
+        config=cfg,
+        month=str(period),
+        as_of=as_of_ts,
+        seed=cfg.region.seed,
+        timings=dict(run.timings),
+        warnings=tuple(dict.fromkeys(messages)),
+        absent=dict(run.absent),
+        **fields,
+    )
+
+
+def _latest_week_month(counts: pd.DataFrame) -> str:
+    weeks = pd.to_datetime(counts["week"])
+    if not len(weeks):
+        raise InputError("no report row was accepted, so there is no month to analyse")
+    return f"{weeks.max() + pd.Timedelta(days=3):%Y-%m}"
+
+
+def _region_fields(region: Any, period: pd.Period, as_of: pd.Timestamp) -> dict[str, Any]:
+    from .reports import as_of as _as_of
+
+    known = _as_of(region.counts, as_of)
+    month_end = period.end_time.normalize()
+    known = known[(known["week"] + pd.Timedelta(days=3)) <= month_end]
+    weekly = known[["unit_id", "week", "cases", "deaths"]].sort_values(["unit_id", "week"])
+    out: dict[str, Any] = {
+        "units": region.units,
+        "all_units": getattr(region, "all_units", None),
+        "weekly": weekly.reset_index(drop=True),
+        "rejects": getattr(region, "rejects", None),
+        "completeness": getattr(region, "completeness", None),
+        "accounting": getattr(region, "accounting", None),
+        "matches": getattr(region, "matches", None),
+        "graph": getattr(region, "graph", None),
+    }
+    graph = out["graph"]
+    if graph is not None:
+        try:
+            edges_layer = _need("graph", "edges_layer").edges_layer
+            out["edges"] = edges_layer(graph, region.units)
+        except _Absent:
+            out["edges"] = None
+    return out
+
+
+class _Context:
+    """The inputs every step shares; one method per step, each returning result fields."""
+
+    def __init__(self, cfg: Config, region: Any, period: pd.Period, as_of: pd.Timestamp):
+        self.cfg = cfg
+        self.region = region
+        self.units = region.units
+        self.graph = region.graph
+        self.period = period
+        self.as_of = as_of
+        # Every version received by as_of: later corrections must not leak into the past.
+        counts = region.counts
+        self.counts = counts[counts["received"] <= as_of].reset_index(drop=True)
+        self.seed = cfg.region.seed
+
+    # -- rates -----------------------------------------------------------------------------
+    def rates(self) -> dict[str, Any]:
+        r = _need(
+            "rates",
+            "window_counts",
+            "attack_rates",
+            "case_fatality",
+            "smooth_rates",
+            "aggregate_rates",
+        )
+        a = self.cfg.analysis
+        units = self.units
+        pop = units["population"].astype(float)
+        wc = r.window_counts(
+            self.counts,
+            self.as_of,
+            windows_weeks=a.windows_weeks,
+            month=self.period,
+            units=units.index,
+        )
+        windows = ["month", *[f"last_{int(n)}w" for n in a.windows_weeks], "cumulative"]
+        ar = r.attack_rates(wc["cases"][windows], pop)
+        cfr = r.case_fatality(
+            wc["deaths"]["cumulative"],
+            wc["cases_with_deaths"]["cumulative"],
+            min_cases=a.min_cases_cfr,
+        )
+        table = units[["name", "country", "level", "population"]].copy()
+        for w in windows:
+            for f in ("cases", "rate", "lower", "upper"):
+                table[f"{w}_{f}"] = ar[w][f]
+            table[f"{w}_deaths"] = wc["deaths"][w]
+            table[f"{w}_weeks_reported"] = wc["weeks_reported"][w]
+            cases_w = wc["cases"][w]
+            table[f"{w}_rate_eb"] = r.smooth_rates(cases_w, pop)
+            table[f"{w}_rate_seb"] = r.smooth_rates(cases_w, pop, graph=self.graph)
+        for f in ("cfr", "lower", "upper", "too_few", "above_threshold"):
+            table[f"cfr_{f}" if f != "cfr" else "cfr"] = cfr[f]
+        table.attrs["weeks_in_window"] = wc.attrs.get("weeks_in_window", {})
+
+        # Six months of month rates for the small multiples, all read as known on as_of.
+        hist = {}
+        for k in range(5, -1, -1):
+            m = self.period - k
+            wm = r.window_counts(
+                self.counts, self.as_of, windows_weeks=(), month=m, units=units.index
+            )
+            hist[str(m)] = r.attack_rates(wm["cases"]["month"], pop)["rate"]
+        history = pd.DataFrame(hist)
+
+        groups = pd.DataFrame(
+            {
+                "province": province_of(units),
+                "country": units["country"],
+                "region": "region",
+            },
+            index=units.index,
+        )
+        agg = r.aggregate_rates(wc["cases"][windows], pop, groups)
+        by_area = _flatten_areas(agg, windows, self.region)
+        return {"rates": table, "rates_history": history, "rates_by_area": by_area}
+
+    # -- hotspots --------------------------------------------------------------------------
+    def hotspots(self) -> dict[str, Any]:
+        h = _need(
+            "hotspots",
+            "hotspots",
+            "getis_ord",
+            "global_moran_rate",
+            "CLUSTER_COLOURS",
+            "CLUSTER_LEGEND",
+            "QUADRANTS",
+        )
+        r = _need("rates", "window_counts", "smooth_rates")
+        a = self.cfg.analysis
+        wc = r.window_counts(
+            self.counts, self.as_of, windows_weeks=(), month=self.period, units=self.units.index
+        )
+        cases = wc["cases"]["month"]
+        pop = self.units["population"].astype(float)
+        weighting = self.cfg.graph.weighting
+        hs = h.hotspots(
+            cases,
+            pop,
+            self.graph,
+            permutations=a.permutations,
+            seed=self.seed,
+            fdr=a.fdr,
+            weighting=weighting,
+        )
+        # Gi* needs non-negative values: the month's smoothed rate (global EB), a second view.
+        gi = h.getis_ord(
+            r.smooth_rates(cases, pop),
+            self.graph,
+            permutations=a.permutations,
+            seed=self.seed,
+            fdr=a.fdr,
+        )
+        hs = hs.join(gi[["z", "p", "q", "label"]].add_prefix("gi_"), how="left")
+        gm = h.global_moran_rate(
+            cases, pop, self.graph, permutations=a.permutations, seed=self.seed, weighting=weighting
+        )
+        gm_d = {k: getattr(gm, k) for k in gm.__dataclass_fields__}
+        gm_d["p"] = gm_d.get("p_sim")
+        return {
+            "hotspots": hs,
+            "global_moran": gm_d,
+            "cluster_colours": dict(h.CLUSTER_COLOURS),
+            "cluster_legend": dict(h.CLUSTER_LEGEND),
+            "cluster_significant": tuple(h.QUADRANTS),
+        }
+
+    # -- spread ----------------------------------------------------------------------------
+    def spread(self) -> dict[str, Any]:
+        s = _need(
+            "spread",
+            "first_cases",
+            "spread_fronts",
+            "spread_velocity",
+            "cross_border_introductions",
+            "front_outlines",
+        )
+        units = self.units
+        first = s.first_cases(self.counts, as_of=self.as_of, units=units.index)
+        fronts = s.spread_fronts(first, self.graph)
+        outlines = s.front_outlines(fronts, units)
+        velocity = s.spread_velocity(first, units, groups="country", seed=self.seed)
+        intro = s.cross_border_introductions(first, self.graph, countries=units["country"])
+        by_border = (
+            s.introductions_by_border(intro) if hasattr(s, "introductions_by_border") else None
+        )
+        return {
+            "first_cases": first,
+            "fronts": fronts,
+            "front_outlines": outlines,
+            "velocity": velocity,
+            "introductions": intro,
+            "introductions_by_border": by_border,
+        }
+
+    # -- risk ------------------------------------------------------------------------------
+    def risk(self) -> dict[str, Any]:
+        rk = _need("risk", "border_risk")
+        c = self.cfg.risk
+        risk = rk.border_risk(
+            self.counts,
+            self.units,
+            self.graph,
+            as_of=self.as_of,
+            horizon_weeks=c.horizon_weeks,
+            silent_weeks=c.silent_weeks,
+            min_events=c.min_events,
+        )
+        return {"risk": risk}
+
+    def backtest(self) -> dict[str, Any]:
+        rk = _need("risk", "run_backtest")
+        c = self.cfg.risk
+        bt = rk.run_backtest(
+            self.counts,
+            self.units,
+            self.graph,
+            horizon_weeks=c.horizon_weeks,
+            top_k=c.top_k,
+            min_events=c.min_events,
+            n_jobs=1,
+        )
+        return {"backtest": bt.summary, "backtest_by_country": bt.by_country}
+
+    # -- supplies --------------------------------------------------------------------------
+    def supplies(self, risk: pd.DataFrame) -> dict[str, Any]:
+        sp = _need(
+            "supplies",
+            "SupplyPlan",
+            "prioritise",
+            "read_depots",
+            "choose_depots",
+            "assign_depots",
+            "totals",
+        )
+        c = self.cfg.supplies
+        if c.items is None:
+            raise _Absent("the config's [supplies] section names no items table")
+        plan = sp.SupplyPlan.from_config(c, base=self.cfg.base_dir)
+        prio = sp.prioritise(risk, self.units, plan=plan)
+        out: dict[str, Any] = {
+            "priorities": prio,
+            "supply_note": plan.note,
+            "supply_totals": sp.totals(prio, plan=plan),
+        }
+        if c.depots is not None and len(prio):
+            sites = sp.read_depots(c.depots, self.units.crs)
+            depots = sp.choose_depots(prio, sites, k=c.k, reach_km=c.reach_km, units=self.units)
+            out.update(
+                depot_sites=sites,
+                depots=depots,
+                depot_assignment=sp.assign_depots(prio, depots, units=self.units),
+            )
+        return out
+
+
+def province_of(units: pd.DataFrame) -> pd.Series:
+    """Province of each analysis unit: itself at level 1, its parent at level 2."""
+    parent = units["parent_id"].where(units["level"] != 1)
+    return parent.fillna(pd.Series(units.index, index=units.index)).astype(str)
+
+
+def _flatten_areas(agg: pd.DataFrame, windows: list[str], region: Any) -> pd.DataFrame:
+    names = {}
+    all_units = getattr(region, "all_units", None)
+    if all_units is not None and "name" in all_units:
+        names = all_units["name"].to_dict()
+    frames = []
+    for w in windows:
+        part = agg[w].reset_index()
+        part.insert(2, "window", w)
+        frames.append(part)
+    out = pd.concat(frames, ignore_index=True)
+    out["name"] = [
+        "whole region" if lvl == "region" else names.get(g, g)
+        for lvl, g in zip(out["level"], out["group"], strict=True)
+    ]
+    order = {"region": 0, "country": 1, "province": 2}
+    wo = {w: i for i, w in enumerate(windows)}
+    out = out.sort_values(
+        ["level", "group", "window"],
+        key=lambda s: (
+            s.map(order) if s.name == "level" else (s.map(wo) if s.name == "window" else s)
+        ),
+        kind="stable",
+    )
+    return out.reset_index(drop=True)
+
+
+def backtest_table(config: Config | str | os.PathLike[str]) -> pd.DataFrame:
+    """Backtest the border-risk score of a config over its whole history.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``model`` (``score distance neighbours``) with ``auc brier hits_top_k
+        n_origins`` and the counts behind them.
+    """
+    cfg = config if isinstance(config, Config) else load_config(config)
+    region = _open_region(cfg)
+    rk = _need("risk", "backtest_risk")
+    c = cfg.risk
+    return rk.backtest_risk(
+        region.counts,
+        region.units,
+        region.graph,
+        horizon_weeks=c.horizon_weeks,
+        top_k=c.top_k,
+        min_events=c.min_events,
+    )

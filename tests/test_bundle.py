@@ -1,0 +1,262 @@
+"""The monthly bundle: contents, atomic replacement, determinism, report escaping.
+
+Covered: every file and layer of the bundle is written; the manifest's sha256 of each input
+matches hashlib on the file; a failure injected in the last writing step leaves the previous
+bundle byte for byte as it was and no partial folder behind; an existing month is never
+replaced without ``overwrite``; two runs with the same inputs and seed give identical tables;
+every string from the inputs is escaped in report.html; a missing analysis module shows as
+"not computed", never as a faked result. Runs on the invented grid world of ``month_world``
+(the region is built from the grid instead of read from files, so this stays quick).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import re
+
+import pandas as pd
+import pyogrio
+import pytest
+from month_world import fake_region, write_world
+
+from marchland import bundle, monthly
+from marchland.errors import InputError
+
+
+@pytest.fixture(scope="module")
+def world(tmp_path_factory):
+    return write_world(tmp_path_factory.mktemp("world"))
+
+
+def _run(cfg_path):
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(monthly, "_open_region", fake_region)
+        return monthly.run_month(cfg_path, "2026-10")
+
+
+@pytest.fixture(scope="module")
+def result(world):
+    return _run(world)
+
+
+@pytest.fixture(scope="module")
+def written(result, tmp_path_factory):
+    out = tmp_path_factory.mktemp("out")
+    return bundle.write_month(result, out)
+
+
+@pytest.fixture
+def no_figures(monkeypatch):
+    """Atomicity tests need the writing steps, not the drawing: skip the maps for speed."""
+    monkeypatch.setattr(bundle, "_write_figures", lambda result, root: {})
+
+
+def _snapshot(folder):
+    return {
+        p.relative_to(folder).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
+        for p in sorted(folder.rglob("*"))
+        if p.is_file()
+    }
+
+
+def test_bundle_has_every_part(written, result):
+    assert written.name == "2026-10"
+    for name in ("layers.gpkg", "atlas.pdf", "report.html", "rejects.csv", "manifest.json"):
+        assert (written / name).is_file(), name
+    tables = {p.stem for p in (written / "tables").glob("*.csv")}
+    assert {
+        "rates",
+        "rates_by_area",
+        "rates_history",
+        "weekly",
+        "hotspots",
+        "global_moran",
+        "spread",
+        "fronts",
+        "velocity",
+        "introductions",
+        "risk",
+        "backtest",
+        "priorities",
+        "depots",
+        "completeness",
+        "edges",
+        "units",
+    } <= tables
+    pngs = {p.stem for p in (written / "maps").glob("*.png")}
+    assert {
+        "attack_rate",
+        "attack_rate_months",
+        "hotspots",
+        "arrival",
+        "border_risk",
+        "priorities",
+        "epi_region",
+        "epi_countries",
+        "epi_provinces_AAA",
+        "epi_provinces_BBB",
+    } <= pngs
+    layers = set(pyogrio.list_layers(written / "layers.gpkg")[:, 0])
+    assert {
+        "units",
+        "rates",
+        "hotspots",
+        "spread",
+        "fronts",
+        "risk",
+        "priorities",
+        "depots",
+    } <= layers
+    rates = pyogrio.read_dataframe(written / "layers.gpkg", layer="rates")
+    assert len(rates) == len(result.units) and "month_rate" in rates.columns
+
+
+def test_rejects_csv_holds_every_reject(written, result):
+    rj = pd.read_csv(written / "rejects.csv")
+    assert len(rj) == len(result.rejects)
+    assert list(rj.columns[:5]) == ["source", "row", "column", "value", "reason"]
+
+
+def test_manifest_records_inputs_versions_timings(written, result):
+    m = json.loads((written / "manifest.json").read_text())
+    assert m["month"] == "2026-10" and m["seed"] == result.seed == 11
+    assert m["as_of"] == "2026-11-03"
+    base = result.config.base_dir
+    assert m["inputs"], "inputs listed"
+    for item in m["inputs"]:
+        path = base / item["path"]
+        assert item["sha256"] == hashlib.sha256(path.read_bytes()).hexdigest()
+    for step in monthly.STEPS:
+        assert step in m["timings_s"], step
+    assert {"bundle: maps", "bundle: report"} <= set(m["timings_s"])
+    assert {"numpy", "pandas", "geopandas", "matplotlib", "python"} <= set(m["versions"])
+    assert m["config"]["settings"]["analysis"]["permutations"] == 99
+    assert m["accounting"][0]["rows_in"] == m["accounting"][0]["counted"] + 2
+    listed = {f["path"] for f in m["files"]}
+    assert "report.html" in listed and "manifest.json" not in listed
+
+
+def test_existing_month_is_not_overwritten_without_overwrite(written, result):
+    before = _snapshot(written)
+    with pytest.raises(InputError, match="overwrite"):
+        bundle.write_month(result, written.parent)
+    assert _snapshot(written) == before
+
+
+@pytest.mark.parametrize("step", ["_write_report", "_write_manifest"])
+def test_failure_in_a_late_step_leaves_previous_bundle_intact(
+    no_figures, result, tmp_path, monkeypatch, step
+):
+    first = bundle.write_month(result, tmp_path)
+    before = _snapshot(first)
+
+    def boom(*args, **kwargs):
+        raise RuntimeError("disk full (injected)")
+
+    monkeypatch.setattr(bundle, step, boom)
+    with pytest.raises(RuntimeError, match="injected"):
+        bundle.write_month(result, tmp_path, overwrite=True)
+    assert _snapshot(first) == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["2026-10"], "no partial folder left"
+
+
+def test_failure_on_first_write_leaves_nothing(no_figures, result, tmp_path, monkeypatch):
+    monkeypatch.setattr(bundle, "_write_manifest", lambda *a: 1 / 0)
+    with pytest.raises(ZeroDivisionError):
+        bundle.write_month(result, tmp_path)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_overwrite_replaces_only_when_complete(no_figures, result, tmp_path):
+    first = bundle.write_month(result, tmp_path)
+    (first / "stale.txt").write_text("from an older run")
+    again = bundle.write_month(result, tmp_path, overwrite=True)
+    assert again == first and not (again / "stale.txt").exists()
+    assert (again / "manifest.json").is_file()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["2026-10"]
+
+
+def test_partial_folder_of_a_dead_run_is_cleared(no_figures, result, tmp_path):
+    # A process killed mid-write leaves its hidden partial folder; the pid no longer runs.
+    dead = tmp_path / ".2026-10.partial-999999999-abc"
+    dead.mkdir()
+    (dead / "half.csv").write_text("x")
+    bundle.write_month(result, tmp_path)
+    assert not dead.exists()
+
+
+def test_same_inputs_and_seed_give_identical_tables(no_figures, world, result, tmp_path):
+    again = _run(world)
+    a = bundle.write_month(result, tmp_path / "a")
+    b = bundle.write_month(again, tmp_path / "b")
+    ta = {k: v for k, v in _snapshot(a).items() if k.startswith("tables/") or k == "rejects.csv"}
+    tb = {k: v for k, v in _snapshot(b).items() if k.startswith("tables/") or k == "rejects.csv"}
+    assert ta and ta == tb
+
+
+def test_report_escapes_input_strings(written):
+    html = (written / "report.html").read_text()
+    assert "&lt;script&gt;alert(&#x27;x&#x27;)&lt;/script&gt;" in html
+    assert "<script" not in html.lower()
+
+
+def test_report_is_self_contained(written):
+    html = (written / "report.html").read_text()
+    assert not re.search(r"https?://", html)
+    srcs = re.findall(r'<img[^>]*\ssrc="([^"]*)"', html)
+    assert srcs and all(s.startswith("data:image/png;base64,") for s in srcs)
+    assert not re.search(r"<(link|iframe|object|embed)\b", html)
+    assert "url(" not in html
+    assert html.count("<img") == len(list((written / "maps").glob("*.png")))
+
+
+def test_report_carries_cautions_headline_and_backtest(written, result):
+    html = (written / "report.html").read_text()
+    for text in (
+        "Decision support, not a diagnosis",
+        "incomplete and delayed",
+        "Small numbers are unstable",
+        "field epidemiologists",
+        "Example planning values, not guidance",
+        "How far to trust it",
+        "global Moran",
+        "expected newly affected units",
+    ):
+        assert text in html, text
+    cases = int(result.headline["cases"])
+    assert f"{cases:,}" in html
+
+
+def test_missing_module_is_shown_absent_not_faked(world, tmp_path, monkeypatch):
+    real = monthly._need
+
+    def no_hotspots(module, *names):
+        if module == "hotspots":
+            raise monthly._Absent("module marchland.hotspots is not available yet")
+        return real(module, *names)
+
+    monkeypatch.setattr(monthly, "_need", no_hotspots)
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    res = monthly.run_month(world, "2026-10")
+    assert res.hotspots is None and res.global_moran is None
+    assert "hotspots" in res.absent and res.headline["global_moran_i"] is None
+    out = bundle.write_month(res, tmp_path)
+    html = (out / "report.html").read_text()
+    assert "Not computed: hotspots" in html
+    assert not (out / "maps" / "hotspots.png").exists()
+    assert not (out / "tables" / "hotspots.csv").exists()
+
+
+def test_month_must_be_yyyy_mm(world, monkeypatch):
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    with pytest.raises(InputError, match="YYYY-MM"):
+        monthly.run_month(world, "October")
+
+
+def test_weeks_belong_to_the_month_of_their_fourth_day(result):
+    weeks = result.month_weeks
+    # 2026-09-28 (Mon) has its Thursday on 1 October; 2026-10-26 has it on 29 October.
+    assert weeks[0] == pd.Timestamp("2026-09-28") and weeks[-1] == pd.Timestamp("2026-10-26")
+    assert os.path.basename(str(result.config.path)) == "world.toml"

@@ -1,0 +1,202 @@
+"""The command line, with click's CliRunner: every command and every exit code.
+
+Covered: ``--help`` (instant, carries the cautions), ``--version``, the help of every command
+(a ``$ marchland`` example, help on every option); exit 0 on success, 2 on bad input (one line
+``error: ...`` on stderr naming file/row/column, no traceback), 1 on an unexpected error (a
+hint to rerun with -v; -v shows the traceback); ``run`` refuses to overwrite a month without
+``--overwrite``; ``check``, ``backtest`` and ``demo`` on real inputs.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+
+import pytest
+from click.testing import CliRunner
+from month_world import fake_region, write_world
+
+from marchland import __version__, cli, monthly
+from marchland.errors import InputError
+
+
+@pytest.fixture
+def runner():
+    return CliRunner()
+
+
+@pytest.fixture(scope="module")
+def world(tmp_path_factory):
+    return write_world(tmp_path_factory.mktemp("world"))
+
+
+@pytest.fixture
+def grid(monkeypatch):
+    """Read the grid world's region from the grid itself (the file readers are tested apart)."""
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    monkeypatch.setattr("marchland.bundle._write_figures", lambda result, root: {})
+
+
+def test_help_is_quick_and_carries_the_cautions(runner):
+    res = runner.invoke(cli.cli, ["--help"])
+    assert res.exit_code == 0
+    out = " ".join(res.output.split())
+    for text in (
+        "not a diagnosis",
+        "incomplete and delayed",
+        "small numbers are unstable",
+        "field epidemiologists",
+    ):
+        assert text in out, text
+    for cmd in ("run", "check", "backtest", "demo"):
+        assert cmd in out
+
+
+def test_importing_the_cli_stays_light():
+    code = (
+        "import sys, marchland.cli; heavy = [m for m in ('geopandas', 'matplotlib', "
+        "'esda', 'libpysal', 'statsmodels', 'marchland.rates') if m in sys.modules]; "
+        "print(heavy)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"
+
+
+def test_version(runner):
+    res = runner.invoke(cli.cli, ["--version"])
+    assert res.exit_code == 0 and res.output.strip() == f"marchland {__version__}"
+
+
+@pytest.mark.parametrize("command", ["run", "check", "backtest", "demo"])
+def test_every_command_has_an_example_and_option_help(runner, command):
+    res = runner.invoke(cli.cli, [command, "--help"])
+    assert res.exit_code == 0
+    assert f"$ marchland {command}" in res.output
+    params = cli.cli.commands[command].params
+    assert all(p.help for p in params if p.param_type_name == "option"), command
+    assert cli.cli.commands[command].short_help
+
+
+def test_bad_month_is_exit_2_with_one_line(runner, world):
+    res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-13"])
+    assert res.exit_code == 2
+    assert res.stderr.count("\n") == 1 and res.stderr.startswith("error: ")
+    assert "YYYY-MM" in res.stderr and "Traceback" not in res.stderr
+
+
+def test_missing_config_is_exit_2(runner, tmp_path):
+    res = runner.invoke(cli.cli, ["check", str(tmp_path / "nope.toml")])
+    assert res.exit_code == 2
+    assert res.stderr.startswith("error: ") and "nope.toml" in res.stderr
+    assert res.stderr.count("\n") == 1
+
+
+def test_unknown_option_is_exit_2(runner, world):
+    res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-10", "--colour"])
+    assert res.exit_code == 2 and res.stderr.startswith("error: ")
+    assert res.stderr.count("\n") == 1
+
+
+def test_config_error_names_the_file_and_key(runner, tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[region]\ncalendar = "lunar"\n')
+    res = runner.invoke(cli.cli, ["run", str(bad), "--month", "2026-10"])
+    assert res.exit_code == 2
+    line = res.stderr.strip()
+    assert line.startswith("error: ") and "bad.toml" in line and "region.calendar" in line
+    assert "\n" not in line and "Traceback" not in res.output + res.stderr
+
+
+def test_input_error_midway_is_one_line_naming_file_row_column(runner, world, monkeypatch):
+    def bad_row(*args, **kwargs):
+        raise InputError(
+            "cases must be a whole number >= 0",
+            file="week12.csv",
+            row=4,
+            column="cases",
+            value="-3",
+        )
+
+    monkeypatch.setattr(monthly, "run_month", bad_row)
+    res = runner.invoke(
+        cli.cli, ["run", str(world), "--month", "2026-10", "--out", str(world.parent / "o")]
+    )
+    assert res.exit_code == 2
+    assert res.stderr == (
+        "error: week12.csv, row 4, column 'cases', value '-3': cases must be a whole number >= 0\n"
+    )
+
+
+def test_unexpected_error_is_exit_1_with_a_hint(runner, world, monkeypatch):
+    def bug(*args, **kwargs):
+        raise RuntimeError("something broke")
+
+    monkeypatch.setattr(monthly, "run_month", bug)
+    args = ["run", str(world), "--month", "2026-10", "--out", str(world.parent / "o1")]
+    res = runner.invoke(cli.cli, args)
+    assert res.exit_code == 1
+    assert "something broke" in res.stderr and "rerun with -v" in res.stderr
+    assert "Traceback" not in res.stderr
+    res = runner.invoke(cli.cli, ["-v", *args])
+    assert res.exit_code == 1 and "Traceback" in res.stderr
+
+
+def test_run_writes_the_bundle_and_refuses_to_overwrite(runner, world, grid, tmp_path):
+    args = ["run", str(world), "--month", "2026-10", "--out", str(tmp_path)]
+    res = runner.invoke(cli.cli, args)
+    assert res.exit_code == 0, res.stderr
+    assert (tmp_path / "2026-10" / "manifest.json").is_file()
+    assert "written to" in res.output and "not a diagnosis" in res.output
+    assert "tables/" in res.output
+    res = runner.invoke(cli.cli, args)
+    assert res.exit_code == 2 and "--overwrite" in res.stderr
+    res = runner.invoke(cli.cli, [*args, "--overwrite", "--as-of", "2026-11-10"])
+    assert res.exit_code == 0, res.stderr
+    assert "as of 2026-11-10" in res.output
+
+
+def test_run_summary_lists_warnings(runner, world, grid, tmp_path, monkeypatch):
+    import warnings
+
+    from marchland.errors import DataWarning
+
+    real = monthly._Context.spread
+
+    def noisy(self):
+        warnings.warn("district X reported 3 weeks late", DataWarning, stacklevel=1)
+        return real(self)
+
+    monkeypatch.setattr(monthly._Context, "spread", noisy)
+    res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-10", "--out", str(tmp_path)])
+    assert res.exit_code == 0, res.stderr
+    assert "1 warning" in res.output and "district X reported 3 weeks late" in res.output
+
+
+def test_quiet_run_prints_little(runner, world, grid, tmp_path):
+    res = runner.invoke(
+        cli.cli, ["-q", "run", str(world), "--month", "2026-10", "--out", str(tmp_path)]
+    )
+    assert res.exit_code == 0 and res.output == ""
+
+
+def test_backtest_prints_the_table(runner, world, grid):
+    res = runner.invoke(cli.cli, ["backtest", str(world)])
+    assert res.exit_code == 0, res.stderr
+    for text in ("score", "distance", "neighbours", "auc"):
+        assert text in res.output
+
+
+def test_check_exit_codes(runner, world, monkeypatch):
+    import types
+
+    reports = {
+        "ok": types.SimpleNamespace(ok=True, to_text=lambda: "all rows accounted"),
+        "bad": types.SimpleNamespace(ok=False, to_text=lambda: "x.csv: cannot read"),
+    }
+    for key, code in (("ok", 0), ("bad", 2)):
+        fake = types.ModuleType("marchland.region")
+        fake.check = lambda cfg, _k=key: reports[_k]
+        monkeypatch.setitem(sys.modules, "marchland.region", fake)
+        res = runner.invoke(cli.cli, ["check", str(world)])
+        assert res.exit_code == code
+        assert reports[key].to_text() in res.output
