@@ -328,6 +328,8 @@ def test_corridor_follows_time_and_reports_distance(kind):
     assert path["weeks_since_source"].tolist() == [0, 1, 1, 3, 3, 7]
     if kind == "border":
         assert path["cross_border"].tolist() == [False, False, False, True, False, True]
+    assert pd.isna(path["kind"].iloc[0])
+    assert (path["kind"].iloc[1:] == "shared-boundary").all()
 
 
 def test_corridor_prefers_fewest_hops_then_shortest():
@@ -446,3 +448,61 @@ def test_knox_bad_input():
         knox(np.zeros((4, 3)), [0, 1, 2, 3], distance=1, interval=1)
     with pytest.raises(ValueError, match="missing"):
         knox(np.zeros((3, 2)), [0, np.nan, 1], distance=1, interval=1)
+
+
+# --- property: the vectorised rules equal a plain reading of their definitions ----------------
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+def _naive_first(view, min_cases, confirm):
+    """Per unit, walk the weeks in order and apply the documented rule literally."""
+    out = {}
+    for unit, g in view.groupby("unit_id"):
+        cases = dict(zip(g["week"], g["cases"], strict=True))
+        found = pd.NaT
+        for w in sorted(cases):
+            if pd.isna(cases[w]) or cases[w] < min_cases:
+                continue
+            if confirm is None:
+                found = w
+                break
+            k, n = confirm
+            window = [w + pd.Timedelta(days=7 * d) for d in range(n)]
+            hits = sum(
+                1 for x in window if x in cases and pd.notna(cases[x]) and cases[x] >= min_cases
+            )
+            if hits >= k:
+                found = w
+                break
+        out[unit] = found
+    return pd.Series(out, dtype="datetime64[ns]")
+
+
+_rows = st.lists(
+    st.tuples(
+        st.sampled_from(["a", "b", "c"]), st.integers(0, 9), st.integers(0, 3), st.integers(1, 40)
+    ),
+    min_size=1,
+    max_size=40,
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    rows=_rows,
+    k=st.integers(1, 3),
+    extra=st.integers(0, 2),
+    min_cases=st.integers(1, 2),
+    as_of_day=st.integers(0, 120),
+)
+def test_first_cases_equal_a_literal_reading_of_the_rule(rows, k, extra, min_cases, as_of_day):
+    from marchland.reports import as_of
+
+    c = _counts(rows)
+    date = W0 + pd.Timedelta(days=as_of_day)
+    confirm = None if extra == 0 and k == 1 else (k, k + extra)
+    got = first_cases(c, min_cases=min_cases, confirm=confirm, as_of=date)
+    want = _naive_first(as_of(c, date), min_cases, confirm).reindex(got.index)
+    assert got.isna().tolist() == want.isna().tolist()
+    assert (got.dropna() == want.dropna()).all()

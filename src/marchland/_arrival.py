@@ -184,4 +184,6 @@ def path_table(
     flag = pd.Series(bg.edges["cross_border"].to_numpy(dtype=bool), index=pair)
     steps = pd.MultiIndex.from_arrays([ids[:-1], ids[1:]])
     out["cross_border"] = np.r_[False, flag.reindex(steps).to_numpy(dtype=bool)]
+    kind = pd.Series(bg.edges["kind"].to_numpy(), index=pair)
+    out["kind"] = pd.array([pd.NA, *kind.reindex(steps).tolist()], dtype="string")
     return out

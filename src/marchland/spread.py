@@ -451,7 +451,8 @@ def corridor(
     pandas.DataFrame
         Indexed by ``unit_id`` in path order: ``hop`` (0 at ``source``), ``first_week``,
         ``weeks_since_source``, ``km_step`` (from the previous unit), ``km`` (cumulative),
-        ``cross_border`` (the step into this unit crosses a border).
+        ``cross_border`` (the step into this unit crosses a border), ``kind`` (that step's
+        edge kind: "shared-boundary", "gap-bridged" or "link"; ``<NA>`` at ``source``).
 
     Raises
     ------
