@@ -59,34 +59,39 @@ def folded_pvalues(at_least: np.ndarray, at_most: np.ndarray, permutations: int)
 
 
 def _gather_lags(values, weights, units, ids):
-    """Weighted lags by gathering every permuted neighbour value: (units, permutations)."""
+    """Weighted lags by gathering every permuted neighbour value: (permutations, units)."""
     k = ids.shape[1]
     offsets = weights.indptr[units][:, None] + np.arange(k)
     w_u = weights.data[offsets][:, :, None]  # each unit's weights in CSR (column) order
     drawn = ids[None, :, :] + (ids[None, :, :] >= units[:, None, None])
-    return np.matmul(values[drawn], w_u)[:, :, 0]
+    return np.matmul(values[drawn], w_u)[:, :, 0].T
 
 
-def _prefix_lags(values, weights, units, ids):
+def _step_lags(values, weights, units, ids):
     """Compute the same lags when every weight of a unit is equal (binary, row-standardised).
 
-    The sum over a unit's draws is the sum of ``values[ids]`` plus a correction
-    ``values[ids + 1] - values[ids]`` for every draw at or past the unit itself. For units in
-    increasing order that correction is a suffix sum, so a block costs O(units x
-    permutations) instead of O(units x permutations x neighbours).
+    A draw ``j`` stands for ``values[j]`` for units after it and ``values[j + 1]`` for units
+    at or before it. Across a block of units in increasing order, each permutation's sum of
+    draws is therefore a step function with at most ``k`` steps, written out with one
+    ``numpy.repeat``: O(permutations x units), not O(permutations x units x neighbours).
     """
     n_perm, k = ids.shape
-    base = values[ids]
-    step = values[ids + 1] - base
-    # pos: how many units of the block have index <= the draw; those units take the step
+    c = len(units)
+    # pos: how many units of the block are at or before the draw (they take values[j + 1])
     pos = np.searchsorted(units, ids, side="right")
-    flat = pos * n_perm + np.arange(n_perm)[:, None]
-    corr = np.bincount(flat.ravel(), weights=step.ravel(), minlength=(len(units) + 1) * n_perm)
-    corr = corr.reshape(len(units) + 1, n_perm)
-    suffix = np.cumsum(corr[::-1], axis=0)[::-1]  # suffix[u] = sum of corr[v] for v >= u
-    sums = base.sum(axis=1)[None, :] + suffix[1:]
-    w_u = weights.data[weights.indptr[units]]
-    return sums * w_u[:, None]
+    order = np.argsort(pos, axis=1, kind="stable")
+    pos = np.take_along_axis(pos, order, axis=1)
+    ids_sorted = np.take_along_axis(ids, order, axis=1)
+    low, high = values[ids_sorted], values[ids_sorted + 1]
+    # level j (units from pos[:, j - 1] to pos[:, j]): draws before j are past, the rest not
+    past = np.concatenate([np.zeros((n_perm, 1)), np.cumsum(low, axis=1)], axis=1)
+    ahead = np.concatenate([np.cumsum(high[:, ::-1], axis=1)[:, ::-1], np.zeros((n_perm, 1))],
+                           axis=1)  # fmt: skip
+    levels = past + ahead
+    edges = np.concatenate([np.zeros((n_perm, 1), dtype=pos.dtype), pos,
+                            np.full((n_perm, 1), c, dtype=pos.dtype)], axis=1)  # fmt: skip
+    sums = np.repeat(levels.ravel(), np.diff(edges, axis=1).ravel()).reshape(n_perm, c)
+    return sums * weights.data[weights.indptr[units]][None, :]
 
 
 def conditional_permutation(
@@ -113,14 +118,15 @@ def conditional_permutation(
     table : numpy.ndarray
         ``permutations x max_cardinality`` draws from :func:`permutation_table`.
     statistic : callable
-        ``statistic(units, lags)`` -> statistics, where ``lags[u, p]`` is the weighted sum of
-        the permuted neighbour values of unit ``units[u]`` in permutation ``p``.
+        ``statistic(units, lags)`` -> statistics of the same shape, where ``lags[p, u]`` is
+        the weighted sum of the permuted neighbour values of unit ``units[u]`` in
+        permutation ``p``.
     rows : numpy.ndarray, optional
         Units to test (default: every unit with at least one neighbour).
-    method : {"auto", "gather", "prefix"}
+    method : {"auto", "gather", "step"}
         "gather" sums each unit's draws as esda does (same floating-point order, so the same
-        p-values bit for bit given the same table); "prefix" is the faster equal-weights
-        path (the same sums up to rounding); "auto" takes "prefix" where every row's weights
+        p-values bit for bit given the same table); "step" is the faster equal-weights
+        path (the same sums up to rounding); "auto" takes "step" where every row's weights
         are equal.
 
     Returns
@@ -130,8 +136,8 @@ def conditional_permutation(
         <= the observed one (ties within a relative ``TIE_TOLERANCE`` count in both), and
         the mean and standard deviation of the permuted statistics.
     """
-    if method not in ("auto", "gather", "prefix"):
-        raise ValueError(f"'method' needs to be one of auto, gather, prefix. {method!r} given.")
+    if method not in ("auto", "gather", "step"):
+        raise ValueError(f"'method' needs to be one of auto, gather, step. {method!r} given.")
     weights = sparse.csr_matrix(weights)
     values = np.ascontiguousarray(values, dtype=float)
     n = weights.shape[0]
@@ -142,8 +148,8 @@ def conditional_permutation(
     if method == "auto":
         row_max = np.maximum.reduceat(weights.data, weights.indptr[:-1][card > 0])
         row_min = np.minimum.reduceat(weights.data, weights.indptr[:-1][card > 0])
-        method = "prefix" if np.array_equal(row_max, row_min) else "gather"
-    lags_of = _prefix_lags if method == "prefix" else _gather_lags
+        method = "step" if np.array_equal(row_max, row_min) else "gather"
+    lags_of = _step_lags if method == "step" else _gather_lags
     n_perm = table.shape[0]
     at_least = np.full(n, -1, dtype=np.int64)
     at_most = np.full(n, -1, dtype=np.int64)
@@ -156,18 +162,20 @@ def conditional_permutation(
             continue
         units_k = rows[card[rows] == k]
         ids = table[:, :k]
-        per_unit = n_perm * (int(k) if method == "gather" else 2)
+        per_unit = n_perm * (int(k) if method == "gather" else 3)
         block = max(1, BLOCK_ELEMENTS // per_unit)
         for start in range(0, len(units_k), block):
             units = units_k[start : start + block]
-            sims = statistic(units, lags_of(values, weights, units, ids))
-            spread = sims.std(axis=1)
+            sims = statistic(units, lags_of(values, weights, units, ids))  # (perms, units)
+            mu = sims.mean(axis=0)
+            dev = sims - mu[None, :]
+            spread = np.sqrt(np.einsum("pu,pu->u", dev, dev) / n_perm)
             # A permutation that redraws equal neighbour values ties with the observed
             # value; count ties in both tails whatever the last bit of rounding says.
             obs = observed[units]
-            tol = (TIE_TOLERANCE * (np.abs(obs) + spread))[:, None]
-            at_least[units] = (sims >= obs[:, None] - tol).sum(axis=1)
-            at_most[units] = (sims <= obs[:, None] + tol).sum(axis=1)
-            mean[units] = sims.mean(axis=1)
+            tol = TIE_TOLERANCE * (np.abs(obs) + spread)
+            at_least[units] = np.count_nonzero(sims >= (obs - tol)[None, :], axis=0)
+            at_most[units] = np.count_nonzero(sims <= (obs + tol)[None, :], axis=0)
+            mean[units] = mu
             std[units] = spread
     return at_least, at_most, mean, std

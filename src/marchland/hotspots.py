@@ -212,7 +212,7 @@ def _local_moran(prep: _Prepared, permutations: int, seed, fdr: float,
         scaling = (n - 1) / den
 
         def statistic(units: np.ndarray, lags: np.ndarray) -> np.ndarray:
-            return z[units][:, None] * lags * scaling
+            return z[units][None, :] * lags * scaling
 
         at_least, at_most, mean, std = _permute.conditional_permutation(
             z, w, local_i, table, statistic, rows=tested, method=method
@@ -460,7 +460,7 @@ def getis_ord(
                                            _rng(seed))  # fmt: skip
 
         def statistic(units: np.ndarray, lags: np.ndarray) -> np.ndarray:
-            return (lags + y[units][:, None]) / total
+            return (lags + y[units][None, :]) / total
 
         at_least, at_most, _, _ = _permute.conditional_permutation(
             y, w, g, table, statistic, rows=tested
