@@ -19,6 +19,11 @@ import shapely
 from ._world import GEN_CRS, World
 
 MAX_SHIFT = 135.0  # metres; two countries' shifts add up to at most 270 m
+# Each country's copy is offset as a whole (a datum or digitising difference) plus a wavy part.
+# Offsets sit 120-180 degrees apart on a circle for neighbours, so their difference across a
+# land border is 147-170 m and the mismatch is rarely near zero for long.
+_OFFSET_M = 85.0
+_OFFSET_DEG = {"TVR": 0.0, "OSK": 120.0, "MRW": 240.0, "QLN": 60.0}
 # Each country's file: (format suffix, CRS, column names for adm2 and adm1).
 FILES = {
     "TVR": (".gpkg", "EPSG:4326", ("code", "name", "prov_code"), ("code", "name")),
@@ -30,14 +35,17 @@ FILES = {
 _FIXED_DATE = "2026-12-01T00:00:00Z"
 
 
-def _field(rng):
-    """Draw a smooth random 2-D displacement field bounded by MAX_SHIFT (plane waves)."""
-    k = 6
+def _field(country, rng):
+    """Draw a country's smooth 2-D displacement field, bounded by MAX_SHIFT."""
+    k = 4
+    off = _OFFSET_M * np.array(
+        [np.cos(np.radians(_OFFSET_DEG[country])), np.sin(np.radians(_OFFSET_DEG[country]))]
+    )
     wavelength = rng.uniform(12_000, 60_000, (2, k))
     angle = rng.uniform(0, 2 * np.pi, (2, k))
     phase = rng.uniform(0, 2 * np.pi, (2, k))
     amp = rng.uniform(0.3, 1.0, (2, k))
-    amp = amp / amp.sum(axis=1, keepdims=True) * MAX_SHIFT / np.sqrt(2)
+    amp = amp / amp.sum(axis=1, keepdims=True) * (MAX_SHIFT - _OFFSET_M) / np.sqrt(2)
     kx = 2 * np.pi / wavelength * np.cos(angle)
     ky = 2 * np.pi / wavelength * np.sin(angle)
 
@@ -47,7 +55,7 @@ def _field(rng):
         dx = (amp[0] * np.cos(arg)).sum(1)
         arg = x * kx[None, 1] + y * ky[None, 1] + phase[None, 1]
         dy = (amp[1] * np.cos(arg)).sum(1)
-        return xy + np.column_stack([dx, dy])
+        return xy + off + np.column_stack([dx, dy])
 
     return shift
 
@@ -68,7 +76,7 @@ def country_copies(world: World, rng: np.random.Generator) -> dict[str, gpd.GeoD
     out = {}
     for c in FILES:
         d = world.districts[world.districts["country"] == c]
-        g = shapely.transform(d.geometry.values, _field(rng))
+        g = shapely.transform(d.geometry.values, _field(c, rng))
         g = shapely.set_precision(g, 0.01)
         if not shapely.is_valid(g).all():  # pragma: no cover - strain is far too small for it
             raise RuntimeError(f"perturbed {c} districts are not valid")

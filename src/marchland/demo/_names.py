@@ -155,6 +155,8 @@ _PARTS: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
         ("ano", "ella", "iero", "ussa", "ondo", "ira", "essa", "ula", "orbe", "ignu"),
     ),
 }
+# Combinations that come too close to real places or common words; never used.
+_AVOID = {"Morrow", "Ivray", "Rothery", "Dovay", "Illow", "Hobow"}
 # Marrowen names carry the words that abbreviations in its line list act on.
 _MRW_PREFIXES = ("Saint ", "North ", "South ", "Upper ")
 
@@ -192,7 +194,11 @@ def name_pool(country: str, n: int, rng: np.random.Generator, *, prefixes: bool 
     for k in order:
         name = combos[k]
         # Avoid doubled letters at the join ("Tarnnenne") and near-duplicates.
-        if name.lower() in seen or any(c * 3 in name.lower() for c in "abcdefghijklmnopqrstuvwxyz"):
+        if (
+            name in _AVOID
+            or name.lower() in seen
+            or any(c * 3 in name.lower() for c in "abcdefghijklmnopqrstuvwxyz")
+        ):
             continue
         seen.add(name.lower())
         if prefixes and rng.random() < 0.2:

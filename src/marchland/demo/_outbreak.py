@@ -37,6 +37,7 @@ _HOT = 2.5  # transmission multiplier in the hot area during HOT_MONTHS
 _HOT_ENV = 0.03  # weekly hazard from contaminated water in the hot area during HOT_MONTHS
 _WANE = 0.006  # weekly return of recovered people to the pool
 _HOT_INFLUX = 0.08  # in the hot area during HOT_MONTHS: newcomers refill the pool this fast
+_HOT_POOL = 2.5  # ... up to this multiple of the usual pool (crowded shore settlements)
 _SEED_CASES = 6
 
 
@@ -146,7 +147,8 @@ def simulate(
         first[new] = t
         cases[:, t] = c
         deaths[:, t] = rng.binomial(c, cfr)
-        s = s - c + np.where(hot_now, _HOT_INFLUX, _WANE) * (pool - s)
+        target = np.where(hot_now, _HOT_POOL * pool, pool)
+        s = s - c + np.where(hot_now, _HOT_INFLUX, _WANE) * (target - s)
         s = np.maximum(s, 0)
     seeded_by[i0] = -1
     return Outbreak(weeks, cases, deaths, force, first, seeded_by, cfr)

@@ -28,9 +28,9 @@ AGE_P = [0.18, 0.2, 0.24, 0.18, 0.13, 0.07]
 UNKNOWN_PLACES = {"MRW": ["Threnmoor Flats", "Kaskelby Point"], "QLN": ["Vantorrin"]}
 # Old names a person has confirmed (country, alias) -> used in that country's reports.
 OLD_NAMES = {
-    "MRW": ["Harlowe Crossing", "Old Brannick"],
+    "MRW": ["Quennel Crossing", "Old Brannick"],
     "QLN": ["Sant'Ivora"],
-    "OSK": ["Nordre Haldmark"],
+    "OSK": ["Skyrthrun Vale"],
 }
 
 
@@ -137,7 +137,11 @@ def write_tvr(sc, cases, deaths, folder: Path, rng, dirt) -> dict:
         ]
         tags = {}
         if i == 6:  # a negative count in place of a real one
-            k = next(j for j, r in enumerate(rows) if r[3] > 0 and r[4] == 0)
+            k = next(
+                j
+                for j, r in enumerate(rows)
+                if j > len(rows) // 3 and r[3] > 0 and r[4] == 0 and r[0] != code
+            )
             rows[k][3] = -3
             tags[id(rows[k])] = ("cases", "negative")
         if i == 11:  # a blank row in the middle of the file
@@ -204,7 +208,8 @@ def write_osk(sc, cases, deaths, folder: Path, rng, dirt, aliases) -> None:
                     ]
                 )
         if i == 11:  # deaths above cases
-            k = next(j for j, r in enumerate(rows) if r[2] > 0)
+            canonical = set(prov["name"])
+            k = next(j for j, r in enumerate(rows) if r[2] > 0 and r[0] in canonical)
             rows[k][3] = rows[k][2] + 2
             _record(dirt, src, rows, {id(rows[k]): ("Deaths", "deaths-over-cases")}, str(m))
         for r in rows:
@@ -324,7 +329,8 @@ def write_mrw(sc, cases, deaths, folder: Path, rng, dirt, aliases) -> None:
         base = rows[k]
         rows.insert(k + 1, [f"MRW-9{j:05d}", base[1], base[2], place, "15-29", "recovered"])
         tags[id(rows[k + 1])] = ("district_name", "unknown-place")
-    k = len(rows) // 2
+    canonical = set(d["name"].to_numpy()[idx])
+    k = next(j for j in range(len(rows) // 2, len(rows)) if rows[j][3] in canonical)
     rows[k][1] = "2026-02-30"  # an impossible date
     tags[id(rows[k])] = ("onset_date", "unparseable")
     k = len(rows) * 3 // 4
@@ -412,16 +418,23 @@ def write_qln(sc, cases, deaths, folder: Path, rng, dirt, aliases) -> list:
             ]
         )
     tags = {}
-    k = len(rows) // 4
+    canonical = set(names)
+    k = next(j for j in range(len(rows) // 4, len(rows)) if rows[j][0] in canonical)
     rows.insert(k + 1, list(rows[k]))  # an exact duplicate; the second copy is the dirt
     tags[id(rows[k + 1])] = ("", "duplicate")
-    k = next(j for j in range(len(rows) // 3, len(rows)) if rows[j][3] > 1)
+    k = next(
+        j for j in range(len(rows) // 3, len(rows)) if rows[j][3] > 1 and rows[j][0] in canonical
+    )
     rows[k][4] = rows[k][3] + 1
     tags[id(rows[k])] = ("New deaths", "deaths-over-cases")
     k = len(rows) // 2
     rows.insert(k, [UNKNOWN_PLACES["QLN"][0], rows[k][1], rows[k][2], 3, 0, rows[k][5]])
     tags[id(rows[k])] = ("Region", "unknown-place")
-    k = next(j for j in range(len(rows) * 2 // 3, len(rows)) if id(rows[j]) not in tags)
+    k = next(
+        j
+        for j in range(len(rows) * 2 // 3, len(rows))
+        if id(rows[j]) not in tags and rows[j][0] in canonical
+    )
     rows[k][3] = f"{rows[k][3]}a"  # a typing slip that is not a number
     tags[id(rows[k])] = ("New cases", "unparseable")
     _record(dirt, "reports/qln_weekly.csv", rows, tags)
