@@ -16,6 +16,7 @@ Measured (fill in from the last run; 2 cores):
 from __future__ import annotations
 
 import gc
+import multiprocessing as mp
 import sys
 import time
 import tracemalloc
@@ -72,23 +73,54 @@ def synthetic_layer(n: int, seed: int = 0) -> tuple[gpd.GeoDataFrame, gpd.GeoDat
     return mismatched, exact
 
 
-def measure(fn, repeat: int = 2):
-    """Best wall time of ``repeat`` runs, then peak traced memory of one more run.
+def _rss_mib(field: str) -> float:
+    with open("/proc/self/status") as f:
+        for line in f:
+            if line.startswith(field + ":"):
+                return int(line.split()[1]) / 1024
+    return float("nan")
 
-    tracemalloc slows Python-heavy code several-fold, so time and memory are separate runs.
-    """
+
+def _reset_peak_rss() -> bool:
+    # Linux: writing 5 to clear_refs resets the peak-RSS mark (VmHWM) of this process.
+    try:
+        with open("/proc/self/clear_refs", "w") as f:
+            f.write("5")
+        return True
+    except OSError:
+        return False
+
+
+def _run(which: str, n: int, repeat: int) -> tuple[float, float, float]:
+    """In a fresh process: best wall time, peak traced Python memory, peak RSS growth."""
+    layer, _ = synthetic_layer(n)
+    if which == "queen":
+        fn = lambda: Graph.build_contiguity(layer, rook=False)  # noqa: E731
+    else:
+        fn = lambda: border_graph(layer, tolerance=TOLERANCE, min_shared_m=MIN_SHARED)  # noqa: E731
+    gc.collect()
+    base = _rss_mib("VmRSS")
+    reset = _reset_peak_rss()
     secs = []
     for _ in range(repeat):
-        gc.collect()
         t = time.perf_counter()
-        out = fn()
+        fn()
         secs.append(time.perf_counter() - t)
-    gc.collect()
+        gc.collect()
+    rss = _rss_mib("VmHWM") - base if reset else float("nan")
+    # tracemalloc slows Python-heavy code several-fold, so it gets a run of its own; it sees
+    # Python and numpy allocations, not GEOS's, which the RSS growth does include.
     tracemalloc.start()
     fn()
     _, peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
-    return out, min(secs), peak / 2**20
+    return min(secs), peak / 2**20, rss
+
+
+def measure(which: str, n: int, repeat: int = 3) -> tuple[float, float, float]:
+    ctx = mp.get_context("spawn")
+    with ctx.Pool(1) as pool:
+        return pool.apply(_run, (which, n, repeat))
 
 
 def truth_pairs(exact: gpd.GeoDataFrame) -> set:
@@ -108,22 +140,25 @@ def truth_pairs(exact: gpd.GeoDataFrame) -> set:
 
 
 def main(sizes: list[int]) -> None:
-    print(f"tolerance {TOLERANCE:.0f} m, min_shared_m {MIN_SHARED:.0f} m")
+    print(f"tolerance {TOLERANCE:.0f} m, min_shared_m {MIN_SHARED:.0f} m; best of 3 runs")
     for n in sizes:
         layer, exact = synthetic_layer(n)
-        # Plain queen on the same mismatched layer, then ours.
-        _, qs, qm = measure(lambda layer=layer: Graph.build_contiguity(layer, rook=False))
-        bg, bs, bm = measure(
-            lambda layer=layer: border_graph(layer, tolerance=TOLERANCE, min_shared_m=MIN_SHARED)
-        )
+        qs, qt, qr = measure("queen", n)
+        bs, bt, br = measure("border", n)
+        bg = border_graph(layer, tolerance=TOLERANCE, min_shared_m=MIN_SHARED)
         e = bg.edges
         cr = e[e["cross_border"] & (e["focal"] < e["neighbor"])]
         found = set(zip(cr["focal"], cr["neighbor"], strict=True))
         truth = truth_pairs(exact)
         print(
-            f"n={len(layer):>6}  plain queen {qs:6.2f} s {qm:7.1f} MiB | border_graph {bs:6.2f} s"
-            f" {bm:7.1f} MiB | ratio {bs / qs:4.2f}x | cross-border pairs: truth {len(truth)},"
-            f" found {len(found)}, missed {len(truth - found)}, extra {len(found - truth)}"
+            f"n={len(layer):>6}  plain queen {qs:6.2f} s, traced {qt:6.1f} MiB, RSS +{qr:6.1f} MiB"
+            f" | border_graph {bs:6.2f} s, traced {bt:6.1f} MiB, RSS +{br:6.1f} MiB"
+            f" | time ratio {bs / qs:4.2f}x"
+        )
+        print(
+            f"          cross-border pairs sharing >= {MIN_SHARED:.0f} m in the exact layer:"
+            f" {len(truth)}; found {len(found)}, missed {len(truth - found)},"
+            f" extra {len(found - truth)}"
         )
 
 

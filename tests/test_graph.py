@@ -501,3 +501,18 @@ def test_links_naming_districts_climb_to_province_units():
     with pytest.raises(InputError) as err:
         border_graph(layer, links=links_table(("P99-01", "P10", "ferry", "")), parents=parents)
     assert (err.value.row, err.value.column, err.value.value) == (1, "from_id", "P99-01")
+
+
+def test_units_in_feet_or_empty_are_rejected():
+    layer = grid(2, 1)
+    with pytest.raises(InputError, match="measured in"):
+        border_graph(layer.set_crs("EPSG:2263", allow_override=True), tolerance=300)
+    with pytest.raises(InputError, match="no analysis units"):
+        border_graph(layer.iloc[:0])
+
+
+def test_single_unit_is_an_island():
+    bg = border_graph(grid(1, 1), tolerance=300)
+    assert bg.islands == ["U00"]
+    assert len(bg.edges) == 0
+    assert bg.hops_from(["U00"]).tolist() == [0]

@@ -77,6 +77,8 @@ def build_border_graph(
 
     ids, geoms, country, group, source = _check_units(units, tolerance)
     n = len(ids)
+    if n == 0:
+        raise InputError("there are no analysis units to build a graph of", column="unit_id")
 
     # 1. exact contiguity within each source file
     ei, ej = _within_source_pairs(geoms, source, rook=rule == "rook", strict=strict)
@@ -128,6 +130,14 @@ def _check_units(units, tolerance: float):
             "so reproject them to the working equal-area CRS first",
             column="geometry",
         )
+    if crs is not None and crs.is_projected:
+        unit = crs.axis_info[0].unit_name if crs.axis_info else "metre"
+        if unit not in ("metre", "meter", "m"):
+            raise InputError(
+                f"units are in a CRS measured in {unit!r} ({crs.to_string()}); the graph "
+                "measures metres, so reproject them to the working equal-area CRS first",
+                column="geometry",
+            )
     if crs is None and tolerance > 0:
         raise InputError(
             "units have no CRS, so a tolerance in metres cannot be applied; set the working "
@@ -217,7 +227,10 @@ def _shared_lengths(geoms, i, j, *, strict: bool) -> np.ndarray:
 def _segment_pair_lengths(geoms) -> pd.Series:
     """Total length of identical boundary segments per unit pair, keyed by ``i * n + j``."""
     n = len(geoms)
-    parts, part_of = shapely.get_parts(geoms, return_index=True)
+    if (shapely.get_type_id(geoms) == 3).all():  # all Polygons: skip the costly explode
+        parts, part_of = geoms, np.arange(n)
+    else:
+        parts, part_of = shapely.get_parts(geoms, return_index=True)
     rings, ring_of = shapely.get_rings(parts, return_index=True)
     xy, v_ring = shapely.get_coordinates(rings, return_index=True)
     unit = part_of[ring_of[v_ring]]
