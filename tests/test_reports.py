@@ -447,3 +447,13 @@ def test_linelist_accounting_property(tmp_path: Path, units: pd.DataFrame, rows:
     latest = as_of(r.counts)
     assert latest["cases"].sum() == acct["counted"]
     assert (latest["deaths"] <= latest["cases"]).all()
+
+
+def test_only_blank_or_placeless_rows(units: pd.DataFrame, tmp_path: Path) -> None:
+    path = write(
+        tmp_path / "w.csv", "district,week_start,cases,received\n,,,\n,2026-01-05,1,2026-01-12\n"
+    )
+    cols = dict(place="district", week="week_start", cases="cases", received="received")
+    r = read_reports(spec(path, columns=cols), units, today=TODAY)
+    assert r.rejects["reason"].tolist() == ["blank", "missing-value"]
+    assert r.matches.empty and r.counts.empty

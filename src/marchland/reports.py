@@ -313,9 +313,18 @@ def _parse_table(
 
 
 # --- one source ------------------------------------------------------------------------------
+def _take(values: pd.Series, pos: np.ndarray, fill: object) -> np.ndarray:
+    """``values[pos]`` with ``fill`` where ``pos`` is -1 (no match-table row)."""
+    out = np.full(len(pos), fill, dtype=object)
+    hit = pos >= 0
+    out[hit] = values.to_numpy(dtype=object)[pos[hit]]
+    return out
+
+
 def _match_places(df: pd.DataFrame, matcher: Matcher, spec: ReportSpec) -> pd.DataFrame:
     """Match each distinct (code, place) once; return the match table for this source."""
-    live = df["reason"].ne("blank")
+    # Rows without any place were rejected already; they name nothing to match.
+    live = df["reason"].ne("blank") & (df["place"].notna() | df["code"].notna())
     keys = df.loc[live, ["code", "place"]].fillna("").astype(str)
     pairs = keys.value_counts().rename("rows").reset_index()
     found = [matcher.match(cd, pl) for cd, pl in zip(pairs["code"], pairs["place"], strict=True)]
@@ -421,9 +430,9 @@ def _read_source(
     m = matches.set_index(["code", "place"])
     keys = pd.MultiIndex.from_frame(df[["code", "place"]].fillna("").astype(str))
     pos = m.index.get_indexer(keys)
-    df["unit_id"] = np.where(pos >= 0, m["unit_id"].to_numpy()[pos], None)
-    df["candidates"] = np.where(pos >= 0, m["candidates"].to_numpy()[pos], "")
-    why = pd.Series(np.where(pos >= 0, m["_reason"].to_numpy()[pos], None), dtype=object)
+    df["unit_id"] = _take(m["unit_id"], pos, None)
+    df["candidates"] = _take(m["candidates"], pos, "")
+    why = pd.Series(_take(m["_reason"], pos, None), dtype=object)
     pcol = spec.columns.place or spec.columns.code
     shown = df["place"].fillna(df["code"])
     for r in ("unknown-place", "ambiguous-place"):
