@@ -346,3 +346,93 @@ def test_backtest_as_of_replays_only_what_was_known(sim):
     b = run_backtest(known, sim.units, sim.graph)
     pd.testing.assert_frame_equal(a.predictions, b.predictions)
     assert a.predictions["origin"].max() + pd.Timedelta(days=7 * 4 + 6) <= as_of
+
+
+# --- the demo scenario ------------------------------------------------------------------
+# The demo's simulation (marchland.demo) writes what really happened to demo_data/truth/:
+# force.csv (district, week, force of infection), first_case.csv, districts.csv (province of
+# each district; Oskeland is analysed at province level, so its districts map to provinces).
+@pytest.fixture(scope="module")
+def demo():
+    import warnings
+
+    from marchland.demo import scenario_path
+    from marchland.region import open_region
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        region = open_region(scenario_path())
+    truth = scenario_path().parent / "truth"
+    districts = pd.read_csv(truth / "districts.csv").set_index("unit_id")
+    to_unit = pd.Series(districts.index, index=districts.index)
+    to_unit = to_unit.where(to_unit.isin(region.units.index), districts["province_id"])
+    force = pd.read_csv(truth / "force.csv", parse_dates=["week"])
+    force = force.assign(unit=force["unit_id"].map(to_unit)).pivot_table(
+        index="week", columns="unit", values="force", aggfunc="sum"
+    )
+    first = pd.read_csv(truth / "first_case.csv", parse_dates=["week"])
+    first = first.assign(unit=first["unit_id"].map(to_unit)).groupby("unit")["week"].min()
+    bt = run_backtest(region.counts, region.units, region.graph, horizon_weeks=4, top_k=10)
+    return region, force, first, bt
+
+
+def _force_score(bt, force, start_week: int, end_week: int) -> np.ndarray:
+    """True force of infection summed over weeks origin + start .. origin + end per pair."""
+    p = bt.predictions
+    cum = force.cumsum()
+    pos = force.index.get_indexer(p["origin"])
+    hi = np.minimum(pos + end_week, len(force) - 1)
+    lo = pos + start_week - 1
+    cols = cum.columns.get_indexer(p["unit_id"])
+    assert (pos >= 0).all() and (cols >= 0).all()
+    c = cum.to_numpy()
+    return c[hi, cols] - np.where(lo >= 0, c[np.maximum(lo, 0), cols], 0.0)
+
+
+def test_demo_backtest_beats_both_baselines(demo):
+    _, _, _, bt = demo
+    s = bt.summary
+    assert s.loc["score", "auc"] > s.loc["distance", "auc"]
+    assert s.loc["score", "auc"] > s.loc["neighbours", "auc"]
+    assert s.loc["score", "brier"] < min(s.loc["distance", "brier"], s.loc["neighbours", "brier"])
+    assert s.loc["score", "n_origins"] >= 40
+
+
+def test_demo_backtest_beside_perfect_knowledge(demo):
+    """The score beside two perfect-knowledge scores from the simulation's true force.
+
+    The force summed over the whole horizon (origin + 1 .. origin + h) is the upper bound no
+    model can pass; it also contains the force a unit's own (future) cases put on it, so it
+    partly knows the outcome. The force in the first week after the origin is perfect
+    knowledge of the true state at the origin; the aim is to come within 0.05 of it.
+    """
+    _, force, _, bt = demo
+    y = bt.predictions["outcome"].to_numpy()
+    horizon = _hazard.auc(_force_score(bt, force, 1, bt.horizon_weeks), y)
+    state = _hazard.auc(_force_score(bt, force, 1, 1), y)
+    score = bt.summary.loc["score", "auc"]
+    print(
+        f"demo AUC: score {score:.3f}, true force next week {state:.3f}, "
+        f"over the horizon {horizon:.3f}"
+    )
+    assert score < horizon
+    assert score > state - 0.05
+
+
+def test_demo_next_infected_rank_in_the_top_decile_more_often_than_chance(demo):
+    region, _, first, _ = demo
+    hits = total = 0
+    expected = 0.0
+    for as_of in ["2025-08-13", "2025-11-12", "2026-02-11", "2026-05-13", "2026-08-12"]:
+        r = border_risk(region.counts, region.units, region.graph, as_of=as_of)
+        week = pd.Timestamp(r.attrs["week"])
+        nxt = first[(first > week) & (first <= week + pd.Timedelta(days=28))].index
+        nxt = nxt[nxt.isin(r.index)]
+        top = r.index[r["rank"] <= max(1, int(np.ceil(len(r) / 10)))]
+        hits += int(nxt.isin(top).sum())
+        total += len(nxt)
+        expected += len(nxt) * len(top) / len(r)
+    assert total >= 10
+    # Chance puts len(top) / len(r) (about a tenth) of them in the top decile.
+    print(f"next infected in the top decile: {hits} of {total}; chance {expected:.1f}")
+    assert hits > 2 * expected, (hits, total, expected)
