@@ -12,6 +12,7 @@ import rasterio
 import shapely
 from rasterio.features import rasterize
 from rasterio.transform import from_origin
+from scipy.ndimage import binary_dilation
 
 from ._world import GEN_CRS, World
 
@@ -106,7 +107,10 @@ def build_population(world: World, rng: np.random.Generator) -> Population:
     factor = np.clip(tot, POP_MIN, POP_MAX) / np.maximum(tot, 1e-9)
     people = np.where(labels >= 0, people * factor[np.maximum(labels, 0)], 0.0)
     values = np.where(labels >= 0, people, NODATA).astype("float32")
-    values[lake] = 0.0
+    # Water next to the land (the lake, a coastal strip) holds 0, not nodata, so districts
+    # whose published outline runs a little past the true shore stay fully covered.
+    near_land = binary_dilation(labels >= 0, iterations=3)
+    values[(near_land | lake) & (labels < 0)] = 0.0
     tot = np.bincount(
         labels[labels >= 0], weights=values[labels >= 0].astype(float), minlength=len(d)
     )

@@ -125,4 +125,26 @@ def build_scenario() -> Scenario:
         hot_ids,
         rng,
     )
+    _ensure_prefixes(world, d, ob)
     return Scenario(world, pop, d, links, seed_id, hot_ids, ob, rng)
+
+
+def _ensure_prefixes(world: World, d: gpd.GeoDataFrame, ob: Outbreak) -> None:
+    """Make sure affected Marrowen districts carry "Saint" and "North" in their names.
+
+    The line list abbreviates these words ("St.", "N."); the demo should exercise both, so if
+    no affected district has one, the most affected district without a prefix gets it.
+    """
+    total = pd.Series(ob.cases.sum(axis=1), index=d.index)
+    mrw = d.index[(d["country"] == "MRW") & (total > 0)]
+    for word in ("Saint ", "North "):
+        if d.loc[mrw, "name"].str.startswith(word).any():
+            continue
+        plain = [
+            u
+            for u in total[mrw].sort_values(ascending=False).index
+            if not d.loc[u, "name"].startswith(("Saint ", "North ", "South ", "Upper "))
+        ]
+        new = word + d.loc[plain[0], "name"]
+        d.loc[plain[0], "name"] = new
+        world.districts.loc[plain[0], "name"] = new

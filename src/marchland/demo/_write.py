@@ -77,11 +77,10 @@ def write_all(root: Path) -> dict:
     _csv(sc.links, data / "links.csv")
     _csv(pd.DataFrame(aliases, columns=["country", "alias", "unit_id"]), data / "aliases.csv")
     _csv(_depots(sc), data / "depots.csv")
-    items = pd.DataFrame(
-        SUPPLY_ITEMS, columns=["item", "unit", "per_case", "basis", "buffer_share"]
-    )
+    lines = ["item,unit,per_case,basis,buffer_share"]
+    lines += [f"{i},{u},{q:g},{b},{s:g}" for i, u, q, b, s in SUPPLY_ITEMS]
     (data / "supply_items.csv").write_text(
-        SUPPLY_COMMENT + "\n" + items.to_csv(index=False, lineterminator="\n"), encoding="utf-8"
+        "\n".join([SUPPLY_COMMENT, *lines]) + "\n", encoding="utf-8"
     )
 
     weeks = ob.weeks.strftime("%Y-%m-%d")
