@@ -592,3 +592,102 @@ def test_depot_without_id(tmp_path):
     with pytest.raises(InputError, match="needs an id") as info:
         read_depots(path, CRS)
     assert (info.value.row, info.value.column) == (4, "site")
+
+
+# --- the demo scenario -----------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def demo():
+    import warnings
+
+    from marchland.demo import scenario_path
+    from marchland.region import open_region
+    from marchland.risk import border_risk
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        region = open_region(scenario_path())
+    cfg = region.config
+    as_of = pd.Timestamp("2026-10-31") + pd.Timedelta(days=cfg.region.as_of_lag_days)
+    risk = border_risk(
+        region.counts, region.units, region.graph, as_of=as_of, horizon_weeks=cfg.risk.horizon_weeks
+    )
+    plan = SupplyPlan.from_config(cfg.supplies)
+    sites = read_depots(cfg.supplies.depots, region.units.crs)
+    return region, risk, plan, sites
+
+
+def test_demo_priorities(demo):
+    region, risk, plan, _ = demo
+    assert "not guidance" in plan.note
+    pri = prioritise(risk, region.units, plan=plan)
+    assert set(pri.index) == set(risk.index) and pri["rank"].is_monotonic_increasing
+    # the quantities again, straight from the CSV with plain pandas and the stated formula
+    raw = pd.read_csv(region.config.supplies.items, comment="#")
+    cases = region.units["population"].reindex(pri.index) * plan.attack_rate_mid
+    for rec in raw.itertuples():
+        share = plan.severe_share if rec.basis == "severe" else 1.0
+        want = np.ceil(np.round(cases * share * rec.per_case * (1 + rec.buffer_share), 9))
+        assert pri[rec.item].astype(float).tolist() == want.tolist()
+    by_country = totals(pri, plan=plan)
+    assert by_country["units"].sum() == len(pri)
+    for name in plan.item_names:
+        assert by_country[name].sum() == pri[name].sum()
+        assert (by_country[f"{name}_risk_weighted"] <= by_country[name]).all()
+
+
+def test_demo_depots_against_exhaustive_search(demo):
+    from itertools import combinations
+
+    from scipy.spatial.distance import cdist
+
+    region, risk, plan, sites = demo
+    cfg = region.config.supplies
+    pri = prioritise(risk, region.units, plan=plan)
+    out = choose_depots(pri, sites, k=cfg.k, reach_km=cfg.reach_km, units=region.units)
+    existing = sites["existing"].to_numpy()
+    assert len(out) == existing.sum() + cfg.k and out["existing"].sum() == existing.sum()
+    centres = region.units.geometry.reindex(pri.index).centroid
+    within = (
+        cdist(
+            np.column_stack([centres.x, centres.y]),
+            np.column_stack([sites.geometry.x, sites.geometry.y]),
+        )
+        / 1000
+        <= cfg.reach_km
+    )
+    w = (pri["probability"] * pri["population"]).to_numpy()
+    fixed = list(np.flatnonzero(existing))
+    free = list(np.flatnonzero(~existing))
+    best = max(
+        float(w[within[:, fixed + list(extra)].any(axis=1)].sum())
+        for extra in combinations(free, cfg.k)
+    )
+    assert out["covered_weight"].sum() == pytest.approx(best, rel=1e-9)
+    assign = assign_depots(pri, out, units=region.units)
+    assert assign.loc[assign["covered"], "weight"].sum() == pytest.approx(best, rel=1e-9)
+    catchments = totals(pri, plan=plan, by=assign["depot"])
+    assert catchments["units"].sum() == len(pri)
+    # along the graph no district is nearer than in a straight line, so coverage cannot grow
+    along = choose_depots(
+        pri,
+        sites,
+        k=cfg.k,
+        reach_km=cfg.reach_km,
+        units=region.units,
+        distance="graph",
+        graph=region.graph,
+    )
+    assert along["covered_weight"].sum() <= best * (1 + 1e-9)
+    every = sites.assign(reach_km=cfg.reach_km)
+    straight = assign_depots(pri, every, units=region.units)
+    graph = assign_depots(pri, every, units=region.units, distance="graph", graph=region.graph)
+    assert (graph["distance_km"] >= straight["distance_km"] - 1e-6).all()
+
+
+def test_demo_k_zero_uses_existing_depots_only(demo):
+    region, risk, plan, sites = demo
+    pri = prioritise(risk, region.units, plan=plan)
+    out = choose_depots(pri, sites, k=0, reach_km=120, units=region.units)
+    assert set(out.index) == set(sites.index[sites["existing"]])
+    assign = assign_depots(pri, out, units=region.units)
+    assert set(assign["depot"]) <= set(out.index)
