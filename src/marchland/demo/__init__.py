@@ -62,9 +62,12 @@ def generate(root: str | Path | None = None) -> dict:
 
     Examples
     --------
-    >>> import tempfile
-    >>> with tempfile.TemporaryDirectory() as tmp:  # doctest: +SKIP
-    ...     summary = generate(tmp)
+    ``generate(folder)`` writes a fresh copy; the committed copy lives beside the config:
+
+    >>> import pandas as pd
+    >>> links = pd.read_csv(scenario_path().parent / "links.csv")
+    >>> sorted(set(links["kind"]))
+    ['bridge', 'ferry']
     """
     from ._write import write_all
 
