@@ -29,6 +29,7 @@ def test_spread_corridor_notebook_runs_top_to_bottom():
     text = "".join(o.get("text", "") for o in outputs if o.output_type == "stream")
     assert "corridor from" in text
     assert "km/week" in text
+    assert "close pairs observed" in text
     # Every figure rendered (two maps).
     images = [o for o in outputs if "image/png" in o.get("data", {})]
     assert len(images) >= 2
