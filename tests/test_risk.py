@@ -436,3 +436,60 @@ def test_demo_next_infected_rank_in_the_top_decile_more_often_than_chance(demo):
     # Chance puts len(top) / len(r) (about a tenth) of them in the top decile.
     print(f"next infected in the top decile: {hits} of {total}; chance {expected:.1f}")
     assert hits > 2 * expected, (hits, total, expected)
+
+
+def test_weeks_on_two_calendars_are_an_input_error():
+    counts, units, graph = example()
+    c = counts.copy()
+    c.loc[c.index[-1], "week"] = c["week"].iloc[-1] - pd.Timedelta(days=1)  # a Sunday
+    c.loc[c.index[-1], "received"] = c["received"].iloc[0]
+    with pytest.raises(InputError, match="week calendars"):
+        border_risk(c, units, graph, as_of="2026-03-30")
+
+
+# --- invariants on random outbreaks -------------------------------------------------------
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=25, deadline=None)
+@given(
+    seed=st.integers(0, 2**32 - 1),
+    horizon=st.integers(1, 4),
+    cut=st.integers(3, 12),
+)
+def test_invariants_on_random_outbreaks(seed, horizon, cut):
+    rng = np.random.default_rng(seed)
+    units, graph = _risksim.grid_region(5, 4, seed=seed % 1000, stripe=2)
+    weeks = pd.date_range("2026-01-05", periods=14, freq="7D")
+    ids = units.index.to_numpy()
+    cases = rng.poisson(rng.gamma(0.3, 2.0, (len(ids), 1)) * np.ones(14)) * (
+        rng.random((len(ids), 14)) < 0.6
+    )
+    keep = rng.random((len(ids), 14)) < 0.9  # some unit-weeks never reported
+    uu, ww = np.nonzero(keep)
+    counts = pd.DataFrame(
+        {
+            "unit_id": ids[uu],
+            "week": weeks[ww],
+            "cases": pd.array(cases[uu, ww], dtype="Int64"),
+            "received": weeks[ww] + pd.to_timedelta(rng.integers(5, 30, len(uu)), unit="D"),
+        }
+    )
+    as_of = weeks[cut] + pd.Timedelta(days=9)
+    r = border_risk(counts, units, graph, as_of=as_of, horizon_weeks=horizon, min_events=3)
+    if r.empty:
+        return
+    assert r["probability"].between(0, 1).all()
+    assert sorted(r["rank"]) == list(range(1, len(r) + 1))
+    eta = r.attrs["baseline"] + r[PARTS].sum(axis=1)
+    np.testing.assert_allclose(_hazard.inverse_cloglog(eta.to_numpy()), r["probability"])
+    assert (r["cross_share"].between(0, 1)).all()
+    assert (r["distance_km"] >= 0).all() and np.isfinite(r["distance_km"]).all()
+    # Reports received after as_of never matter.
+    late = counts.assign(cases=pd.array(rng.integers(0, 99, len(counts)), dtype="Int64"))
+    late["received"] = as_of + pd.Timedelta(days=1)
+    r2 = border_risk(
+        pd.concat([counts, late]), units, graph, as_of=as_of, horizon_weeks=horizon, min_events=3
+    )
+    pd.testing.assert_frame_equal(r, r2)
