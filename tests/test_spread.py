@@ -151,6 +151,7 @@ def test_episodes_several_units_vectorised():
         ({"min_cases": 1.5}, "min_cases"),
         ({"confirm": (3, 2)}, "confirm"),
         ({"confirm": "2 of 3"}, "confirm"),
+        ({"confirm": "23"}, "confirm"),
         ({"reintroduction_weeks": 0}, "reintroduction_weeks"),
     ],
 )
@@ -165,6 +166,11 @@ def test_weeks_from_two_calendars_are_refused():
     extra = c.assign(week=c["week"] - pd.Timedelta(days=1), unit_id="b")
     with pytest.raises(ValueError, match="whole weeks"):
         first_cases(pd.concat([c, extra], ignore_index=True))
+
+
+def test_numpy_integers_are_accepted():
+    c = _counts([("a", 0, 1, 7), ("a", 1, 2, 7)])
+    assert first_cases(c, min_cases=np.int64(2))["a"] == _wk(1)
 
 
 def test_empty_counts():
@@ -506,3 +512,32 @@ def test_first_cases_equal_a_literal_reading_of_the_rule(rows, k, extra, min_cas
     want = _naive_first(as_of(c, date), min_cases, confirm).reindex(got.index)
     assert got.isna().tolist() == want.isna().tolist()
     assert (got.dropna() == want.dropna()).all()
+
+
+def _naive_episode_starts(view, quiet_weeks):
+    """Per unit, walk the weeks in order: a positive week after >= quiet_weeks reported zero
+    weeks since the previous positive week opens a new episode."""
+    out = {}
+    for unit, g in view.sort_values("week").groupby("unit_id"):
+        starts, quiet, seen = [], 0, False
+        for w, cases in zip(g["week"], g["cases"], strict=True):
+            if cases >= 1:
+                if not seen or quiet >= quiet_weeks:
+                    starts.append(w)
+                seen, quiet = True, 0
+            else:
+                quiet += 1
+        if starts:
+            out[unit] = starts
+    return out
+
+
+@settings(max_examples=60, deadline=None)
+@given(rows=_rows, quiet_weeks=st.integers(1, 4))
+def test_episodes_equal_a_literal_reading_of_the_rule(rows, quiet_weeks):
+    from marchland.reports import as_of
+
+    c = _counts(rows)
+    ep = affected_episodes(c, reintroduction_weeks=quiet_weeks)
+    got = {u: g["start"].tolist() for u, g in ep.groupby("unit_id")}
+    assert got == _naive_episode_starts(as_of(c), quiet_weeks)
