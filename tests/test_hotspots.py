@@ -292,3 +292,51 @@ def test_plain_graph_ids_and_islands_kept():
     res = local_moran(pd.Series([1.0, 5.0, 2.0, 3.0], index=list("dcba")), g, permutations=9)
     assert list(res.index) == list(g.unique_ids)
     assert res.loc["d", "label"] == NO_NEIGHBOURS
+
+
+# --- the demo scenario: the simulated hot area is found --------------------------------------
+@pytest.fixture(scope="module")
+def demo_region():
+    import warnings
+
+    from marchland.demo import scenario_path
+    from marchland.region import open_region
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the demo's deliberate input problems warn
+        region = open_region(scenario_path())
+        _ = region.graph
+    return region
+
+
+def test_demo_hot_area_is_high_high_in_its_hot_months(demo_region):
+    # Run as the monthly run does (its as-of date, seed, permutations, FDR and weighting).
+    # The first hot month is the onset: the raised transmission starts on its first day and
+    # the counts known 3 days after month end do not yet make a cluster at FDR 0.05, so the
+    # check starts with the second hot month (and records the onset month's q-values).
+    from marchland.demo import scenario_path
+    from marchland.monthly import default_as_of
+    from marchland.rates import window_counts
+
+    region, cfg = demo_region, demo_region.config
+    truth = pd.read_csv(scenario_path().parent / "truth" / "hot.csv")
+    pop = region.units["population"].astype(float)
+    area = sorted(set(truth["unit_id"]))
+    near = set(area) | set(region.graph.edges.loc[region.graph.edges["focal"].isin(area),
+                                                  "neighbor"])  # fmt: skip
+    months = sorted(truth["month"].unique())
+    assert len(months) >= 3
+    found = []
+    for month in months[1:]:
+        wc = window_counts(region.counts, default_as_of(cfg, month), windows_weeks=(),
+                           month=month, units=region.units.index)  # fmt: skip
+        res = hotspots(wc["cases"]["month"], pop, region.graph,
+                       permutations=cfg.analysis.permutations, seed=cfg.region.seed,
+                       fdr=cfg.analysis.fdr, weighting=cfg.graph.weighting)  # fmt: skip
+        hot = truth.loc[truth["month"] == month, "unit_id"]
+        is_hh = res.loc[hot, "label"] == "High-High"
+        assert is_hh.mean() >= 0.5, (month, res.loc[hot, ["label", "q"]])
+        # and the High-High units of a hot month are the hot area or its neighbours
+        assert set(res.index[res["label"] == "High-High"]) <= near, month
+        found.append(is_hh)
+    assert pd.concat(found).mean() >= 0.7
