@@ -313,3 +313,26 @@ def test_tavrenne_files_carry_late_rows_and_corrections():
     month_of_week = t["week_start"].str[:7]
     month_of_file = t["file"].str[11:18]
     assert (month_of_file > month_of_week).sum() > (versions > 1).sum()
+
+
+def test_ids_counts_and_connected_provinces():
+    districts = pd.read_csv(TRUTH / "districts.csv", index_col="unit_id")
+    assert districts.index.str.fullmatch(r"(TVR|OSK|MRW|QLN)-\d{2}-\d{2}").all()
+    assert (districts.index.str[:6] == districts["province_id"]).all()
+    counts = districts["country"].value_counts().to_dict()
+    assert counts == {"TVR": 80, "OSK": 60, "MRW": 60, "QLN": 50}
+    per_country = districts.groupby("country")["province_id"].nunique()
+    assert per_country.between(5, 10).all()
+    assert districts["name"].is_unique
+    # Provinces are contiguous on land (the island belongs to a shore province).
+    adj = pd.read_csv(TRUTH / "adjacency.csv")
+    same = adj[adj["a"].str[:6] == adj["b"].str[:6]]
+    land = districts[~districts["island"]]
+    for prov, members in land.groupby("province_id").groups.items():
+        members = set(members)
+        reached, frontier = set(), {next(iter(members))}
+        while frontier:
+            reached |= frontier
+            step = same[same["a"].isin(frontier) | same["b"].isin(frontier)]
+            frontier = (set(step["a"]) | set(step["b"])) & members - reached
+        assert reached == members, prov

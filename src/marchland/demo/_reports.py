@@ -111,7 +111,8 @@ def write_tvr(sc, cases, deaths, folder: Path, rng, dirt) -> dict:
     code = cand[0]
     t0 = rep[code] - 1
     row = frame[(frame["code"] == code) & (frame["t"] == t0)].copy()
-    assert int(row["cases"].iloc[0]) == 0
+    if int(row["cases"].iloc[0]) != 0:  # pragma: no cover - follows from how t0 is chosen
+        raise RuntimeError("the week before the first reported case is not a zero")
     row["file"] = row["month"] + 2
     row["cases"], row["deaths"] = 2, 0
     pick = pd.concat([pick, row])
