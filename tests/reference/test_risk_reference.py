@@ -21,7 +21,8 @@ from statsmodels.genmod.families.links import CLogLog
 
 from marchland import _hazard, _risksim
 from marchland import _riskfeatures as rf
-from marchland.risk import _panel_at, _risk_sets, fit_risk_model
+from marchland._riskmodel import _panel_at, _risk_sets
+from marchland.risk import fit_risk_model
 
 RTOL = 1e-6
 
