@@ -187,11 +187,17 @@ def test_outbreak_truth_is_consistent():
     assert (inc["deaths"] <= inc["cases"]).all()
     cfr = inc["deaths"].sum() / inc["cases"].sum()
     assert 0.01 <= cfr <= 0.03
+    # Deaths are likelier where care is poor.
+    tot = inc.groupby("unit_id")[["cases", "deaths"]].sum()
+    tot = tot[tot["cases"] >= 200]
+    assert np.corrcoef(tot["deaths"] / tot["cases"], districts.loc[tot.index, "care"])[0, 1] < -0.3
     observed = inc[inc["cases"] > 0].groupby("unit_id")["week"].min()
     assert first.set_index("unit_id")["week"].sort_index().equals(observed.sort_index())
     assert len(observed) < 250, "some districts stay unaffected"
     seeds = first[first["seeded_by"] == ""]
-    assert len(seeds) >= 1 and seeds["week"].min() == inc["week"].min()
+    assert len(seeds) == 1 and seeds["week"].iloc[0] == inc["week"].min()
+    assert seeds["unit_id"].iloc[0].startswith("TVR")
+    assert districts.loc[seeds["unit_id"].iloc[0], "river"]
     # Every seeding district is a true neighbour or linked, and was affected earlier.
     adj = pd.read_csv(TRUTH / "adjacency.csv")
     links = pd.read_csv(DATA / "links.csv")
