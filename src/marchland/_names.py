@@ -8,6 +8,7 @@ matches several units at the first step that finds it is ambiguous, never resolv
 
 from __future__ import annotations
 
+import functools
 import re
 import unicodedata
 from dataclasses import dataclass
@@ -54,11 +55,16 @@ def normalise(name: str, strip_words: tuple[str, ...] = ()) -> str:
     words = [ABBREVIATIONS.get(w, w) for w in s.split()]
     s = " ".join(words)
     if strip_words:
-        folded = sorted({normalise(w) for w in strip_words if w.strip()}, key=len, reverse=True)
-        pattern = r"\b(?:" + "|".join(re.escape(w) for w in folded) + r")\b"
-        stripped = " ".join(re.sub(pattern, " ", s).split())
+        stripped = " ".join(_strip_pattern(tuple(strip_words)).sub(" ", s).split())
         s = stripped or s  # a name that is only a stripped word keeps it
     return s
+
+
+@functools.lru_cache(maxsize=32)
+def _strip_pattern(words: tuple[str, ...]) -> re.Pattern:
+    # Longest first, so "district of" goes before "district".
+    folded = sorted({normalise(w) for w in words if w.strip()}, key=len, reverse=True)
+    return re.compile(r"\b(?:" + "|".join(re.escape(w) for w in folded) + r")\b")
 
 
 @dataclass(frozen=True)

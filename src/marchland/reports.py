@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from ._names import Matcher
-from ._parse import blank_rows, dates, read_tables, require_columns, text, whole_numbers
+from ._parse import dates, read_tables, require_columns, text, whole_numbers
 from ._weeks import convert_weeks, epi_week, from_year_week, parse_year_week, week_start
 from .errors import DataWarning, InputError
 
@@ -200,9 +200,10 @@ def _flag(df: pd.DataFrame, mask, reason: str, column: str | None, value=None) -
 
 
 def _get(frame: pd.DataFrame, col: str | None) -> pd.Series:
+    """Return a column of the stripped table (all <NA> when the source has no such column)."""
     if col is None:
         return pd.Series(pd.NA, index=range(len(frame)), dtype="string")
-    return text(frame[col]).reset_index(drop=True)
+    return frame[col]
 
 
 def _dates_lenient(s: pd.Series, fmt: str | None) -> pd.Series:
@@ -235,6 +236,8 @@ def _parse_table(
     )
     wanted = {f: getattr(c, f) for f in fields if getattr(c, f)}
     frame = require_columns(frame, wanted, file, sheet, key).reset_index(drop=True)
+    # Every cell as stripped text once; blanks become <NA>.
+    frame = frame.apply(text) if frame.shape[1] else frame
     n = len(frame)
     df = pd.DataFrame({"file": file.name, "sheet": sheet, "row": np.arange(1, n + 1)})
     df["reason"] = pd.Series([None] * n, dtype=object)
@@ -242,7 +245,8 @@ def _parse_table(
     df["value"] = ""
     df["place"] = _get(frame, c.place)
     df["code"] = _get(frame, c.code)
-    _flag(df, blank_rows(frame), "blank", "")
+    empty = frame.isna().all(axis=1).to_numpy() if frame.shape[1] else np.ones(n, dtype=bool)
+    _flag(df, empty, "blank", "")
     _flag(df, df["place"].isna() & df["code"].isna(), "missing-value", c.place or c.code)
     linelist = spec.shape == "linelist"
     if linelist:
@@ -306,9 +310,7 @@ def _parse_table(
         if c.outcome:
             died = {v.casefold().strip() for v in spec.died_values}
             df["died"] = _get(frame, c.outcome).str.casefold().isin(died).fillna(False).to_numpy()
-        df["_key"] = pd.util.hash_pandas_object(
-            frame.astype("string").fillna(""), index=False
-        ).to_numpy()
+        df["_key"] = pd.util.hash_pandas_object(frame.fillna(""), index=False).to_numpy()
     return df
 
 
