@@ -272,3 +272,36 @@ def test_counts_that_cannot_be_placed(files: dict[str, Path]) -> None:
         warnings.simplefilter("error")
         with pytest.raises(InputError, match="not an analysis unit"):
             counts_to_analysis(counts, u, a)
+
+
+def test_units_from_config(files: dict[str, Path]) -> None:
+    from marchland.config import config_from_dict
+    from marchland.units import units_from_config
+
+    raw = {
+        "region": {"crs": "EPSG:3035"},
+        "boundaries": [
+            {
+                "path": str(files["tvr1"]),
+                "id": "code",
+                "name": "name",
+                "country": "TVR",
+                "level": 1,
+                "layer": "tvr_adm1",
+            },
+            {
+                "path": str(files["tvr2"]),
+                "id": "code",
+                "name": "name",
+                "country": "TVR",
+                "level": 2,
+                "parent": "prov_code",
+            },
+        ],
+    }
+    u = units_from_config(config_from_dict(raw))
+    assert u.crs.to_epsg() == 3035
+    assert u["level"].tolist() == [1, 2, 2, 2]
+    raw["boundaries"][0]["layer"] = "no_such_layer"
+    with pytest.raises(InputError, match="tvr_adm1.gpkg"):
+        units_from_config(config_from_dict(raw))

@@ -57,13 +57,6 @@ def text(s: pd.Series) -> pd.Series:
     return out.mask(out == "")
 
 
-def blank_rows(frame: pd.DataFrame) -> np.ndarray:
-    """Rows whose every cell is empty."""
-    if frame.shape[1] == 0:
-        return np.ones(len(frame), dtype=bool)
-    return frame.apply(text).isna().all(axis=1).to_numpy()
-
-
 def dates(s: pd.Series, fmt: str | None = None) -> pd.Series:
     """Parse dates: ``fmt`` if given, else ISO 8601 then common day-first forms; NaT if not."""
     t = text(s)
