@@ -464,11 +464,11 @@ def choose_depots(
     The maximal covering location problem (Church & ReVelle 1974), built by spopt and solved by
     its bundled CBC: open the existing sites plus ``k`` more so that the total weight of
     candidate districts whose centre lies within ``reach_km`` of an open depot is largest. A
-    district weighs probability x population. Distance is the straight line from the site to the
-    district's centroid in the working equal-area CRS, or, with ``distance="graph"``, the way
-    through the unit graph: straight to the centre of the unit the site lies in (or nearest
-    to), then from centre to centre along graph edges, so a lake or a closed stretch of border
-    without a link is gone around. Neither is road travel time.
+    district weighs probability x population (0 without either). Distance is the straight
+    line from the site to the district's centroid in the working equal-area CRS, or, with
+    ``distance="graph"``, the way through the unit graph: straight to the centre of the unit
+    the site lies in (or nearest to), then from centre to centre along graph edges, so a lake
+    or a closed stretch of border without a link is gone around. Neither is road travel time.
 
     Parameters
     ----------
