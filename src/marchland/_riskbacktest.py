@@ -159,21 +159,24 @@ def run(
     slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
     if as_of is not None:
         slim = slim[slim["received"] <= pd.Timestamp(as_of)]
+    unknown = ~slim["unit_id"].isin(static.ids)
+    if unknown.any():
+        raise InputError(
+            "counts name units that are not analysis units of the graph; aggregate counts to "
+            "the analysis units first",
+            column="unit_id",
+            value=slim["unit_id"].to_numpy()[unknown.to_numpy()][0],
+        )
+    # Unit ids as categories of the graph's ids: the as-of view at every origin sorts by unit,
+    # and sorting category codes is several times faster than sorting strings.
+    slim = slim.assign(unit_id=pd.Categorical(slim["unit_id"], categories=static.ids))
     final = _as_of_view(slim, None)
     empty = _backtest(_empty_predictions(), top_k, horizon_weeks)
     if final.empty:
         return empty
     grid = rf.week_grid(final["week"].min(), final["week"].max())
     final_panel_cases = np.zeros((len(static.ids), len(grid)))
-    ui = static.ids.get_indexer(final["unit_id"])
-    if (ui < 0).any():
-        bad = final["unit_id"].to_numpy()[ui < 0][0]
-        raise InputError(
-            "counts name units that are not analysis units of the graph; aggregate counts to "
-            "the analysis units first",
-            column="unit_id",
-            value=bad,
-        )
+    ui = final["unit_id"].cat.codes.to_numpy()
     c = pd.to_numeric(final["cases"], errors="coerce").fillna(0).to_numpy(dtype=float)
     np.add.at(final_panel_cases, (ui, grid.get_indexer(final["week"])), c)
     pos = final_panel_cases >= min_cases
