@@ -670,5 +670,13 @@ def config_from_dict(raw: dict, base_dir: str | os.PathLike[str] = ".") -> Confi
     """Validate a configuration given as a dict (as ``tomllib`` would return it).
 
     Relative paths resolve against ``base_dir``. Useful in notebooks and tests.
+
+    Examples
+    --------
+    >>> from marchland.demo import scenario_path
+    >>> import tomllib
+    >>> raw = tomllib.loads(scenario_path().read_text())
+    >>> config_from_dict(raw, scenario_path().parent).reports[0].country
+    'TVR'
     """
     return _from_dict(raw, None, Path(base_dir).resolve())

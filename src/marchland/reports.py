@@ -514,6 +514,20 @@ def reporting_completeness(
     -------
     (by_unit, by_country) : tuple of pandas.DataFrame
         As ``Reports.completeness`` and ``Reports.completeness_by_country``.
+
+    Examples
+    --------
+    >>> from marchland.config import ReportSpec
+    >>> units = pd.DataFrame({"country": "QLN", "level": 2},
+    ...                      index=pd.Index(["QLN-01-01", "QLN-01-02"], name="unit_id"))
+    >>> counts = pd.DataFrame({"unit_id": ["QLN-01-01", "QLN-01-01", "QLN-01-02"],
+    ...                        "week": pd.to_datetime(["2026-01-05", "2026-01-19", "2026-01-19"]),
+    ...                        "received": pd.to_datetime(["2026-01-09", "2026-01-23",
+    ...                                                    "2026-01-23"])})
+    >>> spec = ReportSpec(name="q", path="", files=(), country="QLN")
+    >>> unit, country = reporting_completeness(counts, units, [spec])
+    >>> unit["share"].round(2).tolist(), int(country.loc["QLN", "gap_weeks"])
+    ([0.67, 0.33], 1)
     """
     levels = pd.DataFrame([(s.country, s.level) for s in specs], columns=["country", "level"])
     exp = units.reset_index().merge(levels.drop_duplicates(), on=["country", "level"])

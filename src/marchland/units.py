@@ -382,7 +382,24 @@ def _check_hierarchy(units: gpd.GeoDataFrame) -> None:
 
 
 def units_from_config(config: Config | str | os.PathLike[str]) -> gpd.GeoDataFrame:
-    """Read every ``[[boundaries]]`` table of a config, each with its own column mapping."""
+    """Read every ``[[boundaries]]`` table of a config, each with its own column mapping.
+
+    Parameters
+    ----------
+    config : Config or path
+
+    Returns
+    -------
+    geopandas.GeoDataFrame
+        As :func:`read_units`, in ``[region] crs`` or the default equal-area CRS.
+
+    Examples
+    --------
+    >>> from marchland.demo import scenario_path
+    >>> u = units_from_config(scenario_path())
+    >>> u.groupby("country").size().to_dict()
+    {'MRW': 66, 'OSK': 66, 'QLN': 55, 'TVR': 88}
+    """
     from .config import load_config
 
     cfg = load_config(config)
@@ -406,6 +423,13 @@ def analysis_levels(units: pd.DataFrame, counts: pd.DataFrame) -> pd.Series:
     The finest level at which every count of the country can be placed: 2 when it reports only
     districts, 1 when it reports provinces (any district rows are then summed into their
     provinces). A country with no counts is analysed at the finest level it has.
+
+    Examples
+    --------
+    >>> u = pd.DataFrame({"country": ["OSK", "OSK", "TVR", "TVR"], "level": [1, 2, 1, 2]},
+    ...                  index=["OSK-01", "OSK-01-01", "TVR-01", "TVR-01-01"])
+    >>> analysis_levels(u, pd.DataFrame({"unit_id": ["OSK-01", "TVR-01-01"]})).to_dict()
+    {'OSK': 1, 'TVR': 2}
     """
     finest = units.groupby("country")["level"].max()
     lev = units["level"].reindex(pd.Index(counts["unit_id"].unique()))
@@ -466,7 +490,14 @@ def analysis_units(units: gpd.GeoDataFrame, counts: pd.DataFrame) -> gpd.GeoData
 
 
 def to_analysis_ids(ids: pd.Series, units: pd.DataFrame, analysis: pd.DataFrame) -> pd.Series:
-    """Map unit ids to the analysis unit each belongs to (itself or its province); NaN if none."""
+    """Map unit ids to the analysis unit each belongs to (itself or its province); NaN if none.
+
+    Examples
+    --------
+    >>> u = pd.DataFrame({"parent_id": [None, "P"]}, index=["P", "d"])
+    >>> to_analysis_ids(pd.Series(["d", "P", "x"]), u, u.loc[["P"]]).tolist()
+    ['P', 'P', nan]
+    """
     ids = pd.Series(ids)
     direct = ids.where(ids.isin(analysis.index))
     parent = ids.map(units["parent_id"])
@@ -495,6 +526,18 @@ def counts_to_analysis(
     pandas.DataFrame
         Counts on analysis unit ids, every version kept. Counts whose unit is coarser than
         its analysis unit (cannot be placed) raise an :class:`InputError`.
+
+    Examples
+    --------
+    >>> u = pd.DataFrame({"parent_id": [None, "P", "P"]}, index=["P", "a", "b"])
+    >>> c = pd.DataFrame({"unit_id": ["a", "b", "a"], "week": pd.Timestamp("2026-01-05"),
+    ...                   "cases": pd.array([2, 3, 4], dtype="Int64"),
+    ...                   "deaths": pd.array([0, 0, 1], dtype="Int64"),
+    ...                   "received": pd.to_datetime(["2026-01-12", "2026-01-12", "2026-01-19"]),
+    ...                   "source": "s", "row": [1, 2, 3]})
+    >>> moved = counts_to_analysis(c, u, u.loc[["P"]])
+    >>> moved[["unit_id", "cases", "received"]].astype(str).values.tolist()
+    [['P', '5', '2026-01-12'], ['P', '7', '2026-01-19']]
     """
     aid = to_analysis_ids(counts["unit_id"], units, analysis)
     if aid.isna().any():
