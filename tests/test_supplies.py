@@ -691,3 +691,19 @@ def test_demo_k_zero_uses_existing_depots_only(demo):
     assert set(out.index) == set(sites.index[sites["existing"]])
     assign = assign_depots(pri, out, units=region.units)
     assert set(assign["depot"]) <= set(out.index)
+
+
+def test_site_geodataframe_checks():
+    units, sites = _line_instance()
+    as_text = sites.assign(existing=["yes", "no", "", "no"])
+    out = choose_depots(units, as_text, k=1, reach_km=60)
+    assert set(out.index) == {"S0", "S2"}
+    with pytest.raises(InputError) as info:
+        choose_depots(units, sites.assign(existing=["yes", "maybe", "", ""]), k=1, reach_km=60)
+    assert (info.value.row, info.value.column) == (2, "existing")
+    areas = sites.set_geometry(sites.buffer(100.0))
+    with pytest.raises(InputError, match="points"):
+        choose_depots(units, areas, k=1, reach_km=60)
+    # sites in another CRS are reprojected, not refused
+    out = choose_depots(units, sites.to_crs("EPSG:4326"), k=1, reach_km=60)
+    assert set(out.index) == {"S0", "S2"}

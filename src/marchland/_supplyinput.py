@@ -206,18 +206,7 @@ def _depots_from_frame(frame: pd.DataFrame, crs: Any, *, file: str | None) -> gp
         coords[col] = values
     existing = np.zeros(n, dtype=bool)
     if "existing" in frame.columns:
-        raw = frame["existing"].map(lambda v: str(v).strip().lower() if pd.notna(v) else "")
-        known = raw.isin(_TRUE | _FALSE).to_numpy()
-        if not known.all():
-            i = int(np.flatnonzero(~known)[0])
-            raise InputError(
-                "'existing' needs to be yes/no (true/false, 1/0, or empty for no)",
-                file=file,
-                row=int(rows[i]),
-                column="existing",
-                value=frame["existing"].iloc[i],
-            )
-        existing = raw.isin(_TRUE).to_numpy()
+        existing = _parse_existing(frame["existing"], rows, file=file)
     points = gpd.GeoSeries.from_xy(coords["lon"], coords["lat"], crs="EPSG:4326")
     out = gpd.GeoDataFrame(
         {
@@ -233,6 +222,24 @@ def _depots_from_frame(frame: pd.DataFrame, crs: Any, *, file: str | None) -> gp
         index=pd.Index(site.to_numpy(), name="site"),
     )
     return out
+
+
+def _parse_existing(values: pd.Series, rows: np.ndarray, *, file: str | None) -> np.ndarray:
+    """Yes/no cells (true/false, yes/no, 1/0, empty = no) as booleans."""
+    if pd.api.types.is_bool_dtype(values):
+        return values.to_numpy(dtype=bool)
+    raw = values.map(lambda v: str(v).strip().lower() if pd.notna(v) else "")
+    known = raw.isin(_TRUE | _FALSE).to_numpy()
+    if not known.all():
+        i = int(np.flatnonzero(~known)[0])
+        raise InputError(
+            "'existing' needs to be yes/no (true/false, 1/0, or empty for no)",
+            file=file,
+            row=int(rows[i]),
+            column="existing",
+            value=values.iloc[i],
+        )
+    return raw.isin(_TRUE).to_numpy()
 
 
 def _check_metric(crs: Any, what: str) -> None:
@@ -298,8 +305,19 @@ def _sites(sites: pd.DataFrame, crs: Any) -> gpd.GeoDataFrame:
         return _depots_from_frame(frame, crs, file=None)
     if sites.crs is None:
         raise InputError("the depot sites need a CRS")
+    not_point = sites.geom_type.to_numpy() != "Point"
+    if not_point.any():
+        i = int(np.flatnonzero(not_point)[0])
+        raise InputError(
+            f"depot sites need to be points; site {sites.index[i]!r} is a "
+            f"{sites.geom_type.iloc[i]}",
+            column="geometry",
+        )
     out = sites.to_crs(crs) if sites.crs != crs else sites.copy()
-    if "existing" not in out.columns:
+    rows = out["row"].to_numpy() if "row" in out.columns else np.arange(1, len(out) + 1)
+    if "existing" in out.columns:
+        out["existing"] = _parse_existing(out["existing"], rows, file=None)
+    else:
         out["existing"] = False
     if "name" not in out.columns:
         out["name"] = out.index.astype(str)
