@@ -367,9 +367,11 @@ def test_velocity_result_shape_and_groups():
     first = _first(units, [i // 2 for i in range(12)])  # 20 km per week eastwards
     v = spread_velocity(first, units, groups="country", seed=1)
     assert isinstance(v, Velocity)
-    assert list(v.by_method.columns[:5]) == ["km_per_week", "lower", "upper", "n_units", "method"]
+    assert v.by_method.columns.tolist() == ["km_per_week", "lower", "upper", "n_units", "note"]
+    assert v.by_method.index.name == "method"
     assert set(v.by_method.index) == {"trend_surface", "distance_regression"}
     assert v.by_group.index.names == ["group", "method"]
+    assert v.by_group.columns.tolist() == v.by_method.columns.tolist()
     assert set(v.by_group.index.get_level_values("group")) == {"AAA", "BBB"}
     assert v.by_group.loc[("AAA", "distance_regression"), "n_units"] == 6
     corridors = spread_velocity(first, units, groups={"east": units.index[6:]}, seed=1)

@@ -171,12 +171,7 @@ def estimate(
             sel = cent.index.isin(members) & affected
             part = velocity_table(xy[sel], weeks[sel], origin_xy, **opts)
             parts.append(part.assign(group=name))
-        by_group = (
-            pd.concat(parts)
-            .reset_index(drop=True)
-            .set_index(["group", "method"], drop=False)
-            .drop(columns="group")
-        )
+        by_group = pd.concat(parts).reset_index().set_index(["group", "method"])
     return table, by_group
 
 
@@ -188,7 +183,8 @@ def velocity_table(xy, t_weeks, origin_xy, *, degree, conf, draws, rng) -> pd.Da
         trend_surface(x, y, t_weeks, degree=degree, conf=conf, draws=draws, rng=rng),
         distance_regression(d, t_weeks, conf=conf),
     ]
-    return pd.DataFrame(rows, columns=list(VELOCITY_COLUMNS)).set_index("method", drop=False)
+    # The method is the index (one key, one place): a CSV of the table has no repeated column.
+    return pd.DataFrame(rows, columns=list(VELOCITY_COLUMNS)).set_index("method")
 
 
 def groups_of(groups, units: gpd.GeoDataFrame) -> dict:

@@ -510,9 +510,9 @@ class Velocity:
     """Speed of spread in km per week, with its interval, from one method (the headline).
 
     ``by_method`` holds every method's estimate (index ``method``; columns ``km_per_week
-    lower upper n_units method note``); ``by_group`` the same per group and method when
-    groups were asked for (index ``group``, ``method``), else ``None``. ``conf`` is the
-    interval's confidence level.
+    lower upper n_units note``, ``note`` saying how it was fitted or why it is NaN);
+    ``by_group`` the same per group and method when groups were asked for (index ``group``,
+    ``method``), else ``None``. ``conf`` is the interval's confidence level.
     """
 
     km_per_week: float
