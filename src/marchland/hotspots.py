@@ -328,7 +328,7 @@ def hotspots(
     standardisation divides each rate's deviation from the region's rate by its expected
     standard error, so a small district with 2 cases no longer looks like a cluster on its
     own. Local Moran's I of those standardised rates is then tested as in
-    :func:`local_moran` (the same as esda's ``Moran_Local_Rate``).
+    :func:`local_moran` (esda's ``Moran_Local_Rate``, with ties handled as in the module notes).
 
     Parameters
     ----------
