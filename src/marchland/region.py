@@ -168,6 +168,9 @@ class CheckReport:
         Per country: units per level, the analysis level and population total.
     rejects : pandas.DataFrame
         Every rejected row (``source file sheet row column value reason candidates``).
+    notes : tuple of str
+        Warnings worth a person's attention that did not stop the reading (geometries
+        repaired, units only partly covered by the population raster).
     ok : bool
         False if any source could not be read at all.
     """
@@ -178,6 +181,7 @@ class CheckReport:
     completeness: pd.DataFrame
     units: pd.DataFrame
     rejects: pd.DataFrame
+    notes: tuple[str, ...]
     ok: bool
 
     def to_text(self) -> str:
@@ -198,6 +202,25 @@ class CheckReport:
             why = [f"{k} {int(r[k])}" for k in REASONS if r.get(k, 0)]
             if why:
                 lines.append(f"           rejected: {', '.join(why)}")
+        src = self.sources[self.sources["kind"] == "reports"]
+        if len(src):
+            lines.append(
+                f"All report sources: {int(src['rows_in'].sum())} rows read = "
+                f"{int(src['used'].sum())} used + {int(src['rejected'].sum())} rejected."
+            )
+        if len(self.rejects):
+            shown = self.rejects.head(_SHOW_REJECTS)
+            lines.append("Rejected rows:")
+            for r in shown.itertuples():  # at most _SHOW_REJECTS lines
+                where = f"{r.file}" + (f" sheet {r.sheet}" if r.sheet else "")
+                col = f", column {r.column!r}" if r.column else ""
+                val = f", value {r.value!r}" if r.value else ""
+                cand = f" (nearest: {r.candidates})" if r.candidates else ""
+                lines.append(f"  {where}, row {r.row}{col}{val}: {r.reason}{cand}")
+            if len(self.rejects) > len(shown):
+                lines.append(f"  ... and {len(self.rejects) - len(shown)} more")
+        for n in self.notes:
+            lines.append(f"Note: {n}")
         if len(self.fuzzy):
             lines.append("Fuzzy matches accepted (confirm them into the alias table):")
             for _, f in self.fuzzy.iterrows():
@@ -230,6 +253,8 @@ class CheckReport:
         )
         return "\n".join(lines)
 
+
+_SHOW_REJECTS = 30
 
 _SOURCE_COLUMNS = [
     "kind",
@@ -346,14 +371,6 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
     sources.index.name = "source"
     for c in ["rows_in", "used", "rejected", "fuzzy_matches", "weeks", *REASONS]:
         sources[c] = sources[c].fillna(0).astype(int)
-    if notes:
-        extra = pd.DataFrame(
-            [_row("warning", "", "ok", n) for n in notes],
-            index=pd.Index([f"warning {i + 1}" for i in range(len(notes))], name="source"),
-        ).reindex(columns=_SOURCE_COLUMNS)
-        sources = pd.concat([sources, extra])
-        for c in ["rows_in", "used", "rejected", "fuzzy_matches", "weeks", *REASONS]:
-            sources[c] = sources[c].fillna(0).astype(int)
     rep_sources = sources[sources["kind"] == "reports"]
     by_reason = rep_sources.loc[:, list(REASONS)]
     if parts:
@@ -390,5 +407,6 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
         completeness=completeness,
         units=unit_table,
         rejects=rejects,
+        notes=tuple(notes),
         ok=ok,
     )
