@@ -113,6 +113,10 @@ dir = "../o"
         ("[analysis]\nwindows_weeks=[4, 'x']\n", "analysis.windows_weeks[1]"),
         ("[analysis]\nfdr=1.5\n", "analysis.fdr"),
         ("[checks]\ndeaths_over_cases='drop'\n", "checks.deaths_over_cases"),
+        (
+            "[[reports]]\nname='b'\npath='rep_01.csv'\ncountry='X'\ndate_format='%Q'\n",
+            "reports[1].date_format",
+        ),
         ("[supplies]\nplanning_attack_rate={low=0.1, mid=0.01, high=0.2}\n", "planning_attack"),
         ("[supplies]\nplanning_attack_rate={lo=0.1}\n", "supplies.planning_attack_rate.lo"),
     ],

@@ -341,6 +341,23 @@ def _date(ctx: _Ctx, key: str, v: Any) -> _dt.date:
     raise ctx.error(key, f"needs to be a date (YYYY-MM-DD). {v!r} was given instead.")
 
 
+def _date_format(ctx: _Ctx, key: str, v: Any) -> str | None:
+    v = _opt_str(ctx, key, v)
+    if v is None:
+        return None
+    import pandas as pd
+
+    try:
+        pd.to_datetime(pd.Series(["2000-01-01"]), format=v, errors="coerce")
+    except ValueError as exc:
+        raise ctx.error(
+            key, f"is not a date format (strftime codes such as %d/%m/%Y): {exc}", value=v
+        ) from None
+    if "%" not in v:
+        raise ctx.error(key, "needs strftime codes such as %d/%m/%Y.", value=v)
+    return v
+
+
 def _crs(ctx: _Ctx, key: str, v: Any) -> str | None:
     v = _opt_str(ctx, key, v)
     if v is None:
@@ -454,7 +471,7 @@ def _report(ctx: _Ctx, key: str, raw: Any) -> ReportSpec:
         "week_format": _one_of(WEEK_FORMATS),
         "sheets": _str,
         "date_basis": _one_of(DATE_BASES),
-        "date_format": _opt_str,
+        "date_format": _date_format,
         "received_date": _date,
         "died_values": _list_of(_str),
         "columns": lambda c, k, v: v,  # checked below, with its own key path
