@@ -457,3 +457,34 @@ def test_only_blank_or_placeless_rows(units: pd.DataFrame, tmp_path: Path) -> No
     r = read_reports(spec(path, columns=cols), units, today=TODAY)
     assert r.rejects["reason"].tolist() == ["blank", "missing-value"]
     assert r.matches.empty and r.counts.empty
+
+
+GARBAGE = st.text(alphabet=st.sampled_from(list("abcAé,\"'\n\r\t ;0123456789-/W.x")), max_size=300)
+
+
+@settings(
+    max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(body=GARBAGE, header=st.booleans(), shape=st.sampled_from(["weekly", "linelist"]))
+def test_garbage_files_give_input_error_or_rejects(
+    tmp_path: Path, units: pd.DataFrame, body: str, header: bool, shape: str
+) -> None:
+    path = tmp_path / "g.csv"
+    head = "district,week_start,cases,received,onset\n" if header else ""
+    path.write_text(head + body, encoding="utf-8")
+    if shape == "weekly":
+        cols = dict(place="district", week="week_start", cases="cases", received="received")
+    else:
+        cols = dict(place="district", onset="onset", received="received")
+    try:
+        r = read_reports(spec(path, shape=shape, columns=cols), units, today=TODAY)
+    except InputError as exc:
+        assert "g.csv" in str(exc)
+        return
+    acct = r.accounting.loc["src"]
+    assert (
+        acct["rows_in"]
+        == acct["counted"] + acct["rejected"]
+        == len(pd.read_csv(path, dtype=str, keep_default_na=False, skip_blank_lines=False))
+    )
+    assert set(r.rejects["reason"]) <= set(REASONS)
