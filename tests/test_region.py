@@ -168,3 +168,25 @@ def test_bad_boundaries_are_input_errors(tmp_path: Path) -> None:
     assert not r.ok and "osk_adm2.geojson" in r.to_text()
     with pytest.raises(InputError, match="osk_adm2.geojson"):
         open_region(load_config(tmp_path / "demo_data" / "scenario.toml"))
+
+
+def test_week_conventions_line_up_with_the_simulated_truth(region: Region) -> None:
+    # The demo's true weekly incidence (ISO weeks): each country's reports, read through its
+    # own week convention (Monday dates, "YYYY-Www", Sunday year + week, onset dates), line up
+    # with it at lag 0 better than one week early or late.
+    truth = pd.read_csv(ROOT / "demo_data" / "truth" / "incidence.csv", parse_dates=["week"])
+    truth["unit_id"] = truth["unit_id"].map(
+        lambda u: u if u in region.units.index else region.all_units.at[u, "parent_id"]
+    )
+    truth = truth.groupby(["unit_id", "week"], as_index=False)["cases"].sum()
+    got = as_of(region.counts)
+    country = region.units["country"]
+    for c in sorted(set(country)):
+        corr = {}
+        for lag in (-1, 0, 1):
+            t = truth.assign(week=truth["week"] + pd.Timedelta(weeks=lag))
+            m = got[got["unit_id"].map(country) == c].merge(
+                t, on=["unit_id", "week"], suffixes=("", "_true")
+            )
+            corr[lag] = m["cases"].astype(float).corr(m["cases_true"].astype(float))
+        assert corr[0] > max(corr[-1], corr[1]), (c, corr)
