@@ -222,6 +222,18 @@ def test_reintroduction_window_makes_quiet_units_candidates():
     assert "a" in r3.index
 
 
+def test_candidate_of_unknown_population_is_shown_but_not_scored():
+    counts, units, graph = example()
+    u = units.copy()
+    u.loc["c", "population"] = np.nan
+    r = border_risk(counts, u, graph, as_of="2026-03-30", horizon_weeks=2)
+    assert r.index.tolist() == ["d", "c"]
+    assert np.isnan(r.loc["c", "probability"]) and pd.isna(r.loc["c", "rank"])
+    assert r.loc["c", "note"] == "population unknown: not scored"
+    assert r.loc["d", "rank"] == 1 and r.loc["d", "note"] == ""
+    assert r.attrs["expected_new_units"] == pytest.approx(r.loc["d", "probability"])
+
+
 def test_covariates_become_features():
     counts, units, graph = example()
     cov = pd.DataFrame({"water_access": [0.2, 0.4, 0.9, 0.1, 0.5]}, index=units.index)
@@ -255,7 +267,7 @@ def test_bad_options(kwargs, match):
 def test_bad_inputs_are_input_errors():
     counts, units, graph = example()
     u = units.copy()
-    u.loc["c", "population"] = np.nan
+    u.loc["b", "population"] = np.nan  # b has cases: no incidence without a population
     with pytest.raises(InputError, match="population"):
         border_risk(counts, u, graph, as_of="2026-03-30")
     c = counts.copy()

@@ -105,6 +105,9 @@ def _origins_task(
             continue
         t0 = len(panel.weeks) - 1
         cand = np.flatnonzero(panel.at_risk[:, t0])
+        # Candidates of unknown population cannot be scored; they are left out of the test.
+        full = rf.matrix(panel, static.features, cand, np.full(len(cand), t0))
+        cand = cand[np.isfinite(full).all(axis=1)]
         if not len(cand):
             continue
         # What happened by t0 + h in the final data; cases reported late for weeks up to t0

@@ -39,7 +39,7 @@ class Static:
 
     ids: pd.Index
     country: np.ndarray
-    population: np.ndarray
+    population: np.ndarray  # NaN where unknown or not positive
     a1: sparse.csr_matrix  # binary first-order neighbours, links included
     reach: sparse.csr_matrix  # binary, within two steps (first or second order)
     reach_cross: sparse.csr_matrix  # reach kept where the two units' countries differ
@@ -79,14 +79,9 @@ def build_static(units, graph, covariates: pd.DataFrame | None = None) -> Static
         )
     u = units.loc[ids]
     pop = pd.to_numeric(u["population"], errors="coerce").to_numpy(dtype=float)
-    bad = ~(np.isfinite(pop) & (pop > 0))
-    if bad.any():
-        raise InputError(
-            "border risk needs a population > 0 for every unit (incidence per 100,000); "
-            f"missing or not positive for {list(ids[bad][:5])}",
-            column="population",
-            value=ids[bad][0],
-        )
+    # Units without a usable population stay in the graph; build_panel refuses them only if
+    # they have cases (no incidence without a denominator) and they are shown but not scored.
+    pop = np.where(np.isfinite(pop) & (pop > 0), pop, np.nan)
     n = len(ids)
     e = g.edges
     fi = ids.get_indexer(e["focal"])
@@ -238,8 +233,18 @@ def build_panel(
     t = np.arange(nt)
     affected = fwi[:, None] <= t[None, :]
 
+    known = np.isfinite(static.population)
+    no_pop = ~known & (cases > 0).any(axis=1)
+    if no_pop.any():
+        raise InputError(
+            "border risk needs a population > 0 for every unit with cases (incidence per "
+            f"100,000); missing or not positive for {list(static.ids[no_pop][:5])}",
+            column="population",
+            value=static.ids[no_pop][0],
+        )
+    pop = np.where(known, static.population, 1.0)
     recent = _rolling(cases, recent_weeks)
-    inc = recent / static.population[:, None] * 1e5
+    inc = recent / pop[:, None] * 1e5
     near_raw = static.w1 @ inc
     near = np.log1p(near_raw)
     cross = np.divide(
@@ -256,7 +261,7 @@ def build_panel(
     np.minimum.at(dist, (static.pair_u, fwi[static.pair_v]), static.pair_km)
     dist = np.minimum.accumulate(dist[:, :nt], axis=1)
     n_aff = static.a1 @ affected.astype(float)
-    logpop = np.broadcast_to(np.log(static.population)[:, None], (n, nt))
+    logpop = np.broadcast_to(np.where(known, np.log(pop), np.nan)[:, None], (n, nt))
     feats = {
         "near_pressure": near,
         "far_pressure": far,

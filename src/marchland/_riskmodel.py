@@ -189,7 +189,8 @@ def _risk_sets(panel: rf.Panel | None, names: tuple[str, ...], horizon_weeks: in
             rows, cols = np.nonzero(panel.at_risk[:, : last + 1])
             y = rf.future_any(panel.cases, horizon_weeks, min_cases)[rows, cols]
     x = rf.matrix(panel, names, rows, cols) if panel is not None else np.zeros((0, len(names)))
-    return x, y, rows, cols
+    ok = np.isfinite(x).all(axis=1)  # units of unknown population are not fitted on
+    return x[ok], y[ok], rows[ok], cols[ok]
 
 
 def _fit(
@@ -296,7 +297,7 @@ def _score(
 ) -> pd.DataFrame:
     names = model.features
     cols = ["probability", "rank", "cross_border", "silent", "drivers", "country"]
-    cols += [f"part_{f}" for f in names] + list(names) + ["affected_neighbours"]
+    cols += [f"part_{f}" for f in names] + list(names) + ["affected_neighbours", "note"]
     if panel is None:
         out = pd.DataFrame(columns=cols, index=pd.Index([], name="unit_id"))
         return _attach(out, model, 0.0)
@@ -304,10 +305,14 @@ def _score(
     cand = np.flatnonzero(panel.at_risk[:, t0])
     t = np.full(len(cand), t0)
     x = rf.matrix(panel, names, cand, t)
-    p = model.probability(x)
-    order = np.lexsort((static.ids[cand].to_numpy(), -p))
+    scored = np.isfinite(x).all(axis=1)
+    p = np.where(scored, model.probability(np.where(scored[:, None], x, 0.0)), np.nan)
+    # Unscored candidates (unknown population) go last, without a rank.
+    order = np.lexsort((static.ids[cand].to_numpy(), -np.nan_to_num(p, nan=-1.0), ~scored))
     rank = np.empty(len(cand), dtype=np.int64)
     rank[order] = np.arange(1, len(cand) + 1)
+    rank = pd.array(rank, dtype="Int64")
+    rank[~scored] = pd.NA
     out = pd.DataFrame({"probability": p, "rank": rank}, index=pd.Index(static.ids[cand]))
     if details:
         affected = (panel.first <= t0).astype(float)
@@ -325,8 +330,9 @@ def _score(
         for k, f in enumerate(names):
             out[f] = x[:, k]
         out["affected_neighbours"] = panel.features["affected_neighbours"][cand, t0]
+        out["note"] = np.where(scored, "", "population unknown: not scored")
     out = out.iloc[order].rename_axis("unit_id")
-    return _attach(out, model, float(p.sum()))
+    return _attach(out, model, float(np.nansum(p)))
 
 
 def _attach(out: pd.DataFrame, model: RiskModel, expected: float) -> pd.DataFrame:

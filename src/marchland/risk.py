@@ -200,7 +200,9 @@ min_events, penalty, min_cases, covariates
         Indexed by ``unit_id``, sorted by ``rank`` (1 = most likely), columns
         ``probability rank cross_border silent drivers country``, one ``part_<feature>`` per
         feature (contribution to the linear predictor; they sum with ``attrs["baseline"]`` to
-        it), the raw feature values under their own names, and ``affected_neighbours``.
+        it), the raw feature values under their own names, ``affected_neighbours`` and
+        ``note``. A candidate of unknown population is listed last with probability NaN, rank
+        ``<NA>`` and a note saying it was not scored.
         ``drivers`` lists up to three affected units within two steps, strongest first.
         ``attrs`` holds ``model`` ("fitted" or "prior"), ``note``, ``expected_new_units``
         (the sum of probabilities), ``coefficients``, ``as_of``, ``week``, ``n_events``.
