@@ -176,27 +176,37 @@ def test_cluster_map_refuses_a_label_without_colour(base, units):
 
 
 def test_epi_curve_shades_delay_and_keeps_gaps():
-    weeks = pd.date_range("2026-08-03", periods=12, freq="7D")
-    df = pd.DataFrame({"cases": np.arange(12.0), "deaths": np.ones(12)}, index=weeks)
+    weeks = pd.date_range("2026-08-03", periods=12, freq="7D")  # Mondays to 2026-10-19
+    df = pd.DataFrame({"cases": np.arange(1.0, 13.0), "deaths": np.ones(12)}, index=weeks)
     df = df.drop(weeks[5])  # a week nobody reported
     fig = maps.epi_curves(
         {"Area": df}, NOTES, as_of="2026-10-27", delay_weeks=2, title="Weekly cases"
     )
     ax = fig.axes[0]
-    bars = [p for p in ax.patches if p.get_width() > 0 and p.get_height() > 0]
-    starts = {
-        pd.Timestamp(mdates_num)
-        for mdates_num in pd.to_datetime([b.get_x() for b in bars], unit="D", origin="unix")
-    }
-    assert weeks[5] not in starts and weeks[6] in starts
+    bars = next(c for c in ax.collections if c.get_label() == "cases (bars)")
+    lefts = pd.to_datetime([p.vertices[0, 0] for p in bars.get_paths()], unit="D")
+    assert weeks[5] not in lefts and weeks[6] in lefts and len(lefts) == 11
     span = [p for p in ax.patches if p.get_label().startswith("last 2 weeks")]
     assert len(span) == 1
     x0, x1 = span[0].get_x(), span[0].get_x() + span[0].get_width()
-    assert pd.to_datetime(x1, unit="D") == pd.Timestamp("2026-10-27")
-    assert pd.to_datetime(x0, unit="D") == pd.Timestamp("2026-10-13")
+    # On Tuesday 27 October the week of the 26th is not over: the last two whole weeks are
+    # those starting 12 and 19 October.
+    assert pd.to_datetime(x0, unit="D") == pd.Timestamp("2026-10-12")
+    assert pd.to_datetime(x1, unit="D") == pd.Timestamp("2026-10-26")
     line = fig.axes[1].lines[0]
     assert np.isnan(np.asarray(line.get_ydata(), dtype=float)).sum() == 1
     assert maps.CAUTION_LINE in _texts(fig)
+
+
+def test_epi_panels_share_one_time_axis():
+    a = pd.DataFrame(
+        {"cases": [1.0, 2.0], "deaths": [0.0, 0.0]},
+        index=pd.to_datetime(["2026-01-05", "2026-01-12"]),
+    )
+    b = pd.DataFrame({"cases": [3.0], "deaths": [0.0]}, index=pd.to_datetime(["2026-06-01"]))
+    fig = maps.epi_curves({"A": a, "B": b}, NOTES, as_of="2026-06-10", delay_weeks=1, title="t")
+    panels = [ax for ax in fig.axes if ax.get_title(loc="left") in ("A", "B")]
+    assert len(panels) == 2 and panels[0].get_xlim() == panels[1].get_xlim()
 
 
 def test_save_figure_writes_png_at_200_dpi(tmp_path, every_map):

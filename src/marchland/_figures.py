@@ -22,7 +22,7 @@ def source_line(result: Any) -> str:
     countries = sorted({r.country for r in result.config.reports})
     return (
         f"Source: weekly reports from {', '.join(countries)} ({len(names)} report sources) "
-        f"as received by the as-of date; {result.config.region.name}."
+        "as received by the as-of date."
     )
 
 
@@ -90,7 +90,11 @@ def draw_figures(result: Any) -> Iterator[tuple[str, Any, str]]:
         yield (
             "arrival",
             maps.arrival_map(
-                base, result.fronts["first_week"], notes, fronts=result.front_outlines
+                base,
+                result.fronts["first_week"],
+                notes,
+                fronts=result.front_outlines,
+                current=result.month,
             ),
             "Week of the first reported case per unit; thin outlines show the area newly "
             "affected in each month.",

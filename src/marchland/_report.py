@@ -64,6 +64,7 @@ align-items:start} .side{background:#fff;border:1px solid #e0dacb;padding:.6rem 
 font-size:.86rem}
 table{border-collapse:collapse;font-size:.8rem;margin:.4rem 0;background:#fff}
 th,td{border:1px solid #e0dacb;padding:.2rem .45rem;text-align:left;vertical-align:top}
+td:first-child{white-space:nowrap}
 th{background:#f0ece1} td.n{text-align:right;font-variant-numeric:tabular-nums}
 .scroll{max-height:30rem;overflow:auto}
 .note{font-size:.82rem;color:#5a564c} .absent{color:#8a3b1f}
@@ -103,7 +104,9 @@ def _fmt(value: Any, kind: str = "") -> str:
             return f"{value:,.0f}"
         if abs(value) >= 100:
             return f"{value:,.0f}"
-        return f"{value:.2f}" if abs(value) >= 1 else f"{value:.3g}"
+        if abs(value) >= 10:
+            return f"{value:.1f}"
+        return f"{value:.2f}" if abs(value) >= 1 or value == 0 else f"{value:.2g}"
     if isinstance(value, (list, tuple, set, np.ndarray)):
         return esc("; ".join(map(str, value)))
     return esc(value)
@@ -143,7 +146,9 @@ def table_html(
     """
     if df is None or len(df) == 0:
         return f'<p class="note">{esc(empty)}</p>'
-    columns = dict(columns) if columns is not None else {c: str(c) for c in df.columns}
+    columns = (
+        dict(columns) if columns is not None else {c: str(c).replace("_", " ") for c in df.columns}
+    )
     columns = {c: h for c, h in columns.items() if c in df.columns}
     kinds = kinds or {}
     shown = df if limit is None else df.head(limit)
@@ -417,7 +422,7 @@ def _risk_section(result: Any, figures: Mapping[str, Any]) -> str:
         }
         cols.update(
             {
-                c: c.removeprefix("part_").replace("_", " ")
+                c: "part: " + c.removeprefix("part_").replace("_", " ")
                 for c in r.columns
                 if c.startswith("part_")
             }
@@ -440,7 +445,9 @@ def _supplies_section(result: Any, figures: Mapping[str, Any]) -> str:
     body += (
         '<p class="caution"><b>Example planning values, not guidance.</b> Quantities come '
         "from the planning attack rates and per-case items in the config; they are the "
-        "user's numbers" + (f" ({esc(result.supply_note)})" if result.supply_note else "") + ".</p>"
+        "user's numbers"
+        + (f" ({esc(result.supply_note.rstrip('. '))})" if result.supply_note else "")
+        + ".</p>"
     )
     body += _figure(figures, "priorities")
     if result.priorities is not None:
@@ -455,7 +462,7 @@ def _supplies_section(result: Any, figures: Mapping[str, Any]) -> str:
             "planning_cases",
             "planning_cases_high",
         ]
-        items = [c for c in p.columns if c not in base_cols + ["cross_border", "silent"]]
+        items = [c for c in p.columns if c not in [*base_cols, "cross_border", "silent", "drivers"]]
         cols = {
             "rank": "rank",
             "name": "unit",
@@ -524,13 +531,28 @@ def _quality_section(result: Any) -> str:
     acc = result.accounting
     if isinstance(acc, pd.DataFrame):
         body += "<h3>Row accounting</h3>" + table_html(acc, index=acc.index.name or "source")
-    comp = result.completeness
-    if isinstance(comp, pd.DataFrame) and len(comp):
+    by_country = result.completeness_by_country
+    if isinstance(by_country, pd.DataFrame) and len(by_country):
         body += (
-            "<h3>Reporting completeness</h3>"
+            '<h3>Reporting completeness by country</h3><p class="note">Share of the expected '
+            "unit-weeks that were reported (a reported zero counts; a missing week does not); "
+            "gap weeks are weeks with no report at all from the country.</p>"
+            + table_html(by_country, index="country", kinds={"share": "pct"})
+        )
+    comp = result.completeness
+    if isinstance(comp, pd.DataFrame) and len(comp) and "share" in comp:
+        low = comp[comp["share"] < 0.95].sort_values("share")
+        body += (
+            f"<h3>Units reporting less than 95% of weeks ({len(low)})</h3>"
             + '<div class="scroll">'
-            + table_html(comp, index=comp.index.name or "")
-            + "</div>"
+            + table_html(
+                low,
+                index=comp.index.name or "unit",
+                kinds={"share": "pct"},
+                empty="Every unit reported at least 95% of its weeks.",
+            )
+            + '</div><p class="note">Every unit\'s completeness is in '
+            "tables/completeness.csv.</p>"
         )
     if result.absent:
         body += (

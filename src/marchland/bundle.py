@@ -255,6 +255,7 @@ def _tables(result: Any) -> dict[str, pd.DataFrame | None]:
         else pd.DataFrame(result.depots.drop(columns="geometry")),
         "depot_assignment": result.depot_assignment,
         "completeness": result.completeness,
+        "completeness_by_country": result.completeness_by_country,
         "matches": result.matches,
         "accounting": result.accounting if isinstance(result.accounting, pd.DataFrame) else None,
         "edges": None

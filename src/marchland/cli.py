@@ -13,6 +13,7 @@ from __future__ import annotations
 import logging
 import re
 import sys
+import time
 import traceback
 from pathlib import Path
 from typing import Any
@@ -265,19 +266,17 @@ def _run_and_write(
     ctx: click.Context, cfg: Any, month: str | None, out: Path | None, overwrite: bool, as_of: Any
 ) -> None:
     from .bundle import check_destination, write_month
-    from .monthly import latest_month, run_month
+    from .monthly import run_month
 
     console = _console(ctx)
     out_dir = Path(out) if out is not None else Path(cfg.output.dir)
-    if month is None:
-        month = latest_month(cfg)
-    # Refuse before spending a minute on the analysis.
-    check_destination(out_dir, month, overwrite=overwrite)
+    if month is not None:
+        # Refuse before spending a minute on the analysis.
+        check_destination(out_dir, month, overwrite=overwrite)
     with _StepDisplay(console) as steps:
         result = run_month(cfg, month, as_of=as_of, progress=steps)
+        check_destination(out_dir, result.month, overwrite=overwrite)
         steps("write bundle", "start", None)
-        import time
-
         t0 = time.perf_counter()
         dest = write_month(result, out_dir, overwrite=overwrite)
         steps("write bundle", "done", time.perf_counter() - t0)

@@ -29,10 +29,12 @@ matplotlib.use("Agg", force=False)
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
+from matplotlib.collections import PolyCollection  # noqa: E402
 from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Circle, FancyArrow, Patch, Rectangle  # noqa: E402
+from matplotlib.ticker import MaxNLocator  # noqa: E402
 
 CAUTION_LINE = (
     "Decision support, not a diagnosis. Reporting is incomplete and delayed; small numbers are "
@@ -48,9 +50,12 @@ RISK_COLOURS = ("#e3eee8", "#b1d2c3", "#75ab96", "#3d7d69", "#1b483d")  # sea-gr
 RISK_BINS = (0.05, 0.10, 0.20, 0.40, 1.0)
 AFFECTED_COLOUR = "#b8ab96"  # a warm grey for units that already have cases
 OTHER_COLOUR = "#eeeeea"
+NOT_CANDIDATE_COLOUR = "#fdfdfb"  # risk map: lighter than the lowest risk class
 ARRIVAL_RAMP = ("#1c2a48", "#3c5f7a", "#6f9a86", "#b9c48b", "#f1e4ad")  # night -> straw
 PRIORITY_COLOURS = ("#4b1d3f", "#8a3b61", "#c27a93", "#ead0d8")  # rank 1-5, 6-10, 11-20, rest
 DEPOT_COLOUR = "#1d1d1b"
+EXISTING_DEPOT_COLOUR = "#8c887d"
+FRONT_COLOUR = "#8a1c4a"  # the analysis month's front
 DISTRICT_EDGE = dict(color="#7d7a72", linewidth=0.25)
 COUNTRY_EDGE = dict(color="#262522", linewidth=1.3)
 CASE_BAR = "#6d7fa8"
@@ -259,10 +264,12 @@ def _frame(ax: plt.Axes, base: BaseMap) -> None:
         s.set_linewidth(0.6)
 
 
-def _fill(ax: plt.Axes, base: BaseMap, colours: pd.Series, *, hatch_ids=None) -> None:
+def _fill(
+    ax: plt.Axes, base: BaseMap, colours: pd.Series, *, hatch_ids=None, default: str = OTHER_COLOUR
+) -> None:
     """Fill units with per-unit colours, then district edges, then country borders on top."""
     g = base.units.geometry
-    col = colours.reindex(base.units.index).fillna(OTHER_COLOUR)
+    col = colours.reindex(base.units.index).fillna(default)
     g.plot(
         ax=ax,
         color=col.to_list(),
@@ -308,7 +315,7 @@ def _scale_bar(ax: plt.Axes, base: BaseMap, *, compact: bool = False) -> None:
             facecolor="white",
             edgecolor="none",
             alpha=0.75,
-            zorder=9,
+            zorder=4,  # above the fills, below the country borders
         )
     )
     ax.add_patch(
@@ -328,9 +335,9 @@ def _scale_bar(ax: plt.Axes, base: BaseMap, *, compact: bool = False) -> None:
         )
     )
     km = length / 1000
-    ticks = [(x0, "0"), (x0 + length, f"{_fmt_num(km)} km")]
+    ticks = [(x0 + length, f"{_fmt_num(km)} km")]
     if not compact:
-        ticks.insert(1, (x0 + half, _fmt_num(km / 2)))
+        ticks = [(x0, "0"), (x0 + half, _fmt_num(km / 2)), *ticks]
     for xx, lab in ticks:
         ax.text(
             xx,
@@ -411,10 +418,20 @@ def _footer(fig: Figure, notes: MapNotes) -> None:
 
 
 def _legend(
-    fig: Figure, entries: Sequence[tuple[str, dict]], title: str, *, y: float = 0.86
+    fig: Figure,
+    entries: Sequence[tuple[str, dict]],
+    title: str,
+    *,
+    y: float = 0.86,
+    x: float = _LEGEND_X,
+    ncols: int = 1,
+    lines: Sequence[tuple[str, str, float]] = (),
 ) -> None:
     # Wrap long wording so the legend stays inside the page.
     handles: list = [Patch(label=textwrap.fill(lab, 34), **style) for lab, style in entries]
+    handles += [
+        Line2D([], [], label=textwrap.fill(lab, 34), color=c, linewidth=w) for lab, c, w in lines
+    ]
     handles.append(Line2D([], [], label="country border", **COUNTRY_EDGE))
     handles.append(
         Line2D([], [], label="district border", color=DISTRICT_EDGE["color"], linewidth=0.6)
@@ -423,7 +440,8 @@ def _legend(
         handles=handles,
         title=title,
         loc="upper left",
-        bbox_to_anchor=(_LEGEND_X, y),
+        bbox_to_anchor=(x, y),
+        ncols=ncols,
         fontsize=7.5,
         title_fontsize=8,
         frameon=False,
@@ -578,12 +596,13 @@ def rate_small_multiples(
         color="#4a4740",
     )
     all_classes = []
-    width, height = 0.68 / ncols, 0.76 / nrows
+    # Panels take the full width; the legend runs along the bottom instead of down the side.
+    width, height = 0.96 / ncols, 0.66 / nrows
     ramp: list[str] = []
     for i, col in enumerate(rates.columns):
         r, c = divmod(i, ncols)
         ax = fig.add_axes(
-            (0.02 + c * width, 0.13 + (nrows - 1 - r) * height, width * 0.96, height * 0.9)
+            (0.02 + c * width, 0.235 + (nrows - 1 - r) * height, width * 0.97, height * 0.9)
         )
         colours, classes, ramp = _rate_colours(rates[col], bins)
         all_classes.append(classes)
@@ -599,7 +618,10 @@ def rate_small_multiples(
     _legend(
         fig,
         _rate_entries(bins, ramp or _ramp(RATE_COLOURS, max(len(bins), 1)), classes),
-        "Attack rate per 100,000\n(month)",
+        "Attack rate per 100,000 (month)",
+        x=0.02,
+        y=0.215,
+        ncols=4,
     )
     return fig
 
@@ -688,9 +710,13 @@ def arrival_map(
     notes: MapNotes,
     *,
     fronts: gpd.GeoDataFrame | None = None,
+    current: str | None = None,
     title: str = "Arrival of first cases",
 ) -> Figure:
-    """Week of first case by unit, with the outline of each month's front.
+    """Quarter of the first case by unit, with the outline of each month's front.
+
+    Arrival is classed by calendar quarter of the first-case week (at most eight classes;
+    longer outbreaks use half-years), so each colour names a period a reader can say aloud.
 
     Parameters
     ----------
@@ -699,7 +725,9 @@ def arrival_map(
         First-case week (Timestamp) per unit id; NaT where not affected.
     notes : MapNotes
     fronts : geopandas.GeoDataFrame, optional
-        One outline per period (the newly affected units dissolved), drawn as thin lines.
+        One outline per month (index ``"YYYY-MM"``), drawn as thin dark lines.
+    current : str, optional
+        The month (``"YYYY-MM"``) whose front is drawn heavier and named in the legend.
 
     Returns
     -------
@@ -708,53 +736,52 @@ def arrival_map(
     arr = pd.to_datetime(arrival.reindex(base.units.index))
     fig, ax = _new_map(
         title,
-        f"{notes.region}: week of the first reported case; outlines "
-        "show each month's newly affected area",
+        f"{notes.region}: period of the first reported case; lines outline each month's "
+        "newly affected area",
     )
     known = arr.dropna()
-    cmap = LinearSegmentedColormap.from_list("marchland_arrival", list(ARRIVAL_RAMP))
+    col = pd.Series(OTHER_COLOUR, index=arr.index, dtype=object)
+    entries = []
     if len(known):
-        t0, t1 = known.min(), known.max()
-        span = max((t1 - t0).days, 1)
-        frac = (arr - t0).dt.days / span
-        col = frac.map(lambda f: OTHER_COLOUR if pd.isna(f) else matplotlib.colors.to_hex(cmap(f)))
-    else:
-        t0 = t1 = None
-        col = pd.Series(OTHER_COLOUR, index=arr.index)
+        freq = "Q"
+        periods = (known + pd.Timedelta(days=3)).dt.to_period(freq)
+        if periods.max().ordinal - periods.min().ordinal + 1 > 8:
+            freq = "2Q"
+            periods = (known + pd.Timedelta(days=3)).dt.to_period("Q")
+            periods = periods.map(lambda p: (p.year, (p.quarter - 1) // 2))
+        classes = sorted(periods.unique())
+        ramp = _ramp(ARRIVAL_RAMP, len(classes))
+        lookup = dict(zip(classes, ramp, strict=True))
+        col.loc[known.index] = periods.map(lookup).to_numpy()
+        for c, colour in zip(classes, ramp, strict=True):
+            if freq == "Q":
+                label = f"{c.start_time:%b}-{c.end_time:%b %Y}"
+            else:
+                year, half = c
+                label = f"{'Jan-Jun' if half == 0 else 'Jul-Dec'} {year}"
+            n = int((periods == c).sum())
+            entries.append(
+                (f"{label} ({n})", {"facecolor": colour, "edgecolor": "#7d7a72", "linewidth": 0.4})
+            )
     _fill(ax, base, col)
     if fronts is not None and len(fronts):
-        fronts.boundary.plot(ax=ax, color="#f7f3e3", linewidth=0.9, zorder=3)
-        fronts.boundary.plot(ax=ax, color="#20201d", linewidth=0.35, zorder=4)
+        fronts.boundary.plot(ax=ax, color="#2a2723", linewidth=0.7, zorder=3)
+        if current is not None and current in fronts.index:
+            fronts.loc[[current]].boundary.plot(ax=ax, color=FRONT_COLOUR, linewidth=1.8, zorder=6)
     _furnish(fig, ax, base, notes)
-    entries = []
-    if t0 is not None:
-        stops = pd.date_range(t0, t1, periods=min(5, max(len(known.unique()), 1)))
-        for s in stops:
-            f = (s - t0).days / max((t1 - t0).days, 1)
-            entries.append(
-                (
-                    f"first case week of {s:%d %b %Y}",
-                    {
-                        "facecolor": matplotlib.colors.to_hex(cmap(f)),
-                        "edgecolor": "#7d7a72",
-                        "linewidth": 0.4,
-                    },
-                )
-            )
     entries.append(
         (
-            "no case reported yet",
+            f"no case reported yet ({int(arr.isna().sum())})",
             {"facecolor": OTHER_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4},
         )
     )
+    handles_extra = []
     if fronts is not None and len(fronts):
-        entries.append(
-            (
-                "outline of a month's front",
-                {"facecolor": "none", "edgecolor": "#20201d", "linewidth": 0.8},
-            )
-        )
-    _legend(fig, entries, "Arrival (week of first case;\ncolours run early to late)")
+        handles_extra.append(("outline of a month's newly affected area", "#2a2723", 0.9))
+        if current is not None and current in fronts.index:
+            month = pd.Period(current, freq="M")
+            handles_extra.append((f"newly affected in {month:%B %Y}", FRONT_COLOUR, 1.8))
+    _legend(fig, entries, "First reported case\n(number of units)", lines=handles_extra)
     return fig
 
 
@@ -799,15 +826,18 @@ def risk_map(
         f"Border risk: first case within {horizon_weeks} weeks",
         f"{notes.region}: unaffected units within two steps of an affected one",
     )
-    _fill(ax, base, col)
+    _fill(ax, base, col, default=NOT_CANDIDATE_COLOUR)
     sil = base.units[base.units.index.isin(list(silent))]
     if len(sil):
         sil.boundary.plot(ax=ax, color="#1d1d1b", linewidth=0.9, linestyle=(0, (2, 1.5)), zorder=6)
     _furnish(fig, ax, base, notes)
     lows = (0.0, *RISK_BINS[:-1])
     entries = [
-        (f"{lo:.0%} to {hi:.0%}", {"facecolor": c, "edgecolor": "#7d7a72", "linewidth": 0.4})
-        for lo, hi, c in zip(lows, RISK_BINS, RISK_COLOURS, strict=True)
+        (
+            f"{lo:.0%} to {hi:.0%} ({int((cls == i).sum())})",
+            {"facecolor": c, "edgecolor": "#7d7a72", "linewidth": 0.4},
+        )
+        for i, (lo, hi, c) in enumerate(zip(lows, RISK_BINS, RISK_COLOURS, strict=True))
     ]
     entries.append(
         (
@@ -816,7 +846,10 @@ def risk_map(
         )
     )
     entries.append(
-        ("not a candidate", {"facecolor": OTHER_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4})
+        (
+            "not a candidate",
+            {"facecolor": NOT_CANDIDATE_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4},
+        )
     )
     if len(sil):
         entries.append(
@@ -894,12 +927,13 @@ def priority_map(
                         zorder=7,
                     )
                 )
+        existing = _existing(depots)
         ax.scatter(
             depots.geometry.x,
             depots.geometry.y,
             marker="s",
             s=40,
-            facecolor=DEPOT_COLOUR,
+            facecolor=np.where(existing, EXISTING_DEPOT_COLOUR, DEPOT_COLOUR),
             edgecolor="white",
             linewidth=0.8,
             zorder=8,
@@ -929,7 +963,21 @@ def priority_map(
         ("not a candidate", {"facecolor": OTHER_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4})
     )
     if depots is not None and len(depots):
-        entries.append(("depot to open", {"facecolor": DEPOT_COLOUR, "edgecolor": "white"}))
+        existing = _existing(depots)
+        if (~existing).any():
+            entries.append(
+                (
+                    f"depot to open ({int((~existing).sum())})",
+                    {"facecolor": DEPOT_COLOUR, "edgecolor": "white"},
+                )
+            )
+        if existing.any():
+            entries.append(
+                (
+                    f"existing depot ({int(existing.sum())})",
+                    {"facecolor": EXISTING_DEPOT_COLOUR, "edgecolor": "white"},
+                )
+            )
         if reach_km:
             entries.append(
                 (
@@ -942,6 +990,12 @@ def priority_map(
     _legend(fig, entries, "Priority rank (1 = first)")
     _side_text(fig, "Planning quantities use\nexample values, not guidance.", y=0.22)
     return fig
+
+
+def _existing(depots: pd.DataFrame) -> np.ndarray:
+    if "existing" not in depots:
+        return np.zeros(len(depots), dtype=bool)
+    return depots["existing"].fillna(False).astype(bool).to_numpy()
 
 
 # --- epi curves -------------------------------------------------------------------------------
@@ -990,11 +1044,16 @@ def epi_curves(
     nrows = math.ceil(n / ncols)
     height = 4.6 if nrows == 1 else min(2.1 * nrows + 1.4, 11.5)
     fig = Figure(figsize=(_MAP_SIZE[0], height), dpi=DPI, facecolor="white")
-    top = 1 - 0.75 / height
+    top = 1 - 1.0 / height
     bottom = 0.95 / height
     fig.text(0.02, 1 - 0.3 / height, title, fontsize=12, fontweight="bold", ha="left", va="center")
     as_of = pd.Timestamp(as_of)
-    delay_start = as_of - pd.Timedelta(weeks=delay_weeks)
+    delay_start, delay_end = _delay_zone(series, as_of, delay_weeks, week_days)
+    # One time axis for every panel, so areas can be compared by eye.
+    starts = [pd.Timestamp(df.index.min()) for df in series.values() if len(df)]
+    ends = [pd.Timestamp(df.index.max()) for df in series.values() if len(df)]
+    lo = min(starts) - pd.Timedelta(days=week_days) if starts else delay_start
+    hi = max([*ends, delay_end - pd.Timedelta(days=week_days)]) + pd.Timedelta(days=2 * week_days)
     gs = fig.add_gridspec(
         nrows, ncols, left=0.07, right=0.93, top=top, bottom=bottom, hspace=0.6, wspace=0.38
     )
@@ -1012,7 +1071,7 @@ def epi_curves(
         deaths = df["deaths"].astype(float) if "deaths" in df else pd.Series(np.nan, df.index)
         ax.axvspan(
             delay_start,
-            as_of,
+            delay_end,
             facecolor=DELAY_SHADE,
             edgecolor="#a59a83",
             hatch="....",
@@ -1020,16 +1079,7 @@ def epi_curves(
             zorder=0,
             label=f"last {delay_weeks} weeks: reporting incomplete",
         )
-        ax.bar(
-            weeks,
-            cases.fillna(0).to_numpy(),
-            width=week_days * 0.85,
-            color=CASE_BAR,
-            align="edge",
-            linewidth=0,
-            label="cases (bars)",
-            zorder=2,
-        )
+        _week_bars(ax, weeks, cases.to_numpy(dtype=float), week_days)
         ax.set_ylim(bottom=0)
         ax2 = ax.twinx()
         ax2.plot(
@@ -1043,6 +1093,7 @@ def epi_curves(
         )
         dmax = float(np.nanmax(deaths.to_numpy())) if deaths.notna().any() else 1.0
         ax2.set_ylim(bottom=0, top=max(1.0, dmax) * 1.15)
+        ax.set_xlim(lo, hi)
         ax.set_title(str(name), fontsize=8.5, loc="left", pad=3)
         ax.tick_params(labelsize=6.5)
         ax2.tick_params(labelsize=6.5, colors=DEATH_LINE)
@@ -1050,7 +1101,9 @@ def epi_curves(
             ax.set_ylabel("cases per week", fontsize=7)
         if col == ncols - 1 or i == n - 1:
             ax2.set_ylabel("deaths per week", fontsize=7, color=DEATH_LINE)
-        ax.xaxis.set_major_locator(matplotlib.dates.AutoDateLocator(maxticks=5))
+        ax.xaxis.set_major_locator(matplotlib.dates.AutoDateLocator(minticks=3, maxticks=5))
+        ax.yaxis.set_major_locator(MaxNLocator(4, integer=True))
+        ax2.yaxis.set_major_locator(MaxNLocator(3, integer=True))
         ax.xaxis.set_major_formatter(matplotlib.dates.DateFormatter("%b %Y"))
         ax.spines["top"].set_visible(False)
         ax2.spines["top"].set_visible(False)
@@ -1060,8 +1113,8 @@ def epi_curves(
             fig.legend(
                 h1 + h2,
                 l1 + l2,
-                loc="upper right",
-                bbox_to_anchor=(0.98, 1 - 0.1 / height),
+                loc="center left",
+                bbox_to_anchor=(0.01, 1 - 0.62 / height),
                 fontsize=7,
                 frameon=False,
                 ncols=3,
@@ -1087,6 +1140,47 @@ def epi_curves(
         style="italic",
     )
     return fig
+
+
+def _delay_zone(
+    series: Mapping[str, pd.DataFrame], as_of: pd.Timestamp, delay_weeks: int, week_days: int
+) -> tuple[pd.Timestamp, pd.Timestamp]:
+    """Span the last ``delay_weeks`` whole weeks finished by ``as_of`` (data's week grid)."""
+    first = next((pd.Timestamp(df.index.min()) for df in series.values() if len(df)), None)
+    start_day = first.day_of_week if first is not None else 0
+    day = as_of.normalize()
+    current = day - pd.Timedelta(days=(day.day_of_week - start_day) % 7)
+    done = (
+        current
+        if day >= current + pd.Timedelta(days=week_days - 1)
+        else current - pd.Timedelta(days=week_days)
+    )
+    return done - pd.Timedelta(days=week_days * (delay_weeks - 1)), done + pd.Timedelta(
+        days=week_days
+    )
+
+
+def _week_bars(ax: plt.Axes, weeks: pd.DatetimeIndex, values: np.ndarray, week_days: int) -> None:
+    """Weekly bars as ONE collection (a bar per artist costs seconds over many panels)."""
+    ok = np.isfinite(values) & (values > 0)
+    x0 = matplotlib.dates.date2num(weeks[ok])
+    w = week_days * 0.85
+    h = values[ok]
+    verts = np.stack(
+        [
+            np.column_stack([x0, np.zeros_like(h)]),
+            np.column_stack([x0, h]),
+            np.column_stack([x0 + w, h]),
+            np.column_stack([x0 + w, np.zeros_like(h)]),
+        ],
+        axis=1,
+    )
+    coll = PolyCollection(
+        verts, facecolors=CASE_BAR, edgecolors="none", linewidths=0, zorder=2, label="cases (bars)"
+    )
+    ax.add_collection(coll)
+    ax.set_ylim(0, max(1.0, float(h.max()) if h.size else 1.0) * 1.08)
+    ax.xaxis_date()
 
 
 def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:

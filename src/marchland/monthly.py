@@ -33,7 +33,16 @@ from .errors import DataWarning, InputError
 
 Progress = Callable[[str, str, float | None], None]
 
-STEPS = ("read inputs", "rates", "hotspots", "spread", "border risk", "backtest", "supplies")
+STEPS = (
+    "read inputs",
+    "graph",
+    "rates",
+    "hotspots",
+    "spread",
+    "border risk",
+    "backtest",
+    "supplies",
+)
 
 
 class _Absent(Exception):
@@ -96,6 +105,7 @@ class MonthResult:
     weekly: pd.DataFrame | None = None
     rejects: pd.DataFrame | None = None
     completeness: pd.DataFrame | None = None
+    completeness_by_country: pd.DataFrame | None = None
     accounting: Any = None
     matches: pd.DataFrame | None = None
     graph: Any = None
@@ -244,19 +254,6 @@ def default_as_of(config: Config, month: str | pd.Period) -> pd.Timestamp:
     return p.end_time.normalize() + pd.Timedelta(days=config.region.as_of_lag_days)
 
 
-def latest_month(config: Config | str | os.PathLike[str]) -> str:
-    """Return the month of the latest reported week (the demo's analysis month)."""
-    cfg = config if isinstance(config, Config) else load_config(config)
-    region = _open_region(cfg)
-    weeks = pd.to_datetime(region.counts["week"])
-    if not len(weeks):
-        raise InputError(
-            "no report row was accepted, so there is no month to analyse", file=cfg.path
-        )
-    last = weeks.max() + pd.Timedelta(days=3)
-    return f"{last:%Y-%m}"
-
-
 def _open_region(cfg: Config) -> Any:
     return _need("region", "open_region").open_region(cfg)
 
@@ -346,6 +343,7 @@ def run_month(
         )
         as_of_ts = pd.Timestamp(as_of) if as_of is not None else default_as_of(cfg, period)
         fields: dict[str, Any] = _region_fields(region, period, as_of_ts)
+        fields.update(run("graph", lambda: _graph_fields(region)))
         ctx = _Context(cfg, region, period, as_of_ts)
 
         fields.update(run("rates", ctx.rates) or {})
@@ -395,18 +393,17 @@ def _region_fields(region: Any, period: pd.Period, as_of: pd.Timestamp) -> dict[
         "weekly": weekly.reset_index(drop=True),
         "rejects": getattr(region, "rejects", None),
         "completeness": getattr(region, "completeness", None),
+        "completeness_by_country": getattr(region, "completeness_by_country", None),
         "accounting": getattr(region, "accounting", None),
         "matches": getattr(region, "matches", None),
-        "graph": getattr(region, "graph", None),
     }
-    graph = out["graph"]
-    if graph is not None:
-        try:
-            edges_layer = _need("graph", "edges_layer").edges_layer
-            out["edges"] = edges_layer(graph, region.units)
-        except _Absent:
-            out["edges"] = None
     return out
+
+
+def _graph_fields(region: Any) -> dict[str, Any]:
+    graph = region.graph  # built on first use: this step is where its time shows
+    edges_layer = _need("graph", "edges_layer").edges_layer
+    return {"graph": graph, "edges": edges_layer(graph, region.units)}
 
 
 class _Context:
