@@ -456,6 +456,11 @@ def test_knox_bad_input():
         knox(np.zeros((4, 3)), [0, 1, 2, 3], distance=1, interval=1)
     with pytest.raises(ValueError, match="missing"):
         knox(np.zeros((3, 2)), [0, np.nan, 1], distance=1, interval=1)
+    with pytest.raises(ValueError, match="Timedelta"):
+        knox(np.zeros((3, 2)), [0, 1, 2], distance=1, interval=pd.Timedelta(days=7))
+    dates = pd.to_datetime(["2026-03-02", None, "2026-03-09"])
+    with pytest.raises(ValueError, match="missing"):
+        knox(np.zeros((3, 2)), dates, distance=1, interval=pd.Timedelta(days=7))
 
 
 # --- property: the vectorised rules equal a plain reading of their definitions ----------------
@@ -543,3 +548,17 @@ def test_episodes_equal_a_literal_reading_of_the_rule(rows, quiet_weeks):
     ep = affected_episodes(c, reintroduction_weeks=quiet_weeks)
     got = {u: g["start"].tolist() for u, g in ep.groupby("unit_id")}
     assert got == _naive_episode_starts(as_of(c), quiet_weeks)
+
+
+def test_nothing_affected_yet_gives_empty_results_not_errors():
+    units, g = _strip()
+    first = _first(units, [None] * 6)
+    f = spread_fronts(first, g)
+    assert f["hops"].isna().all() and not f["origin"].any()
+    assert len(front_outlines(f, units)) == 0
+    assert cross_border_introductions(first, g, countries=units["country"]).empty
+    assert introductions_by_border(
+        cross_border_introductions(first, g, countries=units["country"])
+    ).empty
+    v = spread_velocity(first, units)
+    assert v.n_units == 0 and np.isnan(v.km_per_week)

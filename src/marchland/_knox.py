@@ -74,6 +74,11 @@ def as_arrays(points, times, interval) -> tuple[np.ndarray, np.ndarray, float]:
         t = (t - t.min()) / pd.Timedelta(days=1)
         if isinstance(interval, pd.Timedelta):
             interval = interval / pd.Timedelta(days=1)
+    elif isinstance(interval, pd.Timedelta):
+        raise ValueError(
+            "'interval' is a Timedelta but 'times' are numbers; give the interval in the "
+            "times' own unit, or give the times as dates"
+        )
     t = t.to_numpy(dtype=float)
     if xy.ndim != 2 or xy.shape[1] != 2 or len(xy) != len(t):
         raise ValueError(
