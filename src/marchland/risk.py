@@ -38,6 +38,7 @@ authorities and field epidemiologists.
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -58,6 +59,12 @@ from ._riskmodel import (
 )
 from .errors import InputError
 
+if TYPE_CHECKING:  # pragma: no cover
+    import geopandas as gpd
+    from libpysal.graph import Graph
+
+    from .graph import BorderGraph
+
 __all__ = [
     "RiskModel",
     "Backtest",
@@ -73,8 +80,8 @@ __all__ = [
 
 def fit_risk_model(
     counts: pd.DataFrame,
-    units,
-    graph,
+    units: gpd.GeoDataFrame,
+    graph: BorderGraph | Graph,
     *,
     as_of: object,
     horizon_weeks: int = 4,
@@ -164,8 +171,8 @@ def fit_risk_model(
 
 def border_risk(
     counts: pd.DataFrame,
-    units,
-    graph,
+    units: gpd.GeoDataFrame,
+    graph: BorderGraph | Graph,
     *,
     as_of: object,
     horizon_weeks: int = 4,
@@ -255,8 +262,8 @@ min_events, penalty, min_cases, covariates
 
 def run_backtest(
     counts: pd.DataFrame,
-    units,
-    graph,
+    units: gpd.GeoDataFrame,
+    graph: BorderGraph | Graph,
     *,
     horizon_weeks: int = 4,
     origins: Sequence[object] | None = None,
@@ -349,8 +356,8 @@ penalty, min_cases, covariates
 
 def backtest_risk(
     counts: pd.DataFrame,
-    units,
-    graph,
+    units: gpd.GeoDataFrame,
+    graph: BorderGraph | Graph,
     *,
     horizon_weeks: int = 4,
     origins: Sequence[object] | None = None,
