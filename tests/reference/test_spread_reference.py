@@ -380,3 +380,18 @@ def test_demo_retrospective_correction_moves_a_first_case(demo):
     after = first_cases(region.counts, as_of=when)
     assert after[unit] == week
     assert pd.isna(before[unit]) or before[unit] > week
+
+
+def test_demo_hops_match_networkx(demo):
+    region, _ = demo
+    first = first_cases(region.counts, units=region.units.index)
+    fronts = spread_fronts(first, region.graph)
+    nxg = nx.Graph()
+    nxg.add_nodes_from(region.graph.ids)
+    e = region.graph.edges
+    nxg.add_edges_from(zip(e["focal"], e["neighbor"], strict=True))
+    # networkx breadth-first distances from the earliest units (unit edge weights).
+    ref = nx.multi_source_dijkstra_path_length(nxg, set(fronts.index[fronts["origin"]]))
+    got = fronts["hops"].dropna().astype(int).to_dict()
+    assert got == ref
+    assert fronts["hops"].isna().sum() == len(region.graph.ids) - len(ref)  # the lake island
