@@ -334,8 +334,8 @@ def cross_border_introductions(
         With a plain libpysal ``Graph`` pass ``countries`` so borders are known.
     countries : pandas.Series, optional
         Country code per unit id. For a ``BorderGraph`` the edges' ``cross_border`` flag decides
-        and ``countries`` only labels the rows (default: the id prefix, e.g. "TVR" of
-        "TVR-03-07", as in the id contract).
+        and ``countries`` only labels the rows (default: the graph's ``countries``, else the
+        id prefix, e.g. "TVR" of "TVR-03-07", as in the id contract).
 
     Returns
     -------
