@@ -314,11 +314,14 @@ def test_cross_border_plain_graph_needs_countries():
         cross_border_introductions(_first(units, [0, 1, 2, 3, 4, 5]), g)
 
 
-def test_cross_border_border_graph_labels_from_id_prefix():
+def test_cross_border_border_graph_labels_from_its_countries_or_id_prefix():
     units, g = _strip()
     bg = BorderGraph.from_graph(g, countries=units["country"])
-    cbi = cross_border_introductions(_first(units, [0, 1, 2, 3, 4, 5]), bg)
+    first = _first(units, [0, 1, 2, 3, 4, 5])
+    cbi = cross_border_introductions(first, bg)
     assert cbi["country"].tolist() == ["BBB", "CCC"]
+    bare = BorderGraph(edges=bg.edges, ids=bg.ids)  # flags kept, no country table
+    assert cross_border_introductions(first, bare)["source_countries"].tolist() == ["AAA", "BBB"]
 
 
 @pytest.mark.parametrize("kind", ["libpysal", "border"])
