@@ -20,8 +20,10 @@ import numpy as np
 import pandas as pd
 
 from ._names import Matcher
-from ._parse import dates, read_tables, require_columns, text, whole_numbers
-from ._weeks import convert_weeks, epi_week, from_year_week, parse_year_week, week_start
+from ._parse import flag as _flag
+from ._parse import parse_table as _parse_table
+from ._parse import read_tables, text
+from ._weeks import epi_week, week_start
 from .errors import DataWarning, InputError
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -182,136 +184,6 @@ def load_aliases(
             value=table.loc[unknown, "unit_id"].iloc[0],
         )
     return table.reset_index(drop=True).astype(object)
-
-
-# --- reading one table into parsed rows ----------------------------------------------------
-def _flag(df: pd.DataFrame, mask, reason: str, column: str | None, value=None) -> None:
-    """Give ``reason`` to rows that match ``mask`` and have no reason yet (first one wins)."""
-    m = np.asarray(mask, dtype=bool) & df["reason"].isna().to_numpy()
-    if not m.any():
-        return
-    df.loc[m, "reason"] = reason
-    df.loc[m, "column"] = column or ""
-    if value is None:
-        df.loc[m, "value"] = ""
-    else:
-        v = pd.Series(value, index=df.index) if np.ndim(value) else pd.Series(value, df.index)
-        df.loc[m, "value"] = v[m].astype("string").fillna("").to_numpy()
-
-
-def _get(frame: pd.DataFrame, col: str | None) -> pd.Series:
-    """Return a column of the stripped table (all <NA> when the source has no such column)."""
-    if col is None:
-        return pd.Series(pd.NA, index=range(len(frame)), dtype="string")
-    return frame[col]
-
-
-def _dates_lenient(s: pd.Series, fmt: str | None) -> pd.Series:
-    # A configured format first; ISO 8601 dates are unambiguous, so accept them too.
-    out = dates(s, fmt)
-    return out.where(out.notna(), dates(s)) if fmt else out
-
-
-def _parse_table(
-    frame: pd.DataFrame,
-    spec: ReportSpec,
-    key: str,
-    file: Path,
-    sheet: str,
-    calendar: str,
-    today: pd.Timestamp,
-) -> pd.DataFrame:
-    c = spec.columns
-    fields = (
-        "place",
-        "code",
-        "week",
-        "year",
-        "cases",
-        "deaths",
-        "received",
-        "onset",
-        "report_date",
-        "outcome",
-    )
-    wanted = {f: getattr(c, f) for f in fields if getattr(c, f)}
-    frame = require_columns(frame, wanted, file, sheet, key).reset_index(drop=True)
-    # Every cell as stripped text once; blanks become <NA>.
-    frame = frame.apply(text) if frame.shape[1] else frame
-    n = len(frame)
-    df = pd.DataFrame({"file": file.name, "sheet": sheet, "row": np.arange(1, n + 1)})
-    df["reason"] = pd.Series([None] * n, dtype=object)
-    df["column"] = ""
-    df["value"] = ""
-    df["place"] = _get(frame, c.place)
-    df["code"] = _get(frame, c.code)
-    empty = frame.isna().all(axis=1).to_numpy() if frame.shape[1] else np.ones(n, dtype=bool)
-    _flag(df, empty, "blank", "")
-    _flag(df, df["place"].isna() & df["code"].isna(), "missing-value", c.place or c.code)
-    linelist = spec.shape == "linelist"
-    if linelist:
-        dcol = c.onset if spec.date_basis == "onset" else c.report_date
-        raw = _get(frame, dcol)
-        when = _dates_lenient(raw, spec.date_format)
-        _flag(df, raw.isna(), "missing-value", dcol)
-        _flag(df, when.isna(), "unparseable", dcol, raw)
-        src = week_start(when, spec.calendar)
-        wcol = dcol
-    else:
-        wcol = c.week
-        raw = _get(frame, c.week)
-        _flag(df, raw.isna(), "missing-value", c.week)
-        if spec.week_format == "date":
-            when = _dates_lenient(raw, spec.date_format)
-            src = week_start(when, spec.calendar)
-        elif spec.week_format == "iso-week":
-            src = parse_year_week(raw, spec.calendar)
-        else:
-            yr = _get(frame, c.year)
-            _flag(df, yr.isna(), "missing-value", c.year)
-            src = from_year_week(yr, raw, spec.calendar)
-            _flag(
-                df,
-                src.isna() & pd.to_numeric(yr, errors="coerce").isna(),
-                "unparseable",
-                c.year,
-                yr,
-            )
-        _flag(df, src.isna(), "unparseable", c.week, raw)
-        when = src
-        cases, blank, bad = whole_numbers(_get(frame, c.cases))
-        _flag(df, blank, "missing-value", c.cases)
-        _flag(df, bad, "unparseable", c.cases, _get(frame, c.cases))
-        df["cases"] = cases.to_numpy()
-        df["_raw_cases"] = _get(frame, c.cases).to_numpy()
-        if c.deaths:
-            deaths, _, bad = whole_numbers(_get(frame, c.deaths))
-            _flag(df, bad, "unparseable", c.deaths, _get(frame, c.deaths))
-            df["deaths"] = deaths.to_numpy()
-            df["_raw_deaths"] = _get(frame, c.deaths).to_numpy()
-        else:
-            df["deaths"] = pd.array([pd.NA] * n, dtype="Int64")
-    rcol = c.received or (c.report_date if linelist else None)
-    if rcol:
-        rraw = _get(frame, rcol)
-        received = _dates_lenient(rraw, spec.date_format)
-        _flag(df, rraw.isna(), "missing-value", rcol)
-        _flag(df, received.isna(), "unparseable", rcol, rraw)
-    else:
-        received = pd.Series(pd.Timestamp(spec.received_date), index=df.index)
-    df["received"] = received.to_numpy()
-    df["week"] = convert_weeks(src, spec.calendar, calendar).to_numpy()
-    # Future: a week that starts after the report was received, or after today.
-    limit = np.minimum(received.fillna(today).to_numpy(), np.datetime64(today, "ns"))
-    df["_future"] = (when.to_numpy() > limit) & when.notna().to_numpy()
-    df["_future_col"] = wcol
-    df["_future_val"] = raw.to_numpy()
-    if linelist:
-        if c.outcome:
-            died = {v.casefold().strip() for v in spec.died_values}
-            df["died"] = _get(frame, c.outcome).str.casefold().isin(died).fillna(False).to_numpy()
-        df["_key"] = pd.util.hash_pandas_object(frame.fillna(""), index=False).to_numpy()
-    return df
 
 
 # --- one source ------------------------------------------------------------------------------
