@@ -3,8 +3,9 @@
 A discrete-time hazard model with complementary log-log link for "first case within h weeks",
 fitted on the outbreak's own history of (unit, week) risk sets, scores every *candidate* (an
 analysis unit with no case to date that lies within two graph steps of an affected one) and
-shows each score with its parts. :func:`backtest_risk` replays the model week by week on the data
-as it was known then and compares it with two simple baselines.
+shows each score with its parts. Islands (no neighbour and no link) are never candidates:
+add a link (``[graph] links``) to bring one in. :func:`backtest_risk` replays the model week
+by week on the data as it was known then and compares it with two simple baselines.
 
 Features (all from the as-of view of the counts, so late reports never leak from the future),
 each with a ``part_<name>`` column in the result (its contribution to the linear predictor,
