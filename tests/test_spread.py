@@ -241,6 +241,14 @@ def test_fronts_hops_months_and_earlier_neighbours(kind):
     # W0 = 2026-03-02 (Mon): week 5 starts 2026-04-06 -> April; the week of 2026-03-30 has its
     # fourth day (2 April) in April too.
     assert f["month"].tolist()[:4] == ["2026-03"] * 3 + ["2026-04"]
+    assert f["epi_week"].tolist()[:4] == ["2026-W10", "2026-W11", "2026-W11", "2026-W15"]
+
+
+def test_epi_week_label_follows_a_sunday_calendar():
+    units, g = _strip(2, countries=("AAA", "AAA"))
+    # Sundays: epiweeks.Week.fromdate gives 202601 for 2026-01-04 and 202553 for 2025-12-28.
+    first = pd.Series(pd.to_datetime(["2026-01-04", "2025-12-28"]), index=units.index)
+    assert spread_fronts(first, g)["epi_week"].tolist() == ["2026-W01", "2025-W53"]
 
 
 def test_month_of_week_uses_the_fourth_day():

@@ -15,6 +15,7 @@ import pandas as pd
 from scipy import sparse
 from scipy.sparse import csgraph
 
+from ._weeks import epi_week
 from .errors import DataWarning
 from .graph import BorderGraph
 
@@ -63,6 +64,20 @@ def month_of_week(week: pd.Series) -> pd.Series:
     """
     mid = week + pd.Timedelta(days=3)
     return mid.dt.strftime("%Y-%m").where(week.notna(), pd.NA).astype("string")
+
+
+def epi_week_label(week: pd.Series) -> pd.Series:
+    """Epi week of each first week as "YYYY-Www" (ISO; Sunday-start if every week is a Sunday)."""
+    known = week.dropna()
+    out = pd.Series(pd.NA, index=week.index, dtype="string")
+    if known.empty:
+        return out
+    calendar = "sunday" if (known.dt.day_of_week == 6).all() else "iso"
+    ew = epi_week(known, calendar)
+    out[known.index] = (
+        ew["year"].astype(str) + "-W" + ew["week"].astype(str).str.zfill(2)
+    ).to_numpy()
+    return out
 
 
 def resolve_countries(bg: BorderGraph, countries: pd.Series | None) -> pd.Series | None:

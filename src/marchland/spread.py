@@ -23,6 +23,7 @@ from libpysal.graph import Graph
 from ._arrival import (
     FIRST_WEEK,
     centroids_km,
+    epi_week_label,
     first_on,
     introductions_table,
     month_of_week,
@@ -212,7 +213,8 @@ def spread_fronts(first: pd.Series, graph: BorderGraph | Graph) -> pd.DataFrame:
     Returns
     -------
     pandas.DataFrame
-        Indexed by ``unit_id``: ``first_week``, ``weeks_since_start`` (Int64, weeks after the
+        Indexed by ``unit_id``: ``first_week``, ``epi_week`` ("2026-W10"; Sunday-start
+        numbering when the weeks are Sundays), ``weeks_since_start`` (Int64, weeks after the
         earliest first week), ``month`` ("YYYY-MM", the month holding most days of the first
         week), ``hops`` (Int64, graph steps from the nearest earliest unit; ``<NA>`` if not
         connected), ``origin`` (one of the earliest units), ``earlier_neighbours`` (Int64,
@@ -225,18 +227,19 @@ def spread_fronts(first: pd.Series, graph: BorderGraph | Graph) -> pd.DataFrame:
     >>> g = Graph.from_adjacency(pd.DataFrame({"focal": list("abbc"),
     ...     "neighbor": list("bacb"), "weight": 1.0}))
     >>> first = pd.Series(pd.to_datetime(["2026-03-02", "2026-03-16", None]), index=list("abc"))
-    >>> spread_fronts(first, g)[["weeks_since_start", "month", "hops"]]
-             weeks_since_start    month  hops
+    >>> spread_fronts(first, g)[["epi_week", "weeks_since_start", "month", "hops"]]
+             epi_week  weeks_since_start    month  hops
     unit_id
-    a                        0  2026-03     0
-    b                        2  2026-03     1
-    c                     <NA>     <NA>     2
+    a        2026-W10                  0  2026-03     0
+    b        2026-W12                  2  2026-03     1
+    c            <NA>               <NA>     <NA>     2
     """
     bg = as_border_graph(graph)
     t = first_on(first, bg.ids)
     out = pd.DataFrame(index=bg.ids)
     out[FIRST_WEEK] = t
     start = t.min()
+    out["epi_week"] = epi_week_label(t)
     out["weeks_since_start"] = weeks_between(t, start)
     out["month"] = month_of_week(t)
     origin = t.notna() & (t == start)
