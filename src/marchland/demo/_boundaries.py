@@ -1,10 +1,12 @@
 """Each country's own boundary files, digitised "independently" so borders do not line up.
 
-Every country's copy of the map is moved by its own smooth displacement field (at most
-``MAX_SHIFT`` metres), applied to every vertex. Inside one country a shared vertex moves the
-same way for both districts, so its districts still tile exactly; along an international
-border the two countries' copies move differently, which opens gaps and overlaps of up to
-2 x ``MAX_SHIFT`` - as files from different mapping agencies do.
+Along every land border the two countries' copies are pushed apart or into each other along
+the border's normal by a profile that alternates between overlap and gap every few tens of
+kilometres (a squashed sine, so it spends little length near zero), plus a small wavy field
+of each country's own. Every vertex of a country moves by one function of its position, so
+inside a country shared vertices move together and districts still tile exactly; across a
+border the two copies differ by up to ``2 * MAX_SHIFT`` - as files from different mapping
+agencies do.
 """
 
 from __future__ import annotations
@@ -19,11 +21,9 @@ import shapely
 from ._world import GEN_CRS, World
 
 MAX_SHIFT = 135.0  # metres; two countries' shifts add up to at most 270 m
-# Each country's copy is offset as a whole (a datum or digitising difference) plus a wavy part.
-# Offsets sit 120-180 degrees apart on a circle for neighbours, so their difference across a
-# land border is 147-170 m and the mismatch is rarely near zero for long.
-_OFFSET_M = 85.0
-_OFFSET_DEG = {"TVR": 0.0, "OSK": 120.0, "MRW": 240.0, "QLN": 60.0}
+_PROFILE_M = 115.0  # each side's share of the gap/overlap profile (so up to 230 m between them)
+_WAVE_M = MAX_SHIFT - _PROFILE_M  # each country's own small wavy shift
+_TAPER_M = (3_000.0, 12_000.0)  # full profile this close to the border, none beyond the second
 # Each country's file: (format suffix, CRS, column names for adm2 and adm1).
 FILES = {
     "TVR": (".gpkg", "EPSG:4326", ("code", "name", "prov_code"), ("code", "name")),
@@ -35,27 +35,80 @@ FILES = {
 _FIXED_DATE = "2026-12-01T00:00:00Z"
 
 
-def _field(country, rng):
-    """Draw a country's smooth 2-D displacement field, bounded by MAX_SHIFT."""
+def _waves(rng):
+    """Draw a smooth random 2-D displacement field bounded by ``_WAVE_M`` (plane waves)."""
     k = 4
-    off = _OFFSET_M * np.array(
-        [np.cos(np.radians(_OFFSET_DEG[country])), np.sin(np.radians(_OFFSET_DEG[country]))]
-    )
     wavelength = rng.uniform(12_000, 60_000, (2, k))
     angle = rng.uniform(0, 2 * np.pi, (2, k))
     phase = rng.uniform(0, 2 * np.pi, (2, k))
     amp = rng.uniform(0.3, 1.0, (2, k))
-    amp = amp / amp.sum(axis=1, keepdims=True) * (MAX_SHIFT - _OFFSET_M) / np.sqrt(2)
+    amp = amp / amp.sum(axis=1, keepdims=True) * _WAVE_M / np.sqrt(2)
     kx = 2 * np.pi / wavelength * np.cos(angle)
     ky = 2 * np.pi / wavelength * np.sin(angle)
 
     def shift(xy):
         x, y = xy[:, :1], xy[:, 1:2]
-        arg = x * kx[None, 0] + y * ky[None, 0] + phase[None, 0]
-        dx = (amp[0] * np.cos(arg)).sum(1)
-        arg = x * kx[None, 1] + y * ky[None, 1] + phase[None, 1]
-        dy = (amp[1] * np.cos(arg)).sum(1)
-        return xy + off + np.column_stack([dx, dy])
+        dx = (amp[0] * np.cos(x * kx[None, 0] + y * ky[None, 0] + phase[None, 0])).sum(1)
+        dy = (amp[1] * np.cos(x * kx[None, 1] + y * ky[None, 1] + phase[None, 1])).sum(1)
+        return np.column_stack([dx, dy])
+
+    return shift
+
+
+def _land_borders(world: World) -> list:
+    """(country a, country b, line) for every land border, from the true geometry."""
+    d = world.districts
+    union = {c: shapely.union_all(d.geometry.values[d["country"].values == c]) for c in FILES}
+    out = []
+    for i, a in enumerate(FILES):
+        for b in list(FILES)[i + 1 :]:
+            shared = shapely.intersection(union[a].boundary, union[b].boundary)
+            lines = [
+                g
+                for g in getattr(shapely.line_merge(shared), "geoms", [shapely.line_merge(shared)])
+                if g.geom_type == "LineString" and g.length > 0
+            ]
+            out.extend((a, b, line, union) for line in lines)
+    return out
+
+
+def _profile_shift(xy, own, other, line, union, params):
+    """Push points near ``line`` along its normal, towards ``other``, by the border's profile."""
+    wavelength, phase = params
+    pts = shapely.points(xy)
+    dist = shapely.distance(pts, line)
+    lo, hi = _TAPER_M
+    w = np.clip((hi - dist) / (hi - lo), 0, 1)
+    near = w > 0
+    out = np.zeros_like(xy)
+    if not near.any():
+        return out
+    s = shapely.line_locate_point(line, pts[near])
+    p0 = shapely.get_coordinates(shapely.line_interpolate_point(line, s - 150))
+    p1 = shapely.get_coordinates(shapely.line_interpolate_point(line, s + 150))
+    q = shapely.get_coordinates(shapely.line_interpolate_point(line, s))
+    t = p1 - p0
+    t /= np.maximum(np.hypot(t[:, 0], t[:, 1]), 1e-9)[:, None]
+    n = np.column_stack([-t[:, 1], t[:, 0]])
+    probe = shapely.points(q + 300 * n)
+    towards = shapely.distance(probe, union[other]) < shapely.distance(probe, union[own])
+    n *= np.where(towards, 1.0, -1.0)[:, None]
+    m = np.tanh(3 * np.sin(2 * np.pi * s / wavelength + phase))  # +1 overlap, -1 gap
+    out[near] = (w[near] * _PROFILE_M * m)[:, None] * n
+    return out
+
+
+def _field(country, borders, params, rng):
+    """Draw a country's displacement: border profiles plus its own small waves."""
+    waves = _waves(rng)
+
+    def shift(xy):
+        total = xy + waves(xy)
+        for k, (a, b, line, union) in enumerate(borders):
+            if country in (a, b):
+                other = b if country == a else a
+                total += _profile_shift(xy, country, other, line, union, params[k])
+        return total
 
     return shift
 
@@ -74,9 +127,11 @@ def country_copies(world: World, rng: np.random.Generator) -> dict[str, gpd.GeoD
         Districts indexed by unit_id with ``name province_id geometry``.
     """
     out = {}
+    borders = _land_borders(world)
+    params = [(rng.uniform(45_000, 90_000), rng.uniform(0, 2 * np.pi)) for _ in borders]
     for c in FILES:
         d = world.districts[world.districts["country"] == c]
-        g = shapely.transform(d.geometry.values, _field(c, rng))
+        g = shapely.transform(d.geometry.values, _field(c, borders, params, rng))
         g = shapely.set_precision(g, 0.01)
         if not shapely.is_valid(g).all():  # pragma: no cover - strain is far too small for it
             raise RuntimeError(f"perturbed {c} districts are not valid")
