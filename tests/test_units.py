@@ -251,9 +251,11 @@ def test_counts_roll_up_keeps_revisions(files: dict[str, Path]) -> None:
             ("TVR-01-01", "2026-01-05", 2, 0, "2026-01-12"),
         ]
     )
+    counts = counts.assign(file="f.csv", sheet="", implied=False)
     a = analysis_units(u, counts)
     assert "MRW-01" in a.index  # province rows force province level for MRW
     moved = counts_to_analysis(counts, u, a)
+    assert moved["implied"].notna().all() and moved["file"].notna().all()
     latest = as_of(moved).set_index(["unit_id", "week"])
     assert latest.loc[("MRW-01", pd.Timestamp("2026-01-05")), "cases"] == 9
     early = as_of(moved, "2026-01-20").set_index(["unit_id", "week"])
@@ -261,7 +263,7 @@ def test_counts_roll_up_keeps_revisions(files: dict[str, Path]) -> None:
     assert early.loc[("MRW-01", pd.Timestamp("2026-01-05")), "deaths"] == 1
     assert pd.isna(latest.loc[("MRW-01", pd.Timestamp("2026-01-12")), "deaths"])
     assert latest.loc[("TVR-01-01", pd.Timestamp("2026-01-05")), "cases"] == 2
-    assert len(counts) == 5  # input untouched
+    assert len(counts) == 5 and "_aid" not in counts  # input untouched
 
 
 def test_counts_that_cannot_be_placed(files: dict[str, Path]) -> None:

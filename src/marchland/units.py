@@ -584,5 +584,12 @@ def counts_to_analysis(
     summed["deaths"] = summed["deaths"].astype("Int64").mask(summed["_dna"])
     summed["cases"] = summed["cases"].astype("Int64")
     summed = summed.drop(columns="_dna").rename(columns={"_aid": "unit_id"})
+    # A sum is written by no single row: keep the extra columns, marking it as derived.
+    if "implied" in known:
+        implied = known.groupby(["_aid", "week", "received"], sort=True)["implied"].all()
+        summed["implied"] = implied.to_numpy(dtype=bool)
+    for col in ("file", "sheet"):
+        if col in counts:
+            summed[col] = ""
     out = pd.concat([direct, summed], ignore_index=True)
     return out.reset_index(drop=True)
