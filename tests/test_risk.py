@@ -445,9 +445,16 @@ def test_demo_next_infected_rank_in_the_top_decile_more_often_than_chance(demo):
         total += len(nxt)
         expected += len(nxt) * len(top) / len(r)
     assert total >= 10
-    # Chance puts len(top) / len(r) (about a tenth) of them in the top decile.
-    print(f"next infected in the top decile: {hits} of {total}; chance {expected:.1f}")
-    assert hits > 2 * expected, (hits, total, expected)
+    # Chance puts len(top) / len(r) (about a tenth) of them in the top decile; a one-sided
+    # binomial test (scipy) says whether the score does better than that.
+    from scipy.stats import binomtest
+
+    test = binomtest(hits, total, expected / total, alternative="greater")
+    print(
+        f"next infected in the top decile: {hits} of {total}; chance {expected:.1f}; "
+        f"p = {test.pvalue:.2g}"
+    )
+    assert hits > expected and test.pvalue < 0.01, (hits, total, expected)
 
 
 def test_weeks_on_two_calendars_are_an_input_error():
