@@ -3,14 +3,16 @@
 Each district holds a pool of people at risk of a reported-severity illness (a share of its
 population). Each week the force of infection on district ``i`` is
 
-    lambda_i(t) = beta_i(t) * (x_i(t-1) + sum_j eps_ij * x_j(t-1)),
+    lambda_i(t) = beta_i(t) * (x_i + sum_j eps_ij * x_j) [+ hot-area water hazard],
 
-where ``x_j`` is the infectious share of ``j``'s pool (this week's cases and part of last
-week's) and ``eps_ij`` couples neighbours by shared border length and population - stronger
+where ``x_j`` is the infectious share of ``j``'s pool (last week's cases and 0.4 of the week
+before's) and ``eps_ij`` couples neighbours by shared border length and population - stronger
 between river districts, weaker across international borders and over ferry and bridge
-links. New cases are binomial draws from the susceptible pool, deaths binomial draws from the
-cases with a case fatality that rises where care is poor. Immunity wanes slowly, which keeps
-the epidemic going through a second season. Only the loop over weeks is in Python.
+links. ``beta`` carries a rainy-season cycle and, in the hot area during ``HOT_MONTHS``, a
+multiplier; there the pool is also refilled by newcomers. New cases are binomial draws from
+the susceptible pool, deaths binomial draws from the cases with a case fatality that rises
+where care is poor. Immunity wanes slowly, which keeps the epidemic going through a second
+season. Only the loop over weeks is in Python.
 """
 
 from __future__ import annotations
@@ -29,7 +31,7 @@ _POOL = {"TVR": 0.022, "OSK": 0.02, "MRW": 0.009, "QLN": 0.02}  # share of peopl
 _REPORTING = {"TVR": 0.7, "OSK": 0.6, "MRW": 0.5, "QLN": 0.65}
 _BETA = 1.2  # weekly transmission within a district's pool
 _SEASON = 0.3  # seasonal amplitude; peak in the rainy season (February)
-_COUPLE = 0.05
+_COUPLE = 0.05  # neighbour coupling per unit share of a district's border
 _RIVER = 4.0  # both districts on the Senn
 _CROSS = 0.3  # across an international border
 _LINK = {"ferry": 0.02, "bridge": 0.05, "road": 0.05}
