@@ -180,7 +180,7 @@ def test_outbreak_truth_is_consistent():
     first = pd.read_csv(TRUTH / "first_case.csv", parse_dates=["week"], keep_default_na=False)
     districts = pd.read_csv(TRUTH / "districts.csv", index_col="unit_id")
     assert len(inc) == 250 * inc["week"].nunique()
-    assert (inc["week"].dt.dayofweek == 0).all()
+    assert (inc["week"].dt.day_of_week == 0).all()
     assert inc["week"].min() == pd.Timestamp("2025-04-07")
     by_country = inc.groupby(inc["unit_id"].str[:3])["cases"].sum()
     assert (by_country > 0).all() and len(by_country) == 4

@@ -110,7 +110,7 @@ def build_population(world: World, rng: np.random.Generator) -> Population:
     tpop[cities] = rng.uniform(60_000, 380_000, len(cities))
     tpop[d["island"].values] = 6_000.0
     people = dens * area
-    col, row = ~transform * to_ll.transform(tx, ty)
+    col, row = ~transform @ to_ll.transform(tx, ty)
     for k in range(len(d)):  # generator only: one small window per town
         sigma = 1_800.0 if tpop[k] < 50_000 else 4_500.0
         r0, c0 = int(row[k]), int(col[k])

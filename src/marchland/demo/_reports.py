@@ -370,7 +370,7 @@ def mmwr_week(sunday: pd.Timestamp) -> tuple[int, int]:
     """
     year = (sunday + pd.Timedelta(days=3)).year
     jan4 = pd.Timestamp(year=year, month=1, day=4)
-    week1 = jan4 - pd.Timedelta(days=(jan4.dayofweek + 1) % 7)
+    week1 = jan4 - pd.Timedelta(days=(jan4.day_of_week + 1) % 7)
     return year, (sunday - week1).days // 7 + 1
 
 
@@ -386,7 +386,7 @@ def write_qln(sc, cases, deaths, folder: Path, rng, dirt, aliases) -> list:
     day = weeks[np.repeat(t, n)] + pd.to_timedelta(rng.integers(0, 7, n.sum()), unit="D")
     rank = np.arange(len(case_pos)) - np.repeat(np.cumsum(n) - n, n)
     died = rank < np.repeat(dd[pos, t], n)
-    sunday = day - pd.to_timedelta((day.dayofweek + 1) % 7, unit="D")
+    sunday = day - pd.to_timedelta((day.day_of_week + 1) % 7, unit="D")
     agg = (
         pd.DataFrame({"pos": case_pos, "sunday": sunday, "died": died})
         .groupby(["sunday", "pos"])
