@@ -535,3 +535,18 @@ def test_tiled_files_sliding_along_the_border_estimate_the_overlap():
     # Middle row: the outlines end at the cell junctions, where the flat-capped buffers stop.
     assert e.loc[("U11", "U21"), "shared_m"] == pytest.approx(1850, abs=1e-6)
     assert e.loc[("U21", "U11"), "shared_m"] == pytest.approx(1850, abs=1e-6)
+
+
+def test_strict_finds_neighbours_without_shared_vertices():
+    a = shapely.box(0, 0, 10, 10)
+    b = shapely.Polygon([(10, 2), (20, 2), (20, 8), (10, 8)])  # meets a's side mid-edge
+    layer = gpd.GeoDataFrame(
+        {"country": ["AAA", "AAA"], "source": ["one", "one"]},
+        geometry=[a, b],
+        index=pd.Index(["a", "b"], name="unit_id"),
+        crs=CRS,
+    )
+    assert border_graph(layer).islands == ["a", "b"]  # vertex method: no shared vertex
+    bg = border_graph(layer, strict=True)
+    assert pairs(bg) == {frozenset("ab")}
+    assert bg.edges["shared_m"].tolist() == [6.0, 6.0]

@@ -236,7 +236,7 @@ def _shared_lengths(geoms, i, j, pair_len: pd.Series, *, strict: bool) -> np.nda
     if len(i) == 0:
         return np.empty(0)
     n = len(geoms)
-    out = pair_len.reindex(i * n + j, fill_value=0.0).to_numpy()
+    out = pair_len.reindex(i * n + j, fill_value=0.0).to_numpy(dtype=float, copy=True)
     if strict:
         redo = out == 0
         if redo.any():
