@@ -11,7 +11,7 @@ import pyproj
 import rasterio
 import shapely
 from rasterio.features import rasterize
-from rasterio.transform import from_origin
+from rasterio.transform import Affine
 from scipy.ndimage import binary_dilation, distance_transform_edt
 
 from ._world import GEN_CRS, World
@@ -19,6 +19,7 @@ from ._world import GEN_CRS, World
 CELL_DEG = 0.01  # about 1.1 km
 WEST, NORTH, NCOL, NROW = -22.0, -13.0, 600, 500
 NODATA = -9999.0
+_TRANSFORM = Affine(CELL_DEG, 0.0, WEST, 0.0, -CELL_DEG, NORTH)  # north-up grid
 POP_MIN, POP_MAX = 8_000, 800_000  # kept inside the 5,000-900,000 range with a margin
 
 
@@ -55,7 +56,7 @@ def build_population(world: World, rng: np.random.Generator) -> Population:
     Population
     """
     x, y, area = _grid_xy()
-    transform = from_origin(WEST, NORTH, CELL_DEG, CELL_DEG)
+    transform = _TRANSFORM
     d = world.districts
     to_ll = pyproj.Transformer.from_crs(GEN_CRS, "EPSG:4326", always_xy=True)
     geoms_ll = shapely.transform(
@@ -156,7 +157,7 @@ def write_raster(pop: Population, path: Path) -> None:
         count=1,
         dtype="float32",
         crs="EPSG:4326",
-        transform=from_origin(WEST, NORTH, CELL_DEG, CELL_DEG),
+        transform=_TRANSFORM,
         nodata=NODATA,
         compress="deflate",
         predictor=3,
