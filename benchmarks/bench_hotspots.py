@@ -1,7 +1,7 @@
 """Time and memory of marchland.hotspots next to esda on the same data, in the same run.
 
     $ .venv/bin/python benchmarks/bench_hotspots.py            # 10,000 and 50,000 units
-    $ .venv/bin/python benchmarks/bench_hotspots.py --sizes 10000
+    $ .venv/bin/python benchmarks/bench_hotspots.py --sizes 10000 --weighting shared
 
 Each measurement runs in a fresh Python process so that "cold" (first call in a new process,
 imports excluded but any just-in-time compilation included) and peak memory (max RSS of
@@ -50,12 +50,14 @@ def _lattice(n_units: int):
         focal += [a, b]
         neigh += [b, a]
     focal, neigh = np.concatenate(focal), np.concatenate(neigh)
+    # invented, symmetric boundary lengths, so "shared" weighting has unequal weights
+    shared = 200.0 + (np.minimum(focal, neigh) * 7 + np.maximum(focal, neigh)) % 4800
     ids = pd.Index([f"U{i:06d}" for i in range(n)], name="unit_id")
     edges = pd.DataFrame(
         {
             "focal": ids[focal],
             "neighbor": ids[neigh],
-            "shared_m": 1000.0,
+            "shared_m": shared,
             "gap_m": 0.0,
             "cross_border": False,
             "kind": "shared-boundary",
@@ -70,7 +72,7 @@ def _lattice(n_units: int):
     return graph, pd.Series(cases, index=ids), pd.Series(pop, index=ids)
 
 
-def _child(target: str, n_units: int) -> dict:
+def _child(target: str, n_units: int, weighting: str) -> dict:
     import warnings
 
     import numpy as np
@@ -80,14 +82,15 @@ def _child(target: str, n_units: int) -> dict:
         from marchland.hotspots import hotspots
 
         def run():
-            return hotspots(cases, pop, graph, permutations=PERMUTATIONS, seed=SEED)
+            return hotspots(cases, pop, graph, permutations=PERMUTATIONS, seed=SEED,
+                            weighting=weighting)  # fmt: skip
 
     else:
         import esda
 
         from marchland.rates import eb_standardised
 
-        g_row = graph.weights("binary", row_standardise=True)
+        g_row = graph.weights(weighting, row_standardise=True)
         y = eb_standardised(cases, pop).to_numpy()
         e, b = cases.to_numpy(), pop.to_numpy()
 
@@ -117,10 +120,16 @@ def _child(target: str, n_units: int) -> dict:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=[10_000, 50_000])
+    parser.add_argument(
+        "--weighting",
+        choices=["binary", "shared"],
+        default="binary",
+        help="neighbour weights: equal (the fast path) or by boundary length",
+    )
     parser.add_argument("--child", nargs=2, metavar=("TARGET", "N"), help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
-        print(json.dumps(_child(args.child[0], int(args.child[1]))))
+        print(json.dumps(_child(args.child[0], int(args.child[1]), args.weighting)))
         return
     try:
         import numba  # noqa: F401
@@ -128,13 +137,14 @@ def main() -> None:
         jit = "numba installed: esda's kernels compile in each new process (in 'cold')"
     except ImportError:
         jit = "numba not installed: esda runs its permutation loop in plain Python"
-    print(f"{jit}; {os.cpu_count()} cores; {PERMUTATIONS} permutations")
+    print(f"{jit}; {os.cpu_count()} cores; {PERMUTATIONS} permutations; {args.weighting} weights")
     print(f"{'target':<18}{'units':>8}{'cold s':>9}{'warm s':>9}{'peak MB':>9}{'vs esda':>9}")
     for n in args.sizes:
         results = {}
         for target in ("esda_local", "esda_local_rate", "marchland"):
             out = subprocess.run(
-                [sys.executable, __file__, "--child", target, str(n)],
+                [sys.executable, __file__, "--child", target, str(n), "--weighting",
+                 args.weighting],
                 capture_output=True, text=True, check=True,
             )  # fmt: skip
             results[target] = json.loads(out.stdout.strip().splitlines()[-1])

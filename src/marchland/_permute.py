@@ -59,12 +59,18 @@ def folded_pvalues(at_least: np.ndarray, at_most: np.ndarray, permutations: int)
 
 
 def _gather_lags(values, weights, units, ids):
-    """Weighted lags by gathering every permuted neighbour value: (permutations, units)."""
+    """Weighted lags summing each unit's draws as esda does: (permutations, units).
+
+    Draw ``j`` is ``values[j]`` for units after it and ``values[j + 1]`` for units at or
+    before it, so the drawn values are a select between two small (permutations x k)
+    tables rather than a random gather; the sum is the same matmul as esda's, bit for bit.
+    """
     k = ids.shape[1]
     offsets = weights.indptr[units][:, None] + np.arange(k)
     w_u = weights.data[offsets][:, :, None]  # each unit's weights in CSR (column) order
-    drawn = ids[None, :, :] + (ids[None, :, :] >= units[:, None, None])
-    return np.matmul(values[drawn], w_u)[:, :, 0].T
+    low, high = values[ids], values[ids + 1]
+    drawn = np.where(ids[None, :, :] >= units[:, None, None], high[None], low[None])
+    return np.matmul(drawn, w_u)[:, :, 0].T
 
 
 def _step_lags(values, weights, units, ids):
