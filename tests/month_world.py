@@ -169,10 +169,16 @@ def write_world(root: Path) -> Path:
     root.mkdir(parents=True, exist_ok=True)
     units = grid_units()
     units.reset_index().rename(columns={"unit_id": "code"}).to_file(root / "grid.gpkg")
+    prov = province_units()
+    prov.reset_index().rename(columns={"unit_id": "code"})[
+        ["code", "name", "country", "geometry"]
+    ].to_file(root / "provinces.gpkg")
     units["population"].rename("population").to_csv(root / "pop.csv")
     counts = grid_counts(units)
     out = counts.assign(place=counts["unit_id"])[["place", "week", "cases", "deaths", "received"]]
-    out.to_csv(root / "grid.csv", index=False, date_format="%Y-%m-%d")
+    for country in ("AAA", "BBB"):
+        part = out[out["place"].str.startswith(country)]
+        part.to_csv(root / f"{country.lower()}.csv", index=False, date_format="%Y-%m-%d")
     (root / "items.csv").write_text(
         "# Example values for an invented test world, not guidance.\n"
         "item,unit,per_case,basis,buffer_share\n"
@@ -201,6 +207,13 @@ seed = 11
 as_of_lag_days = 3
 
 [[boundaries]]
+path = "provinces.gpkg"
+id = "code"
+name = "name"
+country_column = "country"
+level = 1
+
+[[boundaries]]
 path = "grid.gpkg"
 id = "code"
 name = "name"
@@ -212,11 +225,26 @@ parent = "parent_id"
 table = "pop.csv"
 
 [[reports]]
-name = "grid-weekly"
-path = "grid.csv"
+name = "aaa-weekly"
+path = "aaa.csv"
 country = "AAA"
 shape = "weekly"
 level = 2
+zeros = "explicit"
+[reports.columns]
+place = "place"
+week = "week"
+cases = "cases"
+deaths = "deaths"
+received = "received"
+
+[[reports]]
+name = "bbb-weekly"
+path = "bbb.csv"
+country = "BBB"
+shape = "weekly"
+level = 2
+zeros = "explicit"
 [reports.columns]
 place = "place"
 week = "week"

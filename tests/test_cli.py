@@ -186,17 +186,46 @@ def test_backtest_prints_the_table(runner, world, grid):
         assert text in res.output
 
 
-def test_check_exit_codes(runner, world, monkeypatch):
-    import types
+def test_check_reads_every_source(runner, world):
+    res = runner.invoke(cli.cli, ["check", str(world)])
+    assert res.exit_code == 0, res.stderr
+    assert "aaa-weekly" in res.output and "bbb-weekly" in res.output
+    assert "2070 rows read = 2070 used + 0 rejected" in res.output
 
-    reports = {
-        "ok": types.SimpleNamespace(ok=True, to_text=lambda: "all rows accounted"),
-        "bad": types.SimpleNamespace(ok=False, to_text=lambda: "x.csv: cannot read"),
-    }
-    for key, code in (("ok", 0), ("bad", 2)):
-        fake = types.ModuleType("marchland.region")
-        fake.check = lambda cfg, _k=key: reports[_k]
-        monkeypatch.setitem(sys.modules, "marchland.region", fake)
-        res = runner.invoke(cli.cli, ["check", str(world)])
-        assert res.exit_code == code
-        assert reports[key].to_text() in res.output
+
+def test_check_exits_2_when_a_source_cannot_be_used(runner, world, tmp_path):
+    # Without the province file every district names a parent no boundary file has.
+    text = world.read_text()
+    start = text.index('[[boundaries]]\npath = "provinces.gpkg"')
+    end = text.index("[[boundaries]]", start + 1)
+    broken = tmp_path / "broken.toml"
+    broken.write_text(text[:start] + text[end:])
+    for name in ("grid.gpkg", "pop.csv", "aaa.csv", "bbb.csv", "items.csv", "depots.csv"):
+        (tmp_path / name).write_bytes((world.parent / name).read_bytes())
+    res = runner.invoke(cli.cli, ["check", str(broken)])
+    assert res.exit_code == 2
+    assert "ERR" in res.output and "parent" in res.output
+
+
+def test_run_reads_the_real_files(runner, world, tmp_path, monkeypatch):
+    monkeypatch.setattr("marchland.bundle._write_figures", lambda result, root: {})
+    res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-10", "--out", str(tmp_path)])
+    assert res.exit_code == 0, res.stderr
+    import json
+
+    m = json.loads((tmp_path / "2026-10" / "manifest.json").read_text())
+    assert {i["path"] for i in m["inputs"]} >= {"aaa.csv", "bbb.csv", "grid.gpkg", "provinces.gpkg"}
+    assert m["steps_not_run"] == {}
+
+
+def test_demo_runs_the_bundled_scenario(runner, tmp_path):
+    res = runner.invoke(cli.cli, ["demo", "--out", str(tmp_path)])
+    assert res.exit_code == 0, res.stderr
+    bundle = tmp_path / "2026-10"
+    for name in ("report.html", "atlas.pdf", "layers.gpkg", "manifest.json", "rejects.csv"):
+        assert (bundle / name).is_file(), name
+    assert len(list((bundle / "maps").glob("*.png"))) >= 10
+    assert "written to" in res.output
+    again = runner.invoke(cli.cli, ["demo", "--out", str(tmp_path)])
+    assert again.exit_code == 2, again.output
+    assert "--overwrite" in again.stderr, again.stderr

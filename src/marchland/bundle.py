@@ -123,10 +123,14 @@ def write_month(result: Any, out_dir: str | os.PathLike[str], *, overwrite: bool
 
     Examples
     --------
-    >>> from marchland.demo import scenario_path  # doctest: +SKIP
-    >>> from marchland.monthly import run_month  # doctest: +SKIP
-    >>> write_month(run_month(scenario_path(), "2026-10"), "out", overwrite=True)  # doctest: +SKIP
-    PosixPath('out/2026-10')
+    An existing month is refused unless ``overwrite`` is set (nothing is touched):
+
+    >>> import pathlib, tempfile, types
+    >>> out = pathlib.Path(tempfile.mkdtemp())
+    >>> (out / "2026-10").mkdir()
+    >>> write_month(types.SimpleNamespace(month="2026-10"), out)
+    Traceback (most recent call last):
+    marchland.errors.InputError: ...2026-10: a bundle for this month exists already; ...
     """
     out = Path(out_dir)
     dest = check_destination(out, result.month, overwrite=overwrite)

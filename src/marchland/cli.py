@@ -270,12 +270,15 @@ def _run_and_write(
 
     console = _console(ctx)
     out_dir = Path(out) if out is not None else Path(cfg.output.dir)
-    if month is not None:
+
+    def refuse_early(m: str) -> None:
         # Refuse before spending a minute on the analysis.
-        check_destination(out_dir, month, overwrite=overwrite)
+        check_destination(out_dir, m, overwrite=overwrite)
+
+    if month is not None:
+        refuse_early(month)
     with _StepDisplay(console) as steps:
-        result = run_month(cfg, month, as_of=as_of, progress=steps)
-        check_destination(out_dir, result.month, overwrite=overwrite)
+        result = run_month(cfg, month, as_of=as_of, progress=steps, on_month=refuse_early)
         steps("write bundle", "start", None)
         t0 = time.perf_counter()
         dest = write_month(result, out_dir, overwrite=overwrite)

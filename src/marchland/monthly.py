@@ -303,6 +303,7 @@ def run_month(
     *,
     as_of: object = None,
     progress: Progress | None = None,
+    on_month: Callable[[str], None] | None = None,
 ) -> MonthResult:
     """Run every analysis of one month and return the results (no file is written).
 
@@ -317,6 +318,9 @@ def run_month(
         ``region.as_of_lag_days``.
     progress : callable, optional
         Called as ``progress(step, "start", None)`` and ``progress(step, "done", seconds)``.
+    on_month : callable, optional
+        Called with ``"YYYY-MM"`` once the month is known (after the inputs are read, before
+        any analysis), e.g. to refuse early when that month's bundle exists.
 
     Returns
     -------
@@ -324,9 +328,14 @@ def run_month(
 
     Examples
     --------
+    >>> import warnings
     >>> from marchland.demo import scenario_path
-    >>> result = run_month(scenario_path(), "2026-10")  # doctest: +SKIP
-    >>> result.headline["cases"] > 0  # doctest: +SKIP
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     result = run_month(scenario_path(), "2026-10")
+    >>> result.month, f"{result.as_of:%Y-%m-%d}", result.absent
+    ('2026-10', '2026-11-03', {})
+    >>> result.headline["cases"] > 0 and result.headline["expected_new_units"] > 0
     True
     """
     cfg = config if isinstance(config, Config) else load_config(config)
@@ -341,6 +350,8 @@ def run_month(
             if month is not None
             else parse_month(_latest_week_month(region.counts))
         )
+        if on_month is not None:
+            on_month(str(period))
         as_of_ts = pd.Timestamp(as_of) if as_of is not None else default_as_of(cfg, period)
         fields: dict[str, Any] = _region_fields(region, period, as_of_ts)
         fields.update(run("graph", lambda: _graph_fields(region)))
