@@ -550,3 +550,25 @@ def test_strict_finds_neighbours_without_shared_vertices():
     bg = border_graph(layer, strict=True)
     assert pairs(bg) == {frozenset("ab")}
     assert bg.edges["shared_m"].tolist() == [6.0, 6.0]
+
+
+def test_nested_units_of_two_files_warn_of_mixed_levels():
+    from marchland.errors import DataWarning
+
+    layer = two_files(shapely.box(0, 0, 5000, 5000), shapely.box(0, 0, 2500, 5000))
+    with pytest.warns(DataWarning, match="overlap by more than half"):
+        border_graph(layer, tolerance=300)
+
+
+def test_blank_link_kind_becomes_link():
+    table = pd.DataFrame({"from_id": ["U00"], "to_id": ["U20"], "kind": [""], "name": ["x"]})
+    bg = border_graph(grid(3, 1), links=table)
+    e = bg.edges[bg.edges["kind"] == "link"]
+    assert e["link_kind"].tolist() == ["link", "link"]
+
+
+def test_hops_from_unknown_or_no_sources():
+    bg = border_graph(grid(2, 1))
+    with pytest.raises(KeyError, match="nowhere"):
+        bg.hops_from(["U00", "nowhere"])
+    assert bg.hops_from([]).isna().all()

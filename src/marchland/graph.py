@@ -235,12 +235,12 @@ class BorderGraph:
         >>> BorderGraph(e, pd.Index(list("abcd"))).hops_from(["a"]).tolist()
         [0, 1, 2, <NA>]
         """
-        sources = list(sources)
-        unknown = [s for s in sources if s not in self.ids]
-        if unknown:
-            raise KeyError(f"sources not in the graph: {unknown[:5]}")
+        sources = pd.Index(list(sources))
+        unknown = sources[~sources.isin(self.ids)]
+        if len(unknown):
+            raise KeyError(f"sources not in the graph: {unknown[:5].tolist()}")
         out = pd.Series(pd.NA, index=self.ids, dtype="Int64", name="hops")
-        if not sources:
+        if len(sources) == 0:
             return out
         n = len(self.ids)
         src = np.unique(self.ids.get_indexer(sources))
