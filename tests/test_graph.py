@@ -354,41 +354,64 @@ def test_order_and_id_type_do_not_change_the_graph(ids, shuffle, rule):
 NX, NY = 6, 4  # grid of cells; columns >= 3 are country BBB in their own file
 
 
-def perturbed(shift):
-    """The exact grid with every vertex of country BBB's file moved by ``shift[col, row]``.
+def perturbed(shift_b, shift_a=None):
+    """The exact grid with every vertex of BBB's file moved by ``shift_b[col, row]`` (and of
+    AAA's file by ``shift_a``).
 
-    Moving each vertex consistently keeps BBB's own file topologically clean while its border
-    with AAA no longer matches: the situation the tolerance is for.
+    Moving each vertex consistently keeps each file topologically clean while their border no
+    longer matches: the situation the tolerance is for.
     """
     layer = grid(NX, NY, split=3)
-    east = layer["country"] == "BBB"
-
-    def move(xy):
-        c = np.rint(xy[:, 0] / CELL).astype(int)
-        r = np.rint(xy[:, 1] / CELL).astype(int)
-        return xy + shift[c, r]
-
     geoms = layer.geometry.to_numpy().copy()
-    geoms[east.to_numpy()] = shapely.transform(geoms[east.to_numpy()], move)
+    for code, shift in (("BBB", shift_b), ("AAA", shift_a)):
+        if shift is None:
+            continue
+
+        def move(xy, shift=shift):
+            c = np.rint(xy[:, 0] / CELL).astype(int)
+            r = np.rint(xy[:, 1] / CELL).astype(int)
+            return xy + shift[c, r]
+
+        sel = (layer["country"] == code).to_numpy()
+        geoms[sel] = shapely.transform(geoms[sel], move)
     return layer.set_geometry(gpd.GeoSeries(geoms, index=layer.index, crs=CRS))
 
 
+N_VERTICES = (NX + 1) * (NY + 1)
+
+
+def shifts(scale):
+    """Hypothesis strategy: one displacement per grid vertex, each shorter than ``scale``."""
+    radius = st.lists(st.floats(0, 1), min_size=N_VERTICES, max_size=N_VERTICES)
+    angle = st.lists(st.floats(0, 2 * np.pi), min_size=N_VERTICES, max_size=N_VERTICES)
+
+    def build(r, a):
+        r = np.asarray(r).reshape(NX + 1, NY + 1) * scale
+        a = np.asarray(a).reshape(NX + 1, NY + 1)
+        return np.stack([r * np.cos(a), r * np.sin(a)], axis=-1)
+
+    return st.builds(build, radius, angle)
+
+
+TOL = 300.0
+
+
 @settings(max_examples=40, deadline=None)
-@given(
-    radius=st.lists(st.floats(0, 0.95), min_size=(NX + 1) * (NY + 1), max_size=(NX + 1) * (NY + 1)),
-    angle=st.lists(
-        st.floats(0, 2 * np.pi), min_size=(NX + 1) * (NY + 1), max_size=(NX + 1) * (NY + 1)
-    ),
-)
-def test_perturbing_vertices_below_tolerance_never_changes_the_graph(radius, angle):
-    tol = 300.0
-    r = np.asarray(radius).reshape(NX + 1, NY + 1) * tol
-    a = np.asarray(angle).reshape(NX + 1, NY + 1)
-    shift = np.stack([r * np.cos(a), r * np.sin(a)], axis=-1)
-    ref = border_graph(grid(NX, NY, split=3), tolerance=tol)
-    bg = border_graph(perturbed(shift), tolerance=tol)
+@given(shift=shifts(0.95 * TOL))
+def test_perturbing_one_file_below_tolerance_never_changes_the_graph(shift):
+    ref = border_graph(grid(NX, NY, split=3), tolerance=TOL)
+    bg = border_graph(perturbed(shift), tolerance=TOL)
     assert pairs(bg) == pairs(ref)
     assert pairs(bg, cross=True) == {frozenset({f"U2{r}", f"U3{r}"}) for r in range(NY)}
+
+
+@settings(max_examples=25, deadline=None)
+@given(shift_b=shifts(0.47 * TOL), shift_a=shifts(0.47 * TOL))
+def test_perturbing_both_files_never_changes_the_graph(shift_b, shift_a):
+    # Each file moves by under half the tolerance, so the outlines stay within it of each other.
+    ref = border_graph(grid(NX, NY, split=3), tolerance=TOL)
+    bg = border_graph(perturbed(shift_b, shift_a), tolerance=TOL)
+    assert pairs(bg) == pairs(ref)
 
 
 @settings(max_examples=25, deadline=None)
