@@ -260,3 +260,29 @@ def test_weeks_belong_to_the_month_of_their_fourth_day(result):
     # 2026-09-28 (Mon) has its Thursday on 1 October; 2026-10-26 has it on 29 October.
     assert weeks[0] == pd.Timestamp("2026-09-28") and weeks[-1] == pd.Timestamp("2026-10-26")
     assert os.path.basename(str(result.config.path)) == "world.toml"
+
+
+def test_month_without_reports_is_refused(world, monkeypatch):
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    with pytest.raises(InputError, match="no report covers 2025-01; the reports run from"):
+        monthly.run_month(world, "2025-01")
+
+
+def test_a_statistic_the_month_cannot_carry_is_reported_not_fatal(world, monkeypatch):
+    def flat(self):
+        raise InputError("global Moran's I needs at least 4 units with differing values")
+
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    monkeypatch.setattr(monthly._Context, "hotspots", flat)
+    res = monthly.run_month(world, "2026-10")
+    assert res.absent["hotspots"].startswith("not computable on this month's data: global")
+    assert res.rates is not None and res.risk is not None and res.priorities is not None
+
+
+def test_a_bad_input_file_still_stops_the_run(world, monkeypatch):
+    def bad(cfg):
+        raise InputError("cases must be a whole number", file="aaa.csv", row=3, column="cases")
+
+    monkeypatch.setattr(monthly, "_open_region", bad)
+    with pytest.raises(InputError, match="aaa.csv, row 3"):
+        monthly.run_month(world, "2026-10")

@@ -14,94 +14,89 @@ Drawing is kept quick: :func:`base_map` simplifies the geometry once (to about a
 millimetre at print size) and dissolves the country outlines once; every map reuses it.
 """
 
-from __future__ import annotations
-
 import math
-import textwrap
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
 
 import geopandas as gpd
-import matplotlib
+import numpy as np
+import pandas as pd
+from matplotlib.figure import Figure
+from matplotlib.patches import Circle
 
-matplotlib.use("Agg", force=False)
-
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-from matplotlib.collections import PolyCollection  # noqa: E402
-from matplotlib.colors import LinearSegmentedColormap  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-from matplotlib.lines import Line2D  # noqa: E402
-from matplotlib.patches import Circle, FancyArrow, Patch, Rectangle  # noqa: E402
-from matplotlib.ticker import MaxNLocator  # noqa: E402
-
-CAUTION_LINE = (
-    "Decision support, not a diagnosis. Reporting is incomplete and delayed; small numbers are "
-    "unstable. Defer to national authorities and field epidemiologists."
+from ._epicurves import epi_curves
+from ._mapkit import (
+    _MAP_SIZE,
+    AFFECTED_COLOUR,
+    ARRIVAL_RAMP,
+    CASE_BAR,
+    CAUTION_LINE,
+    COUNTRY_EDGE,
+    DEATH_LINE,
+    DELAY_SHADE,
+    DEPOT_COLOUR,
+    DISTRICT_EDGE,
+    DPI,
+    EXISTING_DEPOT_COLOUR,
+    FRONT_COLOUR,
+    NO_REPORT_COLOUR,
+    NO_REPORT_HATCH,
+    NOT_CANDIDATE_COLOUR,
+    OTHER_COLOUR,
+    PRIORITY_COLOURS,
+    RATE_COLOURS,
+    RISK_BINS,
+    RISK_COLOURS,
+    ZERO_COLOUR,
+    BaseMap,
+    MapNotes,
+    _fill,
+    _fmt_num,
+    _footer,
+    _frame,
+    _furnish,
+    _legend,
+    _new_map,
+    _north_arrow,
+    _ramp,
+    _scale_bar,
+    _side_text,
 )
 
-# marchland's own palettes (hex); chosen to read in greyscale print as well as on screen.
-RATE_COLOURS = ("#f1dca7", "#e2a865", "#c8703f", "#9b3e2d", "#5c1e2a")  # sand -> wine
-ZERO_COLOUR = "#f6f4ee"  # a reported zero: data, not missing
-NO_REPORT_COLOUR = "#ffffff"  # drawn with grey hatching: nobody reported
-NO_REPORT_HATCH = "////"
-RISK_COLOURS = ("#e3eee8", "#b1d2c3", "#75ab96", "#3d7d69", "#1b483d")  # sea-green ramp
-RISK_BINS = (0.05, 0.10, 0.20, 0.40, 1.0)
-AFFECTED_COLOUR = "#b8ab96"  # a warm grey for units that already have cases
-OTHER_COLOUR = "#eeeeea"
-NOT_CANDIDATE_COLOUR = "#fdfdfb"  # risk map: lighter than the lowest risk class
-ARRIVAL_RAMP = ("#1c2a48", "#3c5f7a", "#6f9a86", "#b9c48b", "#f1e4ad")  # night -> straw
-PRIORITY_COLOURS = ("#4b1d3f", "#8a3b61", "#c27a93", "#ead0d8")  # rank 1-5, 6-10, 11-20, rest
-DEPOT_COLOUR = "#1d1d1b"
-EXISTING_DEPOT_COLOUR = "#8c887d"
-FRONT_COLOUR = "#8a1c4a"  # the analysis month's front
-DISTRICT_EDGE = dict(color="#7d7a72", linewidth=0.25)
-COUNTRY_EDGE = dict(color="#262522", linewidth=1.3)
-CASE_BAR = "#6d7fa8"
-DEATH_LINE = "#2a2118"
-DELAY_SHADE = "#d9d2c3"
-
-DPI = 200
-_MAP_SIZE = (8.6, 7.0)  # inches: A4-ish landscape for the atlas
-_MAP_AX = (0.02, 0.13, 0.68, 0.76)  # left, bottom, width, height of the map frame
-_LEGEND_X = 0.72
-
-
-@dataclass(frozen=True)
-class MapNotes:
-    """The text every figure carries.
-
-    Parameters
-    ----------
-    as_of : str
-        The as-of date of the data shown, e.g. ``"2026-11-03"``.
-    source : str
-        One line on where the data come from.
-    region : str
-        The region's name, used in titles.
-    caution : str
-        The caution line (defaults to :data:`CAUTION_LINE`).
-    """
-
-    as_of: str
-    source: str
-    region: str = ""
-    caution: str = CAUTION_LINE
-
-
-@dataclass(frozen=True)
-class BaseMap:
-    """Geometry prepared once for drawing: simplified units, country outlines, frame.
-
-    ``units`` is indexed by unit id and keeps a ``country`` column; ``countries`` is one
-    outline per country; ``bounds`` is (minx, miny, maxx, maxy) of the frame in CRS units
-    (metres in marchland's working CRS).
-    """
-
-    units: gpd.GeoDataFrame
-    countries: gpd.GeoDataFrame
-    bounds: tuple[float, float, float, float]
+__all__ = [
+    "AFFECTED_COLOUR",
+    "ARRIVAL_RAMP",
+    "CASE_BAR",
+    "CAUTION_LINE",
+    "COUNTRY_EDGE",
+    "DEATH_LINE",
+    "DELAY_SHADE",
+    "DEPOT_COLOUR",
+    "DISTRICT_EDGE",
+    "DPI",
+    "EXISTING_DEPOT_COLOUR",
+    "FRONT_COLOUR",
+    "NO_REPORT_COLOUR",
+    "NO_REPORT_HATCH",
+    "NOT_CANDIDATE_COLOUR",
+    "OTHER_COLOUR",
+    "PRIORITY_COLOURS",
+    "RATE_COLOURS",
+    "RISK_BINS",
+    "RISK_COLOURS",
+    "ZERO_COLOUR",
+    "BaseMap",
+    "MapNotes",
+    "arrival_map",
+    "attack_rate_map",
+    "base_map",
+    "cluster_map",
+    "epi_curves",
+    "priority_map",
+    "rate_classes",
+    "rate_small_multiples",
+    "risk_map",
+    "save_figure",
+]
 
 
 def base_map(units: gpd.GeoDataFrame, *, simplify_m: float | None = None) -> BaseMap:
@@ -208,18 +203,6 @@ def _class_of(values: pd.Series, bins: np.ndarray) -> np.ndarray:
     return out
 
 
-def _fmt_num(x: float) -> str:
-    if x == 0:
-        return "0"
-    if float(x).is_integer() and abs(x) < 1e6:
-        return f"{int(x):,}"
-    if abs(x) >= 100:
-        return f"{x:,.0f}"
-    if abs(x) >= 10:
-        return f"{x:.1f}"
-    return f"{x:.2g}"
-
-
 def _class_labels(bins: np.ndarray) -> list[str]:
     lows = np.concatenate([[0.0], bins[:-1]])
     labels = []
@@ -227,249 +210,6 @@ def _class_labels(bins: np.ndarray) -> list[str]:
         left = "above 0" if i == 0 else f"above {_fmt_num(lo)}"
         labels.append(f"{left} to {_fmt_num(hi)}")
     return labels
-
-
-def _ramp(colours: Sequence[str], n: int) -> list[str]:
-    if n <= len(colours):
-        # Spread the picks across the ramp so few classes still span light to dark.
-        idx = np.linspace(0, len(colours) - 1, n).round().astype(int) if n > 1 else [0]
-        return [colours[i] for i in idx]
-    cmap = LinearSegmentedColormap.from_list("_ramp", list(colours))
-    return [matplotlib.colors.to_hex(cmap(t)) for t in np.linspace(0, 1, n)]
-
-
-# --- the common furniture ---------------------------------------------------------------------
-def _new_map(title: str, subtitle: str = "") -> tuple[Figure, plt.Axes]:
-    fig = Figure(figsize=_MAP_SIZE, dpi=DPI, facecolor="white")
-    ax = fig.add_axes(_MAP_AX)
-    fig.text(
-        0.02, 0.955, title, fontsize=13, fontweight="bold", ha="left", va="center", color="#1d1d1b"
-    )
-    if subtitle:
-        fig.text(0.02, 0.922, subtitle, fontsize=9, ha="left", va="center", color="#4a4740")
-    return fig, ax
-
-
-def _frame(ax: plt.Axes, base: BaseMap) -> None:
-    minx, miny, maxx, maxy = base.bounds
-    ax.set_xlim(minx, maxx)
-    ax.set_ylim(miny, maxy)
-    ax.set_aspect("equal")
-    ax.set_xticks([])
-    ax.set_yticks([])
-    ax.set_xlabel("")
-    ax.set_ylabel("")
-    for s in ax.spines.values():
-        s.set_edgecolor("#b9b5aa")
-        s.set_linewidth(0.6)
-
-
-def _fill(
-    ax: plt.Axes, base: BaseMap, colours: pd.Series, *, hatch_ids=None, default: str = OTHER_COLOUR
-) -> None:
-    """Fill units with per-unit colours, then district edges, then country borders on top."""
-    g = base.units.geometry
-    col = colours.reindex(base.units.index).fillna(default)
-    g.plot(
-        ax=ax,
-        color=col.to_list(),
-        edgecolor=DISTRICT_EDGE["color"],
-        linewidth=DISTRICT_EDGE["linewidth"],
-        zorder=1,
-    )
-    if hatch_ids is not None and len(hatch_ids):
-        sub = g[g.index.isin(hatch_ids)]
-        if len(sub):
-            sub.plot(
-                ax=ax,
-                facecolor="none",
-                edgecolor="#9a968c",
-                hatch=NO_REPORT_HATCH,
-                linewidth=0,
-                zorder=2,
-            )
-    base.countries.boundary.plot(ax=ax, zorder=5, **COUNTRY_EDGE)
-
-
-def _nice_length(target: float) -> float:
-    exp = math.floor(math.log10(target))
-    for m in (5, 2, 1):
-        if m * 10**exp <= target:
-            return m * 10**exp
-    return 10**exp  # pragma: no cover
-
-
-def _scale_bar(ax: plt.Axes, base: BaseMap, *, compact: bool = False) -> None:
-    minx, miny, maxx, maxy = base.bounds
-    width = maxx - minx
-    length = _nice_length(width * 0.22)  # metres
-    x0 = minx + width * 0.04
-    y0 = miny + (maxy - miny) * 0.04
-    h = (maxy - miny) * 0.010
-    half = length / 2
-    ax.add_patch(
-        Rectangle(
-            (x0 - length * 0.08, y0 - h * 1.2),
-            length * 1.25,
-            h * 5.2,
-            facecolor="white",
-            edgecolor="none",
-            alpha=0.75,
-            zorder=4,  # above the fills, below the country borders
-        )
-    )
-    ax.add_patch(
-        Rectangle(
-            (x0, y0), half, h, facecolor="#1d1d1b", edgecolor="#1d1d1b", linewidth=0.6, zorder=10
-        )
-    )
-    ax.add_patch(
-        Rectangle(
-            (x0 + half, y0),
-            half,
-            h,
-            facecolor="white",
-            edgecolor="#1d1d1b",
-            linewidth=0.6,
-            zorder=10,
-        )
-    )
-    km = length / 1000
-    ticks = [(x0 + length, f"{_fmt_num(km)} km")]
-    if not compact:
-        ticks = [(x0, "0"), (x0 + half, _fmt_num(km / 2)), *ticks]
-    for xx, lab in ticks:
-        ax.text(
-            xx,
-            y0 + h * 1.8,
-            lab,
-            ha="center",
-            va="bottom",
-            fontsize=6 if compact else 7,
-            zorder=10,
-            color="#1d1d1b",
-        )
-
-
-def _north_arrow(ax: plt.Axes, base: BaseMap, *, compact: bool = False) -> None:
-    minx, miny, maxx, maxy = base.bounds
-    x = maxx - (maxx - minx) * (0.08 if compact else 0.05)
-    y = maxy - (maxy - miny) * (0.25 if compact else 0.14)
-    length = (maxy - miny) * (0.10 if compact else 0.07)
-    ax.add_patch(
-        FancyArrow(
-            x,
-            y,
-            0,
-            length,
-            width=length * 0.12,
-            head_width=length * 0.42,
-            head_length=length * 0.42,
-            length_includes_head=True,
-            facecolor="#1d1d1b",
-            edgecolor="#1d1d1b",
-            zorder=10,
-        )
-    )
-    ax.text(
-        x,
-        y + length * 1.08,
-        "N",
-        ha="center",
-        va="bottom",
-        fontsize=7 if compact else 9,
-        fontweight="bold",
-        zorder=10,
-        color="#1d1d1b",
-    )
-
-
-def _footer(fig: Figure, notes: MapNotes) -> None:
-    fig.text(
-        0.02,
-        0.075,
-        f"Data as of {notes.as_of}. {notes.source}",
-        fontsize=7,
-        ha="left",
-        va="center",
-        color="#3a3832",
-        wrap=True,
-    )
-    fig.text(
-        0.02,
-        0.045,
-        notes.caution,
-        fontsize=7,
-        ha="left",
-        va="center",
-        color="#6b2a22",
-        style="italic",
-        wrap=True,
-    )
-    fig.text(
-        0.02,
-        0.018,
-        "Equal-area projection; district borders thin, country borders heavy.",
-        fontsize=6,
-        ha="left",
-        va="center",
-        color="#77736a",
-    )
-
-
-def _legend(
-    fig: Figure,
-    entries: Sequence[tuple[str, dict]],
-    title: str,
-    *,
-    y: float = 0.86,
-    x: float = _LEGEND_X,
-    ncols: int = 1,
-    lines: Sequence[tuple[str, str, float]] = (),
-) -> None:
-    # Wrap long wording so the legend stays inside the page.
-    handles: list = [Patch(label=textwrap.fill(lab, 34), **style) for lab, style in entries]
-    handles += [
-        Line2D([], [], label=textwrap.fill(lab, 34), color=c, linewidth=w) for lab, c, w in lines
-    ]
-    handles.append(Line2D([], [], label="country border", **COUNTRY_EDGE))
-    handles.append(
-        Line2D([], [], label="district border", color=DISTRICT_EDGE["color"], linewidth=0.6)
-    )
-    fig.legend(
-        handles=handles,
-        title=title,
-        loc="upper left",
-        bbox_to_anchor=(x, y),
-        ncols=ncols,
-        fontsize=7.5,
-        title_fontsize=8,
-        frameon=False,
-        alignment="left",
-        handlelength=1.6,
-        handleheight=1.1,
-    )
-
-
-def _furnish(fig: Figure, ax: plt.Axes, base: BaseMap, notes: MapNotes) -> None:
-    _frame(ax, base)
-    _scale_bar(ax, base)
-    _north_arrow(ax, base)
-    _footer(fig, notes)
-
-
-def _side_text(fig: Figure, text: str, *, y: float = 0.30) -> None:
-    fig.text(
-        _LEGEND_X,
-        y,
-        text,
-        fontsize=7.2,
-        ha="left",
-        va="top",
-        color="#2b2925",
-        family="monospace",
-        linespacing=1.35,
-    )
 
 
 # --- rate maps --------------------------------------------------------------------------------
@@ -996,191 +736,6 @@ def _existing(depots: pd.DataFrame) -> np.ndarray:
     if "existing" not in depots:
         return np.zeros(len(depots), dtype=bool)
     return depots["existing"].fillna(False).astype(bool).to_numpy()
-
-
-# --- epi curves -------------------------------------------------------------------------------
-def epi_curves(
-    series: Mapping[str, pd.DataFrame],
-    notes: MapNotes,
-    *,
-    as_of: object,
-    delay_weeks: int,
-    title: str,
-    ncols: int | None = None,
-    week_days: int = 7,
-) -> Figure:
-    """Weekly cases (bars) and deaths (line) for one or more areas, delay zone shaded.
-
-    Parameters
-    ----------
-    series : Mapping
-        Panel title -> DataFrame indexed by week start (Timestamp) with ``cases`` and
-        ``deaths`` columns. A week absent from the index had no report at all; it is drawn as
-        a gap, never as zero.
-    notes : MapNotes
-    as_of : date-like
-        The as-of date; the last ``delay_weeks`` weeks before it are shaded as incomplete.
-    delay_weeks : int
-        Reporting delay in weeks (config ``analysis.reporting_delay_weeks``).
-    title : str
-    ncols : int, optional
-        Panels per row (default: 1 for one panel, else up to 3).
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-
-    Examples
-    --------
-    >>> w = pd.date_range("2026-08-03", periods=10, freq="7D")
-    >>> df = pd.DataFrame({"cases": range(10), "deaths": [0] * 10}, index=w)
-    >>> fig = epi_curves({"Region": df}, MapNotes("2026-10-14", "Data: example"),
-    ...                  as_of="2026-10-14", delay_weeks=2, title="Weekly cases")
-    >>> len(fig.axes) >= 1
-    True
-    """
-    n = max(len(series), 1)
-    ncols = ncols or (1 if n == 1 else min(3, n))
-    nrows = math.ceil(n / ncols)
-    height = 4.6 if nrows == 1 else min(2.1 * nrows + 1.4, 11.5)
-    fig = Figure(figsize=(_MAP_SIZE[0], height), dpi=DPI, facecolor="white")
-    top = 1 - 1.0 / height
-    bottom = 0.95 / height
-    fig.text(0.02, 1 - 0.3 / height, title, fontsize=12, fontweight="bold", ha="left", va="center")
-    as_of = pd.Timestamp(as_of)
-    delay_start, delay_end = _delay_zone(series, as_of, delay_weeks, week_days)
-    # One time axis for every panel, so areas can be compared by eye.
-    starts = [pd.Timestamp(df.index.min()) for df in series.values() if len(df)]
-    ends = [pd.Timestamp(df.index.max()) for df in series.values() if len(df)]
-    lo = min(starts) - pd.Timedelta(days=week_days) if starts else delay_start
-    hi = max([*ends, delay_end - pd.Timedelta(days=week_days)]) + pd.Timedelta(days=2 * week_days)
-    gs = fig.add_gridspec(
-        nrows, ncols, left=0.07, right=0.93, top=top, bottom=bottom, hspace=0.6, wspace=0.38
-    )
-    first = True
-    for i, (name, df) in enumerate(series.items()):
-        row, col = divmod(i, ncols)
-        ax = fig.add_subplot(gs[row, col])
-        df = df.sort_index()
-        if len(df):
-            # Reindex to every week so an unreported week is a visible gap, never a zero.
-            full = pd.date_range(df.index.min(), df.index.max(), freq=f"{week_days}D")
-            df = df.reindex(full.union(pd.DatetimeIndex(df.index)))
-        weeks = pd.DatetimeIndex(df.index)
-        cases = df["cases"].astype(float) if "cases" in df else pd.Series(dtype=float)
-        deaths = df["deaths"].astype(float) if "deaths" in df else pd.Series(np.nan, df.index)
-        ax.axvspan(
-            delay_start,
-            delay_end,
-            facecolor=DELAY_SHADE,
-            edgecolor="#a59a83",
-            hatch="....",
-            linewidth=0,
-            zorder=0,
-            label=f"last {delay_weeks} weeks: reporting incomplete",
-        )
-        _week_bars(ax, weeks, cases.to_numpy(dtype=float), week_days)
-        ax.set_ylim(bottom=0)
-        ax2 = ax.twinx()
-        ax2.plot(
-            weeks + pd.Timedelta(days=week_days / 2),
-            deaths.to_numpy(),
-            color=DEATH_LINE,
-            linewidth=0.9,
-            marker="o",
-            markersize=1.6,
-            label="deaths (line, right axis)",
-        )
-        dmax = float(np.nanmax(deaths.to_numpy())) if deaths.notna().any() else 1.0
-        ax2.set_ylim(bottom=0, top=max(1.0, dmax) * 1.15)
-        ax.set_xlim(lo, hi)
-        ax.set_title(str(name), fontsize=8.5, loc="left", pad=3)
-        ax.tick_params(labelsize=6.5)
-        ax2.tick_params(labelsize=6.5, colors=DEATH_LINE)
-        if col == 0:
-            ax.set_ylabel("cases per week", fontsize=7)
-        if col == ncols - 1 or i == n - 1:
-            ax2.set_ylabel("deaths per week", fontsize=7, color=DEATH_LINE)
-        ax.xaxis.set_major_locator(matplotlib.dates.AutoDateLocator(minticks=3, maxticks=5))
-        ax.yaxis.set_major_locator(MaxNLocator(4, integer=True))
-        ax2.yaxis.set_major_locator(MaxNLocator(3, integer=True))
-        ax.xaxis.set_major_formatter(matplotlib.dates.DateFormatter("%b %Y"))
-        ax.spines["top"].set_visible(False)
-        ax2.spines["top"].set_visible(False)
-        if first:
-            h1, l1 = ax.get_legend_handles_labels()
-            h2, l2 = ax2.get_legend_handles_labels()
-            fig.legend(
-                h1 + h2,
-                l1 + l2,
-                loc="center left",
-                bbox_to_anchor=(0.01, 1 - 0.62 / height),
-                fontsize=7,
-                frameon=False,
-                ncols=3,
-            )
-            first = False
-    fig.text(
-        0.02,
-        0.55 / height,
-        f"Data as of {notes.as_of}. {notes.source} Weeks with no report are gaps, not zeros.",
-        fontsize=6.5,
-        ha="left",
-        va="center",
-        color="#3a3832",
-    )
-    fig.text(
-        0.02,
-        0.25 / height,
-        notes.caution,
-        fontsize=6.5,
-        ha="left",
-        va="center",
-        color="#6b2a22",
-        style="italic",
-    )
-    return fig
-
-
-def _delay_zone(
-    series: Mapping[str, pd.DataFrame], as_of: pd.Timestamp, delay_weeks: int, week_days: int
-) -> tuple[pd.Timestamp, pd.Timestamp]:
-    """Span the last ``delay_weeks`` whole weeks finished by ``as_of`` (data's week grid)."""
-    first = next((pd.Timestamp(df.index.min()) for df in series.values() if len(df)), None)
-    start_day = first.day_of_week if first is not None else 0
-    day = as_of.normalize()
-    current = day - pd.Timedelta(days=(day.day_of_week - start_day) % 7)
-    done = (
-        current
-        if day >= current + pd.Timedelta(days=week_days - 1)
-        else current - pd.Timedelta(days=week_days)
-    )
-    return done - pd.Timedelta(days=week_days * (delay_weeks - 1)), done + pd.Timedelta(
-        days=week_days
-    )
-
-
-def _week_bars(ax: plt.Axes, weeks: pd.DatetimeIndex, values: np.ndarray, week_days: int) -> None:
-    """Weekly bars as ONE collection (a bar per artist costs seconds over many panels)."""
-    ok = np.isfinite(values) & (values > 0)
-    x0 = matplotlib.dates.date2num(weeks[ok])
-    w = week_days * 0.85
-    h = values[ok]
-    verts = np.stack(
-        [
-            np.column_stack([x0, np.zeros_like(h)]),
-            np.column_stack([x0, h]),
-            np.column_stack([x0 + w, h]),
-            np.column_stack([x0 + w, np.zeros_like(h)]),
-        ],
-        axis=1,
-    )
-    coll = PolyCollection(
-        verts, facecolors=CASE_BAR, edgecolors="none", linewidths=0, zorder=2, label="cases (bars)"
-    )
-    ax.add_collection(coll)
-    ax.set_ylim(0, max(1.0, float(h.max()) if h.size else 1.0) * 1.08)
-    ax.xaxis_date()
 
 
 def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:

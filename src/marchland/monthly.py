@@ -278,7 +278,14 @@ class _Runner:
         self.timings: dict[str, float] = {}
         self.absent: dict[str, str] = {}
 
-    def __call__(self, name: str, fn: Callable[[], Any], *, needs: tuple[str, ...] = ()) -> Any:
+    def __call__(
+        self,
+        name: str,
+        fn: Callable[[], Any],
+        *,
+        needs: tuple[str, ...] = (),
+        data_limited: bool = True,
+    ) -> Any:
         for dep in needs:
             if dep in self.absent:
                 self.absent[name] = f"needs the {dep} step ({self.absent[dep]})"
@@ -290,6 +297,13 @@ class _Runner:
             value = fn()
         except _Absent as exc:
             self.absent[name] = str(exc)
+            value = None
+        except InputError as exc:
+            if not data_limited:
+                raise
+            # The month's data cannot carry this statistic (e.g. every rate equal): say so and
+            # go on, so the rest of the month's bundle is still written.
+            self.absent[name] = f"not computable on this month's data: {exc}"
             value = None
         self.timings[name] = round(time.perf_counter() - t0, 3)
         if self.progress is not None:
@@ -342,7 +356,7 @@ def run_month(
     run = _Runner(progress)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)
-        region = run("read inputs", lambda: _open_region(cfg))
+        region = run("read inputs", lambda: _open_region(cfg), data_limited=False)
         if region is None:
             raise InputError(f"cannot read the region: {run.absent['read inputs']}", file=cfg.path)
         period = (
@@ -350,6 +364,7 @@ def run_month(
             if month is not None
             else parse_month(_latest_week_month(region.counts))
         )
+        _require_data(region.counts, period)
         if on_month is not None:
             on_month(str(period))
         as_of_ts = pd.Timestamp(as_of) if as_of is not None else default_as_of(cfg, period)
@@ -382,6 +397,19 @@ def run_month(
         absent=dict(run.absent),
         **fields,
     )
+
+
+def _require_data(counts: pd.DataFrame, period: pd.Period) -> None:
+    """Raise InputError unless some accepted report row falls in the month."""
+    weeks = pd.to_datetime(counts["week"])
+    months = (weeks + pd.Timedelta(days=3)).dt.to_period("M")
+    if not (months == period).any():
+        span = (
+            f"the reports run from {weeks.min():%Y-%m-%d} to {weeks.max():%Y-%m-%d}"
+            if len(weeks)
+            else "no report row was accepted"
+        )
+        raise InputError(f"no report covers {period}; {span}", column="month", value=str(period))
 
 
 def _latest_week_month(counts: pd.DataFrame) -> str:
