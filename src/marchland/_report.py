@@ -405,6 +405,14 @@ def _risk_section(result: Any, figures: Mapping[str, Any]) -> str:
         )
     else:
         side += '<p class="absent">The backtest did not run.</p>'
+    if result.risk is not None and result.risk.attrs.get("model"):
+        kind = result.risk.attrs["model"]
+        detail = result.risk.attrs.get("note") or ""
+        side += (
+            f'<p class="note">This month\'s score: {esc(kind)} model'
+            + (f" ({esc(detail)})" if detail else "")
+            + ".</p>"
+        )
     body += (
         f'<div class="pair"><div>{_figure(figures, "border_risk")}</div>'
         f'<div class="side">{side}</div></div>'
@@ -427,12 +435,10 @@ def _risk_section(result: Any, figures: Mapping[str, Any]) -> str:
                 if c.startswith("part_")
             }
         )
-        note = esc(r.attrs.get("note", "")) if r.attrs.get("note") else ""
         body += (
             '<h3>Candidates by risk</h3><p class="note">Each score is shown with its '
             "parts (contribution to the linear predictor). Silent units sent no report "
-            "lately: they may have undetected cases and are not safely unaffected. "
-            f"{note}</p>"
+            "lately: they may have undetected cases and are not safely unaffected.</p>"
             + '<div class="scroll">'
             + table_html(r, cols, index="unit_id", kinds={"probability": "pct"})
             + "</div>"

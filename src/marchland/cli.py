@@ -256,8 +256,14 @@ def backtest(ctx: click.Context, config: Path) -> None:
     console = _console(ctx)
     cfg = _load(config)
     with _spinner(console, "backtest: fitting and scoring past origins"):
-        table = backtest_table(cfg)
-    console.print(_format_table(table, "Border-risk backtest (rolling origin)"))
+        summary, by_country = backtest_table(cfg)
+    k = cfg.risk.top_k
+    console.print(_format_table(summary, f"Border-risk backtest (rolling origin, top k = {k})"))
+    console.print(_format_table(by_country.reset_index(level="country"), "By country"))
+    console.print(
+        "AUC 0.5 is a coin toss and 1 a perfect ranking; a lower Brier score is better. "
+        "'distance' and 'neighbours' are the simple baselines the score must beat."
+    )
     console.print(f"[dim]{CAUTIONS}[/dim]")
 
 
@@ -371,7 +377,9 @@ def _format_table(df: Any, title: str) -> Any:
 
 def _fmt(v: Any) -> str:
     if isinstance(v, float):
-        return "-" if v != v else f"{v:.3f}"
+        if v != v:
+            return "-"
+        return f"{v:,.0f}" if v.is_integer() and abs(v) >= 10 else f"{v:.3f}"
     return str(v)
 
 

@@ -694,20 +694,22 @@ def _flatten_areas(agg: pd.DataFrame, windows: list[str], region: Any) -> pd.Dat
     return out.reset_index(drop=True)
 
 
-def backtest_table(config: Config | str | os.PathLike[str]) -> pd.DataFrame:
+def backtest_table(config: Config | str | os.PathLike[str]) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Backtest the border-risk score of a config over its whole history.
+
+    The same call as the monthly run's backtest step, on every report received.
 
     Returns
     -------
-    pandas.DataFrame
-        Indexed by ``model`` (``score distance neighbours``) with ``auc brier hits_top_k
-        n_origins`` and the counts behind them.
+    summary, by_country : pandas.DataFrame
+        Indexed by ``model`` (``score distance neighbours``; ``by_country`` also by
+        ``country``) with ``auc brier hits_top_k n_origins`` and the counts behind them.
     """
     cfg = config if isinstance(config, Config) else load_config(config)
     region = _open_region(cfg)
-    rk = _need("risk", "backtest_risk")
+    rk = _need("risk", "run_backtest")
     c = cfg.risk
-    return rk.backtest_risk(
+    bt = rk.run_backtest(
         region.counts,
         region.units,
         region.graph,
@@ -715,3 +717,4 @@ def backtest_table(config: Config | str | os.PathLike[str]) -> pd.DataFrame:
         top_k=c.top_k,
         min_events=c.min_events,
     )
+    return bt.summary, bt.by_country
