@@ -7,7 +7,7 @@ Kept apart from ``maps`` (which draws from plain tables and knows no result obje
 from __future__ import annotations
 
 from collections.abc import Iterator
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -15,8 +15,11 @@ import pandas as pd
 from . import maps
 from .monthly import province_of
 
+if TYPE_CHECKING:  # pragma: no cover
+    from .monthly import MonthResult
 
-def source_line(result: Any) -> str:
+
+def source_line(result: MonthResult) -> str:
     """Return the data-source line of every figure."""
     names = [r.name for r in result.config.reports]
     countries = sorted({r.country for r in result.config.reports})
@@ -26,7 +29,7 @@ def source_line(result: Any) -> str:
     )
 
 
-def notes_for(result: Any) -> maps.MapNotes:
+def notes_for(result: MonthResult) -> maps.MapNotes:
     """Return the MapNotes of a result."""
     return maps.MapNotes(
         as_of=f"{result.as_of:%Y-%m-%d}",
@@ -39,7 +42,7 @@ def _month_label(month: str) -> str:
     return f"{pd.Period(month, freq='M'):%B %Y}"
 
 
-def draw_figures(result: Any) -> Iterator[tuple[str, Any, str]]:
+def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     """Yield ``(name, figure, caption)`` for every figure the result supports, in atlas order.
 
     Figures are yielded one at a time and closed by the caller's saving, so memory stays flat.
@@ -137,7 +140,7 @@ def draw_figures(result: Any) -> Iterator[tuple[str, Any, str]]:
     yield from _epi_figures(result, notes)
 
 
-def backtest_note(result: Any) -> str:
+def backtest_note(result: MonthResult) -> str:
     """Backtest numbers as a short monospace block for the risk map's side panel."""
     bt = result.backtest
     if bt is None or not len(bt):
@@ -168,7 +171,7 @@ def _f(v: Any, digits: int) -> str:
     return "-" if not np.isfinite(x) else f"{x:.{digits}f}"
 
 
-def weekly_by(result: Any, key: pd.Series | None) -> dict[str, pd.DataFrame]:
+def weekly_by(result: MonthResult, key: pd.Series | None) -> dict[str, pd.DataFrame]:
     """Weekly cases and deaths summed per group (``key``: unit id -> group; None = region)."""
     w = result.weekly
     if w is None or not len(w):
@@ -185,7 +188,7 @@ def weekly_by(result: Any, key: pd.Series | None) -> dict[str, pd.DataFrame]:
     return out
 
 
-def _epi_figures(result: Any, notes: maps.MapNotes) -> Iterator[tuple[str, Any, str]]:
+def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[str, Any, str]]:
     delay = result.config.analysis.reporting_delay_weeks
     as_of = result.as_of
     week_days = 7

@@ -12,13 +12,16 @@ import html
 from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
 from . import __version__
 from .maps import CAUTION_LINE
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .monthly import MonthResult
 
 CAUTIONS = (
     (
@@ -196,7 +199,7 @@ def _num(v: Any, kind: str = "") -> str:
     return "not computed" if v is None else _fmt(v, kind)
 
 
-def _headline(result: Any) -> str:
+def _headline(result: MonthResult) -> str:
     h = result.headline
     month = f"{pd.Period(result.month, freq='M'):%B %Y}"
     rate_ci = ""
@@ -231,7 +234,7 @@ def _section(title: str, body: str, ident: str) -> str:
     return f'<section id="{esc(ident)}"><h2>{esc(title)}</h2>{body}</section>'
 
 
-def _absent(result: Any, *steps: str) -> str:
+def _absent(result: MonthResult, *steps: str) -> str:
     msgs = [
         f'<p class="absent">Not computed: {esc(s)} ({esc(result.absent[s])}).</p>'
         for s in steps
@@ -240,14 +243,14 @@ def _absent(result: Any, *steps: str) -> str:
     return "".join(msgs)
 
 
-def _names(result: Any, df: pd.DataFrame) -> pd.DataFrame:
+def _names(result: MonthResult, df: pd.DataFrame) -> pd.DataFrame:
     add = [c for c in ("name", "country") if c not in df.columns]
     if not add:
         return df
     return df.join(result.units[add], how="left")
 
 
-def _rates_section(result: Any, figures: Mapping[str, Any]) -> str:
+def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = _absent(result, "rates")
     body += _figure(figures, "attack_rate") + _figure(figures, "attack_rate_months")
     if result.rates_by_area is not None:
@@ -307,7 +310,7 @@ def _rates_section(result: Any, figures: Mapping[str, Any]) -> str:
     return _section("Attack rates", body, "rates")
 
 
-def _epi_section(result: Any, figures: Mapping[str, Any]) -> str:
+def _epi_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     names = [n for n in figures if n.startswith("epi_")]
     body = "".join(_figure(figures, n) for n in names)
     if not names:
@@ -315,7 +318,7 @@ def _epi_section(result: Any, figures: Mapping[str, Any]) -> str:
     return _section("Epi curves", body, "epi")
 
 
-def _hotspot_section(result: Any, figures: Mapping[str, Any]) -> str:
+def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = _absent(result, "hotspots") + _figure(figures, "hotspots")
     hs = result.hotspots
     if hs is not None:
@@ -350,7 +353,7 @@ def _hotspot_section(result: Any, figures: Mapping[str, Any]) -> str:
     return _section("Hotspots", body, "hotspots")
 
 
-def _spread_section(result: Any, figures: Mapping[str, Any]) -> str:
+def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = _absent(result, "spread") + _figure(figures, "arrival")
     if result.velocity is not None:
         v = result.velocity
@@ -378,7 +381,7 @@ def _spread_section(result: Any, figures: Mapping[str, Any]) -> str:
     return _section("Spread", body, "spread")
 
 
-def _risk_section(result: Any, figures: Mapping[str, Any]) -> str:
+def _risk_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = _absent(result, "border risk", "backtest")
     side = "<h3>How far to trust it</h3>"
     bt = result.backtest
@@ -446,7 +449,7 @@ def _risk_section(result: Any, figures: Mapping[str, Any]) -> str:
     return _section("Border risk", body, "risk")
 
 
-def _supplies_section(result: Any, figures: Mapping[str, Any]) -> str:
+def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = _absent(result, "supplies")
     body += (
         '<p class="caution"><b>Example planning values, not guidance.</b> Quantities come '
@@ -516,7 +519,7 @@ def _supplies_section(result: Any, figures: Mapping[str, Any]) -> str:
     return _section("Pre-positioning", body, "supplies")
 
 
-def _quality_section(result: Any) -> str:
+def _quality_section(result: MonthResult) -> str:
     body = ""
     rj = result.rejects
     if rj is not None and len(rj):
@@ -585,7 +588,7 @@ def _contents(sections: Sequence[tuple[str, str]]) -> str:
     return f'<nav class="sub">{links}</nav>'
 
 
-def render_report(result: Any, figures: Mapping[str, Any]) -> str:
+def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
     """Render the month's report as one HTML string.
 
     Parameters

@@ -33,12 +33,15 @@ from dataclasses import asdict, is_dataclass
 from datetime import UTC, datetime
 from importlib import metadata
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
 from .errors import InputError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .monthly import MonthResult
 
 _PARTIAL = ".partial-"
 _OLD = ".replaced-"
@@ -99,7 +102,9 @@ def check_destination(out_dir: str | os.PathLike[str], month: str, *, overwrite:
     return dest
 
 
-def write_month(result: Any, out_dir: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
+def write_month(
+    result: MonthResult, out_dir: str | os.PathLike[str], *, overwrite: bool = False
+) -> Path:
     """Write the month's bundle atomically and return its folder.
 
     Parameters
@@ -181,7 +186,7 @@ def _alive(pid: int) -> bool:
 
 
 # --- the writing, step by step ----------------------------------------------------------------
-def _write_all(result: Any, root: Path) -> None:
+def _write_all(result: MonthResult, root: Path) -> None:
     timings: dict[str, float] = {}
 
     def timed(name: str, fn: Callable[[], Any]) -> Any:
@@ -228,7 +233,7 @@ def _csv(df: pd.DataFrame, path: Path, *, index: bool = True) -> None:
     df.to_csv(path, index=index, float_format="%.10g", lineterminator="\n", date_format="%Y-%m-%d")
 
 
-def _tables(result: Any) -> dict[str, pd.DataFrame | None]:
+def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
     """Name -> table for tables/*.csv (None: the step did not run)."""
     units = result.units
     t: dict[str, Any] = {
@@ -269,7 +274,7 @@ def _tables(result: Any) -> dict[str, pd.DataFrame | None]:
     return t
 
 
-def _write_tables(result: Any, root: Path) -> dict[str, pd.DataFrame]:
+def _write_tables(result: MonthResult, root: Path) -> dict[str, pd.DataFrame]:
     tdir = root / "tables"
     tdir.mkdir()
     written = {}
@@ -308,7 +313,7 @@ def _geo(units: Any, table: pd.DataFrame | None) -> Any:
     return gpd.GeoDataFrame(joined, geometry="geometry", crs=units.crs)
 
 
-def _write_layers(result: Any, path: Path) -> None:
+def _write_layers(result: MonthResult, path: Path) -> None:
     units = result.units
     layers: dict[str, Any] = {
         "units": units.assign(
@@ -335,7 +340,7 @@ def _write_layers(result: Any, path: Path) -> None:
         gdf.to_file(path, layer=name, driver="GPKG", engine="pyogrio")
 
 
-def _write_figures(result: Any, root: Path) -> dict[str, dict[str, Any]]:
+def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:
     from matplotlib.backends.backend_pdf import PdfPages
 
     from ._figures import draw_figures
@@ -361,7 +366,7 @@ def _write_figures(result: Any, root: Path) -> dict[str, dict[str, Any]]:
 
 
 def _write_report(
-    result: Any, root: Path, figures: Mapping[str, Any], tables: Mapping[str, pd.DataFrame]
+    result: MonthResult, root: Path, figures: Mapping[str, Any], tables: Mapping[str, pd.DataFrame]
 ) -> None:
     from ._report import render_report
 
@@ -429,7 +434,7 @@ def _versions() -> dict[str, str]:
     return out
 
 
-def _write_manifest(result: Any, root: Path, bundle_timings: Mapping[str, float]) -> None:
+def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str, float]) -> None:
     cfg = result.config
     base = cfg.base_dir
     inputs = [

@@ -283,7 +283,7 @@ def _run_and_write(
 
     if month is not None:
         refuse_early(month)
-    with _StepDisplay(console) as steps:
+    with _StepDisplay(console, cfg) as steps:
         result = run_month(cfg, month, as_of=as_of, progress=steps, on_month=refuse_early)
         steps("write bundle", "start", None)
         t0 = time.perf_counter()
@@ -324,9 +324,19 @@ def _summary(console: Any, result: Any, dest: Path) -> None:
 class _StepDisplay:
     """A rich status line per analysis step; used as run_month's ``progress`` callback."""
 
-    def __init__(self, console: Any) -> None:
+    def __init__(self, console: Any, cfg: Any = None) -> None:
         self.console = console
         self._status = None
+        a = getattr(cfg, "analysis", None)
+        perms = getattr(a, "permutations", None)
+        # What each long step is busy with, so a quiet minute does not look like a hang.
+        self.hints = {
+            "read inputs": "reading boundaries, population and report files",
+            "graph": "joining units across borders",
+            "hotspots": f"local Moran's I, {perms} permutations" if perms else "local Moran's I",
+            "backtest": "refitting the risk model at each past week",
+            "write bundle": "maps, atlas, layers, tables and report",
+        }
 
     def __enter__(self) -> _StepDisplay:
         return self
@@ -338,11 +348,12 @@ class _StepDisplay:
 
     def __call__(self, step: str, status: str, seconds: float | None) -> None:
         if status == "start":
+            text = f"{step}: {self.hints[step]}" if step in self.hints else step
             if self._status is None and self.console.is_terminal:
-                self._status = self.console.status(step)
+                self._status = self.console.status(text)
                 self._status.start()
             elif self._status is not None:
-                self._status.update(step)
+                self._status.update(text)
             log.info("step %s ...", step)
         else:
             log.info("step %s done in %.2f s", step, seconds or 0.0)
