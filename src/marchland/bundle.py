@@ -376,7 +376,16 @@ def _write_report(
 
 # --- manifest ---------------------------------------------------------------------------------
 def sha256(path: str | os.PathLike[str]) -> str:
-    """Hex sha256 of a file, read in blocks."""
+    """Return the hex sha256 of a file, read in blocks.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> f = pathlib.Path(tempfile.mkdtemp()) / "a.txt"
+    >>> _ = f.write_bytes(b"abc")
+    >>> sha256(f)[:16]  # FIPS 180-2's "abc" example digest
+    'ba7816bf8f01cfea'
+    """
     h = hashlib.sha256()
     with open(path, "rb") as f:
         for block in iter(lambda: f.read(1 << 20), b""):

@@ -166,6 +166,12 @@ def rate_classes(
         Increasing upper bounds; the last is the pooled maximum. Fewer than ``k`` bounds when
         there are fewer distinct positive values.
 
+    References
+    ----------
+    Fisher, W. D. (1958). On grouping for maximum homogeneity. Journal of the American
+    Statistical Association 53, 789-798. Jenks, G. F. (1977). Optimal data classification for
+    choropleth maps. Occasional paper 2, Department of Geography, University of Kansas.
+
     Examples
     --------
     >>> rate_classes([0, 1, 1, 2, 10, 11, 50, np.nan], k=3).tolist()
@@ -317,6 +323,18 @@ def rate_small_multiples(
     Returns
     -------
     matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> import geopandas as gpd
+    >>> from shapely.geometry import box
+    >>> u = gpd.GeoDataFrame({"country": ["AAA", "BBB"]}, index=["a", "b"],
+    ...                      geometry=[box(0, 0, 9e4, 9e4), box(9e4, 0, 18e4, 9e4)],
+    ...                      crs="EPSG:3035")
+    >>> rates = pd.DataFrame({"Sep": [0.0, 10.0], "Oct": [5.0, 40.0]}, index=["a", "b"])
+    >>> fig = rate_small_multiples(base_map(u), rates, MapNotes("2026-11-03", "Data: example"))
+    >>> [ax.get_title() for ax in fig.axes]
+    ['Sep', 'Oct']
     """
     bins = rate_classes(rates) if bins is None else np.asarray(bins, dtype=float)
     n = rates.shape[1]
@@ -472,6 +490,18 @@ def arrival_map(
     Returns
     -------
     matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> import geopandas as gpd
+    >>> from shapely.geometry import box
+    >>> u = gpd.GeoDataFrame({"country": ["AAA", "BBB"]}, index=["a", "b"],
+    ...                      geometry=[box(0, 0, 9e4, 9e4), box(9e4, 0, 18e4, 9e4)],
+    ...                      crs="EPSG:3035")
+    >>> first = pd.Series(pd.to_datetime(["2026-03-02", None]), index=["a", "b"])
+    >>> fig = arrival_map(base_map(u), first, MapNotes("2026-11-03", "Data: example"))
+    >>> [t.get_text() for t in fig.legends[0].texts][:2]
+    ['Jan-Mar 2026 (1)', 'no case reported yet (1)']
     """
     arr = pd.to_datetime(arrival.reindex(base.units.index))
     fig, ax = _new_map(
@@ -555,6 +585,18 @@ def risk_map(
     Returns
     -------
     matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> import geopandas as gpd
+    >>> from shapely.geometry import box
+    >>> u = gpd.GeoDataFrame({"country": ["AAA", "BBB"]}, index=["a", "b"],
+    ...                      geometry=[box(0, 0, 9e4, 9e4), box(9e4, 0, 18e4, 9e4)],
+    ...                      crs="EPSG:3035")
+    >>> fig = risk_map(base_map(u), pd.Series({"b": 0.3}), ["a"],
+    ...                MapNotes("2026-11-03", "Data: example"))
+    >>> [t.get_text() for t in fig.legends[0].texts][3]
+    '20% to 40% (1)'
     """
     p = probability.astype(float)
     bins = np.asarray(RISK_BINS)
@@ -632,6 +674,20 @@ def priority_map(
     Returns
     -------
     matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> import geopandas as gpd
+    >>> from shapely.geometry import box
+    >>> u = gpd.GeoDataFrame({"country": ["AAA", "BBB"]}, index=["a", "b"],
+    ...                      geometry=[box(0, 0, 9e4, 9e4), box(9e4, 0, 18e4, 9e4)],
+    ...                      crs="EPSG:3035")
+    >>> sites = gpd.GeoDataFrame({"name": ["Store"]}, geometry=gpd.points_from_xy([9e4], [4e4]),
+    ...                          crs="EPSG:3035")
+    >>> fig = priority_map(base_map(u), pd.Series({"b": 1}), MapNotes("2026-11-03", "x"),
+    ...                    depots=sites, reach_km=50)
+    >>> "reach: 50 km straight line" in [t.get_text() for t in fig.legends[0].texts]
+    True
     """
     r = rank.astype(float)
     bands = np.select([r <= 5, r <= 10, r <= 20], [0, 1, 2], 3)
@@ -748,6 +804,20 @@ def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
         The PNG to write.
     pdf : matplotlib.backends.backend_pdf.PdfPages, optional
     dpi : int
+
+    Examples
+    --------
+    >>> import geopandas as gpd
+    >>> from shapely.geometry import box
+    >>> u = gpd.GeoDataFrame({"country": ["AAA", "BBB"]}, index=["a", "b"],
+    ...                      geometry=[box(0, 0, 9e4, 9e4), box(9e4, 0, 18e4, 9e4)],
+    ...                      crs="EPSG:3035")
+    >>> import pathlib, tempfile
+    >>> fig = attack_rate_map(base_map(u), pd.Series({"a": 1.0, "b": 0.0}), MapNotes("x", "y"))
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "rate.png"
+    >>> save_figure(fig, out)
+    >>> out.read_bytes()[1:4]
+    b'PNG'
     """
     fig.savefig(path, dpi=dpi, facecolor="white")
     if pdf is not None:

@@ -212,10 +212,17 @@ def _num(v: Any) -> float | None:
 
 # --- config helpers -------------------------------------------------------------------------
 def config_inputs(config: Config) -> list[Path]:
-    """Every existing input file named anywhere in the config, sorted, without duplicates.
+    """List every existing input file named anywhere in the config, sorted, once each.
 
     Walks the config's dataclasses for ``Path`` values (and the report specs' matched files),
     so a new input key is picked up without a change here.
+
+    Examples
+    --------
+    >>> from marchland.demo import scenario_path
+    >>> names = {p.name for p in config_inputs(load_config(scenario_path()))}
+    >>> {"population.tif", "links.csv", "depots.csv"} <= names
+    True
     """
     found: set[Path] = set()
 
@@ -237,7 +244,13 @@ def config_inputs(config: Config) -> list[Path]:
 
 
 def parse_month(month: str | pd.Period) -> pd.Period:
-    """``"YYYY-MM"`` -> monthly Period, or an InputError naming the value."""
+    """Parse ``"YYYY-MM"`` into a monthly Period (InputError naming the value otherwise).
+
+    Examples
+    --------
+    >>> parse_month("2026-10")
+    Period('2026-10', 'M')
+    """
     try:
         if isinstance(month, str) and not (len(month) == 7 and month[4] == "-"):
             raise ValueError
@@ -249,7 +262,14 @@ def parse_month(month: str | pd.Period) -> pd.Period:
 
 
 def default_as_of(config: Config, month: str | pd.Period) -> pd.Timestamp:
-    """Return the month's last day plus the config's ``region.as_of_lag_days``."""
+    """Return the month's last day plus the config's ``region.as_of_lag_days``.
+
+    Examples
+    --------
+    >>> from marchland.demo import scenario_path
+    >>> default_as_of(load_config(scenario_path()), "2026-10")
+    Timestamp('2026-11-03 00:00:00')
+    """
     p = parse_month(month)
     return p.end_time.normalize() + pd.Timedelta(days=config.region.as_of_lag_days)
 
