@@ -368,6 +368,28 @@ def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             },
             index="method",
         )
+        if v.by_group is not None and len(v.by_group):
+            by = v.by_group.reset_index(level="group").rename(columns={"group": "country"})
+            body += (
+                "<h3>Speed of spread by country</h3>"
+                + table_html(
+                    by,
+                    {
+                        "country": "country",
+                        "km_per_week": "km per week",
+                        "lower": "lower",
+                        "upper": "upper",
+                        "n_units": "units used",
+                        "note": "note",
+                    },
+                    index="method",
+                )
+                + '<p class="note">Few units give wide intervals: read the limits.</p>'
+            )
+    if result.introductions_by_border is not None and len(result.introductions_by_border):
+        body += "<h3>Probable introductions per border</h3>" + table_html(
+            result.introductions_by_border
+        )
     if result.introductions is not None:
         intro = result.introductions
         body += (
