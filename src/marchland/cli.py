@@ -99,7 +99,7 @@ _out_opt = click.option(
     type=click.Path(file_okay=False, path_type=Path),
     default=None,
     help="Folder the monthly bundle goes into (as OUT/YYYY-MM/). Default: the config's "
-    "[output] dir.",
+    "[output] dir (for demo: ./out).",
 )
 _overwrite_opt = click.option(
     "--overwrite",
@@ -143,7 +143,7 @@ def _setup_logging(verbosity: int) -> None:
     __version__, "--version", prog_name="marchland", message="%(prog)s %(version)s"
 )
 @click.option("-v", "--verbose", count=True, help="More detail: -v for steps, -vv for debug.")
-@click.option("-q", "--quiet", count=True, help="Less output: only errors and the summary line.")
+@click.option("-q", "--quiet", count=True, help="Less output: -q prints errors only.")
 @click.pass_context
 def cli(ctx: click.Context, verbose: int, quiet: int) -> None:  # noqa: D103
     _state["verbosity"] = verbose - quiet
