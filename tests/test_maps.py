@@ -229,3 +229,23 @@ def test_maps_imports_no_analysis_module():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+def test_input_text_is_drawn_literally_never_as_mathtext(base, units, tmp_path):
+    # "$...$" would be parsed as mathtext (and "$\frac$" would fail to draw).
+    notes = maps.MapNotes("2026-11-03", "Source: files $\\frac$.", "Cash $\\frac$ region")
+    depots = gpd.GeoDataFrame(
+        {"name": ["Store $\\frac$"]}, geometry=[Point(units.union_all().centroid)], crs=units.crs
+    )
+    fig = maps.priority_map(base, pd.Series({units.index[0]: 1}), notes, depots=depots, reach_km=30)
+    maps.save_figure(fig, tmp_path / "p.png")
+    weeks = pd.date_range("2026-08-03", periods=3, freq="7D")
+    epi = maps.epi_curves(
+        {"Prov $\\frac$": pd.DataFrame({"cases": [1, 2, 3], "deaths": 0}, index=weeks)},
+        notes,
+        as_of="2026-08-25",
+        delay_weeks=1,
+        title="t",
+    )
+    maps.save_figure(epi, tmp_path / "e.png")
+    assert "Store $\\frac$" in _texts(fig)

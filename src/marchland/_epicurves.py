@@ -17,7 +17,7 @@ from matplotlib.collections import PolyCollection
 from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
-from ._mapkit import _MAP_SIZE, CASE_BAR, DEATH_LINE, DELAY_SHADE, DPI, MapNotes
+from ._mapkit import _MAP_SIZE, CASE_BAR, DEATH_LINE, DELAY_SHADE, DPI, MapNotes, _no_math
 
 
 def epi_curves(
@@ -160,7 +160,7 @@ def epi_curves(
         color="#6b2a22",
         style="italic",
     )
-    return fig
+    return _no_math(fig)
 
 
 def _delay_zone(

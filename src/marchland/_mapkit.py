@@ -21,6 +21,7 @@ from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import FancyArrow, Patch, Rectangle
+from matplotlib.text import Text
 
 CAUTION_LINE = (
     "Decision support, not a diagnosis. Reporting is incomplete and delayed; small numbers are "
@@ -112,6 +113,13 @@ def _ramp(colours: Sequence[str], n: int) -> list[str]:
 
 
 # --- the common furniture ---------------------------------------------------------------------
+def _no_math(fig: Figure) -> Figure:
+    """Draw every text literally: a place named "Port $A$" must not be read as mathtext."""
+    for text in fig.findobj(Text):
+        text.set_parse_math(False)
+    return fig
+
+
 def _new_map(title: str, subtitle: str = "") -> tuple[Figure, Axes]:
     fig = Figure(figsize=_MAP_SIZE, dpi=DPI, facecolor="white")
     ax = fig.add_axes(_MAP_AX)
@@ -261,12 +269,12 @@ def _footer(fig: Figure, notes: MapNotes) -> None:
     fig.text(
         0.02,
         0.075,
-        f"Data as of {notes.as_of}. {notes.source}",
+        # Kept to one line here, not wrapped by matplotlib: its wrapping reads "$" as mathtext.
+        textwrap.shorten(f"Data as of {notes.as_of}. {notes.source}", 190, placeholder=" ..."),
         fontsize=7,
         ha="left",
         va="center",
         color="#3a3832",
-        wrap=True,
     )
     fig.text(
         0.02,
@@ -277,7 +285,6 @@ def _footer(fig: Figure, notes: MapNotes) -> None:
         va="center",
         color="#6b2a22",
         style="italic",
-        wrap=True,
     )
     fig.text(
         0.02,

@@ -56,6 +56,7 @@ from ._mapkit import (
     _furnish,
     _legend,
     _new_map,
+    _no_math,
     _north_arrow,
     _ramp,
     _scale_bar,
@@ -303,7 +304,7 @@ def attack_rate_map(
     _fill(ax, base, colours, hatch_ids=rate.index[classes == -2])
     _furnish(fig, ax, base, notes)
     _legend(fig, _rate_entries(bins, ramp, classes), f"Attack rate per 100,000\n{period}".strip())
-    return fig
+    return _no_math(fig)
 
 
 def rate_small_multiples(
@@ -381,7 +382,7 @@ def rate_small_multiples(
         y=0.215,
         ncols=4,
     )
-    return fig
+    return _no_math(fig)
 
 
 # --- clusters ---------------------------------------------------------------------------------
@@ -458,7 +459,7 @@ def cluster_map(
             )
         )
     _legend(fig, entries, "Local cluster of attack rate\n(number of units)")
-    return fig
+    return _no_math(fig)
 
 
 # --- spread -----------------------------------------------------------------------------------
@@ -552,7 +553,7 @@ def arrival_map(
             month = pd.Period(current, freq="M")
             handles_extra.append((f"newly affected in {month:%B %Y}", FRONT_COLOUR, 1.8))
     _legend(fig, entries, "First reported case\n(number of units)", lines=handles_extra)
-    return fig
+    return _no_math(fig)
 
 
 # --- border risk ------------------------------------------------------------------------------
@@ -643,7 +644,7 @@ def risk_map(
     _legend(fig, entries, f"Probability of a first case\nwithin {horizon_weeks} weeks")
     if side_note:
         _side_text(fig, side_note, y=0.47)
-    return fig
+    return _no_math(fig)
 
 
 # --- supplies ---------------------------------------------------------------------------------
@@ -785,7 +786,7 @@ def priority_map(
         entries.append(("candidate depot site", {"facecolor": "white", "edgecolor": DEPOT_COLOUR}))
     _legend(fig, entries, "Priority rank (1 = first)")
     _side_text(fig, "Planning quantities use\nexample values, not guidance.", y=0.22)
-    return fig
+    return _no_math(fig)
 
 
 def _existing(depots: pd.DataFrame) -> np.ndarray:
@@ -819,6 +820,7 @@ def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
     >>> out.read_bytes()[1:4]
     b'PNG'
     """
+    _no_math(fig)
     fig.savefig(path, dpi=dpi, facecolor="white")
     if pdf is not None:
         pdf.savefig(fig)
