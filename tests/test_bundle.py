@@ -113,7 +113,12 @@ def test_bundle_has_every_part(written, result):
         "depots",
     } <= layers
     rates = pyogrio.read_dataframe(written / "layers.gpkg", layer="rates")
-    assert len(rates) == len(result.units) and "month_rate" in rates.columns
+    assert len(rates) == len(result.units)
+    assert {"unit_id", "name", "population", "month_rate", "month_rate_seb"} <= set(rates.columns)
+    risk = pyogrio.read_dataframe(written / "layers.gpkg", layer="risk")
+    assert risk["unit_id"].tolist() == result.risk.index.tolist()  # in rank order
+    edges = pyogrio.read_dataframe(written / "layers.gpkg", layer="edges")
+    assert "index" not in edges.columns and len(edges) > 0
 
 
 def test_rejects_csv_holds_every_reject(written, result):

@@ -300,16 +300,10 @@ def _geo(units: Any, table: pd.DataFrame | None) -> Any:
     if table is None:
         return None
     flat = _flat(table)
-    flat = flat.drop(
-        columns=[
-            c
-            for c in flat.columns
-            if c in ("name", "country", "level", "population") and c in units.columns
-        ],
-        errors="ignore",
-    )
-    keep = units.loc[units.index.intersection(flat.index), ["name", "country", "geometry"]]
-    joined = keep.join(flat, how="inner")
+    # Name and country come from the units (one spelling everywhere); the rest is the table's.
+    flat = flat.drop(columns=[c for c in ("name", "country") if c in flat.columns])
+    ids = flat.index[flat.index.isin(units.index)]  # the table's own order (e.g. by rank)
+    joined = units.loc[ids, ["name", "country", "geometry"]].join(flat, how="inner")
     return gpd.GeoDataFrame(joined, geometry="geometry", crs=units.crs)
 
 
@@ -335,7 +329,7 @@ def _write_layers(result: MonthResult, path: Path) -> None:
 
         geo = layer.geometry
         attrs = _flat(pd.DataFrame(layer.drop(columns=layer.geometry.name)))
-        attrs = attrs.reset_index()
+        attrs = attrs if isinstance(attrs.index, pd.RangeIndex) else attrs.reset_index()
         gdf = gpd.GeoDataFrame(attrs, geometry=geo.to_numpy(), crs=layer.crs)
         gdf.to_file(path, layer=name, driver="GPKG", engine="pyogrio")
 
