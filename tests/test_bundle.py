@@ -294,3 +294,19 @@ def test_a_bad_input_file_still_stops_the_run(world, monkeypatch):
     monkeypatch.setattr(monthly, "_open_region", bad)
     with pytest.raises(InputError, match="aaa.csv, row 3"):
         monthly.run_month(world, "2026-10")
+
+
+def test_headline_agrees_with_the_weekly_counts(result):
+    # Recomputed here from the weekly table, by the rule "a week belongs to the month of its
+    # Thursday", independently of the rates module.
+    w = result.weekly
+    thursday = w["week"] + pd.Timedelta(days=3)
+    october = w[(thursday.dt.year == 2026) & (thursday.dt.month == 10)]
+    h = result.headline
+    assert h["cases"] == october["cases"].sum()
+    assert h["deaths"] == october["deaths"].sum()
+    reporting = result.units.loc[october["unit_id"].unique(), "population"].sum()
+    assert h["rate"] == pytest.approx(october["cases"].sum() / reporting * 1e5)
+    first = result.fronts["first_week"]
+    assert h["newly_affected"] == int(((first + pd.Timedelta(days=3)).dt.month == 10).sum())
+    assert h["expected_new_units"] == pytest.approx(result.risk["probability"].sum())
