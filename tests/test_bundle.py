@@ -310,3 +310,46 @@ def test_headline_agrees_with_the_weekly_counts(result):
     first = result.fronts["first_week"]
     assert h["newly_affected"] == int(((first + pd.Timedelta(days=3)).dt.month == 10).sum())
     assert h["expected_new_units"] == pytest.approx(result.risk["probability"].sum())
+
+
+def test_a_run_killed_midway_leaves_the_previous_bundle(world, result, tmp_path, no_figures):
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    first = bundle.write_month(result, tmp_path)
+    before = _snapshot(first)
+    # A child process writes the same month again and is killed (SIGKILL, no clean-up
+    # possible) while its report step hangs, i.e. midway through the bundle.
+    script = f"""
+import sys, time
+sys.path.insert(0, {str(os.path.dirname(__file__))!r})
+from month_world import fake_region
+from marchland import bundle, monthly
+monthly._open_region = fake_region
+bundle._write_figures = lambda result, root: {{}}
+bundle._write_report = lambda *a: time.sleep(120)
+res = monthly.run_month({str(world)!r}, "2026-10")
+bundle.write_month(res, {str(tmp_path)!r}, overwrite=True)
+"""
+    child = subprocess.Popen([sys.executable, "-c", script])
+    try:
+        deadline = time.monotonic() + 120
+        partial = []
+        while time.monotonic() < deadline and child.poll() is None:
+            partial = [p for p in tmp_path.glob(".2026-10.partial-*") if (p / "tables").is_dir()]
+            if partial and list((partial[0] / "tables").glob("*.csv")):
+                break
+            time.sleep(0.2)
+        assert partial, "the child never got midway"
+        child.send_signal(signal.SIGKILL)
+        child.wait(timeout=30)
+    finally:
+        if child.poll() is None:
+            child.kill()
+    assert _snapshot(first) == before
+    assert partial[0].exists()  # what a killed process leaves behind ...
+    bundle.write_month(result, tmp_path, overwrite=True)
+    assert not partial[0].exists()  # ... is cleared by the next run
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["2026-10"]
