@@ -15,7 +15,7 @@ import pandas as pd
 from scipy import sparse
 from scipy.sparse import csgraph
 
-from ._weeks import epi_week
+from ._weeks import epi_week, week_month
 from .errors import DataWarning
 from .graph import BorderGraph
 
@@ -60,10 +60,10 @@ def weeks_between(later: pd.Series, earlier) -> pd.Series:
 def month_of_week(week: pd.Series) -> pd.Series:
     """Month ("YYYY-MM") holding most of each week's days: that of its fourth day.
 
-    The same rule as the monthly run's, so a week counts in exactly one month.
+    The rule of :func:`marchland._weeks.week_month`, shared with rates and the monthly run, so
+    a week counts in exactly one month.
     """
-    mid = week + pd.Timedelta(days=3)
-    return mid.dt.strftime("%Y-%m").where(week.notna(), pd.NA).astype("string")
+    return week_month(week).dt.strftime("%Y-%m").where(week.notna(), pd.NA).astype("string")
 
 
 def epi_week_label(week: pd.Series) -> pd.Series:

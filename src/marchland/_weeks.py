@@ -139,3 +139,38 @@ def convert_weeks(starts: pd.Series, source: str, target: str) -> pd.Series:
     if source == target:
         return pd.Series(starts)
     return week_start(pd.Series(starts) + pd.Timedelta(days=3), target)
+
+
+def week_month(weeks: pd.Series) -> pd.Series:
+    """Calendar month (a monthly ``Period``) each week belongs to: the month of its fourth day.
+
+    The fourth day is the middle of the week, so the month it falls in holds most of the week's
+    days; the ISO rule for years, applied to months. Every week thus counts in exactly one
+    month, whatever weekday the calendar starts on. Missing weeks give ``NaT``.
+
+    Examples
+    --------
+    >>> w = pd.Series(pd.to_datetime(["2026-03-23", "2026-03-30", None]))
+    >>> week_month(w).astype("string").tolist()
+    ['2026-03', '2026-04', <NA>]
+    """
+    return (pd.to_datetime(pd.Series(weeks)) + pd.Timedelta(days=3)).dt.to_period("M")
+
+
+def month_weeks(month: str | pd.Period, first_weekday: int = 0) -> pd.DatetimeIndex:
+    """Start days of the weeks that belong to ``month`` (see :func:`week_month`).
+
+    ``first_weekday`` is the calendar's first day as pandas counts weekdays (Monday = 0,
+    Sunday = 6).
+
+    Examples
+    --------
+    >>> month_weeks("2026-03").strftime("%m-%d").tolist()
+    ['03-02', '03-09', '03-16', '03-23']
+    >>> month_weeks("2026-04").strftime("%m-%d").tolist()
+    ['03-30', '04-06', '04-13', '04-20', '04-27']
+    """
+    period = pd.Period(month, freq="M")
+    days = pd.date_range(period.start_time - pd.Timedelta(days=3), period.end_time, freq="D")
+    starts = days[days.day_of_week == first_weekday].normalize()
+    return starts[(week_month(pd.Series(starts)) == period).to_numpy()]

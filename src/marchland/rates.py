@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from ._weeks import month_weeks, week_month
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 
@@ -338,12 +339,6 @@ def case_fatality(
 
 
 # --- windows from the counts table -----------------------------------------------------------
-def _month_of_week(weeks: pd.Series) -> pd.Series:
-    # A week belongs to the month holding its fourth day (the ISO rule for years, applied to
-    # months), so each week counts in exactly one month.
-    return (weeks + pd.Timedelta(days=3)).dt.to_period("M")
-
-
 def window_counts(
     counts: pd.DataFrame,
     as_of: object,
@@ -443,11 +438,8 @@ def window_counts(
         spans[f"last_{int(n_weeks)}w"] = int(n_weeks)
     if month is not None:
         period = pd.Period(month, freq="M")
-        masks["month"] = (_month_of_week(weeks) == period).to_numpy()
-        first_week = (period.start_time - pd.Timedelta(days=3)).normalize()
-        all_weeks = pd.date_range(first_week, period.end_time, freq="D")
-        all_weeks = all_weeks[all_weeks.day_of_week == start_day]
-        spans["month"] = int((_month_of_week(pd.Series(all_weeks)) == period).sum())
+        masks["month"] = (week_month(weeks) == period).to_numpy()
+        spans["month"] = len(month_weeks(period, start_day))
 
     cases = known["cases"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
     deaths = known["deaths"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)

@@ -14,7 +14,14 @@ import pandas as pd
 import pytest
 from epiweeks import Week, Year
 
-from marchland._weeks import epi_week, from_year_week, parse_year_week, weeks_in_year
+from marchland._weeks import (
+    epi_week,
+    from_year_week,
+    month_weeks,
+    parse_year_week,
+    week_month,
+    weeks_in_year,
+)
 
 DAYS = pd.Series(pd.date_range("2019-01-01", "2027-12-31", freq="D"))
 SYSTEM = {"iso": "iso", "sunday": "cdc"}
@@ -63,3 +70,21 @@ def test_parse_iso_week_text() -> None:
     text = pd.Series([f"{w.year}-W{w.week:02d}" for w in weeks])
     assert [d.date() for d in parse_year_week(text, "iso")] == [w.startdate() for w in weeks]
     assert parse_year_week(pd.Series(["2025-W53", "2025-W00"]), "iso").isna().all()
+
+
+@pytest.mark.parametrize("calendar", ["iso", "sunday"])
+def test_week_month_is_the_month_of_the_fourth_day(calendar: str) -> None:
+    # Outside reference: epiweeks' Week.enddate() (7th day) minus three days is the 4th day.
+    starts = epi_week(DAYS, calendar)["start"].drop_duplicates()
+    ours = week_month(starts).astype("string").tolist()
+    ref = [
+        (Week.fromdate(d.date(), system=SYSTEM[calendar]).enddate() - dt.timedelta(days=3))
+        for d in starts
+    ]
+    assert ours == [f"{d:%Y-%m}" for d in ref]
+    # Each week lands in exactly one month's list of weeks.
+    first = 0 if calendar == "iso" else 6
+    months = pd.period_range("2019-02", "2027-11", freq="M")
+    listed = pd.DatetimeIndex([]).append([month_weeks(m, first) for m in months])
+    inner = starts[(starts >= listed.min()) & (starts <= listed.max())]
+    assert listed.is_unique and set(listed) == set(inner)
