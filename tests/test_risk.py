@@ -27,6 +27,7 @@ from marchland.risk import (
     run_backtest,
 )
 from marchland.risk import _example as example
+from marchland.spread import affected_episodes
 
 PARTS = [
     "part_near_pressure",
@@ -220,6 +221,39 @@ def test_reintroduction_window_makes_quiet_units_candidates():
         quiet, units, graph, as_of="2026-03-30", horizon_weeks=2, reintroduction_weeks=4
     )
     assert "a" in r3.index
+
+
+def test_reintroduction_candidates_agree_with_spread_episodes_over_an_unreported_gap():
+    # One definition of "quiet": a unit is a candidate again exactly when spread would open a
+    # new episode on a case in the next week. Unit a reports cases in weeks 0-4, a zero in
+    # week 5, nothing in weeks 6-7 (unknown, not quiet), then zeros. Counting calendar weeks
+    # would make it a candidate at the end of week 8; only four *reported* zeros (weeks 5, 8,
+    # 9, 10) do, at the end of week 10.
+    counts, units, graph = example()
+    a = counts["unit_id"] == "a"
+    counts = counts.copy()
+    counts.loc[a & (counts["week"] >= "2026-02-09"), "cases"] = 0
+    counts = counts[~(a & counts["week"].isin(pd.to_datetime(["2026-02-16", "2026-02-23"])))]
+    seen = {}
+    for as_of in pd.date_range("2026-02-20", "2026-04-03", freq="7D"):
+        r = border_risk(counts, units, graph, as_of=as_of, horizon_weeks=2, reintroduction_weeks=4)
+        week = pd.Timestamp(r.attrs["week"])
+        known = counts[(counts["received"] <= as_of) & (counts["week"] <= week)]
+        probe = (
+            known[known["unit_id"] == "a"]
+            .iloc[[0]]
+            .assign(week=week + pd.Timedelta(days=7), cases=1, received=as_of, row=0)
+        )
+        n_known = len(affected_episodes(known, reintroduction_weeks=4).query("unit_id == 'a'"))
+        n_probe = len(
+            affected_episodes(pd.concat([known, probe]), reintroduction_weeks=4).query(
+                "unit_id == 'a'"
+            )
+        )
+        seen[week] = ("a" in r.index, n_probe > n_known)
+    assert all(risk == spread for risk, spread in seen.values()), seen
+    assert [w for w, (risk, _) in seen.items() if risk][0] == pd.Timestamp("2026-03-16")
+    assert not seen[pd.Timestamp("2026-03-02")][0]  # week 8: not yet, two weeks were unreported
 
 
 def test_candidate_of_unknown_population_is_shown_but_not_scored():

@@ -112,7 +112,11 @@ def _origins_task(
             continue
         # What happened by t0 + h in the final data; cases reported late for weeks up to t0
         # count too: the unit was affected and the score should have found it.
-        lo = 0 if r is None else max(0, t0 - r + 1)
+        # A re-introduction candidate's window opens after its last positive week known at t0
+        # (its quiet weeks, as spread counts them, may be revised to cases later).
+        pos = panel.cases[cand] >= params["min_cases"]
+        nt = pos.shape[1]
+        lo = np.where(pos.any(axis=1), nt - pos[:, ::-1].argmax(axis=1), 0)
         outcome = (final_pos[cand, t0 + h + 1] - final_pos[cand, lo]) > 0
         frame = pd.DataFrame(
             {

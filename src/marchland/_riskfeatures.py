@@ -15,6 +15,7 @@ import pandas as pd
 import shapely
 from scipy import sparse
 
+from ._timeline import episode_over
 from .errors import InputError
 from .graph import as_border_graph
 
@@ -218,10 +219,14 @@ def build_panel(
         )
     wi = weeks.get_indexer(v["week"])
     cases = np.zeros((n, nt))
-    c = pd.to_numeric(v["cases"], errors="coerce").fillna(0).to_numpy(dtype=float)
+    c_raw = pd.to_numeric(v["cases"], errors="coerce")
+    c = c_raw.fillna(0).to_numpy(dtype=float)
     np.add.at(cases, (ui, wi), c)
     reported = np.zeros((n, nt), dtype=bool)
     reported[ui, wi] = True
+    # Counted as spread counts them (marchland._timeline): a row without cases is not a report.
+    counted = np.zeros((n, nt), dtype=bool)
+    counted[ui, wi] = c_raw.notna().to_numpy()
     fw = first_week.reindex(static.ids)
     fwi = np.full(n, nt, dtype=np.int64)
     known = fw.notna().to_numpy()
@@ -277,7 +282,13 @@ def build_panel(
     if reintroduction_weeks is None:
         free = ~affected
     else:
-        free = _rolling((cases >= min_cases).astype(float), reintroduction_weeks) <= 0
+        # Spread's re-introduction rule (one definition, in marchland._timeline): a unit is a
+        # candidate again after ``reintroduction_weeks`` *reported* weeks without a case; weeks
+        # nobody reported are unknown, not quiet.
+        positive = counted & (cases >= min_cases)
+        free = episode_over(
+            positive, counted & ~positive, reintroduction_weeks, before=affected[:, 0]
+        )
     at_risk = free & within2
     return Panel(weeks, cases, reported, fwi, inc, feats, at_risk)
 

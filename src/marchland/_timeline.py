@@ -75,6 +75,40 @@ def confirmed(positive: np.ndarray, confirm: tuple[int, int] | None) -> np.ndarr
     return positive & (window >= k)
 
 
+def quiet_run(positive: np.ndarray, quiet: np.ndarray) -> np.ndarray:
+    """Count reported quiet weeks since the last positive week, at the end of each week.
+
+    Counted from the start of the grid where there was no positive week yet; 0 on a positive
+    week. Weeks with no report add nothing: nobody can say a unit had no cases on a week it did
+    not report. The one definition of "quiet for a while" behind spread's episodes and risk's
+    re-introduction candidates.
+    """
+    nt = positive.shape[1]
+    quiet_cum = np.cumsum(quiet, axis=1)
+    last = np.maximum.accumulate(np.where(positive, np.arange(nt), -1), axis=1)
+    base = np.take_along_axis(quiet_cum, np.maximum(last, 0), axis=1)
+    return quiet_cum - np.where(last >= 0, base, 0)
+
+
+def episode_over(
+    positive: np.ndarray,
+    quiet: np.ndarray,
+    quiet_weeks: int,
+    *,
+    before: np.ndarray | None = None,
+) -> np.ndarray:
+    """Where, at the end of week ``t``, the unit's latest episode is over (or never began).
+
+    Over means at least ``quiet_weeks`` reported quiet weeks since its last positive week, so
+    a positive week right after it starts a new episode in :func:`episodes`. ``before`` marks
+    units already positive before the grid starts (their quiet weeks count from the start).
+    """
+    seen = np.logical_or.accumulate(positive, axis=1)
+    if before is not None:
+        seen = seen | np.asarray(before, dtype=bool)[:, None]
+    return ~seen | (quiet_run(positive, quiet) >= quiet_weeks)
+
+
 def episodes(tl: Timeline, confirm: tuple[int, int] | None, quiet_weeks: int | None):
     """Episodes as a long table: one row per (unit, episode).
 
@@ -89,14 +123,14 @@ def episodes(tl: Timeline, confirm: tuple[int, int] | None, quiet_weeks: int | N
         return pd.DataFrame({c: [] for c in cols}).astype(
             {"start": "datetime64[ns]", "end": "datetime64[ns]"}
         )
-    quiet_cum = np.cumsum(tl.quiet, axis=1)
     new_unit = np.r_[True, u[1:] != u[:-1]]
     if quiet_weeks is None:
         new_ep = new_unit
     else:
-        prev_q = np.r_[0, quiet_cum[u[:-1], t[:-1]]]
-        gap = quiet_cum[u, t] - prev_q
-        new_ep = new_unit | (gap >= quiet_weeks)
+        # A positive week opens a new episode when the one before it was already over; a
+        # unit's later positive weeks have t >= 1, so t - 1 is a week of the same unit.
+        over = episode_over(tl.positive, tl.quiet, quiet_weeks)
+        new_ep = new_unit | over[u, np.maximum(t - 1, 0)]
     ep = np.cumsum(new_ep)
     long = pd.DataFrame(
         {

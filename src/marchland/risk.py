@@ -116,8 +116,11 @@ def fit_risk_model(
     recent_weeks : int, default 3
         Weeks of incidence behind the pressure features (and each half of ``growth``).
     reintroduction_weeks : int, optional
-        Also treat a previously affected unit as a candidate once it has had no case for this
-        many weeks; ``None``: only never-affected units are candidates.
+        Also treat a previously affected unit as a candidate once this many *reported* weeks
+        without a case have passed since its last case (weeks nobody reported are unknown,
+        not quiet): the rule of :func:`marchland.spread.affected_episodes`, so a unit is a
+        candidate exactly when spread would count its next case as a new episode. ``None``:
+        only never-affected units are candidates.
     min_events : int, default 10
         Fewer first cases than this in the history: use :data:`PRIOR_COEFFICIENTS`.
     penalty : float, default 1.0
