@@ -119,6 +119,14 @@ dir = "../o"
         ),
         ("[supplies]\nplanning_attack_rate={low=0.1, mid=0.01, high=0.2}\n", "planning_attack"),
         ("[supplies]\nplanning_attack_rate={lo=0.1}\n", "supplies.planning_attack_rate.lo"),
+        ("[supplies]\nreach_km=0\n", "supplies.reach_km"),
+        ("[supplies]\nreach_km=inf\n", "supplies.reach_km"),
+        ("[supplies]\nk=-1\n", "supplies.k"),
+        ("[risk]\nrecent_weeks=0\n", "risk.recent_weeks"),
+        ("[risk]\nreintroduction_weeks=-2\n", "risk.reintroduction_weeks"),
+        ("[risk]\nreintroduction_weeks=2.5\n", "risk.reintroduction_weeks"),
+        ("[risk]\npenalty=-0.5\n", "risk.penalty"),
+        ("[risk]\npenalty=inf\n", "risk.penalty"),
     ],
 )
 def test_mistakes_named(folder: Path, extra: str, key: str) -> None:
@@ -193,3 +201,25 @@ def test_config_from_dict(folder: Path) -> None:
     cfg = config_from_dict(tomllib.loads(MINIMAL), base_dir=folder)
     assert cfg.path is None
     assert cfg.reports[0].files[0].parent == folder.resolve()
+
+
+def test_risk_options_and_depot_modes(folder: Path) -> None:
+    cfg = load_config(write(folder, MINIMAL))
+    assert (cfg.risk.recent_weeks, cfg.risk.reintroduction_weeks, cfg.risk.penalty) == (
+        3,
+        None,
+        1.0,
+    )
+    text = MINIMAL + "[risk]\nrecent_weeks=2\nreintroduction_weeks=4\npenalty=0\n"
+    cfg = load_config(write(folder, text + "[supplies]\nk=0\nreach_km=35.5\n"))
+    assert (cfg.risk.recent_weeks, cfg.risk.reintroduction_weeks, cfg.risk.penalty) == (2, 4, 0.0)
+    assert cfg.supplies.k == 0 and cfg.supplies.reach_km == 35.5
+    off = load_config(write(folder, MINIMAL + "[risk]\nreintroduction_weeks=0\n"))
+    assert off.risk.reintroduction_weeks is None
+
+
+def test_severe_share_has_one_default(folder: Path) -> None:
+    from marchland import config, supplies
+
+    assert supplies.DEFAULT_SEVERE_SHARE is config.DEFAULT_SEVERE_SHARE
+    assert load_config(write(folder, MINIMAL)).supplies.severe_share == config.DEFAULT_SEVERE_SHARE

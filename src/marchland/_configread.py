@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import glob as _glob
+import math
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
@@ -101,6 +102,13 @@ def _nonneg_float(ctx: _Ctx, key: str, v: Any) -> float:
     v = _float(ctx, key, v)
     if v < 0:
         raise ctx.error(key, f"needs to be >= 0. {v!r} was given instead.")
+    return v
+
+
+def _pos_float(ctx: _Ctx, key: str, v: Any) -> float:
+    v = _float(ctx, key, v)
+    if not (v > 0 and math.isfinite(v)):
+        raise ctx.error(key, f"needs to be a number > 0. {v!r} was given instead.")
     return v
 
 
@@ -365,11 +373,21 @@ def _analysis(ctx: _Ctx, raw: Any) -> AnalysisConfig:
 
 
 def _risk(ctx: _Ctx, raw: Any) -> RiskConfig:
+    def penalty(c: _Ctx, k: str, v: Any) -> float:
+        v = _nonneg_float(c, k, v)
+        if not math.isfinite(v):
+            raise c.error(k, f"needs to be a finite number >= 0. {v!r} was given instead.")
+        return v
+
     spec = {
         "horizon_weeks": _pos_int,
         "silent_weeks": _pos_int,
         "top_k": _pos_int,
         "min_events": _nonneg_int,
+        "recent_weeks": _pos_int,
+        # TOML has no null: 0 switches re-introduction off, as leaving the key out does.
+        "reintroduction_weeks": lambda c, k, v: _nonneg_int(c, k, v) or None,
+        "penalty": penalty,
     }
     return RiskConfig(**_table(ctx, "risk", raw, spec))
 
@@ -383,8 +401,9 @@ def _supplies(ctx: _Ctx, raw: Any) -> SuppliesConfig:
     spec = {
         "items": _existing_path,
         "depots": _existing_path,
-        "k": _pos_int,
-        "reach_km": _nonneg_float,
+        # k = 0 opens no new depot: units are assigned to the existing ones only.
+        "k": _nonneg_int,
+        "reach_km": _pos_float,
         "planning_attack_rate": rates,
         "severe_share": _share,
     }

@@ -165,12 +165,31 @@ class AnalysisConfig:
 
 @dataclass(frozen=True)
 class RiskConfig:
-    """``[risk]``: horizon, silence threshold, top-k for hits, minimum events to fit."""
+    """``[risk]``: horizon, silence threshold, top-k for hits, and the model's options.
+
+    ``recent_weeks``, ``reintroduction_weeks`` and ``penalty`` are the keyword options of
+    :func:`marchland.risk.border_risk` of the same names, with the same defaults.
+    ``reintroduction_weeks`` is ``None`` (TOML: 0 or absent) for "off": only never-affected units
+    are candidates.
+    """
 
     horizon_weeks: int = 4
     silent_weeks: int = 3
     top_k: int = 10
     min_events: int = 10
+    # Weeks of incidence behind the pressure features (and each half of growth).
+    recent_weeks: int = 3
+    # Reported case-free weeks after which an affected unit is a candidate again (spread's
+    # re-introduction rule); None: off.
+    reintroduction_weeks: int | None = None
+    # Ridge penalty on the standardised coefficients; 0 is the plain maximum-likelihood fit.
+    penalty: float = 1.0
+
+
+#: Share of cases planned as severe when the config gives none. An assumed planning value
+#: (common practice for cholera planning, recalled from memory), not taken from a source; set
+#: what your national guideline says. The one definition: :mod:`marchland.supplies` uses it too.
+DEFAULT_SEVERE_SHARE = 0.2
 
 
 @dataclass(frozen=True)
@@ -195,7 +214,7 @@ class SuppliesConfig:
     k: int = 3
     reach_km: float = 120.0
     planning_attack_rate: PlanningRates = field(default_factory=PlanningRates)
-    severe_share: float = 0.2
+    severe_share: float = DEFAULT_SEVERE_SHARE
 
 
 @dataclass(frozen=True)

@@ -51,6 +51,7 @@ from ._supplyinput import (
     _sites,
     _weights,
 )
+from .config import DEFAULT_SEVERE_SHARE  # an assumed planning value; see its comment there
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 
@@ -71,9 +72,6 @@ __all__ = [
     "totals",
 ]
 
-# Planning share of cases that are severe when the config gives none: common practice for
-# cholera planning, recalled from memory; an example value, not guidance.
-DEFAULT_SEVERE_SHARE = 0.2
 DISTANCES = ("straight", "graph")
 # Products like 150 * 0.2 * 8 * 1.1 land a hair above a whole number in binary floating point;
 # rounding first keeps ceil() from adding a phantom unit.
