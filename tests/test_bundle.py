@@ -98,9 +98,9 @@ def test_bundle_has_every_part(written, result):
         "epi_provinces_AAA",
         "epi_provinces_BBB",
     } <= pngs
-    # One atlas page per figure (counted in the PDF's page objects).
+    # A cover page, then one atlas page per figure (counted in the PDF's page objects).
     pages = len(re.findall(rb"/Type\s*/Page\b(?!s)", (written / "atlas.pdf").read_bytes()))
-    assert pages == len(list((written / "maps").glob("*.png")))
+    assert pages == 1 + len(list((written / "maps").glob("*.png")))
     layers = set(pyogrio.list_layers(written / "layers.gpkg")[:, 0])
     assert {
         "units",

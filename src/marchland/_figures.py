@@ -99,8 +99,8 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
                 fronts=result.front_outlines,
                 current=result.month,
             ),
-            "Week of the first reported case per unit; thin outlines show the area newly "
-            "affected in each month.",
+            "Quarter of the first reported case per unit; lines outline each month's newly "
+            "affected area, this month's heavier.",
         )
     if result.risk is not None:
         risk = result.risk
@@ -138,6 +138,58 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
             "Quantities use example planning values, not guidance.",
         )
     yield from _epi_figures(result, notes)
+
+
+def cover_page(result: MonthResult, captions: list[str]) -> Any:
+    """Draw the atlas's first page: title, as-of date, headline numbers, contents, cautions."""
+    import textwrap
+
+    from matplotlib.figure import Figure
+
+    from ._mapkit import _MAP_SIZE, _no_math
+
+    h = result.headline
+    month = _month_label(result.month)
+    fig = Figure(figsize=_MAP_SIZE, facecolor="white")
+    fig.text(0.06, 0.90, result.config.region.name, fontsize=18, fontweight="bold")
+    fig.text(0.06, 0.85, f"Monthly atlas, {month}", fontsize=13)
+    fig.text(
+        0.06,
+        0.81,
+        f"Data as received by {result.as_of:%Y-%m-%d}; "
+        f"{h['units']} analysis units; seed {result.seed}.",
+        fontsize=9,
+        color="#4a4740",
+    )
+
+    def num(v: Any, fmt: str) -> str:
+        return "not computed" if v is None else format(v, fmt)
+
+    lines = [
+        f"Cases reported in {month}: {num(h['cases'], ',.0f')}",
+        f"Deaths reported in {month}: {num(h['deaths'], ',.0f')}",
+        f"Attack rate per 100,000, whole region: {num(h['rate'], '.1f')}",
+        f"Units with a first case this month: {num(h['newly_affected'], 'd')}",
+        f"Global Moran's I (rate-adjusted): {num(h['global_moran_i'], '.3f')}",
+        f"Expected newly affected units, next {result.config.risk.horizon_weeks} weeks: "
+        f"{num(h['expected_new_units'], '.1f')}",
+    ]
+    fig.text(0.06, 0.74, "\n".join(lines), fontsize=10, va="top", linespacing=1.6)
+    pages = [
+        f"{i + 2}. {textwrap.shorten(c, 110, placeholder=' ...')}" for i, c in enumerate(captions)
+    ]
+    fig.text(0.06, 0.47, "Pages", fontsize=10, fontweight="bold")
+    fig.text(0.06, 0.45, "\n".join(pages), fontsize=7, va="top", linespacing=1.5, color="#2b2925")
+    fig.text(
+        0.06,
+        0.08,
+        textwrap.fill(maps.CAUTION_LINE, 100),
+        fontsize=8,
+        style="italic",
+        color="#6b2a22",
+        va="top",
+    )
+    return _no_math(fig)
 
 
 def backtest_note(result: MonthResult) -> str:

@@ -337,7 +337,8 @@ def _write_layers(result: MonthResult, path: Path) -> None:
 def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:
     from matplotlib.backends.backend_pdf import PdfPages
 
-    from ._figures import draw_figures
+    from ._figures import cover_page, draw_figures
+    from .maps import save_figure
 
     mdir = root / "maps"
     mdir.mkdir()
@@ -350,10 +351,10 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
             "CreationDate": None,
         },
     ) as pdf:
-        for name, fig, caption in draw_figures(result):
+        entries = list(draw_figures(result))
+        pdf.savefig(cover_page(result, [caption for _, _, caption in entries]))
+        for name, fig, caption in entries:
             path = mdir / f"{name}.png"
-            from .maps import save_figure
-
             save_figure(fig, path, pdf=pdf)
             figures[name] = {"path": path, "caption": caption}
     return figures
