@@ -110,3 +110,13 @@ def test_the_check_catches_a_broken_image_and_a_remote_request(tmp_path):
     got = _render(bad, tmp_path)
     assert got["images"] == 2 and got["loaded"] == 0
     assert any(u.startswith("http://example.invalid") for u in got["fetched"])
+
+
+@pytest.mark.parametrize(
+    ("ci", "outcome"), [("true", pytest.fail.Exception), ("", pytest.skip.Exception)]
+)
+def test_missing_chromium_fails_under_ci_and_skips_elsewhere(monkeypatch, ci, outcome):
+    monkeypatch.setattr(shutil, "which", lambda name: None)
+    monkeypatch.setenv("CI", ci)
+    with pytest.raises(outcome, match="Chromium is not installed"):
+        _chromium()
