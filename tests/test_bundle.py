@@ -353,3 +353,14 @@ bundle.write_month(res, {str(tmp_path)!r}, overwrite=True)
     bundle.write_month(result, tmp_path, overwrite=True)
     assert not partial[0].exists()  # ... is cleared by the next run
     assert sorted(p.name for p in tmp_path.iterdir()) == ["2026-10"]
+
+
+def test_cumulative_stops_at_the_month_and_a_late_as_of_is_flagged(world, monkeypatch):
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    res = monthly.run_month(world, "2026-09", as_of="2026-10-20")
+    weekly = res.weekly
+    assert weekly["week"].max() == pd.Timestamp("2026-09-28") - pd.Timedelta(days=7)
+    by_unit = weekly.groupby("unit_id")["cases"].sum()
+    got = res.rates["cumulative_cases"].astype(float)
+    assert got.to_dict() == pytest.approx(by_unit.reindex(got.index).astype(float).to_dict())
+    assert any("more than a week after 2026-09 ended" in w for w in res.warnings)

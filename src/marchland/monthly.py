@@ -478,6 +478,19 @@ class _Context:
         # Every version received by as_of: later corrections must not leak into the past.
         counts = region.counts
         self.counts = counts[counts["received"] <= as_of].reset_index(drop=True)
+        # The month's tables stop at its last week (a week belongs to the month of its
+        # Thursday), so a week after the month never enters "cumulative".
+        month_end = period.end_time.normalize()
+        in_month = (self.counts["week"] + pd.Timedelta(days=3)) <= month_end
+        self.counts_to_month = self.counts[in_month].reset_index(drop=True)
+        if as_of > month_end + pd.Timedelta(days=7):
+            warnings.warn(
+                f"the as-of date {as_of:%Y-%m-%d} is more than a week after {period} ended: "
+                "the trailing windows (last weeks) end at the last week finished by the as-of "
+                "date, not at the month's end",
+                DataWarning,
+                stacklevel=2,
+            )
         self.seed = cfg.region.seed
 
     # -- rates -----------------------------------------------------------------------------
@@ -494,7 +507,7 @@ class _Context:
         units = self.units
         pop = units["population"].astype(float)
         wc = r.window_counts(
-            self.counts,
+            self.counts_to_month,
             self.as_of,
             windows_weeks=a.windows_weeks,
             month=self.period,
@@ -525,7 +538,7 @@ class _Context:
         for k in range(5, -1, -1):
             m = self.period - k
             wm = r.window_counts(
-                self.counts, self.as_of, windows_weeks=(), month=m, units=units.index
+                self.counts_to_month, self.as_of, windows_weeks=(), month=m, units=units.index
             )
             hist[str(m)] = r.attack_rates(wm["cases"]["month"], pop)["rate"]
         history = pd.DataFrame(hist)
@@ -556,7 +569,11 @@ class _Context:
         r = _need("rates", "window_counts", "smooth_rates")
         a = self.cfg.analysis
         wc = r.window_counts(
-            self.counts, self.as_of, windows_weeks=(), month=self.period, units=self.units.index
+            self.counts_to_month,
+            self.as_of,
+            windows_weeks=(),
+            month=self.period,
+            units=self.units.index,
         )
         cases = wc["cases"]["month"]
         pop = self.units["population"].astype(float)
