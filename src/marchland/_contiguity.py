@@ -80,22 +80,10 @@ def build_border_graph(
     """Build a :class:`~marchland.graph.BorderGraph` from analysis units (see module docs)."""
     if rule not in RULES:
         raise ValueError(f"'rule' needs to be one of {RULES}. {rule!r} was given instead.")
-    tolerance = float(tolerance)
-    if not np.isfinite(tolerance) or tolerance < 0:
-        raise InputError(
-            "the gap tolerance must be a number of metres >= 0",
-            column="tolerance",
-            value=tolerance,
-        )
+    tolerance = _metres(tolerance, "the gap tolerance", "tolerance")
     if min_shared_m is None:
         min_shared_m = 2.0 * tolerance
-    min_shared_m = float(min_shared_m)
-    if not np.isfinite(min_shared_m) or min_shared_m < 0:
-        raise InputError(
-            "the minimum near-shared length must be a number of metres >= 0",
-            column="min_shared_m",
-            value=min_shared_m,
-        )
+    min_shared_m = _metres(min_shared_m, "the minimum near-shared length", "min_shared_m")
 
     ids, geoms, country, group, source = _check_units(units, tolerance)
     n = len(ids)
@@ -133,6 +121,13 @@ def build_border_graph(
 
 
 # --- input checks ------------------------------------------------------------------------------
+def _metres(value, what: str, column: str) -> float:
+    value = float(value)
+    if not np.isfinite(value) or value < 0:
+        raise InputError(f"{what} must be a number of metres >= 0", column=column, value=value)
+    return value
+
+
 def _check_units(units, tolerance: float):
     import geopandas as gpd
 

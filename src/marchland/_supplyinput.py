@@ -113,6 +113,20 @@ def _number(value: Any, *, file: str | None, row: int, column: str) -> float:
     return out
 
 
+def _choice(rec: Mapping, column: str, allowed: tuple, *, file: str | None, row: int) -> str:
+    """Read the row's ``column``, trimmed and lower-cased; it must be one of ``allowed``."""
+    value = str(rec[column]).strip().lower()
+    if value not in allowed:
+        raise InputError(
+            f"'{column}' needs to be one of {allowed}; {rec[column]!r} was given instead",
+            file=file,
+            row=row,
+            column=column,
+            value=rec[column],
+        )
+    return value
+
+
 def _check_items(frame: pd.DataFrame, *, file: str | None) -> pd.DataFrame:
     missing = [c for c in ITEM_COLUMNS if c not in frame.columns]
     if missing:
@@ -139,24 +153,8 @@ def _check_items(frame: pd.DataFrame, *, file: str | None) -> pd.DataFrame:
                 value=rec["item"],
             )
         seen.add(item)
-        unit = str(rec["unit"]).strip().lower()
-        if unit not in ITEM_UNITS:
-            raise InputError(
-                f"'unit' needs to be one of {ITEM_UNITS}; {rec['unit']!r} was given instead",
-                file=file,
-                row=row,
-                column="unit",
-                value=rec["unit"],
-            )
-        basis = str(rec["basis"]).strip().lower()
-        if basis not in ITEM_BASES:
-            raise InputError(
-                f"'basis' needs to be one of {ITEM_BASES}; {rec['basis']!r} was given instead",
-                file=file,
-                row=row,
-                column="basis",
-                value=rec["basis"],
-            )
+        unit = _choice(rec, "unit", ITEM_UNITS, file=file, row=row)
+        basis = _choice(rec, "basis", ITEM_BASES, file=file, row=row)
         per_case.append(_number(rec["per_case"], file=file, row=row, column="per_case"))
         raw_buffer = rec["buffer_share"]
         if isinstance(raw_buffer, str) and not raw_buffer.strip():
@@ -253,18 +251,23 @@ def _check_metric(crs: Any, what: str) -> None:
         )
 
 
+def _check_known(ids: pd.Index, units: pd.DataFrame, who: str) -> None:
+    """Refuse ids that are not in the units table (``who``: "risk names", ...)."""
+    missing = ids.difference(units.index)
+    if len(missing):
+        raise InputError(
+            f"{who} {len(missing)} unit(s) not in the units table, e.g. {list(missing[:3])}",
+            column="unit_id",
+            value=missing[0],
+        )
+
+
 def _candidate_points(
     candidates: pd.DataFrame, units: gpd.GeoDataFrame | None
 ) -> tuple[gpd.GeoSeries, gpd.GeoSeries]:
     """District centres (centroids in the working CRS) and the region they lie in."""
     if units is not None:
-        missing = candidates.index.difference(units.index)
-        if len(missing):
-            raise InputError(
-                f"{len(missing)} candidate(s) not in the units table, e.g. {list(missing[:3])}",
-                column="unit_id",
-                value=missing[0],
-            )
+        _check_known(candidates.index, units, "candidates name")
         region = units.geometry
     elif isinstance(candidates, gpd.GeoDataFrame):
         region = candidates.geometry

@@ -37,6 +37,7 @@ import pandas as pd
 from scipy import sparse, stats
 
 from . import _permute
+from ._align import align_units
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 from .rates import eb_standardised
@@ -136,25 +137,12 @@ class _Prepared:
     reason: np.ndarray  # per unit in ids: "" or why it has no statistic
 
 
-def _align_to_graph(values: pd.Series, bg: BorderGraph, name: str) -> pd.Series:
-    if not isinstance(values, pd.Series):
-        raise TypeError(
-            f"'{name}' needs to be a pandas Series indexed by unit_id. "
-            f"{type(values).__name__} was given instead."
-        )
-    if not values.index.is_unique:
-        dup = values.index[values.index.duplicated()][0]
-        raise InputError(f"{name} lists unit {dup!r} more than once", column=name, value=dup)
-    missing = bg.ids.difference(values.index)
-    extra = values.index.difference(bg.ids)
-    if len(missing) or len(extra):
-        raise InputError(
-            f"{name} and the graph must have the same unit_ids: {len(missing)} graph unit(s) "
-            f"missing from {name} (e.g. {list(missing[:3])}), {len(extra)} unit(s) of {name} "
-            f"not in the graph (e.g. {list(extra[:3])})",
-            column=name,
-        )
-    return values.reindex(bg.ids)
+def _rate_z(cases: pd.Series, population: pd.Series, graph: object):
+    """Return the graph and the Assuncao-Reis standardised rates on its units."""
+    bg = as_border_graph(graph)
+    cases = align_units(cases, bg.ids, "cases", "the graph")
+    population = align_units(population, bg.ids, "population", "the graph")
+    return bg, eb_standardised(cases, population)
 
 
 def _prepare(values: pd.Series, graph: object, weighting: str, *, name: str = "values",
@@ -164,7 +152,7 @@ def _prepare(values: pd.Series, graph: object, weighting: str, *, name: str = "v
             f"'weighting' needs to be one of {WEIGHTINGS}. {weighting!r} was given instead."
         )
     bg = as_border_graph(graph)
-    aligned = _align_to_graph(values, bg, name)
+    aligned = align_units(values, bg.ids, name, "the graph")
     try:
         y_all = pd.to_numeric(aligned).astype("Float64").to_numpy(dtype=float, na_value=np.nan)
     except (TypeError, ValueError) as exc:
@@ -363,10 +351,7 @@ def hotspots(
     {'Not significant': 92, 'High-High': 8}
     """
     _check_options(permutations, fdr)
-    bg = as_border_graph(graph)
-    cases = _align_to_graph(cases, bg, "cases")
-    population = _align_to_graph(population, bg, "population")
-    rate_z = eb_standardised(cases, population)
+    bg, rate_z = _rate_z(cases, population, graph)
     prep = _prepare(rate_z, bg, weighting)
     return _local_moran(prep, permutations, seed, fdr)
 
@@ -663,8 +648,5 @@ def global_moran_rate(
     >>> global_moran_rate(cases, pop, g, permutations=99, seed=0).z > 3
     True
     """
-    bg = as_border_graph(graph)
-    cases = _align_to_graph(cases, bg, "cases")
-    population = _align_to_graph(population, bg, "population")
-    return global_moran(eb_standardised(cases, population), bg, permutations=permutations,
-                        seed=seed, weighting=weighting)  # fmt: skip
+    bg, rate_z = _rate_z(cases, population, graph)
+    return global_moran(rate_z, bg, permutations=permutations, seed=seed, weighting=weighting)

@@ -151,32 +151,16 @@ def population_from_table(
             raise InputError(f"the population table has no column {c!r}", file=file, column=c)
     ids = t[id_column].astype(str).str.strip()
     vals = pd.to_numeric(t[value_column], errors="coerce")
-    bad = vals.isna() | (vals < 0)
-    if bad.any():
-        i = int(np.flatnonzero(bad.to_numpy())[0])
-        raise InputError(
-            "population needs to be a number >= 0",
-            file=file,
-            row=i + 1,
-            column=value_column,
-            value=t[value_column].iloc[i],
-        )
-    dup = ids.duplicated()
-    if dup.any():
-        i = int(np.flatnonzero(dup.to_numpy())[0])
-        raise InputError(
-            "unit id listed twice", file=file, row=i + 1, column=id_column, value=ids.iloc[i]
-        )
-    unknown = ~ids.isin(units.index)
-    if unknown.any():
-        i = int(np.flatnonzero(unknown.to_numpy())[0])
-        raise InputError(
-            "unit id is in no boundary file",
-            file=file,
-            row=i + 1,
-            column=id_column,
-            value=ids.iloc[i],
-        )
+    # Each check names the first offending row (data rows count from 1).
+    for bad, reason, column, shown in (
+        (vals.isna() | (vals < 0), "population needs to be a number >= 0", value_column,
+         t[value_column]),
+        (ids.duplicated(), "unit id listed twice", id_column, ids),
+        (~ids.isin(units.index), "unit id is in no boundary file", id_column, ids),
+    ):  # fmt: skip
+        if bad.any():
+            i = int(np.flatnonzero(bad.to_numpy())[0])
+            raise InputError(reason, file=file, row=i + 1, column=column, value=shown.iloc[i])
     s = pd.Series(vals.to_numpy(float), index=ids.to_numpy()).reindex(units.index)
     return s.rename("population")
 

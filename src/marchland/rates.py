@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from ._align import align_units
 from ._weeks import month_weeks, week_month
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
@@ -79,32 +80,6 @@ def _population(values: pd.Series) -> np.ndarray:
             value=arr[bad][0],
         )
     return arr
-
-
-def _align(values: pd.Series, index: pd.Index, name: str, other: str) -> pd.Series:
-    """``values`` reordered to ``index``; every unit must be in both."""
-    if not isinstance(values, pd.Series):
-        raise TypeError(
-            f"'{name}' needs to be a pandas Series indexed by unit_id. "
-            f"{type(values).__name__} was given instead."
-        )
-    if not values.index.is_unique:
-        dup = values.index[values.index.duplicated()][0]
-        raise InputError(f"{name} lists unit {dup!r} more than once", column=name, value=dup)
-    missing = index.difference(values.index)
-    extra = values.index.difference(index)
-    if len(missing) or len(extra):
-        parts = []
-        if len(missing):
-            parts.append(
-                f"{len(missing)} unit(s) of {other} missing from {name}, e.g. {list(missing[:3])}"
-            )
-        if len(extra):
-            parts.append(f"{len(extra)} unit(s) of {name} not in {other}, e.g. {list(extra[:3])}")
-        raise InputError(
-            f"{name} and {other} must have the same unit_ids: " + "; ".join(parts), column=name
-        )
-    return values.reindex(index)
 
 
 def _check_conf(conf: float) -> float:
@@ -167,7 +142,7 @@ def poisson_limits(counts: np.ndarray, conf: float = 0.95) -> tuple[np.ndarray, 
 def _attack_rates_one(
     cases: pd.Series, population: pd.Series, *, per: float, conf: float
 ) -> pd.DataFrame:
-    pop_s = _align(population, cases.index, "population", "cases")
+    pop_s = align_units(population, cases.index, "population", "cases")
     x = _counts(cases, "cases")
     pop = _population(pop_s)
     lower, upper = poisson_limits(x, conf)
@@ -246,7 +221,7 @@ def _case_fatality_one(
 ) -> pd.DataFrame:
     from statsmodels.stats.proportion import proportion_confint
 
-    cases = _align(cases, deaths.index, "cases", "deaths")
+    cases = align_units(cases, deaths.index, "cases", "deaths")
     d = _counts(deaths, "deaths")
     n = _counts(cases, "cases")
     over = np.isfinite(d) & np.isfinite(n) & (d > n)
@@ -475,7 +450,7 @@ def window_counts(
 def _rates_inputs(
     cases: pd.Series, population: pd.Series
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    pop_s = _align(population, cases.index, "population", "cases")
+    pop_s = align_units(population, cases.index, "population", "cases")
     e = _counts(cases, "cases")
     b = _population(pop_s)
     valid = np.isfinite(e) & np.isfinite(b) & (b > 0)
@@ -571,7 +546,7 @@ def smooth_rates(
     else:
         bg = as_border_graph(graph)
         index = bg.ids
-        _align(cases, bg.ids, "cases", "the graph")
+        align_units(cases, bg.ids, "cases", "the graph")
         e, b, valid = _rates_inputs(cases.reindex(bg.ids), population)
         out = _spatial_eb(e, b, valid, bg)
     return pd.Series(out * per, index=index, name="rate_smoothed")
@@ -627,7 +602,7 @@ def eb_standardised(cases: pd.Series, population: pd.Series) -> pd.Series:
 def _aggregate_one(
     cases: pd.Series, population: pd.Series, *, groups: pd.DataFrame, per: float, conf: float
 ) -> pd.DataFrame:
-    pop_s = _align(population, cases.index, "population", "cases")
+    pop_s = align_units(population, cases.index, "population", "cases")
     x = _counts(cases, "cases")
     pop = _population(pop_s)
     frames = []

@@ -79,6 +79,25 @@ __all__ = [
 ]
 
 
+def _known_panel(
+    counts, units, graph, as_of, covariates, recent_weeks, reintroduction_weeks, min_cases
+):
+    """Build the static arrays and the panel of the data known on ``as_of`` (fit and score)."""
+    _check_counts(counts)
+    static = rf.build_static(units, graph, covariates)
+    date = pd.Timestamp(as_of)
+    panel, week = _panel_at(
+        counts,
+        static,
+        date,
+        week0=None,
+        recent_weeks=recent_weeks,
+        reintroduction_weeks=reintroduction_weeks,
+        min_cases=min_cases,
+    )
+    return static, date, panel, week
+
+
 def fit_risk_model(
     counts: pd.DataFrame,
     units: gpd.GeoDataFrame,
@@ -148,18 +167,9 @@ def fit_risk_model(
     >>> m.kind, m.n_events < 10
     ('prior', True)
     """
-    _check_counts(counts)
     _check_options(horizon_weeks, recent_weeks, min_events, penalty)
-    static = rf.build_static(units, graph, covariates)
-    date = pd.Timestamp(as_of)
-    panel, week = _panel_at(
-        counts,
-        static,
-        date,
-        week0=None,
-        recent_weeks=recent_weeks,
-        reintroduction_weeks=reintroduction_weeks,
-        min_cases=min_cases,
+    static, date, panel, week = _known_panel(
+        counts, units, graph, as_of, covariates, recent_weeks, reintroduction_weeks, min_cases
     )
     return _fit(
         panel,
@@ -232,18 +242,9 @@ min_events, penalty, min_cases, covariates
     >>> bool(risk.loc["c", "probability"] > risk.loc["d", "probability"])
     True
     """
-    _check_counts(counts)
     _check_options(horizon_weeks, recent_weeks, min_events, penalty, silent_weeks)
-    static = rf.build_static(units, graph, covariates)
-    date = pd.Timestamp(as_of)
-    panel, week = _panel_at(
-        counts,
-        static,
-        date,
-        week0=None,
-        recent_weeks=recent_weeks,
-        reintroduction_weeks=reintroduction_weeks,
-        min_cases=min_cases,
+    static, date, panel, week = _known_panel(
+        counts, units, graph, as_of, covariates, recent_weeks, reintroduction_weeks, min_cases
     )
     if model is None:
         model = _fit(

@@ -40,6 +40,7 @@ from ._supplyinput import (
     _check_inside,
     _check_items,
     _check_k,
+    _check_known,
     _check_metric,
     _check_reach,
     _depots_from_frame,
@@ -298,13 +299,7 @@ def prioritise(risk: pd.DataFrame, units: pd.DataFrame, *, plan: SupplyPlan) -> 
     for col in ("name", "country", "population"):
         if col not in units.columns:
             raise InputError(f"the units table needs a {col!r} column", column=col)
-    missing = risk.index.difference(units.index)
-    if len(missing):
-        raise InputError(
-            f"risk names {len(missing)} unit(s) not in the units table, e.g. {list(missing[:3])}",
-            column="unit_id",
-            value=missing[0],
-        )
+    _check_known(risk.index, units, "risk names")
     ids = risk.index
     population = pd.to_numeric(units["population"], errors="coerce").reindex(ids).astype(float)
     if (population < 0).any():

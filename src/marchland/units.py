@@ -359,26 +359,30 @@ def _check_hierarchy(units: gpd.GeoDataFrame) -> None:
             column="parent",
             value=par[u],
         )
-    plev = units["level"].reindex(par.to_numpy()).to_numpy()
-    bad = plev >= units.loc[par.index, "level"].to_numpy()
-    if bad.any():
-        u = par.index[bad][0]
-        raise InputError(
-            f"unit {u!r} has a parent of the same or finer level",
-            file=units.at[u, "source"],
-            column="level",
-            value=u,
-        )
-    pcountry = units["country"].reindex(par.to_numpy()).to_numpy()
-    bad = pcountry != units.loc[par.index, "country"].to_numpy()
-    if bad.any():
-        u = par.index[bad][0]
-        raise InputError(
-            f"unit {u!r} has a parent in another country",
-            file=units.at[u, "source"],
-            column="parent",
-            value=par[u],
-        )
+    child = units.loc[par.index]
+    # The parent must be coarser and in the same country; the first offender is named.
+    for bad, reason, column, shown in (
+        (
+            units["level"].reindex(par.to_numpy()).to_numpy() >= child["level"].to_numpy(),
+            "has a parent of the same or finer level",
+            "level",
+            pd.Series(par.index, index=par.index),
+        ),
+        (
+            units["country"].reindex(par.to_numpy()).to_numpy() != child["country"].to_numpy(),
+            "has a parent in another country",
+            "parent",
+            par,
+        ),
+    ):
+        if bad.any():
+            u = par.index[bad][0]
+            raise InputError(
+                f"unit {u!r} {reason}",
+                file=units.at[u, "source"],
+                column=column,
+                value=shown[u],
+            )
 
 
 def units_from_config(config: Config | str | os.PathLike[str]) -> gpd.GeoDataFrame:
