@@ -21,7 +21,7 @@ import pyogrio
 import pytest
 from month_world import fake_region, write_world
 
-from marchland import bundle, monthly
+from marchland import _monthsteps, bundle, monthly
 from marchland.errors import InputError
 
 
@@ -238,14 +238,14 @@ def test_report_carries_cautions_headline_and_backtest(written, result):
 
 
 def test_missing_module_is_shown_absent_not_faked(world, tmp_path, monkeypatch):
-    real = monthly._need
+    real = _monthsteps._need
 
     def no_hotspots(module, *names):
         if module == "hotspots":
             raise monthly._Absent("module marchland.hotspots is not available yet")
         return real(module, *names)
 
-    monkeypatch.setattr(monthly, "_need", no_hotspots)
+    monkeypatch.setattr(_monthsteps, "_need", no_hotspots)
     monkeypatch.setattr(monthly, "_open_region", fake_region)
     res = monthly.run_month(world, "2026-10")
     assert res.hotspots is None and res.global_moran is None

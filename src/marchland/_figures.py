@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from . import maps
-from .monthly import province_of
+from ._monthsteps import province_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
