@@ -7,8 +7,10 @@ aggregates), hotspots (rate-adjusted local Moran's I, global Moran's I, Getis-Or
 backtest, and supplies (priorities and depots). It returns a frozen :class:`MonthResult`
 holding every table the bundle writes, the time each step took and the warnings raised.
 
-A step whose module (or one of the steps it needs) is not available is recorded in
-``MonthResult.absent`` with the reason, and its fields stay ``None``: nothing is faked.
+A step whose module (or one of the steps it needs) is not available, or whose statistic the
+month's data cannot carry (an InputError from the analysis, e.g. every rate equal), is recorded
+in ``MonthResult.absent`` with the reason and its fields stay ``None``: nothing is faked. A bad
+input file still stops the run (the inputs are read before any step).
 
 Weeks and months: a week belongs to the month holding its fourth day (the ISO rule for years,
 applied to months), so each week counts in exactly one month. The default as-of date is the
