@@ -559,6 +559,37 @@ def _quality_section(result: MonthResult) -> str:
         )
     else:
         body += '<h3>Rejected rows</h3><p class="note">None.</p>'
+    m = result.matches
+    if isinstance(m, pd.DataFrame) and len(m) and {"source", "method"} <= set(m.columns):
+        method = m["method"].astype(object).where(m["method"].notna(), "")
+        m = m.assign(method=method.replace("", "not matched (rows rejected)"))
+        how = m.groupby(["source", "method"]).agg(
+            names=("method", "size"),
+            rows=("rows", "sum") if "rows" in m else ("method", "size"),
+        )
+        body += (
+            '<h3>How place names were matched</h3><p class="note">In the fixed order: code, '
+            "exact name, normalised name, alias table, then fuzzy match (only when clear).</p>"
+            + table_html(
+                how.reset_index(),
+                {"source": "source", "method": "method", "names": "place names", "rows": "rows"},
+            )
+        )
+        fuzzy = m[m["method"].astype(str).str.contains("fuzzy")]
+        if len(fuzzy):
+            body += (
+                f'<h3>Fuzzy matches to confirm ({len(fuzzy)})</h3><p class="note">Accepted '
+                "automatically; confirm each into the alias table.</p>"
+                + table_html(
+                    fuzzy,
+                    {
+                        "source": "source",
+                        "place": "name as sent",
+                        "unit_id": "matched to",
+                        "score": "score",
+                    },
+                )
+            )
     acc = result.accounting
     if isinstance(acc, pd.DataFrame):
         body += "<h3>Row accounting</h3>" + table_html(acc, index=acc.index.name or "source")
