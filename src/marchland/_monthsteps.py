@@ -13,6 +13,7 @@ from typing import Any
 
 import pandas as pd
 
+from ._weeks import week_month
 from .config import Config
 from .errors import DataWarning
 
@@ -50,7 +51,7 @@ class _Context:
         # The month's tables stop at its last week (a week belongs to the month of its
         # Thursday), so a week after the month never enters "cumulative".
         month_end = period.end_time.normalize()
-        in_month = (self.counts["week"] + pd.Timedelta(days=3)) <= month_end
+        in_month = (week_month(self.counts["week"]) <= period).to_numpy()
         self.counts_to_month = self.counts[in_month].reset_index(drop=True)
         if as_of > month_end + pd.Timedelta(days=7):
             warnings.warn(

@@ -30,6 +30,7 @@ from typing import Any
 import pandas as pd
 
 from ._monthsteps import _Absent, _Context, _need
+from ._weeks import week_month
 from .config import Config, load_config
 from .errors import DataWarning, InputError
 
@@ -144,7 +145,7 @@ class MonthResult:
             else pd.DatetimeIndex([])
         )
         period = pd.Period(self.month, freq="M")
-        return weeks[(weeks + pd.Timedelta(days=3)).to_period("M") == period]
+        return weeks[(week_month(pd.Series(weeks)) == period).to_numpy()]
 
     @property
     def headline(self) -> dict[str, Any]:
@@ -407,7 +408,7 @@ def run_month(
 def _require_data(counts: pd.DataFrame, period: pd.Period) -> None:
     """Raise InputError unless some accepted report row falls in the month."""
     weeks = pd.to_datetime(counts["week"])
-    months = (weeks + pd.Timedelta(days=3)).dt.to_period("M")
+    months = week_month(weeks)
     if not (months == period).any():
         span = (
             f"the reports run from {weeks.min():%Y-%m-%d} to {weeks.max():%Y-%m-%d}"
@@ -421,15 +422,14 @@ def _latest_week_month(counts: pd.DataFrame) -> str:
     weeks = pd.to_datetime(counts["week"])
     if not len(weeks):
         raise InputError("no report row was accepted, so there is no month to analyse")
-    return f"{weeks.max() + pd.Timedelta(days=3):%Y-%m}"
+    return str(week_month(pd.Series([weeks.max()])).iloc[0])
 
 
 def _region_fields(region: Any, period: pd.Period, as_of: pd.Timestamp) -> dict[str, Any]:
     from .reports import as_of as _as_of
 
     known = _as_of(region.counts, as_of)
-    month_end = period.end_time.normalize()
-    known = known[(known["week"] + pd.Timedelta(days=3)) <= month_end]
+    known = known[(week_month(known["week"]) <= period).to_numpy()]
     weekly = known[["unit_id", "week", "cases", "deaths"]].sort_values(["unit_id", "week"])
     out: dict[str, Any] = {
         "units": region.units,
