@@ -202,3 +202,26 @@ def path_table(
     kind = pd.Series(bg.edges["kind"].to_numpy(), index=pair)
     out["kind"] = pd.array([pd.NA, *kind.reindex(steps).tolist()], dtype="string")
     return out
+
+
+def outline_layer(t: pd.Series, key: pd.Series, units: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
+    """Newly affected units per period ``key`` and their dissolved outline (front_outlines)."""
+    g = gpd.GeoDataFrame(
+        {"period": key.to_numpy(), FIRST_WEEK: t.to_numpy(), "unit": t.index.to_numpy()},
+        geometry=units.geometry.reindex(t.index).to_numpy(),
+        crs=units.crs,
+    )
+    g = g.sort_values([FIRST_WEEK, "unit"])
+    shapes = g[["period", "geometry"]].dissolve(by="period")
+    grouped = g.groupby("period")
+    out = pd.DataFrame(
+        {
+            FIRST_WEEK: grouped[FIRST_WEEK].min(),
+            "n_new": grouped["unit"].size(),
+            "units": grouped["unit"].agg(", ".join),
+        }
+    ).sort_values(FIRST_WEEK)
+    out["n_affected"] = out["n_new"].cumsum()
+    out["geometry"] = shapes.geometry.reindex(out.index)
+    cols = [FIRST_WEEK, "n_new", "units", "n_affected", "geometry"]
+    return gpd.GeoDataFrame(out[cols], geometry="geometry", crs=units.crs)

@@ -1,12 +1,13 @@
 """Array work behind :func:`marchland.supplies.choose_depots`: distances and the covering model.
 
-Plain numpy in, plain numpy out; the public layer in :mod:`marchland.supplies` checks inputs
-and builds the tables.
+Plain numpy in, plain numpy out (``site_distances`` reads the site and unit geometries
+first); the public layer in :mod:`marchland.supplies` checks inputs and builds the tables.
 """
 
 from __future__ import annotations
 
 import warnings
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pulp
@@ -14,6 +15,18 @@ from scipy import sparse
 from scipy.sparse import csgraph
 from scipy.spatial.distance import cdist
 from spopt.locate import MCLP
+
+from .errors import InputError
+from .graph import as_border_graph
+
+if TYPE_CHECKING:
+    import geopandas as gpd
+    import pandas as pd
+    from libpysal.graph import Graph
+
+    from .graph import BorderGraph
+
+DISTANCES = ("straight", "graph")
 
 
 def distance_km(client_xy: np.ndarray, site_xy: np.ndarray) -> np.ndarray:
@@ -99,3 +112,45 @@ def graph_distance_km(
     along = csgraph.dijkstra(matrix, directed=False, indices=hosts)  # hosts x nodes
     lead = np.hypot(*(site_xy - node_xy[host]).T) / 1000.0  # site -> its host's centre
     return (along[which][:, target] + lead[:, None]).T
+
+
+def xy(points: gpd.GeoSeries) -> np.ndarray:
+    """Point coordinates as an (n, 2) array."""
+    return np.column_stack([points.x.to_numpy(), points.y.to_numpy()])
+
+
+def site_distances(
+    ids: pd.Index,
+    centres: gpd.GeoSeries,
+    region: gpd.GeoSeries,
+    sites: gpd.GeoDataFrame,
+    distance: str,
+    graph: BorderGraph | Graph | None,
+) -> np.ndarray:
+    """Km from every site to every candidate centre (candidates x sites)."""
+    if distance not in DISTANCES:
+        raise InputError(
+            f"'distance' needs to be one of {DISTANCES}; {distance!r} was given instead",
+            column="distance",
+            value=distance,
+        )
+    if distance == "straight":
+        return distance_km(xy(centres), xy(sites.geometry))
+    if graph is None:
+        raise InputError('distance="graph" needs the unit graph (graph=)', column="distance")
+    edges = as_border_graph(graph).edges
+    focal = region.index.get_indexer(edges["focal"])
+    neighbor = region.index.get_indexer(edges["neighbor"])
+    if (focal < 0).any() or (neighbor < 0).any():
+        raise InputError(
+            "the graph names units that are not in the units table; pass units= (all units)",
+            column="unit_id",
+        )
+    nodes = region.centroid
+    # The unit a site lies in, or the nearest one for a site just outside the region.
+    found = region.sindex.nearest(sites.geometry.to_numpy(), return_all=False)
+    host = np.empty(len(sites), dtype=int)
+    host[found[0]] = found[1]
+    return graph_distance_km(
+        xy(sites.geometry), host, xy(nodes), focal, neighbor, region.index.get_indexer(ids)
+    )

@@ -8,6 +8,8 @@ one chunk evaluated as one array operation. pointpats is the outside check in th
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 from scipy import stats
@@ -117,3 +119,26 @@ def knox_test(xy, t, distance: float, interval: float, permutations: int, seed) 
         interval=float(interval),
         permutations=int(permutations),
     )
+
+
+@dataclass(frozen=True)
+class KnoxResult:
+    """Knox test: pairs of cases close in both space and time, against chance.
+
+    ``p_poisson`` is P(X >= statistic) for X ~ Poisson(expected), the usual one-sided p-value
+    (the one marchland reports); ``p_poisson_above`` is P(X > statistic), pointpats'
+    ``p_poisson``. ``p_sim`` is the Monte Carlo p-value (1 + #{perm >= observed}) / (1 + R).
+    """
+
+    statistic: int
+    expected: float
+    p_sim: float
+    p_poisson: float
+    p_poisson_above: float
+    n_events: int
+    space_pairs: int
+    time_pairs: int
+    pairs: int
+    distance: float
+    interval: float
+    permutations: int

@@ -378,3 +378,26 @@ def _check_reach(reach_km: Any) -> float:
             value=reach_km,
         )
     return float(reach_km)
+
+
+def _plan_arguments(supplies: Any, base: Any) -> tuple:
+    """Read items, low/mid/high rates, severe share (or None) and note from ``[supplies]``."""
+    items = _get(supplies, "items")
+    if items is None:
+        raise InputError("the [supplies] section needs 'items'", column="supplies.items")
+    note = None
+    if not isinstance(items, pd.DataFrame):
+        if isinstance(items, (str, os.PathLike)) and base is not None:
+            items = Path(base) / items
+        items, note = _read_items(items)
+    rate = _get(supplies, "planning_attack_rate")
+    if rate is None:
+        raise InputError(
+            "the [supplies] section needs planning_attack_rate = {low, mid, high}",
+            column="supplies.planning_attack_rate",
+        )
+    if isinstance(rate, (int, float)) and not isinstance(rate, bool):
+        low = mid = high = rate  # one number: no range
+    else:
+        low, mid, high = (_get(rate, key) for key in ("low", "mid", "high"))
+    return items, low, mid, high, _get(supplies, "severe_share"), note

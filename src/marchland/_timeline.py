@@ -8,11 +8,39 @@ A cell is *reported* only when a row for that unit-week exists: a missing week i
 from __future__ import annotations
 
 from dataclasses import dataclass
+from numbers import Integral
 
 import numpy as np
 import pandas as pd
 
 WEEK = pd.Timedelta(days=7)
+
+
+def check_rules(min_cases, confirm, reintroduction_weeks) -> tuple[int, int] | None:
+    """Validate the rules of :func:`marchland.spread.first_cases`; return ``confirm`` as (k, n)."""
+    if not isinstance(min_cases, Integral) or isinstance(min_cases, bool) or min_cases < 1:
+        raise ValueError(f"'min_cases' needs to be a whole number >= 1. {min_cases!r} was given.")
+    if isinstance(confirm, str):
+        confirm = [confirm]  # refused below: a pair of numbers is needed, not text
+    if confirm is not None:
+        try:
+            k, n = (int(v) for v in confirm)
+        except (TypeError, ValueError):
+            raise ValueError(
+                f"'confirm' needs to be a pair (k, n): k positive weeks within n consecutive "
+                f"weeks. {confirm!r} was given instead."
+            ) from None
+        if not 1 <= k <= n:
+            raise ValueError(f"'confirm' needs 1 <= k <= n. {confirm!r} was given instead.")
+        confirm = (k, n)
+    if reintroduction_weeks is not None and (
+        not isinstance(reintroduction_weeks, Integral) or reintroduction_weeks < 1
+    ):
+        raise ValueError(
+            "'reintroduction_weeks' needs to be a whole number >= 1 or None. "
+            f"{reintroduction_weeks!r} was given instead."
+        )
+    return confirm
 
 
 @dataclass(frozen=True)

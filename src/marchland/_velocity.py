@@ -14,6 +14,8 @@ Two estimators, both ordinary least squares in statsmodels:
 
 from __future__ import annotations
 
+from dataclasses import dataclass, field
+
 import geopandas as gpd
 import numpy as np
 import pandas as pd
@@ -201,3 +203,23 @@ def groups_of(groups, units: gpd.GeoDataFrame) -> dict:
         "'groups' needs to be a column name of units, a Series (unit id -> group) or a dict "
         f"(group -> unit ids). {type(groups).__name__} was given instead."
     )
+
+
+@dataclass(frozen=True, eq=False)
+class Velocity:
+    """Speed of spread in km per week, with its interval, from one method (the headline).
+
+    ``by_method`` holds every method's estimate (index ``method``; columns ``km_per_week
+    lower upper n_units note``, ``note`` saying how it was fitted or why it is NaN);
+    ``by_group`` the same per group and method when groups were asked for (index ``group``,
+    ``method``), else ``None``. ``conf`` is the interval's confidence level.
+    """
+
+    km_per_week: float
+    lower: float
+    upper: float
+    n_units: int
+    method: str
+    by_method: pd.DataFrame = field(repr=False)
+    by_group: pd.DataFrame | None = field(default=None, repr=False)
+    conf: float = 0.95

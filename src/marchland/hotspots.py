@@ -38,6 +38,8 @@ from scipy import sparse, stats
 
 from . import _permute
 from ._align import align_units
+from ._getisord import _gi_star_z
+from ._globalmoran import GlobalMoran, global_moran_arrays
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 from .rates import eb_standardised
@@ -357,25 +359,6 @@ def hotspots(
 
 
 # --- Getis-Ord Gi* -------------------------------------------------------------------------
-def _gi_star_z(y: np.ndarray, w: sparse.csr_matrix) -> tuple[np.ndarray, np.ndarray]:
-    """Gi* and its z-score for any non-negative weights with the self-weight included.
-
-    z uses the general variance (Ord & Getis 1995, eq. 6), which does not change when a
-    unit's weights are all multiplied by the same number; with binary weights it equals
-    esda's ``G_Local(star=True, transform="B")`` z.
-    """
-    n = len(y)
-    w_sum = np.asarray(w.sum(axis=1)).ravel()
-    w_sq = np.asarray(w.multiply(w).sum(axis=1)).ravel()
-    mean = y.mean()
-    s = np.sqrt((y**2).mean() - mean**2)
-    num = w @ y - mean * w_sum
-    with np.errstate(divide="ignore", invalid="ignore"):
-        z = num / (s * np.sqrt((n * w_sq - w_sum**2) / (n - 1)))
-    g = (w @ y) / y.sum()
-    return g, z
-
-
 def getis_ord(
     values: pd.Series,
     graph: BorderGraph | object,
@@ -477,92 +460,6 @@ def getis_ord(
 
 
 # --- global Moran's I ----------------------------------------------------------------------
-@dataclass(frozen=True)
-class GlobalMoran:
-    """Global Moran's I for the report's headline.
-
-    Attributes
-    ----------
-    I : float
-        Moran's I (row-standardised weights).
-    expected : float
-        ``-1 / (n - 1)``, its expectation under no spatial autocorrelation.
-    variance : float
-        Variance under the randomisation assumption (Cliff & Ord).
-    z : float
-        ``(I - expected) / sqrt(variance)``.
-    p_norm : float
-        Two-sided normal p-value of ``z``.
-    p_sim : float
-        Folded permutation p-value, ``(min(M, P - M) + 1) / (P + 1)``.
-    permutations : int
-        ``P``.
-    n : int
-        Units with a value.
-    """
-
-    I: float  # noqa: E741 - the statistic's name
-    expected: float
-    variance: float
-    z: float
-    p_norm: float
-    p_sim: float
-    permutations: int
-    n: int
-
-    def as_series(self) -> pd.Series:
-        """Return the fields as a pandas Series (for tables)."""
-        return pd.Series({k: getattr(self, k) for k in self.__dataclass_fields__})
-
-
-def _global_moran_sims(z: np.ndarray, w: sparse.csr_matrix, permutations: int,
-                       rng: np.random.Generator) -> np.ndarray:  # fmt: skip
-    """Moran's I of ``permutations`` total (not conditional) permutations of ``z``."""
-    n = len(z)
-    s0, z2ss = w.sum(), (z * z).sum()
-    batch = max(1, min(permutations, (1 << 22) // max(n, 1)))  # whole permutations per batch
-    sims = np.empty(permutations)
-    for start in range(0, permutations, batch):
-        m = min(batch, permutations - start)
-        zp = rng.permuted(np.broadcast_to(z, (m, n)), axis=1)
-        sims[start : start + m] = n / s0 * (zp * (w @ zp.T).T).sum(axis=1) / z2ss
-    return sims
-
-
-def _global_moran(prep: _Prepared, permutations: int, seed) -> GlobalMoran:
-    y, w = prep.y, prep.weights
-    n = len(y)
-    if n < 4 or y.std() == 0:
-        raise InputError("global Moran's I needs at least 4 units with differing values")
-    z = y - y.mean()
-    z2ss = (z * z).sum()
-    s0 = w.sum()
-    wt = w.T.tocsr()
-    s1 = 0.5 * (w + wt).multiply(w + wt).sum()
-    s2 = ((np.asarray(w.sum(axis=1)).ravel() + np.asarray(w.sum(axis=0)).ravel()) ** 2).sum()
-    moran_i = n / s0 * (z * (w @ z)).sum() / z2ss
-    expected = -1.0 / (n - 1)
-    n2, s02 = n * n, s0 * s0
-    k = ((z**4).sum() / n) / ((z**2).sum() / n) ** 2
-    a = n * ((n2 - 3 * n + 3) * s1 - n * s2 + 3 * s02)
-    b = k * ((n2 - n) * s1 - 2 * n * s2 + 6 * s02)
-    variance = (a - b) / ((n - 1) * (n - 2) * (n - 3) * s02) - expected**2
-    z_score = (moran_i - expected) / np.sqrt(variance)
-    sims = _global_moran_sims(z, w, permutations, _rng(seed))
-    tol = _permute.TIE_TOLERANCE * (abs(moran_i) + sims.std())
-    at_least, at_most = (sims >= moran_i - tol).sum(), (sims <= moran_i + tol).sum()
-    return GlobalMoran(
-        I=float(moran_i),
-        expected=float(expected),
-        variance=float(variance),
-        z=float(z_score),
-        p_norm=float(2 * stats.norm.sf(abs(z_score))),
-        p_sim=float(_permute.folded_pvalues(at_least, at_most, permutations)),
-        permutations=int(permutations),
-        n=int(n),
-    )
-
-
 def global_moran(
     values: pd.Series,
     graph: BorderGraph | object,
@@ -607,7 +504,8 @@ def global_moran(
     0.75
     """
     _check_options(permutations, 0.5)
-    return _global_moran(_prepare(values, graph, weighting), permutations, seed)
+    prep = _prepare(values, graph, weighting)
+    return global_moran_arrays(prep.y, prep.weights, permutations, _rng(seed))
 
 
 def global_moran_rate(

@@ -25,7 +25,8 @@ import pandas as pd
 from scipy import stats
 
 from ._align import align_units
-from ._weeks import month_weeks, week_month
+from ._ebsmooth import global_eb, spatial_eb
+from ._windows import sum_windows, window_masks
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 
@@ -392,49 +393,8 @@ def window_counts(
             column="unit_id",
             value=bad["unit_id"],
         )
-    weeks = known["week"]
-    # The calendar's first weekday comes from the data (Monday for ISO, Sunday otherwise).
-    start_day = int(weeks.dt.day_of_week.iloc[0]) if len(weeks) else 0
-    current = as_of_ts.normalize() - pd.Timedelta(days=(as_of_ts.day_of_week - start_day) % 7)
-    last_complete = (
-        current
-        if as_of_ts.normalize() >= current + pd.Timedelta(days=6)
-        else (current - pd.Timedelta(days=7))
-    )
-
-    # Since outbreak start: every week reported up to as_of (the current week included).
-    masks: dict[str, np.ndarray] = {"cumulative": np.ones(len(known), dtype=bool)}
-    spans: dict[str, int | None] = {"cumulative": None}
-    for n_weeks in windows_weeks:
-        if int(n_weeks) < 1:
-            raise ValueError(f"'windows_weeks' needs whole numbers >= 1. {n_weeks!r} given.")
-        first = last_complete - pd.Timedelta(weeks=int(n_weeks) - 1)
-        masks[f"last_{int(n_weeks)}w"] = ((weeks >= first) & (weeks <= last_complete)).to_numpy()
-        spans[f"last_{int(n_weeks)}w"] = int(n_weeks)
-    if month is not None:
-        period = pd.Period(month, freq="M")
-        masks["month"] = (week_month(weeks) == period).to_numpy()
-        spans["month"] = len(month_weeks(period, start_day))
-
-    cases = known["cases"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
-    deaths = known["deaths"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
-    unit_pos = units.get_indexer(known["unit_id"])
-    fields: dict[tuple[str, str], object] = {}
-    n_units = len(units)
-    for window, mask in masks.items():
-        rep = mask & np.isfinite(cases)
-        drep = rep & np.isfinite(deaths)
-        n_rep = np.bincount(unit_pos[rep], minlength=n_units)
-        n_drep = np.bincount(unit_pos[drep], minlength=n_units)
-        s_cases = np.bincount(unit_pos[rep], weights=cases[rep], minlength=n_units)
-        s_deaths = np.bincount(unit_pos[drep], weights=deaths[drep], minlength=n_units)
-        s_cwd = np.bincount(unit_pos[drep], weights=cases[drep], minlength=n_units)
-        fields[("cases", window)] = pd.array(np.where(n_rep > 0, s_cases, pd.NA), dtype="Int64")
-        fields[("deaths", window)] = pd.array(np.where(n_drep > 0, s_deaths, pd.NA), dtype="Int64")
-        fields[("cases_with_deaths", window)] = pd.array(
-            np.where(n_drep > 0, s_cwd, pd.NA), dtype="Int64"
-        )
-        fields[("weeks_reported", window)] = n_rep
+    masks, spans, last_complete = window_masks(known["week"], as_of_ts, windows_weeks, month)
+    fields = sum_windows(known, units, masks)
     out = pd.DataFrame(fields, index=units)
     out.columns = pd.MultiIndex.from_tuples(out.columns, names=["field", "window"])
     out = out.reindex(
@@ -455,45 +415,6 @@ def _rates_inputs(
     b = _population(pop_s)
     valid = np.isfinite(e) & np.isfinite(b) & (b > 0)
     return e, b, valid
-
-
-def _global_eb(e: np.ndarray, b: np.ndarray) -> np.ndarray:
-    r_mean = e.sum() / b.sum()
-    rate = e / b
-    # Method-of-moments prior variance (Marshall 1991, eq. 8); truncated at 0 as Marshall
-    # advises, where esda's Empirical_Bayes lets it go negative.
-    r_var = max((b * (rate - r_mean) ** 2).sum() / b.sum() - r_mean / b.mean(), 0.0)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        weight = r_var / (r_var + r_mean / b)
-    weight = np.where(np.isfinite(weight), weight, 0.0)
-    return weight * rate + (1.0 - weight) * r_mean
-
-
-def _spatial_eb(e: np.ndarray, b: np.ndarray, valid: np.ndarray, graph: BorderGraph) -> np.ndarray:
-    # Each unit's prior is the rate of its neighbourhood, itself included (binary weights),
-    # as in esda's Spatial_Empirical_Bayes; written on the edge list so it is vectorised and
-    # units without a usable population are left out of their neighbours' sums.
-    n = len(graph.ids)
-    pos = pd.Series(np.arange(n), index=graph.ids)
-    rows = np.concatenate([pos.loc[graph.edges["focal"]].to_numpy(), np.arange(n)])
-    cols = np.concatenate([pos.loc[graph.edges["neighbor"]].to_numpy(), np.arange(n)])
-    keep = valid[cols]
-    rows, cols = rows[keep], cols[keep]
-    e0 = np.where(valid, e, 0.0)
-    b0 = np.where(valid, b, 0.0)
-    sum_e = np.bincount(rows, weights=e0[cols], minlength=n)
-    sum_b = np.bincount(rows, weights=b0[cols], minlength=n)
-    count = np.bincount(rows, minlength=n)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        r_mean = sum_e / sum_b
-        rate = e0 / b0
-        dev = b0[cols] * (rate[cols] - r_mean[rows]) ** 2
-        r_var = np.bincount(rows, weights=dev, minlength=n) / sum_b - r_mean / (sum_b / count)
-        r_var = np.where(r_var < 0, 0.0, r_var)
-        smooth = r_mean + (rate - r_mean) * (r_var / (r_var + r_mean / b0))
-        # A neighbourhood with no cases at all shrinks to its (zero) mean.
-        smooth = np.where((r_var == 0) & np.isfinite(r_mean), r_mean, smooth)
-    return np.where(valid, smooth, np.nan)
 
 
 def smooth_rates(
@@ -541,14 +462,14 @@ def smooth_rates(
     out = np.full(len(e), np.nan)
     if graph is None:
         if valid.any():
-            out[valid] = _global_eb(e[valid], b[valid])
+            out[valid] = global_eb(e[valid], b[valid])
         index = pd.Index(cases.index, name="unit_id")
     else:
         bg = as_border_graph(graph)
         index = bg.ids
         align_units(cases, bg.ids, "cases", "the graph")
         e, b, valid = _rates_inputs(cases.reindex(bg.ids), population)
-        out = _spatial_eb(e, b, valid, bg)
+        out = spatial_eb(e, b, valid, bg)
     return pd.Series(out * per, index=index, name="rate_smoothed")
 
 

@@ -12,9 +12,6 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from numbers import Integral
-
 import geopandas as gpd
 import numpy as np
 import pandas as pd
@@ -27,45 +24,20 @@ from ._arrival import (
     first_on,
     introductions_table,
     month_of_week,
+    outline_layer,
     path_table,
     resolve_countries,
     time_respecting_path,
     weeks_between,
 )
-from ._knox import as_arrays, knox_test
-from ._timeline import build_timeline, confirmed, episodes
-from ._velocity import VELOCITY_METHODS, estimate, groups_of
+from ._knox import KnoxResult, as_arrays, knox_test
+from ._timeline import build_timeline, check_rules, confirmed, episodes
+from ._velocity import VELOCITY_METHODS, Velocity, estimate, groups_of
 from .errors import InputError
 from .graph import BorderGraph, as_border_graph
 from .reports import as_of as _as_of_view
 
 PERIODS = ("month", "week")
-
-
-def _check_rules(min_cases, confirm, reintroduction_weeks) -> tuple[int, int] | None:
-    if not isinstance(min_cases, Integral) or isinstance(min_cases, bool) or min_cases < 1:
-        raise ValueError(f"'min_cases' needs to be a whole number >= 1. {min_cases!r} was given.")
-    if isinstance(confirm, str):
-        confirm = [confirm]  # refused below: a pair of numbers is needed, not text
-    if confirm is not None:
-        try:
-            k, n = (int(v) for v in confirm)
-        except (TypeError, ValueError):
-            raise ValueError(
-                f"'confirm' needs to be a pair (k, n): k positive weeks within n consecutive "
-                f"weeks. {confirm!r} was given instead."
-            ) from None
-        if not 1 <= k <= n:
-            raise ValueError(f"'confirm' needs 1 <= k <= n. {confirm!r} was given instead.")
-        confirm = (k, n)
-    if reintroduction_weeks is not None and (
-        not isinstance(reintroduction_weeks, Integral) or reintroduction_weeks < 1
-    ):
-        raise ValueError(
-            "'reintroduction_weeks' needs to be a whole number >= 1 or None. "
-            f"{reintroduction_weeks!r} was given instead."
-        )
-    return confirm
 
 
 def _week_dtype(counts: pd.DataFrame):
@@ -133,7 +105,7 @@ def first_cases(
     b   2026-01-05
     Name: first_week, dtype: datetime64[...]
     """
-    confirm = _check_rules(min_cases, confirm, reintroduction_weeks)
+    confirm = check_rules(min_cases, confirm, reintroduction_weeks)
     view = _as_of_view(counts, as_of)
     tl = build_timeline(view, min_cases)
     found = pd.Index(pd.unique(counts["unit_id"]), name="unit_id").sort_values()
@@ -194,7 +166,7 @@ def affected_episodes(
     >>> len(affected_episodes(c.drop(index=[2, 3, 4]), reintroduction_weeks=4))  # not reported
     1
     """
-    confirm = _check_rules(min_cases, confirm, reintroduction_weeks)
+    confirm = check_rules(min_cases, confirm, reintroduction_weeks)
     tl = build_timeline(_as_of_view(counts, as_of), min_cases)
     return episodes(tl, confirm, reintroduction_weeks)
 
@@ -296,25 +268,7 @@ def front_outlines(
     if len(missing):
         raise KeyError(f"units lack geometry for affected unit(s): {list(missing[:5])}")
     key = month_of_week(t) if period == "month" else t.dt.strftime("%Y-%m-%d")
-    g = gpd.GeoDataFrame(
-        {"period": key.to_numpy(), FIRST_WEEK: t.to_numpy(), "unit": t.index.to_numpy()},
-        geometry=units.geometry.reindex(t.index).to_numpy(),
-        crs=units.crs,
-    )
-    g = g.sort_values([FIRST_WEEK, "unit"])
-    shapes = g[["period", "geometry"]].dissolve(by="period")
-    grouped = g.groupby("period")
-    out = pd.DataFrame(
-        {
-            FIRST_WEEK: grouped[FIRST_WEEK].min(),
-            "n_new": grouped["unit"].size(),
-            "units": grouped["unit"].agg(", ".join),
-        }
-    ).sort_values(FIRST_WEEK)
-    out["n_affected"] = out["n_new"].cumsum()
-    out["geometry"] = shapes.geometry.reindex(out.index)
-    cols = [FIRST_WEEK, "n_new", "units", "n_affected", "geometry"]
-    return gpd.GeoDataFrame(out[cols], geometry="geometry", crs=units.crs)
+    return outline_layer(t, key, units)
 
 
 # --- cross-border introductions ---------------------------------------------------------------
@@ -508,26 +462,6 @@ def corridor(
 
 
 # --- velocity -------------------------------------------------------------------------------
-@dataclass(frozen=True, eq=False)
-class Velocity:
-    """Speed of spread in km per week, with its interval, from one method (the headline).
-
-    ``by_method`` holds every method's estimate (index ``method``; columns ``km_per_week
-    lower upper n_units note``, ``note`` saying how it was fitted or why it is NaN);
-    ``by_group`` the same per group and method when groups were asked for (index ``group``,
-    ``method``), else ``None``. ``conf`` is the interval's confidence level.
-    """
-
-    km_per_week: float
-    lower: float
-    upper: float
-    n_units: int
-    method: str
-    by_method: pd.DataFrame = field(repr=False)
-    by_group: pd.DataFrame | None = field(default=None, repr=False)
-    conf: float = 0.95
-
-
 def spread_velocity(
     first: pd.Series,
     units: gpd.GeoDataFrame,
@@ -638,29 +572,6 @@ def spread_velocity(
 
 
 # --- space-time interaction -----------------------------------------------------------------
-@dataclass(frozen=True)
-class KnoxResult:
-    """Knox test: pairs of cases close in both space and time, against chance.
-
-    ``p_poisson`` is P(X >= statistic) for X ~ Poisson(expected), the usual one-sided p-value
-    (the one marchland reports); ``p_poisson_above`` is P(X > statistic), pointpats'
-    ``p_poisson``. ``p_sim`` is the Monte Carlo p-value (1 + #{perm >= observed}) / (1 + R).
-    """
-
-    statistic: int
-    expected: float
-    p_sim: float
-    p_poisson: float
-    p_poisson_above: float
-    n_events: int
-    space_pairs: int
-    time_pairs: int
-    pairs: int
-    distance: float
-    interval: float
-    permutations: int
-
-
 def knox(
     points,
     times,

@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 import geopandas as gpd
@@ -45,7 +44,7 @@ from ._supplyinput import (
     _check_reach,
     _depots_from_frame,
     _file_name,
-    _get,
+    _plan_arguments,
     _read_csv,
     _read_items,
     _share,
@@ -54,7 +53,7 @@ from ._supplyinput import (
 )
 from .config import DEFAULT_SEVERE_SHARE  # an assumed planning value; see its comment there
 from .errors import InputError
-from .graph import BorderGraph, as_border_graph
+from .graph import BorderGraph
 
 __all__ = [
     "DEFAULT_SEVERE_SHARE",
@@ -73,7 +72,7 @@ __all__ = [
     "totals",
 ]
 
-DISTANCES = ("straight", "graph")
+DISTANCES = _covering.DISTANCES
 # Products like 150 * 0.2 * 8 * 1.1 land a hair above a whole number in binary floating point;
 # rounding first keeps ceil() from adding a phantom unit.
 _CEIL_DECIMALS = 9
@@ -172,25 +171,7 @@ class SupplyPlan:
         >>> SupplyPlan.from_config(cfg).attack_rate_mid
         0.003
         """
-        items = _get(supplies, "items")
-        if items is None:
-            raise InputError("the [supplies] section needs 'items'", column="supplies.items")
-        note = None
-        if not isinstance(items, pd.DataFrame):
-            if isinstance(items, (str, os.PathLike)) and base is not None:
-                items = Path(base) / items
-            items, note = _read_items(items)
-        rate = _get(supplies, "planning_attack_rate")
-        if rate is None:
-            raise InputError(
-                "the [supplies] section needs planning_attack_rate = {low, mid, high}",
-                column="supplies.planning_attack_rate",
-            )
-        if isinstance(rate, (int, float)) and not isinstance(rate, bool):
-            low = mid = high = rate  # one number: no range
-        else:
-            low, mid, high = (_get(rate, key) for key in ("low", "mid", "high"))
-        severe = _get(supplies, "severe_share")
+        items, low, mid, high, severe, note = _plan_arguments(supplies, base)
         return cls(
             items,
             low,
@@ -530,8 +511,8 @@ def choose_depots(
     k = _check_k(k, len(site_table) - n_existing)
     _check_inside(site_table, region, reach)
     w = _weights(candidates, weight)
-    dist = _distance_matrix(candidates.index, centres, region, site_table, distance, graph)
-    xy_s = _xy(site_table.geometry)
+    dist = _covering.site_distances(candidates.index, centres, region, site_table, distance, graph)
+    xy_s = _covering.xy(site_table.geometry)
     fixed = site_table["existing"].to_numpy(dtype=bool)
     # k = 0: nothing to choose, the existing depots stay as they are.
     open_mask = fixed if k == 0 else _covering.solve_mclp(dist, w, reach, n_existing + k, fixed)
@@ -557,47 +538,6 @@ def choose_depots(
     out["covered_weight"] = np.bincount(hit, weights=w[covered], minlength=n_sites)[open_mask]
     out = gpd.GeoDataFrame(out, geometry=site_table.geometry[open_mask], crs=site_table.crs)
     return out.sort_values("covered_weight", ascending=False, kind="stable")
-
-
-def _xy(points: gpd.GeoSeries) -> np.ndarray:
-    return np.column_stack([points.x.to_numpy(), points.y.to_numpy()])
-
-
-def _distance_matrix(
-    ids: pd.Index,
-    centres: gpd.GeoSeries,
-    region: gpd.GeoSeries,
-    sites: gpd.GeoDataFrame,
-    distance: str,
-    graph: BorderGraph | Graph | None,
-) -> np.ndarray:
-    """Km from every site to every candidate centre (candidates x sites)."""
-    if distance not in DISTANCES:
-        raise InputError(
-            f"'distance' needs to be one of {DISTANCES}; {distance!r} was given instead",
-            column="distance",
-            value=distance,
-        )
-    if distance == "straight":
-        return _covering.distance_km(_xy(centres), _xy(sites.geometry))
-    if graph is None:
-        raise InputError('distance="graph" needs the unit graph (graph=)', column="distance")
-    edges = as_border_graph(graph).edges
-    focal = region.index.get_indexer(edges["focal"])
-    neighbor = region.index.get_indexer(edges["neighbor"])
-    if (focal < 0).any() or (neighbor < 0).any():
-        raise InputError(
-            "the graph names units that are not in the units table; pass units= (all units)",
-            column="unit_id",
-        )
-    nodes = region.centroid
-    # The unit a site lies in, or the nearest one for a site just outside the region.
-    found = region.sindex.nearest(sites.geometry.to_numpy(), return_all=False)
-    host = np.empty(len(sites), dtype=int)
-    host[found[0]] = found[1]
-    return _covering.graph_distance_km(
-        _xy(sites.geometry), host, _xy(nodes), focal, neighbor, region.index.get_indexer(ids)
-    )
 
 
 def assign_depots(
@@ -668,7 +608,7 @@ def assign_depots(
     centres, region = _candidate_points(candidates, units)
     table = _sites(depots, region.crs)
     w = _weights(candidates, weight)
-    dist = _distance_matrix(candidates.index, centres, region, table, distance, graph)
+    dist = _covering.site_distances(candidates.index, centres, region, table, distance, graph)
     pos, nearest, covered = _covering.assign(dist, np.ones(len(table), dtype=bool), reach)
     site_ids = np.asarray(table.index, dtype=object)
     names = np.asarray(table["name"], dtype=object)

@@ -31,10 +31,10 @@ from scipy import sparse
 from statsmodels.stats.multitest import multipletests
 
 from marchland import _permute
+from marchland._getisord import _gi_star_z
+from marchland._globalmoran import _global_moran_sims
 from marchland.graph import BorderGraph
 from marchland.hotspots import (
-    _gi_star_z,
-    _global_moran_sims,
     bh_qvalues,
     getis_ord,
     global_moran,
