@@ -2,7 +2,9 @@
 
 A discrete-time hazard model with complementary log-log link for "first case within h weeks",
 fitted on the outbreak's own history of (unit, week) risk sets, scores every *candidate* (an
-analysis unit with no case to date that lies within two graph steps of an affected one) and
+analysis unit with no case to date that lies within two graph steps of an affected one; with
+``reintroduction_weeks``, also one whose last episode is over by spread's rule of reported
+case-free weeks, :func:`marchland.spread.affected_episodes`) and
 shows each score with its parts. Islands (no neighbour and no link) are never candidates:
 add a link (``[graph] links``) to bring one in. :func:`backtest_risk` replays the model week
 by week on the data as it was known then and compares it with two simple baselines.
