@@ -216,23 +216,24 @@ class _Context:
             self.units,
             self.graph,
             as_of=self.as_of,
-            horizon_weeks=c.horizon_weeks,
             silent_weeks=c.silent_weeks,
-            min_events=c.min_events,
+            **risk_options(c),
         )
         return {"risk": risk}
 
     def backtest(self) -> dict[str, Any]:
         rk = _need("risk", "run_backtest")
         c = self.cfg.risk
+        # self.counts already stops at as_of; passing it too keeps the origins' last week
+        # the same as the risk step's.
         bt = rk.run_backtest(
             self.counts,
             self.units,
             self.graph,
-            horizon_weeks=c.horizon_weeks,
+            as_of=self.as_of,
             top_k=c.top_k,
-            min_events=c.min_events,
             n_jobs=1,
+            **risk_options(c),
         )
         return {"backtest": bt.summary, "backtest_by_country": bt.by_country}
 
@@ -266,6 +267,17 @@ class _Context:
                 depot_assignment=sp.assign_depots(prio, depots, units=self.units),
             )
         return out
+
+
+def risk_options(c: Any) -> dict[str, Any]:
+    """Return the border-risk keyword options of a ``[risk]`` config, shared by every caller."""
+    return {
+        "horizon_weeks": c.horizon_weeks,
+        "recent_weeks": c.recent_weeks,
+        "reintroduction_weeks": c.reintroduction_weeks,
+        "min_events": c.min_events,
+        "penalty": c.penalty,
+    }
 
 
 def province_of(units: pd.DataFrame) -> pd.Series:
