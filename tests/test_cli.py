@@ -9,6 +9,7 @@ hint to rerun with -v; -v shows the traceback); ``run`` refuses to overwrite a m
 
 from __future__ import annotations
 
+import json
 import subprocess
 import sys
 
@@ -226,6 +227,15 @@ def test_demo_runs_the_bundled_scenario(runner, tmp_path):
         assert (bundle / name).is_file(), name
     assert len(list((bundle / "maps").glob("*.png"))) >= 10
     assert "written to" in res.output
+    # It says what it read: every demo source, with its row count and rejects from the manifest.
+    manifest = json.loads((bundle / "manifest.json").read_text())
+    assert "4 report source(s)" in res.output
+    for source in ("tvr-weekly", "osk-provinces", "mrw-linelist", "qln-weekly"):
+        assert source in res.output
+    assert "196 analysis units in 4 countries" in res.output
+    assert "OSK admin-1" in res.output
+    rows_in = sum(int(s["rows_in"]) for s in manifest["accounting"])
+    assert f"{rows_in:,} rows" in res.output
     again = runner.invoke(cli.cli, ["demo", "--out", str(tmp_path)])
     assert again.exit_code == 2, again.output
     assert "--overwrite" in again.stderr, again.stderr

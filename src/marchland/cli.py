@@ -297,6 +297,7 @@ def _summary(console: Any, result: Any, dest: Path) -> None:
     console.print(
         f"[bold]marchland[/bold] {result.month} (as of {result.as_of:%Y-%m-%d}) written to {dest}"
     )
+    _print_read(console, result)
     groups: dict[str, int] = {}
     for p in files:
         rel = p.relative_to(dest)
@@ -319,6 +320,35 @@ def _summary(console: Any, result: Any, dest: Path) -> None:
         for w in result.warnings:
             console.print(f"    - {w}")
     console.print(f"[dim]{CAUTIONS}[/dim]")
+
+
+def _print_read(console: Any, result: Any) -> None:
+    """Say what the run read: rows per source, counted and rejected, and the units analysed."""
+    acc = result.accounting
+    if acc is not None and len(acc):
+        console.print(
+            f"  read {len(acc)} report source(s): {int(acc['rows_in'].sum()):,} rows, "
+            f"{int(acc['counted'].sum()):,} counted, {int(acc['rejected'].sum()):,} rejected "
+            "(reasons in rejects.csv)"
+        )
+        for name, row in acc.iterrows():
+            kind = ", ".join(
+                str(v) if k != "level" else f"admin-{v}"
+                for k in ("country", "shape", "level")
+                if (v := row.get(k)) is not None
+            )
+            console.print(
+                f"    {name}{f' ({kind})' if kind else ''}: "
+                f"{int(row['rows_in']):,} rows, {int(row['rejected']):,} rejected"
+            )
+    units = result.units
+    if units is not None:
+        by_level = units.groupby("country")["level"].first()
+        console.print(
+            f"  {len(units)} analysis units in {len(by_level)} countries ("
+            + ", ".join(f"{c} admin-{lv}" for c, lv in by_level.items())
+            + ")"
+        )
 
 
 class _StepDisplay:
