@@ -4,8 +4,10 @@ Covered: every map function draws country borders heavier than district borders,
 that names its units, a scale bar, a north arrow, the as-of date, the source and the caution
 line; the class breaks agree with mapclassify's Fisher-Jenks (an outside implementation);
 small multiples share one scheme; a reported zero and a missing report look different; epi
-curves shade the reporting-delay weeks and leave unreported weeks as gaps; ``maps`` imports no
-analysis module.
+curves shade exactly the last ``delay_weeks`` complete weeks up to the as-of date (as-of on a
+Tuesday, a Sunday, a Monday) and leave unreported weeks as gaps; every country is named once,
+inside itself and clear of the legend; background, holes and islands, "not tested" units and the
+scale bar stay readable; ``maps`` imports no analysis module.
 """
 
 from __future__ import annotations
@@ -20,9 +22,10 @@ import matplotlib.colors as mcolors
 import numpy as np
 import pandas as pd
 import pytest
-from matplotlib.collections import PatchCollection
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.collections import PatchCollection, PathCollection
 from month_world import grid_units
-from shapely.geometry import Point
+from shapely.geometry import Point, Polygon, box
 
 from marchland import maps
 
@@ -186,7 +189,7 @@ def test_epi_curve_shades_delay_and_keeps_gaps():
     bars = next(c for c in ax.collections if c.get_label() == "cases (bars)")
     lefts = pd.to_datetime([p.vertices[0, 0] for p in bars.get_paths()], unit="D")
     assert weeks[5] not in lefts and weeks[6] in lefts and len(lefts) == 11
-    span = [p for p in ax.patches if p.get_label().startswith("last 2 weeks")]
+    span = [p for p in ax.patches if p.get_label().startswith("last 2 complete weeks")]
     assert len(span) == 1
     x0, x1 = span[0].get_x(), span[0].get_x() + span[0].get_width()
     # On Tuesday 27 October the week of the 26th is not over: the last two whole weeks are
@@ -196,6 +199,54 @@ def test_epi_curve_shades_delay_and_keeps_gaps():
     line = fig.axes[1].lines[0]
     assert np.isnan(np.asarray(line.get_ydata(), dtype=float)).sum() == 1
     assert maps.CAUTION_LINE in _texts(fig)
+
+
+def _delay_span(ax):
+    span = [p for p in ax.patches if "complete weeks" in p.get_label()]
+    assert len(span) == 1
+    x0 = span[0].get_x()
+    return (
+        pd.to_datetime(x0, unit="D"),
+        pd.to_datetime(x0 + span[0].get_width(), unit="D"),
+    )
+
+
+@pytest.mark.parametrize(
+    ("as_of", "first_shaded"),
+    [
+        # The demo's case: as of Tuesday 3 November, weeks (Mondays) reported up to 26 October.
+        # Complete weeks up to the as-of date end on Sunday 1 November: 19 and 26 October.
+        ("2026-11-03", "2026-10-19"),
+        ("2026-11-01", "2026-10-19"),  # a Sunday: the week of 26 October just ended
+        ("2026-11-02", "2026-10-19"),  # a Monday: the new week has only begun
+        ("2026-10-31", "2026-10-12"),  # a Saturday: the week of 26 October is still open
+    ],
+)
+def test_epi_delay_zone_is_the_last_complete_weeks(as_of, first_shaded):
+    weeks = pd.date_range("2026-08-03", "2026-10-26", freq="7D")
+    df = pd.DataFrame({"cases": 10.0, "deaths": 1.0}, index=weeks)
+    fig = maps.epi_curves({"Area": df}, NOTES, as_of=as_of, delay_weeks=2, title="t")
+    ax = fig.axes[0]
+    x0, x1 = _delay_span(ax)
+    first = pd.Timestamp(first_shaded)
+    assert (x0, x1) == (first, first + pd.Timedelta(days=14)), "two whole weeks, no more"
+    assert x1 <= pd.Timestamp(as_of) + pd.Timedelta(days=1), "no shaded day after the as-of date"
+    # What the legend promises is what is shaded: the bars of those weeks are drawn paler.
+    assert any(t.get_text() == "last 2 complete weeks: reporting incomplete" for t in _legend(fig))
+    bars = next(c for c in ax.collections if c.get_label() == "cases (bars)")
+    lefts = pd.to_datetime([p.vertices[0, 0] for p in bars.get_paths()], unit="D")
+    pale = [mcolors.to_hex(c) != mcolors.to_hex(maps.CASE_BAR) for c in bars.get_facecolors()]
+    assert list(lefts[np.array(pale)]) == [w for w in weeks if w >= first]
+    assert sum(pale) == (2 if first_shaded == "2026-10-19" else 3)  # an open week is paler too
+    as_of_line = [ln for ln in ax.lines if ln.get_label().startswith("as-of date")]
+    assert len(as_of_line) == 1
+    assert pd.to_datetime(as_of_line[0].get_xdata()[0], unit="D") == pd.Timestamp(
+        as_of
+    ) + pd.Timedelta(days=1)
+
+
+def _legend(fig):
+    return [t for leg in fig.legends for t in leg.texts]
 
 
 def test_epi_panels_share_one_time_axis():
@@ -249,3 +300,129 @@ def test_input_text_is_drawn_literally_never_as_mathtext(base, units, tmp_path):
     )
     maps.save_figure(epi, tmp_path / "e.png")
     assert "Store $\\frac$" in _texts(fig)
+
+
+def _country_texts(ax):
+    return [t for t in ax.texts if t.get_gid() == "country-label"]
+
+
+@pytest.mark.parametrize("name", ["rate", "clusters", "arrival", "risk", "priorities"])
+def test_every_country_is_named_once_inside_itself_and_clear_of_the_legend(every_map, base, name):
+    fig = every_map[name]
+    ax = fig.axes[0]
+    labels = _country_texts(ax)
+    assert sorted(t.get_text() for t in labels) == sorted(base.countries.index)
+    for t in labels:
+        x, y = t.get_position()
+        assert base.countries.loc[t.get_text(), "geometry"].contains(Point(x, y))
+        assert t.get_path_effects(), "a halo keeps the name readable over dark fills"
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    legend_box = fig.legends[0].get_window_extent(renderer)
+    ax_box = ax.get_window_extent(renderer)
+    for t in labels:
+        box_ = t.get_window_extent(renderer)
+        assert not box_.overlaps(legend_box)
+        assert ax_box.contains(box_.x0, box_.y0) and ax_box.contains(box_.x1, box_.y1)
+
+
+def test_small_multiples_name_the_countries_in_every_panel(every_map, base):
+    panels = every_map["multiples"].axes
+    assert len(panels) == 6
+    for ax in panels:
+        assert sorted(t.get_text() for t in _country_texts(ax)) == sorted(base.countries.index)
+
+
+def test_country_names_replace_codes_where_given(units):
+    code = sorted(units["country"].unique())[0]
+    bm = maps.base_map(units, country_names={code: "Named Land"})
+    fig = maps.attack_rate_map(bm, pd.Series(1.0, index=units.index), NOTES)
+    texts = sorted(t.get_text() for t in _country_texts(fig.axes[0]))
+    others = sorted(set(units["country"]) - {code})
+    assert texts == sorted(["Named Land", *others])
+
+
+@pytest.fixture(scope="module")
+def lake_world():
+    # A country with a lake (a hole) and a small island district in it, next to another country.
+    outer = box(0, 0, 200_000, 200_000)
+    lake = box(80_000, 80_000, 120_000, 120_000)
+    island = box(97_000, 97_000, 101_000, 101_000)
+    units = gpd.GeoDataFrame(
+        {"country": ["AAA", "AAA", "BBB"]},
+        index=["land", "isle", "east"],
+        geometry=[
+            Polygon(outer.exterior.coords, [lake.exterior.coords]),
+            island,
+            box(200_000, 0, 400_000, 200_000),
+        ],
+        crs="EPSG:3035",
+    )
+    return maps.base_map(units)
+
+
+def test_background_and_holes_differ_from_every_pale_fill(lake_world):
+    fig = maps.attack_rate_map(lake_world, pd.Series({"land": 5.0, "isle": 0.0}), NOTES)
+    ax = fig.axes[0]
+    bg = mcolors.to_hex(ax.get_facecolor())
+    assert bg == maps.OUTSIDE_COLOUR
+    for pale in (maps.ZERO_COLOUR, maps.NO_REPORT_COLOUR, maps.OTHER_COLOUR, "#ffffff"):
+        assert bg != mcolors.to_hex(pale)
+    assert "outside the analysis units" in [t.get_text() for t in _legend(fig)]
+
+
+def test_an_island_too_small_to_see_gets_a_dot_in_its_own_fill(lake_world):
+    rate = pd.Series({"land": 5.0, "isle": 0.0, "east": np.nan})
+    fig = maps.attack_rate_map(lake_world, rate, NOTES)
+    dots = [c for c in fig.axes[0].collections if isinstance(c, PathCollection)]
+    assert len(dots) == 1
+    ((x, y),) = dots[0].get_offsets()
+    assert lake_world.units.loc["isle", "geometry"].contains(Point(x, y))
+    assert [mcolors.to_hex(c) for c in dots[0].get_facecolors()] == [maps.ZERO_COLOUR]
+    assert dots[0].get_zorder() > 5, "drawn over the country border that would hide it"
+    # Missing is not zero: the unreported country is hatched, the island (a zero) is not.
+    hatched = [
+        c for c in fig.axes[0].collections if isinstance(c, PatchCollection) and c.get_hatch()
+    ]
+    assert len(hatched) == 1 and len(hatched[0].get_paths()) == 1
+    labels = [t.get_text() for t in _legend(fig)]
+    assert "0 (reported zero)" in labels and "no report in the period" in labels
+
+
+def test_untested_units_are_patterned_in_map_and_legend(lake_world):
+    labels = pd.Series({"land": "flat", "isle": "untested", "east": "flat"})
+    colours = {"flat": "#d9d9d6", "untested": "#ffffff"}
+    fig = maps.cluster_map(lake_world, labels, colours, NOTES, untested=["untested"])
+    ax = fig.axes[0]
+    hatched = [c for c in ax.collections if isinstance(c, PatchCollection) and c.get_hatch()]
+    assert len(hatched) == 1 and hatched[0].get_hatch() == maps.NOT_TESTED_HATCH
+    assert len(hatched[0].get_paths()) == 1
+    leg = fig.legends[0]
+    entry = next(
+        h for h, t in zip(leg.legend_handles, leg.texts, strict=False) if "untested" in t.get_text()
+    )
+    assert entry.get_hatch() == maps.NOT_TESTED_HATCH
+    plain = maps.cluster_map(lake_world, labels, colours, NOTES)
+    assert not [c for c in plain.axes[0].collections if getattr(c, "get_hatch", lambda: None)()]
+
+
+@pytest.mark.parametrize("name", ["rate", "multiples"])
+def test_scale_bar_sits_on_a_white_box_that_holds_its_labels(every_map, name):
+    fig = every_map[name]
+    ax = fig.axes[0]
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    km = next(t for t in ax.texts if t.get_text().endswith(" km"))
+    boxes = [
+        p
+        for p in ax.patches
+        if mcolors.to_hex(p.get_facecolor()) == "#ffffff" and p.get_zorder() < km.get_zorder()
+    ]
+    backing = max(boxes, key=lambda p: p.get_width())
+    assert backing.get_alpha() >= 0.9
+    assert backing.get_zorder() > 5, "above the fills and the country borders"
+    outer = backing.get_window_extent(renderer)
+    for t in ax.texts:
+        if t.get_gid() == "country-label" or t.get_text() == "N":
+            continue
+        inner = t.get_window_extent(renderer)
+        assert outer.x0 <= inner.x0 and inner.x1 <= outer.x1, t.get_text()
+        assert outer.y0 <= inner.y0 and inner.y1 <= outer.y1, t.get_text()

@@ -19,6 +19,11 @@ from matplotlib.ticker import MaxNLocator
 
 from ._mapkit import _MAP_SIZE, CASE_BAR, DEATH_LINE, DELAY_SHADE, DPI, MapNotes, _no_math
 
+# Bars of the weeks still being reported: a paler tone of CASE_BAR, so the reader can count
+# which bars the shaded zone covers even where a bar hides the shade behind it.
+INCOMPLETE_BAR = "#aab4cd"
+AS_OF_LINE = "#6b2a22"
+
 
 def epi_curves(
     series: Mapping[str, pd.DataFrame],
@@ -40,7 +45,9 @@ def epi_curves(
         a gap, never as zero.
     notes : MapNotes
     as_of : date-like
-        The as-of date; the last ``delay_weeks`` weeks before it are shaded as incomplete.
+        The as-of date. The last ``delay_weeks`` complete weeks up to it (weeks that ended on
+        or before it) are shaded, and their bars drawn paler, as still incomplete; a week in
+        progress on the as-of date is drawn paler too. A line marks the as-of date.
     delay_weeks : int
         Reporting delay in weeks (config ``analysis.reporting_delay_weeks``).
     title : str
@@ -90,17 +97,32 @@ def epi_curves(
         weeks = pd.DatetimeIndex(df.index)
         cases = df["cases"].astype(float) if "cases" in df else pd.Series(dtype=float)
         deaths = df["deaths"].astype(float) if "deaths" in df else pd.Series(np.nan, df.index)
-        ax.axvspan(
-            delay_start,
-            delay_end,
-            facecolor=DELAY_SHADE,
-            edgecolor="#a59a83",
-            hatch="....",
-            linewidth=0,
-            zorder=0,
-            label=f"last {delay_weeks} weeks: reporting incomplete",
+        if delay_weeks > 0:
+            ax.axvspan(
+                delay_start,
+                delay_end,
+                facecolor=DELAY_SHADE,
+                edgecolor="#a59a83",
+                hatch="....",
+                linewidth=0,
+                zorder=0,
+                label=f"last {delay_weeks} complete weeks: reporting incomplete",
+            )
+        ax.axvline(
+            as_of + pd.Timedelta(days=1),  # the end of the as-of day
+            color=AS_OF_LINE,
+            linewidth=0.8,
+            linestyle=(0, (3, 2)),
+            zorder=3,
+            label=f"as-of date ({as_of:%Y-%m-%d})",
         )
-        _week_bars(ax, weeks, cases.to_numpy(dtype=float), week_days)
+        _week_bars(
+            ax,
+            weeks,
+            cases.to_numpy(dtype=float),
+            week_days,
+            incomplete_from=delay_start if delay_weeks > 0 else None,
+        )
         ax.set_ylim(bottom=0)
         ax2 = ax.twinx()
         ax2.plot(
@@ -138,7 +160,7 @@ def epi_curves(
                 bbox_to_anchor=(0.01, 1 - 0.62 / height),
                 fontsize=7,
                 frameon=False,
-                ncols=3,
+                ncols=4,
             )
             first = False
     fig.text(
@@ -181,9 +203,19 @@ def _delay_zone(
     )
 
 
-def _week_bars(ax: Axes, weeks: pd.DatetimeIndex, values: np.ndarray, week_days: int) -> None:
+def _week_bars(
+    ax: Axes,
+    weeks: pd.DatetimeIndex,
+    values: np.ndarray,
+    week_days: int,
+    *,
+    incomplete_from: pd.Timestamp | None = None,
+) -> None:
     """Weekly bars as ONE collection (a bar per artist costs seconds over many panels)."""
     ok = np.isfinite(values) & (values > 0)
+    late = np.zeros(int(ok.sum()), dtype=bool)
+    if incomplete_from is not None:
+        late = np.asarray(weeks[ok] >= incomplete_from)
     x0 = mdates.date2num(weeks[ok])
     w = week_days * 0.85
     h = values[ok]
@@ -197,7 +229,13 @@ def _week_bars(ax: Axes, weeks: pd.DatetimeIndex, values: np.ndarray, week_days:
         axis=1,
     )
     coll = PolyCollection(
-        verts, facecolors=CASE_BAR, edgecolors="none", linewidths=0, zorder=2, label="cases (bars)"
+        verts,
+        facecolors=np.where(late, INCOMPLETE_BAR, CASE_BAR),
+        # An outline on the paler bars only, so they stand out from the shade behind them.
+        edgecolors=np.where(late, CASE_BAR, "none"),
+        linewidths=np.where(late, 0.7, 0.0),
+        zorder=2,
+        label="cases (bars)",
     )
     ax.add_collection(coll)
     ax.set_ylim(0, max(1.0, float(h.max()) if h.size else 1.0) * 1.08)

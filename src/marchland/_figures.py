@@ -81,6 +81,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
                 notes,
                 legend=result.cluster_legend,
                 always=result.cluster_significant,
+                untested=_untested_labels(result),
                 title=f"Hotspots, {month}",
                 subtitle=f"{notes.region}: rate-adjusted local Moran's I; coloured where the "
                 f"false discovery rate q < {fdr:g}",
@@ -140,6 +141,13 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     yield from _epi_figures(result, notes)
 
 
+def _untested_labels(result: MonthResult) -> tuple[str, ...]:
+    """Cluster labels that mean the unit was not tested (drawn with a pattern on the map)."""
+    from .hotspots import NO_NEIGHBOURS, NO_VALUE
+
+    return tuple(k for k in (NO_NEIGHBOURS, NO_VALUE) if k in (result.cluster_colours or {}))
+
+
 def cover_page(result: MonthResult, captions: list[str]) -> Any:
     """Draw the atlas's first page: title, as-of date, headline numbers, contents, cautions."""
     import textwrap
@@ -175,9 +183,7 @@ def cover_page(result: MonthResult, captions: list[str]) -> Any:
         f"{num(h['expected_new_units'], '.1f')}",
     ]
     fig.text(0.06, 0.74, "\n".join(lines), fontsize=10, va="top", linespacing=1.6)
-    pages = [
-        f"{i + 2}. {textwrap.shorten(c, 110, placeholder=' ...')}" for i, c in enumerate(captions)
-    ]
+    pages = [f"{i + 2}. {_page_title(c)}" for i, c in enumerate(captions)]
     fig.text(0.06, 0.47, "Pages", fontsize=10, fontweight="bold")
     fig.text(0.06, 0.45, "\n".join(pages), fontsize=7, va="top", linespacing=1.5, color="#2b2925")
     fig.text(
@@ -190,6 +196,16 @@ def cover_page(result: MonthResult, captions: list[str]) -> Any:
         va="top",
     )
     return _no_math(fig)
+
+
+def _page_title(caption: str) -> str:
+    """Return the caption's first clause for the contents (a cut-off sentence reads as broken)."""
+    import re
+
+    head = re.split(r"; |\. ", caption.strip(), maxsplit=1)[0].rstrip(".")
+    if len(head) > 110:
+        head = re.sub(r"\s*\([^)]*\)$", "", head)
+    return head if len(head) <= 110 else head[:107].rsplit(" ", 1)[0] + " ..."
 
 
 def backtest_note(result: MonthResult) -> str:
@@ -247,7 +263,10 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
     reg = weekly_by(result, None)
     if not reg:
         return
-    shaded = f"the last {delay} weeks before the as-of date are shaded: reporting incomplete"
+    shaded = (
+        f"the last {delay} complete weeks up to the as-of date are shaded and their bars drawn "
+        "paler: reporting incomplete"
+    )
     yield (
         "epi_region",
         maps.epi_curves(

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 
 import geopandas as gpd
 import matplotlib.colors as mcolors
+import matplotlib.patheffects as path_effects
 import numpy as np
 import pandas as pd
 from matplotlib.axes import Axes
@@ -33,6 +34,10 @@ RATE_COLOURS = ("#f1dca7", "#e2a865", "#c8703f", "#9b3e2d", "#5c1e2a")  # sand -
 ZERO_COLOUR = "#f6f4ee"  # a reported zero: data, not missing
 NO_REPORT_COLOUR = "#ffffff"  # drawn with grey hatching: nobody reported
 NO_REPORT_HATCH = "////"
+NOT_TESTED_HATCH = "...."  # units a statistic could not be computed for (e.g. no neighbour)
+# Everything inside the frame that is no analysis unit (outside the region, holes such as a
+# lake): a cool light tone, so a white or pale unit (an island in a lake) still stands out.
+OUTSIDE_COLOUR = "#dde4e7"
 RISK_COLOURS = ("#e3eee8", "#b1d2c3", "#75ab96", "#3d7d69", "#1b483d")  # sea-green ramp
 RISK_BINS = (0.05, 0.10, 0.20, 0.40, 1.0)
 AFFECTED_COLOUR = "#b8ab96"  # a warm grey for units that already have cases
@@ -45,6 +50,8 @@ EXISTING_DEPOT_COLOUR = "#8c887d"
 FRONT_COLOUR = "#8a1c4a"  # the analysis month's front
 DISTRICT_EDGE = dict(color="#7d7a72", linewidth=0.25)
 COUNTRY_EDGE = dict(color="#262522", linewidth=1.3)
+COUNTRY_LABEL = dict(color="#262522", fontweight="bold")
+_HALO = [path_effects.withStroke(linewidth=2.6, foreground="white")]
 CASE_BAR = "#6d7fa8"
 DEATH_LINE = "#2a2118"
 DELAY_SHADE = "#d9d2c3"
@@ -82,8 +89,9 @@ class BaseMap:
     """Geometry prepared once for drawing: simplified units, country outlines, frame.
 
     ``units`` is indexed by unit id and keeps a ``country`` column; ``countries`` is one
-    outline per country; ``bounds`` is (minx, miny, maxx, maxy) of the frame in CRS units
-    (metres in marchland's working CRS).
+    outline per country, indexed by country code, with ``label`` (the name drawn on the map)
+    and ``label_x``/``label_y`` (a point on the country's surface); ``bounds`` is (minx, miny,
+    maxx, maxy) of the frame in CRS units (metres in marchland's working CRS).
     """
 
     units: gpd.GeoDataFrame
@@ -140,13 +148,21 @@ def _frame(ax: Axes, base: BaseMap) -> None:
     ax.set_yticks([])
     ax.set_xlabel("")
     ax.set_ylabel("")
+    ax.set_facecolor(OUTSIDE_COLOUR)
     for s in ax.spines.values():
         s.set_edgecolor("#b9b5aa")
         s.set_linewidth(0.6)
 
 
 def _fill(
-    ax: Axes, base: BaseMap, colours: pd.Series, *, hatch_ids=None, default: str = OTHER_COLOUR
+    ax: Axes,
+    base: BaseMap,
+    colours: pd.Series,
+    *,
+    hatch_ids=None,
+    hatch: str = NO_REPORT_HATCH,
+    default: str = OTHER_COLOUR,
+    compact: bool = False,
 ) -> None:
     """Fill units with per-unit colours, then district edges, then country borders on top."""
     g = base.units.geometry
@@ -165,11 +181,26 @@ def _fill(
                 ax=ax,
                 facecolor="none",
                 edgecolor="#9a968c",
-                hatch=NO_REPORT_HATCH,
+                hatch=hatch,
                 linewidth=0,
                 zorder=2,
             )
     base.countries.boundary.plot(ax=ax, zorder=5, **COUNTRY_EDGE)
+    small = base.units.index[base.units["small"].to_numpy()] if "small" in base.units else []
+    if len(small):
+        # A unit too small to see at print size (an island in a lake) gets a dot in its own
+        # fill, on top of the borders, so its class can still be read.
+        pts = base.units.loc[small, "geometry"].representative_point()
+        ax.scatter(
+            pts.x,
+            pts.y,
+            s=20 if compact else 58,
+            c=col.loc[small].to_list(),
+            edgecolors="#262522",
+            linewidths=0.6 if compact else 0.8,
+            zorder=6,
+            hatch=hatch if hatch_ids is not None and set(small) & set(hatch_ids) else None,
+        )
 
 
 def _nice_length(target: float) -> float:
@@ -180,23 +211,41 @@ def _nice_length(target: float) -> float:
     return 10**exp  # pragma: no cover
 
 
+def _data_per_point(ax: Axes, base: BaseMap) -> float:
+    """CRS units per typographic point in ``ax`` (equal aspect: the tighter side governs)."""
+    fig = ax.get_figure()
+    pos = ax.get_position()
+    w_in, h_in = fig.get_figwidth() * pos.width, fig.get_figheight() * pos.height
+    minx, miny, maxx, maxy = base.bounds
+    return max((maxx - minx) / w_in, (maxy - miny) / h_in) / 72
+
+
 def _scale_bar(ax: Axes, base: BaseMap, *, compact: bool = False) -> None:
     minx, miny, maxx, maxy = base.bounds
     width = maxx - minx
-    length = _nice_length(width * 0.22)  # metres
-    x0 = minx + width * 0.04
-    y0 = miny + (maxy - miny) * 0.04
-    h = (maxy - miny) * 0.010
+    length = _nice_length(width * (0.30 if compact else 0.22))  # metres
+    pt = _data_per_point(ax, base)
+    fontsize = 6 if compact else 7
+    pad = 4 * pt
+    x0 = minx + pad * 2.5
+    y0 = miny + pad * 2.5
+    h = 3.2 * pt
     half = length / 2
+    km = length / 1000
+    end_label = f"{_fmt_num(km)} km"
+    # An opaque backing box sized from the label's extent in points, so the "km" label and the
+    # bar never sit on the polygons or a country border.
+    label_half = 0.31 * fontsize * len(end_label) * pt
     ax.add_patch(
         Rectangle(
-            (x0 - length * 0.08, y0 - h * 1.2),
-            length * 1.25,
-            h * 5.2,
+            (x0 - pad - (0 if compact else 1.5 * pt), y0 - pad),
+            length + label_half + 2 * pad,
+            h + 1.5 * pt + 1.25 * fontsize * pt + 2 * pad,
             facecolor="white",
-            edgecolor="none",
-            alpha=0.75,
-            zorder=4,  # above the fills, below the country borders
+            edgecolor="#b9b5aa",
+            linewidth=0.4,
+            alpha=0.92,
+            zorder=9,  # above the fills and the country borders, below the bar itself
         )
     )
     ax.add_patch(
@@ -215,18 +264,17 @@ def _scale_bar(ax: Axes, base: BaseMap, *, compact: bool = False) -> None:
             zorder=10,
         )
     )
-    km = length / 1000
-    ticks = [(x0 + length, f"{_fmt_num(km)} km")]
+    ticks = [(x0 + length, end_label)]
     if not compact:
         ticks = [(x0, "0"), (x0 + half, _fmt_num(km / 2)), *ticks]
     for xx, lab in ticks:
         ax.text(
             xx,
-            y0 + h * 1.8,
+            y0 + h + 1.5 * pt,
             lab,
             ha="center",
             va="bottom",
-            fontsize=6 if compact else 7,
+            fontsize=fontsize,
             zorder=10,
             color="#1d1d1b",
         )
@@ -248,7 +296,8 @@ def _north_arrow(ax: Axes, base: BaseMap, *, compact: bool = False) -> None:
             head_length=length * 0.42,
             length_includes_head=True,
             facecolor="#1d1d1b",
-            edgecolor="#1d1d1b",
+            edgecolor="white",
+            linewidth=0.8,
             zorder=10,
         )
     )
@@ -256,6 +305,7 @@ def _north_arrow(ax: Axes, base: BaseMap, *, compact: bool = False) -> None:
         x,
         y + length * 1.08,
         "N",
+        path_effects=_HALO,
         ha="center",
         va="bottom",
         fontsize=7 if compact else 9,
@@ -312,6 +362,14 @@ def _legend(
     handles += [
         Line2D([], [], label=textwrap.fill(lab, 34), color=c, linewidth=w) for lab, c, w in lines
     ]
+    handles.append(
+        Patch(
+            label="outside the analysis units",
+            facecolor=OUTSIDE_COLOUR,
+            edgecolor="#b9b5aa",
+            linewidth=0.4,
+        )
+    )
     handles.append(Line2D([], [], label="country border", **COUNTRY_EDGE))
     handles.append(
         Line2D([], [], label="district border", color=DISTRICT_EDGE["color"], linewidth=0.6)
@@ -331,8 +389,29 @@ def _legend(
     )
 
 
+def _country_labels(ax: Axes, base: BaseMap, *, compact: bool = False) -> None:
+    """Name each country once, at a point on its surface, with a white halo over the fills."""
+    c = base.countries
+    if "label" not in c:
+        return
+    for x, y, text in zip(c["label_x"], c["label_y"], c["label"], strict=True):
+        ax.text(
+            x,
+            y,
+            str(text),
+            ha="center",
+            va="center",
+            fontsize=6.5 if compact else 9.5,
+            zorder=8,
+            path_effects=_HALO,
+            gid="country-label",
+            **COUNTRY_LABEL,
+        )
+
+
 def _furnish(fig: Figure, ax: Axes, base: BaseMap, notes: MapNotes) -> None:
     _frame(ax, base)
+    _country_labels(ax, base)
     _scale_bar(ax, base)
     _north_arrow(ax, base)
     _footer(fig, notes)

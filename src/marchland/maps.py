@@ -41,7 +41,9 @@ from ._mapkit import (
     NO_REPORT_COLOUR,
     NO_REPORT_HATCH,
     NOT_CANDIDATE_COLOUR,
+    NOT_TESTED_HATCH,
     OTHER_COLOUR,
+    OUTSIDE_COLOUR,
     PRIORITY_COLOURS,
     RATE_COLOURS,
     RISK_BINS,
@@ -49,6 +51,7 @@ from ._mapkit import (
     ZERO_COLOUR,
     BaseMap,
     MapNotes,
+    _country_labels,
     _fill,
     _fmt_num,
     _footer,
@@ -79,7 +82,9 @@ __all__ = [
     "NO_REPORT_COLOUR",
     "NO_REPORT_HATCH",
     "NOT_CANDIDATE_COLOUR",
+    "NOT_TESTED_HATCH",
     "OTHER_COLOUR",
+    "OUTSIDE_COLOUR",
     "PRIORITY_COLOURS",
     "RATE_COLOURS",
     "RISK_BINS",
@@ -100,8 +105,13 @@ __all__ = [
 ]
 
 
-def base_map(units: gpd.GeoDataFrame, *, simplify_m: float | None = None) -> BaseMap:
-    """Simplify units for drawing and dissolve country outlines, once per bundle.
+def base_map(
+    units: gpd.GeoDataFrame,
+    *,
+    simplify_m: float | None = None,
+    country_names: Mapping[str, str] | None = None,
+) -> BaseMap:
+    """Simplify units for drawing, dissolve country outlines and place country labels, once.
 
     Parameters
     ----------
@@ -110,6 +120,10 @@ def base_map(units: gpd.GeoDataFrame, *, simplify_m: float | None = None) -> Bas
     simplify_m : float, optional
         Simplification tolerance in metres. Default: 1/2000 of the larger side of the extent
         (about 0.1 mm on the printed map), which keeps every shape recognisable.
+    country_names : Mapping, optional
+        Country code -> name to print on the maps; a code without a name is printed as is.
+        Each country is labelled once, at a point on its surface (shapely
+        ``point_on_surface`` of the dissolved country, which always falls inside it).
 
     Returns
     -------
@@ -125,18 +139,30 @@ def base_map(units: gpd.GeoDataFrame, *, simplify_m: float | None = None) -> Bas
     >>> bm = base_map(u)
     >>> sorted(bm.countries.index)
     ['AAA', 'BBB']
+    >>> base_map(u, country_names={"AAA": "Aland"}).countries["label"].tolist()
+    ['Aland', 'BBB']
     """
     minx, miny, maxx, maxy = units.total_bounds
     side = max(maxx - minx, maxy - miny)
     tol = side / 2000 if simplify_m is None else simplify_m
     geom = units.geometry.simplify(tol, preserve_topology=True) if tol > 0 else units.geometry
+    # Units under ~3 mm across on the printed map (an island) also get a dot (see _fill).
+    ext = units.geometry.bounds
+    small = np.maximum(ext["maxx"] - ext["minx"], ext["maxy"] - ext["miny"]) < side / 50
     simple = gpd.GeoDataFrame(
-        {"country": units["country"].to_numpy()},
+        {"country": units["country"].to_numpy(), "small": small.to_numpy()},
         index=units.index,
         geometry=geom.to_numpy(),
         crs=units.crs,
     )
     countries = simple.dissolve("country")[["geometry"]]
+    names = dict(country_names or {})
+    spot = countries.geometry.representative_point()  # shapely point_on_surface
+    countries = countries.assign(
+        label=[str(names.get(c, c)) for c in countries.index],
+        label_x=spot.x.to_numpy(),
+        label_y=spot.y.to_numpy(),
+    )
     pad = side * 0.03
     return BaseMap(simple, countries, (minx - pad, miny - pad, maxx + pad, maxy + pad))
 
@@ -365,8 +391,9 @@ def rate_small_multiples(
         )
         colours, classes, ramp = _rate_colours(rates[col], bins)
         all_classes.append(classes)
-        _fill(ax, base, colours, hatch_ids=rates.index[classes == -2])
+        _fill(ax, base, colours, hatch_ids=rates.index[classes == -2], compact=True)
         _frame(ax, base)
+        _country_labels(ax, base, compact=True)
         ax.set_title(str(col), fontsize=8.5, pad=3)
         if i == 0:
             _scale_bar(ax, base, compact=True)
@@ -394,6 +421,7 @@ def cluster_map(
     *,
     legend: Mapping[str, str] | None = None,
     always: Sequence[str] = (),
+    untested: Sequence[str] = (),
     title: str = "Hotspots",
     subtitle: str = "",
 ) -> Figure:
@@ -412,6 +440,9 @@ def cluster_map(
         Label -> legend wording (default: the label itself).
     always : sequence of str
         Labels listed in the legend even when no unit has them (e.g. the four quadrants).
+    untested : sequence of str
+        Labels that mean "not tested" (no neighbour, no value): drawn with a dotted pattern
+        over their fill, so a pale untested unit (an island) is not read as background.
     title, subtitle : str
 
     Returns
@@ -437,7 +468,8 @@ def cluster_map(
         raise ValueError(f"'colours' needs an entry for every label; missing {missing}")
     col = lab.map(lambda x: colours.get(x, OTHER_COLOUR) if isinstance(x, str) else OTHER_COLOUR)
     fig, ax = _new_map(title, subtitle)
-    _fill(ax, base, col)
+    untested = set(untested)
+    _fill(ax, base, col, hatch_ids=lab.index[lab.isin(untested)], hatch=NOT_TESTED_HATCH)
     _furnish(fig, ax, base, notes)
     wording = dict(legend or {})
     entries = []
@@ -445,12 +477,10 @@ def cluster_map(
         n = int((lab == key).sum())
         if n == 0 and key not in (always or ()):
             continue
-        entries.append(
-            (
-                f"{wording.get(key, key)} ({n})",
-                {"facecolor": colour, "edgecolor": "#7d7a72", "linewidth": 0.4},
-            )
-        )
+        style = {"facecolor": colour, "edgecolor": "#7d7a72", "linewidth": 0.4}
+        if key in untested:
+            style["hatch"] = NOT_TESTED_HATCH
+        entries.append((f"{wording.get(key, key)} ({n})", style))
     if lab.isna().any():
         entries.append(
             (
