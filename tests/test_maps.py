@@ -426,3 +426,29 @@ def test_scale_bar_sits_on_a_white_box_that_holds_its_labels(every_map, name):
         inner = t.get_window_extent(renderer)
         assert outer.x0 <= inner.x0 and inner.x1 <= outer.x1, t.get_text()
         assert outer.y0 <= inner.y0 and inner.y1 <= outer.y1, t.get_text()
+
+
+def test_a_country_name_keeps_off_the_scale_bar_where_the_country_allows():
+    # Country AAA is a strip along the bottom whose point-on-surface (its middle) would sit
+    # under the scale bar; BBB is everything above and to the right of it.
+    units = gpd.GeoDataFrame(
+        {"country": ["AAA", "BBB"]},
+        index=["a", "b"],
+        geometry=[
+            box(0, 0, 250_000, 40_000),
+            box(0, 40_000, 500_000, 400_000).union(box(250_000, 0, 500_000, 40_000)),
+        ],
+        crs="EPSG:3035",
+    )
+    bm = maps.base_map(units)
+    fig = maps.attack_rate_map(bm, pd.Series({"a": 1.0, "b": 2.0}), NOTES)
+    ax = fig.axes[0]
+    renderer = FigureCanvasAgg(fig).get_renderer()
+    backing = max(
+        (p for p in ax.patches if mcolors.to_hex(p.get_facecolor()) == "#ffffff"),
+        key=lambda p: p.get_width(),
+    ).get_window_extent(renderer)
+    for t in _country_texts(ax):
+        x, y = t.get_position()
+        assert bm.countries.loc[t.get_text(), "geometry"].contains(Point(x, y))
+        assert not t.get_window_extent(renderer).overlaps(backing), t.get_text()

@@ -20,6 +20,7 @@ from collections.abc import Mapping, Sequence
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+import shapely
 from matplotlib.figure import Figure
 from matplotlib.patches import Circle
 
@@ -157,14 +158,24 @@ def base_map(
     )
     countries = simple.dissolve("country")[["geometry"]]
     names = dict(country_names or {})
-    spot = countries.geometry.representative_point()  # shapely point_on_surface
+    pad = side * 0.03
+    frame = (minx - pad, miny - pad, maxx + pad, maxy + pad)
+    # Keep names off the scale bar (lower left) and the north arrow (upper right) where the
+    # country reaches beyond them; shapely point_on_surface of what is left.
+    fw, fh = frame[2] - frame[0], frame[3] - frame[1]
+    furniture = shapely.union(
+        shapely.box(frame[0], frame[1], frame[0] + 0.32 * fw, frame[1] + 0.14 * fh),
+        shapely.box(frame[2] - 0.12 * fw, frame[3] - 0.22 * fh, frame[2], frame[3]),
+    )
+    free = countries.geometry.difference(furniture)
+    free = free.where(~free.is_empty, countries.geometry)
+    spot = free.representative_point()
     countries = countries.assign(
         label=[str(names.get(c, c)) for c in countries.index],
         label_x=spot.x.to_numpy(),
         label_y=spot.y.to_numpy(),
     )
-    pad = side * 0.03
-    return BaseMap(simple, countries, (minx - pad, miny - pad, maxx + pad, maxy + pad))
+    return BaseMap(simple, countries, frame)
 
 
 # --- class schemes ----------------------------------------------------------------------------
