@@ -364,3 +364,15 @@ def test_cumulative_stops_at_the_month_and_a_late_as_of_is_flagged(world, monkey
     got = res.rates["cumulative_cases"].astype(float)
     assert got.to_dict() == pytest.approx(by_unit.reindex(got.index).astype(float).to_dict())
     assert any("more than a week after 2026-09 ended" in w for w in res.warnings)
+
+
+def test_supply_totals_per_depot_catchment_add_up_to_the_country_totals(result, written):
+    by_depot, by_country = result.supply_totals_by_depot, result.supply_totals
+    assert by_depot is not None and by_country is not None
+    assert (written / "tables" / "supply_totals_by_depot.csv").is_file()
+    # Every candidate sits in exactly one catchment and one country: the sums must agree.
+    for col in ("units", "population", "planning_cases", "expected_cases"):
+        assert by_depot[col].sum() == pytest.approx(by_country[col].sum()), col
+    assigned = result.depot_assignment["depot"].value_counts()
+    got = by_depot["units"].drop("(none)", errors="ignore")
+    assert got.sort_index().astype(int).tolist() == assigned.sort_index().tolist()

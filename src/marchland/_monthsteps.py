@@ -261,10 +261,12 @@ class _Context:
         if c.depots is not None and len(prio):
             sites = sp.read_depots(c.depots, self.units.crs)
             depots = sp.choose_depots(prio, sites, k=c.k, reach_km=c.reach_km, units=self.units)
+            assignment = sp.assign_depots(prio, depots, units=self.units)
             out.update(
                 depot_sites=sites,
                 depots=depots,
-                depot_assignment=sp.assign_depots(prio, depots, units=self.units),
+                depot_assignment=assignment,
+                supply_totals_by_depot=sp.totals(prio, plan=plan, by=assignment["depot"]),
             )
         return out
 

@@ -538,6 +538,12 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         )
     if result.supply_totals is not None:
         body += "<h3>Totals per country</h3>" + table_html(result.supply_totals, index="country")
+    if result.supply_totals_by_depot is not None:
+        body += (
+            "<h3>Totals per depot catchment</h3><p>Each candidate district counted at its nearest "
+            "open depot, whether or not it lies within reach.</p>"
+            + table_html(result.supply_totals_by_depot, index="depot")
+        )
     return _section("Pre-positioning", body, "supplies")
 
 

@@ -259,6 +259,7 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
         "backtest_by_country": result.backtest_by_country,
         "priorities": result.priorities,
         "supply_totals": result.supply_totals,
+        "supply_totals_by_depot": result.supply_totals_by_depot,
         "depots": None
         if result.depots is None
         else pd.DataFrame(result.depots.drop(columns="geometry")),

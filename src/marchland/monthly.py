@@ -85,8 +85,9 @@ class MonthResult:
         From :func:`marchland.risk.border_risk`; ``risk.attrs`` has ``expected_new_units``.
     backtest, backtest_by_country : pandas.DataFrame
         Indexed by ``model`` (``score distance neighbours``).
-    priorities, depots, depot_sites, depot_assignment, supply_totals
-        From :mod:`marchland.supplies`.
+    priorities, depots, depot_sites, depot_assignment, supply_totals, supply_totals_by_depot
+        From :mod:`marchland.supplies`; the totals are per country and per depot catchment
+        (each candidate in the catchment of its nearest open depot).
     timings : dict
         Seconds per step.
     warnings : tuple of str
@@ -129,6 +130,7 @@ class MonthResult:
     depot_sites: Any = None
     depot_assignment: pd.DataFrame | None = None
     supply_totals: pd.DataFrame | None = None
+    supply_totals_by_depot: pd.DataFrame | None = None
     cluster_colours: Mapping[str, str] | None = None
     cluster_legend: Mapping[str, str] | None = None
     cluster_significant: tuple[str, ...] = ()
