@@ -3,7 +3,11 @@
 Covered: rasters built so the exact answer is known (constant density over a many-sided
 polygon, a gradient over a box cutting cells in half), nodata cells, units partly and wholly
 outside the raster, a raster in another CRS than the units, a raster without a CRS, the table
-join and its errors, and the zero-population check for units with cases.
+join and its errors, and the zero-population check for units with cases. Zonal means: a
+two-value raster split along a unit boundary, nodata left out, cells of a longitude-latitude
+grid weighted by their area on the sphere, the same cover warnings and errors. Covariate
+tables: analysis-unit rows as given, district rows averaged to their province by population,
+and every kind of bad row named by file, row and column.
 """
 
 from __future__ import annotations
@@ -19,7 +23,13 @@ import shapely
 from affine import Affine
 
 from marchland.errors import DataWarning, InputError
-from marchland.population import population_from_table, require_population, zonal_population
+from marchland.population import (
+    covariate_from_table,
+    population_from_table,
+    require_population,
+    zonal_mean,
+    zonal_population,
+)
 
 CELL = 100.0  # metres
 
@@ -136,3 +146,117 @@ def test_require_population() -> None:
     require_population(pd.Series({"a": 10.0, "b": 0.0, "c": 4.0}), counts)
     with pytest.raises(InputError, match="c"):
         require_population(pd.Series({"a": 10.0, "b": 5.0, "c": np.nan}), counts)
+
+
+def test_zonal_mean_two_values_split_at_a_boundary(tmp_path: Path) -> None:
+    # Columns 0-1 hold 2, columns 2-3 hold 6 (cells 100 m). u0 = x 0..200 lies on the 2s only;
+    # u1 = x 150..400 covers 50 m of a 2-column and 200 m of 6s, so its area-weighted mean is
+    # (50 * 2 + 200 * 6) / 250 = 5.2; u2 = x 200..400 lies on the 6s only.
+    values = np.tile(np.array([2.0, 2.0, 6.0, 6.0]), (2, 1))
+    path = make_raster(tmp_path / "two.tif", values)
+    u = units_of(
+        shapely.box(0, 0, 200, 200), shapely.box(150, 0, 400, 200), shapely.box(200, 0, 400, 200)
+    )
+    m = zonal_mean(u, path, name="flood")
+    assert m.name == "flood" and m.index.tolist() == ["u0", "u1", "u2"]
+    assert m.tolist() == pytest.approx([2.0, 5.2, 6.0], rel=1e-12)
+    np.testing.assert_allclose(m.attrs["covered"].to_numpy(), 1.0, rtol=1e-9)
+
+
+def test_zonal_mean_leaves_nodata_out(tmp_path: Path) -> None:
+    # The left half is nodata: the mean is over the valid right half only (values 4 and 8
+    # in columns 5-9: two columns of 4 and three of 8 -> (2 * 4 + 3 * 8) / 5 = 6.4), and the
+    # unit is flagged as half covered rather than averaged with zeros.
+    values = np.full((10, 10), -1.0)
+    values[:, 5:7] = 4.0
+    values[:, 7:] = 8.0
+    path = make_raster(tmp_path / "n.tif", values)
+    with pytest.warns(DataWarning, match=r"u0 50\.0%"):
+        m = zonal_mean(units_of(shapely.box(0, 0, 1000, 1000)), path)
+    assert m.iloc[0] == pytest.approx(6.4, rel=1e-12)
+    with pytest.raises(InputError, match="outside the raster"):
+        zonal_mean(units_of(shapely.box(0, 0, 400, 400)), path)
+
+
+def test_zonal_mean_weights_geographic_cells_by_area(tmp_path: Path) -> None:
+    # Two 30-degree rows of a longitude-latitude grid: 1 on 30-60 N, 0 on 0-30 N. On a sphere
+    # a band's area is proportional to sin(north) - sin(south), so a unit over both has the
+    # mean (sin 60 - sin 30) / sin 60 = 0.4226..., not the cell-count mean 0.5.
+    with rasterio.open(
+        tmp_path / "ll.tif", "w", driver="GTiff", width=1, height=2, count=1, dtype="float64",
+        crs="EPSG:4326", nodata=-1.0, transform=Affine(1.0, 0, 0, 0, -30.0, 60.0),
+    ) as dst:  # fmt: skip
+        dst.write(np.array([[[1.0], [0.0]]]))
+    u = units_of(shapely.box(0, 0, 1, 60), crs="EPSG:4326")
+    expected = (np.sin(np.radians(60)) - np.sin(np.radians(30))) / np.sin(np.radians(60))
+    assert zonal_mean(u, tmp_path / "ll.tif").iloc[0] == pytest.approx(expected, rel=1e-6)
+
+
+def test_zonal_mean_raster_errors(tmp_path: Path) -> None:
+    path = make_raster(tmp_path / "x.tif", np.ones((4, 4)), crs=None)
+    with pytest.raises(InputError, match="raster has no CRS"):
+        zonal_mean(units_of(shapely.box(0, 0, 100, 100)), path)
+
+
+def _two_level() -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Province P (analysed whole) with districts a, b; province Q analysed by district c, d."""
+    units = pd.DataFrame(
+        {
+            "parent_id": [None, "P", "P", None, "Q", "Q"],
+            "population": [4000.0, 1000.0, 3000.0, 900.0, 400.0, 500.0],
+        },
+        index=pd.Index(["P", "a", "b", "Q", "c", "d"], name="unit_id"),
+    )
+    return units, units.loc[["P", "c", "d"]]
+
+
+def test_covariate_table_on_analysis_units(tmp_path: Path) -> None:
+    units, analysis = _two_level()
+    csv = tmp_path / "water.csv"
+    # a (1,000 people, 0.2) and b (3,000, 0.6) average to P: (1000*0.2 + 3000*0.6) / 4000 = 0.5.
+    csv.write_text("code,share\na,0.2\nb,0.6\nc,0.1\nd,0.9\n")
+    s = covariate_from_table(units, analysis, csv, id_column="code", value_column="share", name="w")
+    assert s.name == "w" and s.index.tolist() == ["P", "c", "d"]
+    assert s.tolist() == pytest.approx([0.5, 0.1, 0.9], rel=1e-12)
+    # The province's own row is used as given.
+    csv.write_text("code,share\nP,0.3\nc,0.1\nd,0.9\n")
+    assert covariate_from_table(
+        units, analysis, csv, id_column="code", value_column="share"
+    ).tolist() == pytest.approx([0.3, 0.1, 0.9])
+    # Districts without population: an unweighted mean, (0.2 + 0.6) / 2.
+    no_pop = units.assign(population=0.0)
+    csv.write_text("code,share\na,0.2\nb,0.6\nc,0.1\nd,0.9\n")
+    got = covariate_from_table(no_pop, analysis, csv, id_column="code", value_column="share")
+    assert got.iloc[0] == pytest.approx(0.4)
+
+
+@pytest.mark.parametrize(
+    ("rows", "row", "column", "match"),
+    [
+        ("a,0.2\nzz,0.6\n", 2, "code", "in no boundary file"),
+        ("a,0.2\nb,lots\n", 2, "share", "a number"),
+        ("a,0.2\na,0.6\n", 2, "code", "twice"),
+        ("c,0.1\nQ,0.6\n", 2, "code", "coarser"),
+    ],
+)
+def test_covariate_table_bad_rows_named(
+    tmp_path: Path, rows: str, row: int, column: str, match: str
+) -> None:
+    units, analysis = _two_level()
+    csv = tmp_path / "bad.csv"
+    csv.write_text("code,share\n" + rows)
+    with pytest.raises(InputError, match=match) as info:
+        covariate_from_table(units, analysis, csv, id_column="code", value_column="share")
+    assert (info.value.row, info.value.column) == (row, column)
+    assert "bad.csv" in str(info.value)
+
+
+def test_covariate_table_missing_units_and_columns(tmp_path: Path) -> None:
+    units, analysis = _two_level()
+    csv = tmp_path / "part.csv"
+    csv.write_text("code,share\na,0.2\nc,0.1\n")
+    with pytest.raises(InputError, match=r"1 analysis unit\(s\) get no value.*: d"):
+        covariate_from_table(units, analysis, csv, id_column="code", value_column="share")
+    with pytest.raises(InputError, match="no column 'value'") as info:
+        covariate_from_table(units, analysis, csv, id_column="code")
+    assert info.value.column == "value"

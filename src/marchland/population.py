@@ -70,6 +70,91 @@ def zonal_population(
     >>> zonal_population(u, path).tolist()
     [60.0, 100.0]
     """
+    out, share = _zonal(units, raster, ["sum"], "population raster", min_covered)
+    pop = pd.Series(out["sum"].fillna(0).to_numpy(float), index=units.index, name="population")
+    pop.attrs["covered"] = share
+    return pop
+
+
+def zonal_mean(
+    units: pd.DataFrame,
+    raster: str | os.PathLike[str],
+    *,
+    min_covered: float = MIN_COVERED,
+    name: str = "mean",
+) -> pd.Series:
+    """Area-weighted mean of a raster over each unit, with fractional coverage (exactextract).
+
+    Each valid cell counts in proportion to the area of it inside the unit: its covered
+    fraction, times its area on the sphere when the raster is in a geographic CRS (cells of a
+    longitude-latitude grid shrink towards the poles). Nodata cells are left out, so the mean
+    is over the part of the unit the raster covers. The same CRS handling, warnings and
+    errors as :func:`zonal_population`.
+
+    Parameters
+    ----------
+    units : geopandas.GeoDataFrame
+        Units indexed by ``unit_id`` (any CRS; reprojected to the raster's).
+    raster : path
+        A single-band GeoTIFF with a CRS, e.g. the share of each cell flooded in the wet
+        season, or an access-to-water index.
+    min_covered : float
+        Warn (:class:`~marchland.errors.DataWarning`) for units covered by valid cells less
+        than this share of their area.
+    name : str
+        Name of the returned Series.
+
+    Returns
+    -------
+    pandas.Series
+        The mean per unit, indexed by ``unit_id``, with ``attrs["covered"]`` as in
+        :func:`zonal_population`.
+
+    Raises
+    ------
+    InputError
+        The raster cannot be read or has no CRS, or a unit lies wholly outside its valid
+        cells.
+
+    References
+    ----------
+    Baston, D. (2023). exactextract: fast and accurate raster zonal statistics.
+    https://github.com/isciences/exactextract
+
+    Examples
+    --------
+    A unit over a 10 and a 30 column, three quarters on the 10s: 0.75 * 10 + 0.25 * 30.
+
+    >>> import tempfile, pathlib, numpy as np, rasterio, geopandas as gpd, shapely
+    >>> from affine import Affine
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "flood.tif"
+    >>> with rasterio.open(path, "w", driver="GTiff", width=2, height=1, count=1,
+    ...                    dtype="float32", crs="EPSG:3035", nodata=-1,
+    ...                    transform=Affine(100, 0, 0, 0, -100, 100)) as dst:
+    ...     dst.write(np.array([[[10, 30]]], dtype="float32"))
+    >>> u = gpd.GeoDataFrame(geometry=[shapely.box(25, 0, 125, 100)],
+    ...                      index=pd.Index(["a"], name="unit_id"), crs="EPSG:3035")
+    >>> zonal_mean(u, path).tolist()
+    [15.0]
+    """
+    out, share = _zonal(units, raster, None, "raster", min_covered)
+    s = pd.Series(out["mean"].to_numpy(float), index=units.index, name=name)
+    s.attrs["covered"] = share
+    return s
+
+
+def _zonal(
+    units: pd.DataFrame,
+    raster: str | os.PathLike[str],
+    ops: list[str] | None,
+    what: str,
+    min_covered: float,
+) -> tuple[pd.DataFrame, pd.Series]:
+    """Run exactextract ``ops`` over ``units`` (``None``: an area-weighted mean) and check cover.
+
+    Returns the statistics (one row per unit, in order) and the covered share per unit; raises
+    for units outside the raster's valid cells and warns for partly covered ones.
+    """
     import geopandas as gpd
     import rasterio
     import shapely
@@ -81,23 +166,27 @@ def zonal_population(
             crs = src.crs
             res = abs(src.res[0] * src.res[1])
             if src.count < 1:
-                raise InputError("the population raster has no band", file=path)
+                raise InputError(f"the {what} has no band", file=path)
     except rasterio.errors.RasterioIOError as exc:
-        raise InputError(f"cannot read the population raster: {exc}", file=path) from None
+        raise InputError(f"cannot read the {what}: {exc}", file=path) from None
     if crs is None:
-        raise InputError("the population raster has no CRS", file=path)
+        raise InputError(f"the {what} has no CRS", file=path)
     if units.crs is None:
         raise InputError("the units have no CRS")
+    if ops is None:
+        # On a longitude-latitude grid cells differ in area: weight by each covered part's
+        # area on the sphere; on a projected grid every cell has the same area.
+        weight = "area_spherical_m2" if crs.is_geographic else "fraction"
+        ops = [f"mean=mean(coverage_weight={weight})"]
     local = gpd.GeoDataFrame(
         {"_uid": np.arange(len(units))}, geometry=units.geometry.to_crs(crs).to_numpy(), crs=crs
     )
     with rasterio.open(path) as src:
-        out = exact_extract(src, local, ["sum", "count"], include_cols=["_uid"], output="pandas")
+        out = exact_extract(src, local, [*ops, "count"], include_cols=["_uid"], output="pandas")
     out = out.set_index("_uid").reindex(np.arange(len(units)))
     # Planar area in the raster's own units, the same units as the cell size.
     area = shapely.area(local.geometry.to_numpy())
     covered = np.clip(out["count"].fillna(0).to_numpy() * res / np.where(area > 0, area, 1), 0, 1)
-    pop = pd.Series(out["sum"].fillna(0).to_numpy(float), index=units.index, name="population")
     share = pd.Series(covered, index=units.index, name="covered")
     outside = share <= 0
     if outside.any():
@@ -113,10 +202,9 @@ def zonal_population(
             f"{path.name}: {int(partial.sum())} unit(s) only partly covered by valid raster "
             f"cells (share covered): {listed}",
             DataWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
-    pop.attrs["covered"] = share
-    return pop
+    return out, share
 
 
 def population_from_table(
@@ -182,3 +270,108 @@ def require_population(population: pd.Series, counts: pd.DataFrame) -> None:
         raise InputError(
             f"zero or missing population for {int(bad.sum())} unit(s) with cases: {ids}"
         )
+
+
+def covariate_from_table(
+    units: pd.DataFrame,
+    analysis: pd.DataFrame,
+    table: str | os.PathLike[str] | pd.DataFrame,
+    *,
+    id_column: str = "unit_id",
+    value_column: str = "value",
+    name: str = "value",
+) -> pd.Series:
+    """Read a unit-level covariate from a table and put it on the analysis units.
+
+    Rows may name analysis units or units inside them (the districts of a country analysed
+    at province level): those are averaged to their analysis unit weighted by population
+    (an unweighted mean where the districts' population is unknown or zero), so a share or
+    an index keeps its meaning.
+
+    Parameters
+    ----------
+    units : pandas.DataFrame
+        Every unit (both levels) indexed by ``unit_id``, with ``parent_id`` and
+        ``population``.
+    analysis : pandas.DataFrame
+        The analysis units, indexed by ``unit_id``.
+    table : path or pandas.DataFrame
+        A CSV (or a DataFrame) with ``id_column`` and ``value_column``.
+    id_column, value_column : str
+        The columns with the unit id and the value.
+    name : str
+        Name of the returned Series.
+
+    Returns
+    -------
+    pandas.Series
+        One value per analysis unit, indexed by ``unit_id``.
+
+    Raises
+    ------
+    InputError
+        The table cannot be read or lacks a column; a value is not a finite number; an id is
+        listed twice, is in no boundary file, or lies above its analysis unit (a province of
+        a country analysed by district); an analysis unit gets no value. The message names
+        the file, the first bad row (data rows from 1) and the column.
+
+    Examples
+    --------
+    Two districts of province ``P`` (analysed as a whole), 1,000 and 3,000 people:
+    (1000 * 0.2 + 3000 * 0.6) / 4000 = 0.5.
+
+    >>> u = pd.DataFrame({"parent_id": [None, "P", "P"], "population": [4e3, 1e3, 3e3]},
+    ...                  index=["P", "a", "b"])
+    >>> t = pd.DataFrame({"unit_id": ["a", "b"], "value": [0.2, 0.6]})
+    >>> covariate_from_table(u, u.loc[["P"]], t).tolist()
+    [0.5]
+    """
+    from .units import to_analysis_ids
+
+    file = None
+    if isinstance(table, pd.DataFrame):
+        t = table
+    else:
+        file = Path(table)
+        try:
+            t = pd.read_csv(file, dtype={id_column: str})
+        except Exception as exc:  # pandas raises many types for unreadable files
+            raise InputError(f"cannot read the covariate table: {exc}", file=file) from None
+    for c in (id_column, value_column):
+        if c not in t.columns:
+            raise InputError(f"the covariate table has no column {c!r}", file=file, column=c)
+    ids = t[id_column].astype(str).str.strip()
+    vals = pd.to_numeric(t[value_column], errors="coerce")
+    aid = to_analysis_ids(ids, units, analysis)
+    for bad, reason, column, shown in (
+        (~np.isfinite(vals), "the value needs to be a number", value_column,
+         t[value_column]),
+        (ids.duplicated(), "unit id listed twice", id_column, ids),
+        (~ids.isin(units.index), "unit id is in no boundary file", id_column, ids),
+        (aid.isna(), "unit id is coarser than the unit its country is analysed at (give the "
+         "analysis units or the districts inside them)", id_column, ids),
+    ):  # fmt: skip
+        if bad.any():
+            i = int(np.flatnonzero(bad.to_numpy())[0])
+            raise InputError(reason, file=file, row=i + 1, column=column, value=shown.iloc[i])
+    pop = pd.to_numeric(units["population"], errors="coerce") if "population" in units else None
+    w = (
+        ids.map(pop).fillna(0).clip(lower=0).to_numpy(float)
+        if pop is not None
+        else np.zeros(len(ids))
+    )
+    frame = pd.DataFrame({"aid": aid.to_numpy(), "v": vals.to_numpy(float), "w": w})
+    g = frame.assign(vw=frame["v"] * frame["w"]).groupby("aid")
+    wsum = g["w"].sum()
+    mean = (g["vw"].sum() / wsum).where(wsum > 0, g["v"].mean())
+    out = mean.reindex(analysis.index).rename(name)
+    missing = out.index[out.isna()]
+    if len(missing):
+        raise InputError(
+            f"{len(missing)} analysis unit(s) get no value from the covariate table: "
+            + ", ".join(map(str, missing[:10])),
+            file=file,
+            column=id_column,
+            value=str(missing[0]),
+        )
+    return out
