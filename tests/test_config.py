@@ -223,3 +223,52 @@ def test_severe_share_has_one_default(folder: Path) -> None:
 
     assert supplies.DEFAULT_SEVERE_SHARE is config.DEFAULT_SEVERE_SHARE
     assert load_config(write(folder, MINIMAL)).supplies.severe_share == config.DEFAULT_SEVERE_SHARE
+
+
+COVARIATE = '[[risk.covariates]]\nname = "flood"\nraster = "flood.tif"\n'
+
+
+@pytest.mark.parametrize(
+    ("extra", "key", "reason"),
+    [
+        ('[[risk.covariates]]\nname = "flood"\n', "risk.covariates[0]", "exactly one"),
+        (COVARIATE + 'table = "t.csv"\n', "risk.covariates[0]", "exactly one"),
+        (COVARIATE.replace("flood.tif", "none.tif"), "risk.covariates[0].raster", "not found"),
+        (COVARIATE + "colour = 'x'\n", "risk.covariates[0].colour", "unknown key"),
+        (COVARIATE + "id_column = 'code'\n", "risk.covariates[0].id_column", "table"),
+        (COVARIATE.replace('"flood"', '"Flood share"'), "risk.covariates[0].name", "lower-case"),
+        (COVARIATE.replace('"flood"', '"growth"'), "risk.covariates[0].name", "built-in"),
+        (COVARIATE.replace('name = "flood"\n', ""), "risk.covariates[0].name", "required"),
+        (COVARIATE + COVARIATE, "risk.covariates", "unique"),
+        ("[risk]\ncovariates = 'flood.tif'\n", "risk.covariates", "array of tables"),
+    ],
+)
+def test_covariate_mistakes_named(folder: Path, extra: str, key: str, reason: str) -> None:
+    (folder / "flood.tif").write_text("x")
+    (folder / "t.csv").write_text("x")
+    with pytest.raises(ConfigError) as info:
+        load_config(write(folder, MINIMAL + extra))
+    msg = str(info.value)
+    assert f"{key}:" in msg and reason in msg and "scenario.toml" in msg
+
+
+def test_covariates_read_in_order(folder: Path) -> None:
+    (folder / "flood.tif").write_text("x")
+    (folder / "water.csv").write_text("x")
+    text = (
+        MINIMAL
+        + COVARIATE
+        + (
+            '[[risk.covariates]]\nname = "water_access"\ntable = "water.csv"\n'
+            'id_column = "code"\nvalue_column = "share"\n'
+        )
+    )
+    cov = load_config(write(folder, text)).risk.covariates
+    assert [c.name for c in cov] == ["flood", "water_access"]
+    assert cov[0].raster == (folder / "flood.tif").resolve() and cov[0].table is None
+    assert (cov[1].table.name, cov[1].id_column, cov[1].value_column) == (
+        "water.csv",
+        "code",
+        "share",
+    )
+    assert load_config(write(folder, MINIMAL)).risk.covariates == ()

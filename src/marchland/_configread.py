@@ -9,6 +9,7 @@ from __future__ import annotations
 import datetime as _dt
 import glob as _glob
 import math
+import re
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any
@@ -36,6 +37,7 @@ from .config import (
     ReportColumns,
     ReportSpec,
     RiskConfig,
+    RiskCovariate,
     SuppliesConfig,
 )
 from .errors import ConfigError
@@ -388,8 +390,56 @@ def _risk(ctx: _Ctx, raw: Any) -> RiskConfig:
         # TOML has no null: 0 switches re-introduction off, as leaving the key out does.
         "reintroduction_weeks": lambda c, k, v: _nonneg_int(c, k, v) or None,
         "penalty": penalty,
+        "covariates": _covariates,
     }
     return RiskConfig(**_table(ctx, "risk", raw, spec))
+
+
+_COVARIATE_NAME = re.compile(r"[a-z][a-z0-9_]{0,39}")
+
+
+def _covariate_name(ctx: _Ctx, key: str, v: Any) -> str:
+    from ._riskfeatures import EXTRA_FEATURES, FEATURES
+
+    v = _str(ctx, key, v)
+    if not _COVARIATE_NAME.fullmatch(v):
+        raise ctx.error(
+            key,
+            "needs to be lower-case letters, digits and '_', starting with a letter "
+            f"(at most 40). {v!r} was given instead.",
+        )
+    if v in FEATURES + EXTRA_FEATURES:
+        raise ctx.error(key, f"is the name of a built-in feature; choose another. {v!r} given.")
+    return v
+
+
+def _covariate(ctx: _Ctx, key: str, raw: Any) -> RiskCovariate:
+    spec = {
+        "name": _covariate_name,
+        "raster": _existing_path,
+        "table": _existing_path,
+        "id_column": _str,
+        "value_column": _str,
+    }
+    d = _table(ctx, key, raw, spec, required=("name",))
+    if (d.get("raster") is None) == (d.get("table") is None):
+        raise ctx.error(key, "needs exactly one of 'raster' or 'table'.")
+    if d.get("raster") is not None:
+        extra = [k for k in ("id_column", "value_column") if k in d]
+        if extra:
+            raise ctx.error(f"{key}.{extra[0]}", "belongs to a 'table' covariate, not a raster.")
+    return RiskCovariate(**d)
+
+
+def _covariates(ctx: _Ctx, key: str, v: Any) -> tuple[RiskCovariate, ...]:
+    if not isinstance(v, list):
+        raise ctx.error(key, f"needs to be an array of tables ([[{key}]]).")
+    out = tuple(_covariate(ctx, f"{key}[{i}]", t) for i, t in enumerate(v))
+    names = [c.name for c in out]
+    dup = sorted({n for n in names if names.count(n) > 1})
+    if dup:
+        raise ctx.error(key, f"covariate names must be unique; {dup} repeated.")
+    return out
 
 
 def _supplies(ctx: _Ctx, raw: Any) -> SuppliesConfig:

@@ -164,13 +164,30 @@ class AnalysisConfig:
 
 
 @dataclass(frozen=True)
+class RiskCovariate:
+    """One ``[[risk.covariates]]`` table: an extra unit-level feature of the border-risk model.
+
+    ``name`` becomes the model feature and its ``part_<name>`` column. The value comes from a
+    ``raster`` (the area-weighted zonal mean over each analysis unit, nodata left out) or a
+    ``table`` (``id_column``, ``value_column``; district rows of a country analysed by
+    province are averaged to the province, weighted by population).
+    """
+
+    name: str
+    raster: Path | None = None
+    table: Path | None = None
+    id_column: str = "unit_id"
+    value_column: str = "value"
+
+
+@dataclass(frozen=True)
 class RiskConfig:
     """``[risk]``: horizon, silence threshold, top-k for hits, and the model's options.
 
     ``recent_weeks``, ``reintroduction_weeks`` and ``penalty`` are the keyword options of
     :func:`marchland.risk.border_risk` of the same names, with the same defaults.
     ``reintroduction_weeks`` is ``None`` (TOML: 0 or absent) for "off": only never-affected units
-    are candidates.
+    are candidates. ``covariates`` are the ``[[risk.covariates]]`` tables, in order.
     """
 
     horizon_weeks: int = 4
@@ -184,6 +201,8 @@ class RiskConfig:
     reintroduction_weeks: int | None = None
     # Ridge penalty on the standardised coefficients; 0 is the plain maximum-likelihood fit.
     penalty: float = 1.0
+    # Extra features from rasters or tables; none by default.
+    covariates: tuple[RiskCovariate, ...] = ()
 
 
 #: Share of cases planned as severe when the config gives none. An assumed planning value
