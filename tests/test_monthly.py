@@ -37,3 +37,39 @@ def test_reports_received_after_as_of_change_nothing_in_the_month(world):
         a, b = getattr(plain, name), getattr(leaky, name)
         assert a is not None, name
         pd.testing.assert_frame_equal(a, b, obj=name)
+
+
+def test_config_covariates_reach_the_score_and_the_backtest(world, tmp_path):
+    # A table covariate on the grid's districts (the column number, east-west), named in the
+    # config: the risk table gets its part and value, and the backtest is given the same table.
+    from month_world import _ids
+
+    from marchland import risk as risk_module
+
+    (tmp_path / "east.csv").write_text(
+        "code,col\n" + "".join(f"{uid},{i}\n" for i, _j, _c, _p, uid in _ids())
+    )
+    text = world.read_text().replace(
+        "[risk]\n",
+        f'[[risk.covariates]]\nname = "east"\ntable = "{(tmp_path / "east.csv").as_posix()}"\n'
+        'id_column = "code"\nvalue_column = "col"\n\n[risk]\n',
+    )
+    cfg_path = world.parent / "world_cov.toml"
+    cfg_path.write_text(text)
+    seen = []
+    original = risk_module.run_backtest
+
+    def spy(*args, **kw):
+        seen.append(kw.get("covariates"))
+        return original(*args, **kw)
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(risk_module, "run_backtest", spy)
+        res = _run(cfg_path, fake_region)
+    risk = res.risk
+    assert "part_east" in risk.columns and "east" in risk.columns
+    col = {uid: i for i, _j, _c, _p, uid in _ids()}
+    assert risk["east"].to_dict() == {u: float(col[u]) for u in risk.index}
+    assert "east" in risk.attrs["coefficients"]
+    assert len(seen) == 1 and seen[0] is not None
+    assert seen[0]["east"].to_dict() == {u: float(v) for u, v in col.items()}

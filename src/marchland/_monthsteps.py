@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import importlib
 import warnings
+from functools import cached_property
 from typing import Any
 
 import pandas as pd
@@ -62,6 +63,11 @@ class _Context:
                 stacklevel=2,
             )
         self.seed = cfg.region.seed
+
+    @cached_property
+    def covariates(self) -> pd.DataFrame | None:
+        """The ``[[risk.covariates]]`` table, built once for the risk and backtest steps."""
+        return risk_covariates(self.cfg, self.region)
 
     # -- rates -----------------------------------------------------------------------------
     def rates(self) -> dict[str, Any]:
@@ -217,6 +223,7 @@ class _Context:
             self.graph,
             as_of=self.as_of,
             silent_weeks=c.silent_weeks,
+            covariates=self.covariates,
             **risk_options(c),
         )
         return {"risk": risk}
@@ -233,6 +240,7 @@ class _Context:
             as_of=self.as_of,
             top_k=c.top_k,
             n_jobs=1,
+            covariates=self.covariates,
             **risk_options(c),
         )
         return {"backtest": bt.summary, "backtest_by_country": bt.by_country}
@@ -280,6 +288,36 @@ def risk_options(c: Any) -> dict[str, Any]:
         "min_events": c.min_events,
         "penalty": c.penalty,
     }
+
+
+def risk_covariates(cfg: Config, region: Any) -> pd.DataFrame | None:
+    """Build the border-risk covariates of ``[[risk.covariates]]`` on the analysis units.
+
+    A raster gives the area-weighted zonal mean over each analysis unit; a table is read
+    through :func:`marchland.population.covariate_from_table`. ``None`` when there are none.
+    """
+    if not cfg.risk.covariates:
+        return None
+    from .population import covariate_from_table, zonal_mean
+
+    units = region.units
+    all_units = getattr(region, "all_units", None)
+    cols = {}
+    for cv in cfg.risk.covariates:
+        if cv.raster is not None:
+            cols[cv.name] = zonal_mean(units, cv.raster, name=cv.name)
+        else:
+            cols[cv.name] = covariate_from_table(
+                all_units if all_units is not None else units,
+                units,
+                cv.table,
+                id_column=cv.id_column,
+                value_column=cv.value_column,
+                name=cv.name,
+            )
+    out = pd.DataFrame(cols, index=units.index)
+    out.index.name = "unit_id"
+    return out
 
 
 def province_of(units: pd.DataFrame) -> pd.Series:

@@ -29,7 +29,7 @@ from typing import Any
 
 import pandas as pd
 
-from ._monthsteps import _Absent, _Context, _need, risk_options
+from ._monthsteps import _Absent, _Context, _need, risk_covariates, risk_options
 from ._weeks import week_month
 from .config import Config, load_config
 from .errors import DataWarning, InputError
@@ -468,6 +468,11 @@ def backtest_table(config: Config | str | os.PathLike[str]) -> tuple[pd.DataFram
     rk = _need("risk", "run_backtest")
     c = cfg.risk
     bt = rk.run_backtest(
-        region.counts, region.units, region.graph, top_k=c.top_k, **risk_options(c)
+        region.counts,
+        region.units,
+        region.graph,
+        top_k=c.top_k,
+        covariates=risk_covariates(cfg, region),
+        **risk_options(c),
     )
     return bt.summary, bt.by_country
