@@ -4,7 +4,8 @@ Covered: regeneration from the seed gives the committed files (text byte for byt
 content); each country's districts tile exactly; international borders really mismatch (some
 true neighbours do not touch, none lies further than 300 m) while non-neighbours across a
 border stay further than 300 m; the island has no land neighbour within 300 m; district
-populations lie in 5,000-900,000; the outbreak reaches all four countries and its truth tables
+populations lie in 5,000-900,000; the flood-share layer is a share, covers every district, and
+is higher along the Senn; the outbreak reaches all four countries and its truth tables
 agree with each other; every recorded dirty row is in its file and is dirty for its reason;
 Quillany's week numbers agree with the epiweeks package (an outside reference).
 """
@@ -173,6 +174,21 @@ def test_district_populations_are_in_range():
     with rasterio.open(DATA / "population.tif") as r:
         assert r.nodata is not None and r.dtypes[0] == "float32"
         assert r.profile["compress"] == "deflate"
+
+
+def test_flood_share_is_a_share_and_higher_along_the_senn():
+    from marchland.population import zonal_mean
+
+    with rasterio.open(DATA / "flood_share.tif") as src:
+        a = src.read(1, masked=True)
+        assert src.profile["compress"] == "deflate"
+    assert a.min() >= 0 and a.max() <= 1
+    mean = zonal_mean(_adm2(), DATA / "flood_share.tif")  # warns if a district is not covered
+    river = pd.read_csv(TRUTH / "districts.csv", index_col="unit_id")["river"].reindex(mean.index)
+    assert river.notna().all()
+    on, off = mean[river.astype(bool)].to_numpy(), mean[~river.astype(bool)].to_numpy()
+    # Invented data: the layer was drawn that way, so this is a property, not a statistic.
+    assert np.median(on) > 3 * np.median(off)
 
 
 def test_outbreak_truth_is_consistent():

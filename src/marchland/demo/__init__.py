@@ -12,6 +12,8 @@ Files written under ``root``:
 - ``boundaries/``: each country's admin-1 and admin-2 file, in its own format and CRS, digitised
   so that neighbouring countries' borders do not line up (gaps and overlaps of up to ~270 m).
 - ``demo_data/population.tif``: people per ~1 km cell.
+- ``demo_data/flood_share.tif``: share of each cell flooded in the wet season (a border-risk
+  covariate), high along the Senn and the lake shore; drawn from the geometry alone.
 - ``demo_data/reports/``: the four countries' report files, with deliberate dirt.
 - ``demo_data/links.csv``, ``aliases.csv``, ``depots.csv``, ``supply_items.csv``.
 - ``demo_data/truth/``: what really happened (incidence, force of infection, first cases and

@@ -43,6 +43,38 @@ def _grid_xy():
     return x, y, area_km2
 
 
+def _water(world: World, labels: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Lake cells, and each cell's distance (m) to the Senn and to the lake shore."""
+    transform = _TRANSFORM
+    to_ll = pyproj.Transformer.from_crs(GEN_CRS, "EPSG:4326", always_xy=True)
+    lake_ll = shapely.transform(
+        world.lake, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1]))
+    )
+    lake = rasterize(
+        [(lake_ll, 1)], out_shape=(NROW, NCOL), transform=transform, fill=0, dtype="uint8"
+    ).astype(bool) & (labels < 0)
+    # Distances to the Senn and the lake shore by a Euclidean distance transform on the grid
+    # (cell sizes in metres), much faster than exact point-to-line distances and as good here.
+    sampling = (CELL_DEG * 110_570.0, CELL_DEG * 111_320.0 * np.cos(np.radians(-15.5)))
+    river_ll, arm_ll, shore_ll = (
+        shapely.transform(g, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1])))
+        for g in (world.river, world.arm, world.lake.exterior)
+    )
+    on_river = rasterize(
+        [river_ll, arm_ll],
+        out_shape=(NROW, NCOL),
+        transform=transform,
+        all_touched=True,
+        dtype="uint8",
+    )
+    on_shore = rasterize(
+        [shore_ll], out_shape=(NROW, NCOL), transform=transform, all_touched=True, dtype="uint8"
+    )
+    d_river = distance_transform_edt(on_river == 0, sampling=sampling)
+    d_lake = distance_transform_edt(on_shore == 0, sampling=sampling)
+    return lake, d_river, d_lake
+
+
 def build_population(world: World, rng: np.random.Generator) -> Population:
     """Simulate people per cell and their district totals.
 
@@ -69,31 +101,7 @@ def build_population(world: World, rng: np.random.Generator) -> Population:
         fill=-1,
         dtype="int32",
     )
-    lake_ll = shapely.transform(
-        world.lake, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1]))
-    )
-    lake = rasterize(
-        [(lake_ll, 1)], out_shape=(NROW, NCOL), transform=transform, fill=0, dtype="uint8"
-    ).astype(bool) & (labels < 0)
-    # Distances to the Senn and the lake shore by a Euclidean distance transform on the grid
-    # (cell sizes in metres), much faster than exact point-to-line distances and as good here.
-    sampling = (CELL_DEG * 110_570.0, CELL_DEG * 111_320.0 * np.cos(np.radians(-15.5)))
-    river_ll, arm_ll, shore_ll = (
-        shapely.transform(g, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1])))
-        for g in (world.river, world.arm, world.lake.exterior)
-    )
-    on_river = rasterize(
-        [river_ll, arm_ll],
-        out_shape=(NROW, NCOL),
-        transform=transform,
-        all_touched=True,
-        dtype="uint8",
-    )
-    on_shore = rasterize(
-        [shore_ll], out_shape=(NROW, NCOL), transform=transform, all_touched=True, dtype="uint8"
-    )
-    d_river = distance_transform_edt(on_river == 0, sampling=sampling)
-    d_lake = distance_transform_edt(on_shore == 0, sampling=sampling)
+    lake, d_river, d_lake = _water(world, labels)
     # Countryside: 4-40 people per km2 varying smoothly; more along the Senn and the lake.
     waves = sum(
         np.cos(x / rng.uniform(2e4, 8e4) + rng.uniform(0, 6.3))
@@ -147,8 +155,48 @@ def build_population(world: World, rng: np.random.Generator) -> Population:
     return Population(values, labels, totals, towns)
 
 
+def build_flood(world: World, labels: np.ndarray) -> np.ndarray:
+    """Share of each cell flooded in the wet season: high along the Senn and the lake shore.
+
+    Drawn from the geometry alone (no random numbers), so adding the layer leaves the seeded
+    stream, and with it the outbreak, unchanged. It is one reason the simulation couples river
+    districts more strongly: low ground along the Senn floods and mixes water sources.
+    Water cells next to land take the nearest land cell's value (as the population raster
+    holds 0 there), so a district outline running a little past the shore stays covered.
+    """
+    x, y, _ = _grid_xy()
+    lake, d_river, d_lake = _water(world, labels)
+    land = labels >= 0
+    # Low ground: a gentle fixed swell, so the share is not a function of distance alone.
+    low = 0.5 + 0.5 * np.cos(x / 47_000 + 1.3) * np.cos(y / 39_000 + 0.4)
+    share = (
+        0.02
+        + 0.05 * low
+        + 0.55 * np.exp(-((d_river / 2_500) ** 2))
+        + 0.2 * np.exp(-((d_river / 9_000) ** 2))
+        + 0.45 * np.exp(-((d_lake / 3_000) ** 2))
+    )
+    share = np.round(np.clip(share, 0.0, 1.0), 2)
+    _, (ri, ci) = distance_transform_edt(~land, return_indices=True)
+    nearest = share[ri, ci]
+    near = (binary_dilation(land, iterations=3) | lake) & ~land
+    out = np.full(share.shape, NODATA)
+    out[land] = share[land]
+    out[near] = nearest[near]
+    return out.astype("float32")
+
+
+def write_flood(values: np.ndarray, path: Path) -> None:
+    """Write the flood-share grid beside the population raster (same grid and format)."""
+    _write_grid(values, path, "share of each cell flooded in the wet season, fictional scenario")
+
+
 def write_raster(pop: Population, path: Path) -> None:
     """Write the raster as a deflate-compressed float32 GeoTIFF in EPSG:4326."""
+    _write_grid(pop.values, path, "people per cell, fictional Senn basin scenario")
+
+
+def _write_grid(values: np.ndarray, path: Path, description: str) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     profile = dict(
         driver="GTiff",
@@ -166,5 +214,5 @@ def write_raster(pop: Population, path: Path) -> None:
         blockysize=256,
     )
     with rasterio.open(path, "w", **profile) as dst:
-        dst.write(pop.values, 1)
-        dst.update_tags(description="people per cell, fictional Senn basin scenario")
+        dst.write(values, 1)
+        dst.update_tags(description=description)

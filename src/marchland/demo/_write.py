@@ -9,7 +9,7 @@ import pandas as pd
 import pyproj
 
 from ._boundaries import country_copies, write_boundaries
-from ._population import write_raster
+from ._population import build_flood, write_flood, write_raster
 from ._reports import (
     DIRT_COLUMNS,
     reported_counts,
@@ -65,6 +65,7 @@ def write_all(root: Path) -> dict:
     copies = country_copies(sc.world, rng)
     write_boundaries(sc.world, copies, root / "boundaries")
     write_raster(sc.population, data / "population.tif")
+    write_flood(build_flood(sc.world, sc.population.labels), data / "flood_share.tif")
 
     cases, deaths = reported_counts(sc, rng)
     dirt: list[dict] = []
