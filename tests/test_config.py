@@ -272,3 +272,26 @@ def test_covariates_read_in_order(folder: Path) -> None:
         "share",
     )
     assert load_config(write(folder, MINIMAL)).risk.covariates == ()
+
+
+def test_country_names_one_per_code(folder: Path) -> None:
+    named = MINIMAL.replace('country = "TVR"\n', 'country = " tvr "\ncountry_name = "Tavrenne"\n')
+    cfg = load_config(write(folder, named))
+    assert cfg.boundaries[0].country == "TVR"
+    assert cfg.country_names == {"TVR": "Tavrenne"}
+    assert cfg.country_label("TVR") == "Tavrenne (TVR)" and cfg.country_label("OSK") == "OSK"
+    assert load_config(write(folder, MINIMAL)).country_names == {}
+    second = (
+        '\n[[boundaries]]\npath = "b.gpkg"\nid = "code"\nname = "name"\ncountry = "TVR"\n'
+        'level = 1\ncountry_name = "{}"\n'
+    )
+    # The same name again is fine; a second name for the code is refused by key path.
+    same = load_config(write(folder, named + second.format("Tavrenne")))
+    assert same.country_names == {"TVR": "Tavrenne"}
+    with pytest.raises(ConfigError, match=r"boundaries\[1\]\.country_name: country TVR is named"):
+        load_config(write(folder, named + second.format("Tavrene")))
+    by_column = MINIMAL.replace(
+        'country = "TVR"\n', 'country_column = "iso"\ncountry_name = "Tavrenne"\n'
+    )
+    with pytest.raises(ConfigError, match=r"boundaries\[0\]\.country_name: needs a fixed"):
+        load_config(write(folder, by_column))

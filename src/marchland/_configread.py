@@ -253,10 +253,20 @@ def _boundary(ctx: _Ctx, key: str, raw: Any) -> BoundarySource:
         "level": _one_of(LEVELS),
         "level_column": _opt_str,
         "parent": _opt_str,
+        "country_name": _opt_str,
     }
     d = _table(ctx, key, raw, spec, required=("path", "id", "name"))
     if (d.get("country") is None) == (d.get("country_column") is None):
         raise ctx.error(key, "needs exactly one of 'country' (a code) or 'country_column'.")
+    if d.get("country") is not None:
+        # The code as units.read_units reads it, so names and units agree.
+        d["country"] = d["country"].strip().upper()
+    if d.get("country_name") is not None:
+        if d.get("country") is None:
+            raise ctx.error(
+                f"{key}.country_name", "needs a fixed 'country' code (not 'country_column')."
+            )
+        d["country_name"] = d["country_name"].strip()
     if d.get("level") is None and d.get("level_column") is None:
         raise ctx.error(key, "needs 'level' (1 or 2) or 'level_column'.")
     return BoundarySource(**d)
@@ -491,6 +501,17 @@ def from_dict(raw: dict, path: Path | None, base: Path) -> Config:
     boundaries = array("boundaries", _boundary)
     if not boundaries:
         raise ctx.error("boundaries", "needs at least one [[boundaries]] table.")
+    named: dict[str, str] = {}
+    for i, b in enumerate(boundaries):
+        if b.country_name is None:
+            continue
+        first = named.setdefault(b.country, b.country_name)
+        if first != b.country_name:
+            raise ctx.error(
+                f"boundaries[{i}].country_name",
+                f"country {b.country} is named {first!r} in an earlier [[boundaries]] table; "
+                f"{b.country_name!r} was given here. Give one name per country code.",
+            )
     reports = array("reports", _report)
     names = [r.name for r in reports]
     dup = sorted({n for n in names if names.count(n) > 1})

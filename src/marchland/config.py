@@ -58,7 +58,8 @@ class BoundarySource:
     """One ``[[boundaries]]`` table: a boundary file and how its columns map to ours.
 
     ``country`` is a fixed code or ``country_column`` names a column; likewise ``level`` or
-    ``level_column``. ``parent`` names the column with the parent unit's id.
+    ``level_column``. ``parent`` names the column with the parent unit's id. ``country_name``
+    is the country's name for maps and the report (with a fixed ``country`` only).
     """
 
     path: Path
@@ -70,6 +71,7 @@ class BoundarySource:
     level: int | None = None
     level_column: str | None = None
     parent: str | None = None
+    country_name: str | None = None
 
 
 @dataclass(frozen=True)
@@ -264,6 +266,28 @@ class Config:
     def base_dir(self) -> Path:
         """The folder relative paths are resolved against."""
         return self.path.parent if self.path is not None else Path.cwd()
+
+    @property
+    def country_names(self) -> dict[str, str]:
+        """Country code -> name, from the ``country_name`` of the ``[[boundaries]]`` tables."""
+        return {
+            b.country: b.country_name
+            for b in self.boundaries
+            if b.country is not None and b.country_name is not None
+        }
+
+    def country_label(self, code: str) -> str:
+        """Return ``"Name (CODE)"`` for a country with a name in the config, else the code.
+
+        Examples
+        --------
+        >>> from marchland.demo import scenario_path
+        >>> cfg = load_config(scenario_path())
+        >>> cfg.country_label("TVR"), cfg.country_label("XYZ")
+        ('Tavrenne (TVR)', 'XYZ')
+        """
+        name = self.country_names.get(str(code))
+        return f"{name} ({code})" if name else str(code)
 
 
 def load_config(path: str | os.PathLike[str] | Config) -> Config:
