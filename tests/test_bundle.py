@@ -376,3 +376,49 @@ def test_supply_totals_per_depot_catchment_add_up_to_the_country_totals(result, 
     assigned = result.depot_assignment["depot"].value_counts()
     got = by_depot["units"].drop("(none)", errors="ignore")
     assert got.sort_index().astype(int).tolist() == assigned.sort_index().tolist()
+
+
+def test_country_names_reach_maps_and_country_tables(world, monkeypatch):
+    # The grid world's boundary file carries both countries (country_column), which cannot
+    # take a country_name; give the names through two fixed-code [[boundaries]] entries.
+    import dataclasses
+
+    from marchland import _figures, _report, maps
+    from marchland.config import BoundarySource, load_config
+
+    cfg = load_config(world)
+    extra = tuple(
+        BoundarySource(path=cfg.boundaries[1].path, id="code", name="name", level=2, country=c,
+                       country_name=n)
+        for c, n in (("AAA", "Aland"), ("BBB", "Bellmark"))
+    )  # fmt: skip
+    cfg = dataclasses.replace(cfg, boundaries=cfg.boundaries + extra)
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    res = monthly.run_month(cfg, "2026-10")
+    countries = res.rates_by_area[res.rates_by_area["level"] == "country"]
+    assert set(countries["name"]) == {"Aland (AAA)", "Bellmark (BBB)"}
+    assert set(countries["group"]) == {"AAA", "BBB"}
+    html = _report.render_report(res, {})
+    for table in ("Countries: the month", "Speed of spread by country", "Totals per country"):
+        part = html[html.index(table) : html.index("</table>", html.index(table))]
+        shown = {c for c in ("Aland (AAA)", "Bellmark (BBB)") if c in part}
+        assert shown and ">AAA<" not in part and ">BBB<" not in part, table
+    # (The grid region has no completeness table; the demo's is labelled the same way.)
+    assert "Aland (AAA)" in _figures.source_line(res)
+    seen = {}
+    real = maps.base_map
+
+    def spy(units, **kw):
+        seen.update(kw)
+        return real(units, **kw)
+
+    monkeypatch.setattr(maps, "base_map", spy)
+    figures = _figures.draw_figures(res)
+    name, fig, _caption = next(figures)
+    figures.close()
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)
+    assert seen["country_names"] == {"AAA": "Aland", "BBB": "Bellmark"}
+    texts = {t.get_text() for ax in fig.axes for t in ax.texts}
+    assert {"Aland", "Bellmark"} <= texts

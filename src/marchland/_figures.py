@@ -22,7 +22,9 @@ if TYPE_CHECKING:  # pragma: no cover
 def source_line(result: MonthResult) -> str:
     """Return the data-source line of every figure."""
     names = [r.name for r in result.config.reports]
-    countries = sorted({r.country for r in result.config.reports})
+    countries = [
+        result.config.country_label(c) for c in sorted({r.country for r in result.config.reports})
+    ]
     return (
         f"Source: weekly reports from {', '.join(countries)} ({len(names)} report sources) "
         "as received by the as-of date."
@@ -48,7 +50,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     Figures are yielded one at a time and closed by the caller's saving, so memory stays flat.
     """
     notes = notes_for(result)
-    base = maps.base_map(result.units)
+    base = maps.base_map(result.units, country_names=result.config.country_names)
     month = _month_label(result.month)
 
     if result.rates is not None:
@@ -280,7 +282,8 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
         f"Weekly reported cases (bars) and deaths (line) for the whole region; {shaded}.",
     )
     units = result.units
-    countries = weekly_by(result, units["country"])
+    label = result.config.country_label
+    countries = {label(c): w for c, w in weekly_by(result, units["country"]).items()}
     yield (
         "epi_countries",
         maps.epi_curves(
@@ -312,9 +315,9 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
                 notes,
                 as_of=as_of,
                 delay_weeks=delay,
-                title=f"Weekly cases and deaths by province, {country}",
+                title=f"Weekly cases and deaths by province, {label(country)}",
                 ncols=3,
                 week_days=week_days,
             ),
-            f"Weekly reported cases and deaths per province of {country}; {shaded}.",
+            f"Weekly reported cases and deaths per province of {label(country)}; {shaded}.",
         )

@@ -128,7 +128,7 @@ class _Context:
             index=units.index,
         )
         agg = r.aggregate_rates(wc["cases"][windows], pop, groups)
-        by_area = _flatten_areas(agg, windows, self.region)
+        by_area = _flatten_areas(agg, windows, self.region, self.cfg)
         return {"rates": table, "rates_history": history, "rates_by_area": by_area}
 
     # -- hotspots --------------------------------------------------------------------------
@@ -326,11 +326,13 @@ def province_of(units: pd.DataFrame) -> pd.Series:
     return parent.fillna(pd.Series(units.index, index=units.index)).astype(str)
 
 
-def _flatten_areas(agg: pd.DataFrame, windows: list[str], region: Any) -> pd.DataFrame:
+def _flatten_areas(agg: pd.DataFrame, windows: list[str], region: Any, cfg: Config) -> pd.DataFrame:
     names = {}
     all_units = getattr(region, "all_units", None)
     if all_units is not None and "name" in all_units:
         names = all_units["name"].to_dict()
+    # Countries by name with their code ("Tavrenne (TVR)"), as the config names them.
+    names.update({c: cfg.country_label(c) for c in cfg.country_names})
     frames = []
     for w in windows:
         part = agg[w].reset_index()

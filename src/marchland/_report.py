@@ -243,6 +243,11 @@ def _absent(result: MonthResult, *steps: str) -> str:
     return "".join(msgs)
 
 
+def _by_country_label(result: MonthResult, df: pd.DataFrame) -> pd.DataFrame:
+    """Index a country table by "Name (CODE)" where the config names the country."""
+    return df.rename(index=lambda c: result.config.country_label(c))
+
+
 def _names(result: MonthResult, df: pd.DataFrame) -> pd.DataFrame:
     add = [c for c in ("name", "country") if c not in df.columns]
     if not add:
@@ -370,6 +375,7 @@ def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         )
         if v.by_group is not None and len(v.by_group):
             by = v.by_group.reset_index(level="group").rename(columns={"group": "country"})
+            by["country"] = by["country"].map(result.config.country_label)
             body += (
                 "<h3>Speed of spread by country</h3>"
                 + table_html(
@@ -537,7 +543,9 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             kinds={"covered_population": "int", "covered_weight": "int"},
         )
     if result.supply_totals is not None:
-        body += "<h3>Totals per country</h3>" + table_html(result.supply_totals, index="country")
+        body += "<h3>Totals per country</h3>" + table_html(
+            _by_country_label(result, result.supply_totals), index="country"
+        )
     if result.supply_totals_by_depot is not None:
         body += (
             "<h3>Totals per depot catchment</h3><p>Each candidate district counted at its nearest "
@@ -605,7 +613,9 @@ def _quality_section(result: MonthResult) -> str:
             '<h3>Reporting completeness by country</h3><p class="note">Share of the expected '
             "unit-weeks that were reported (a reported zero counts; a missing week does not); "
             "gap weeks are weeks with no report at all from the country.</p>"
-            + table_html(by_country, index="country", kinds={"share": "pct"})
+            + table_html(
+                _by_country_label(result, by_country), index="country", kinds={"share": "pct"}
+            )
         )
     comp = result.completeness
     if isinstance(comp, pd.DataFrame) and len(comp) and "share" in comp:
