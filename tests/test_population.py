@@ -254,9 +254,18 @@ def test_covariate_table_bad_rows_named(
 def test_covariate_table_missing_units_and_columns(tmp_path: Path) -> None:
     units, analysis = _two_level()
     csv = tmp_path / "part.csv"
-    csv.write_text("code,share\na,0.2\nc,0.1\n")
+    csv.write_text("code,share\nP,0.2\nc,0.1\n")
     with pytest.raises(InputError, match=r"1 analysis unit\(s\) get no value.*: d"):
         covariate_from_table(units, analysis, csv, id_column="code", value_column="share")
     with pytest.raises(InputError, match="no column 'value'") as info:
         covariate_from_table(units, analysis, csv, id_column="code")
     assert info.value.column == "value"
+
+
+def test_covariate_table_warns_when_a_province_has_only_some_districts(tmp_path: Path) -> None:
+    units, analysis = _two_level()
+    csv = tmp_path / "some.csv"
+    csv.write_text("code,share\na,0.2\nc,0.1\nd,0.9\n")
+    with pytest.warns(DataWarning, match=r"some\.csv: 1 analysis unit\(s\).*P \(1 of 2\)"):
+        s = covariate_from_table(units, analysis, csv, id_column="code", value_column="share")
+    assert s.tolist() == pytest.approx([0.2, 0.1, 0.9])

@@ -286,7 +286,8 @@ def covariate_from_table(
     Rows may name analysis units or units inside them (the districts of a country analysed
     at province level): those are averaged to their analysis unit weighted by population
     (an unweighted mean where the districts' population is unknown or zero), so a share or
-    an index keeps its meaning.
+    an index keeps its meaning. A province whose districts are listed only in part is
+    averaged over those listed, with a :class:`~marchland.errors.DataWarning`.
 
     Parameters
     ----------
@@ -360,6 +361,20 @@ def covariate_from_table(
         if pop is not None
         else np.zeros(len(ids))
     )
+    up = (aid != ids).to_numpy()
+    if up.any():
+        # A province averaged over only some of its districts is said, not silently accepted.
+        listed = ids[up].groupby(aid[up].to_numpy()).nunique()
+        members = units["parent_id"].value_counts().reindex(listed.index)
+        short = listed[listed < members]
+        if len(short):
+            what = ", ".join(f"{p} ({n} of {members[p]})" for p, n in short.items())
+            warnings.warn(
+                f"{file.name if file is not None else 'covariate table'}: {len(short)} "
+                f"analysis unit(s) averaged over only some of their districts: {what}",
+                DataWarning,
+                stacklevel=2,
+            )
     frame = pd.DataFrame({"aid": aid.to_numpy(), "v": vals.to_numpy(float), "w": w})
     g = frame.assign(vw=frame["v"] * frame["w"]).groupby("aid")
     wsum = g["w"].sum()
