@@ -22,9 +22,9 @@ if TYPE_CHECKING:  # pragma: no cover
 def source_line(result: MonthResult) -> str:
     """Return the data-source line of every figure."""
     names = [r.name for r in result.config.reports]
-    countries = [
-        result.config.country_label(c) for c in sorted({r.country for r in result.config.reports})
-    ]
+    # Codes, not names: the line is drawn unwrapped under every figure and must fit (the maps
+    # carry the names).
+    countries = sorted({r.country for r in result.config.reports})
     return (
         f"Source: weekly reports from {', '.join(countries)} ({len(names)} report sources) "
         "as received by the as-of date."
