@@ -73,3 +73,19 @@ def test_config_covariates_reach_the_score_and_the_backtest(world, tmp_path):
     assert "east" in risk.attrs["coefficients"]
     assert len(seen) == 1 and seen[0] is not None
     assert seen[0]["east"].to_dict() == {u: float(v) for u, v in col.items()}
+
+
+def test_a_bad_covariate_table_stops_the_run(world, tmp_path):
+    from marchland.errors import InputError
+
+    (tmp_path / "bad.csv").write_text("code,col\nAAA-01-0000,1\nZZZ-9,2\n")
+    text = world.read_text().replace(
+        "[risk]\n",
+        f'[[risk.covariates]]\nname = "east"\ntable = "{(tmp_path / "bad.csv").as_posix()}"\n'
+        'id_column = "code"\nvalue_column = "col"\n\n[risk]\n',
+    )
+    cfg_path = world.parent / "world_bad_cov.toml"
+    cfg_path.write_text(text)
+    with pytest.raises(InputError, match="in no boundary file") as info:
+        _run(cfg_path, fake_region)
+    assert (info.value.row, info.value.column) == (2, "code")

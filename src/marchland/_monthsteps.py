@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import importlib
 import warnings
-from functools import cached_property
 from typing import Any
 
 import pandas as pd
@@ -63,11 +62,10 @@ class _Context:
                 stacklevel=2,
             )
         self.seed = cfg.region.seed
-
-    @cached_property
-    def covariates(self) -> pd.DataFrame | None:
-        """The ``[[risk.covariates]]`` table, built once for the risk and backtest steps."""
-        return risk_covariates(self.cfg, self.region)
+        # Built once for the risk and backtest steps, here rather than inside a step: a bad
+        # covariate file is an input mistake that stops the run, not a statistic the month's
+        # data cannot carry.
+        self.covariates = risk_covariates(cfg, region)
 
     # -- rates -----------------------------------------------------------------------------
     def rates(self) -> dict[str, Any]:
