@@ -190,3 +190,29 @@ def test_week_conventions_line_up_with_the_simulated_truth(region: Region) -> No
             )
             corr[lag] = m["cases"].astype(float).corr(m["cases_true"].astype(float))
         assert corr[0] > max(corr[-1], corr[1]), (c, corr)
+
+
+def test_check_opens_the_risk_covariates_as_the_run_will(tmp_path):
+    from dataclasses import replace
+
+    from marchland.config import RiskCovariate
+    from marchland.demo import scenario_path
+
+    cfg = load_config(scenario_path())
+    report = check(cfg)
+    rows = report.sources[report.sources["kind"] == "covariate"]
+    assert len(rows) == len(cfg.risk.covariates) >= 1
+    assert (rows["status"] == "ok").all()
+    assert "196 units" in rows["message"].iloc[0]
+
+    # A table naming a unit no boundary file holds: check says so, by file, row and column.
+    bad = tmp_path / "access.csv"
+    bad.write_text("unit_id,share\nTVR-01-01,0.5\nNOWHERE-99,0.2\n")
+    cv = RiskCovariate(name="access", table=bad, id_column="unit_id", value_column="share")
+    broken = replace(cfg, risk=replace(cfg.risk, covariates=(cv,)))
+    report = check(broken)
+    row = report.sources.loc["covariate access"]
+    assert row["status"] == "error"
+    assert "access.csv" in row["message"] and "row 2" in row["message"]
+    assert "NOWHERE-99" in row["message"]
+    assert not report.ok

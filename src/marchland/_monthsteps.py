@@ -296,23 +296,11 @@ def risk_covariates(cfg: Config, region: Any) -> pd.DataFrame | None:
     """
     if not cfg.risk.covariates:
         return None
-    from .population import covariate_from_table, zonal_mean
+    from .population import covariate_values
 
     units = region.units
     all_units = getattr(region, "all_units", None)
-    cols = {}
-    for cv in cfg.risk.covariates:
-        if cv.raster is not None:
-            cols[cv.name] = zonal_mean(units, cv.raster, name=cv.name)
-        else:
-            cols[cv.name] = covariate_from_table(
-                all_units if all_units is not None else units,
-                units,
-                cv.table,
-                id_column=cv.id_column,
-                value_column=cv.value_column,
-                name=cv.name,
-            )
+    cols = {cv.name: covariate_values(cv, units, all_units) for cv in cfg.risk.covariates}
     out = pd.DataFrame(cols, index=units.index)
     out.index.name = "unit_id"
     return out

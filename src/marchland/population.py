@@ -390,3 +390,46 @@ def covariate_from_table(
             value=str(missing[0]),
         )
     return out
+
+
+def covariate_values(covariate, analysis, all_units=None) -> pd.Series:
+    """Values of one ``[[risk.covariates]]`` entry on the analysis units.
+
+    A raster gives the area-weighted zonal mean over each analysis unit
+    (:func:`zonal_mean`); a table is read through :func:`covariate_from_table`, with district
+    rows of a country analysed by province averaged to the province.
+
+    Parameters
+    ----------
+    covariate : marchland.config.RiskCovariate
+        ``name`` and either ``raster`` or ``table`` with ``id_column`` and ``value_column``.
+    analysis : geopandas.GeoDataFrame
+        The analysis units.
+    all_units : geopandas.GeoDataFrame, optional
+        Every unit of every level (needed for district rows of a province-level country).
+
+    Returns
+    -------
+    pandas.Series
+        Named ``covariate.name``, indexed by the analysis units' ``unit_id``.
+
+    Examples
+    --------
+    >>> from marchland.config import load_config
+    >>> from marchland.demo import scenario_path
+    >>> from marchland.region import open_region
+    >>> cfg = load_config(scenario_path())
+    >>> flood = covariate_values(cfg.risk.covariates[0], open_region(cfg).units)
+    >>> bool(flood.between(0, 1).all()), flood.name
+    (True, 'flood_share')
+    """
+    if covariate.raster is not None:
+        return zonal_mean(analysis, covariate.raster, name=covariate.name)
+    return covariate_from_table(
+        all_units if all_units is not None else analysis,
+        analysis,
+        covariate.table,
+        id_column=covariate.id_column,
+        value_column=covariate.value_column,
+        name=covariate.name,
+    )

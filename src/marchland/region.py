@@ -367,6 +367,8 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
                 weeks=int(weeks.nunique()),
                 **{k: int(reasons.get(k, 0)) for k in REASONS},
             )
+    if units is not None and cfg.risk.covariates:
+        rows.update(_covariate_rows(cfg, units, parts))
     sources = pd.DataFrame.from_dict(rows, orient="index").reindex(columns=_SOURCE_COLUMNS)
     sources.index.name = "source"
     for c in ["rows_in", "used", "rejected", "fuzzy_matches", "weeks", *REASONS]:
@@ -410,3 +412,28 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
         notes=tuple(notes),
         ok=ok,
     )
+
+
+def _covariate_rows(cfg: Config, units: pd.DataFrame, parts: list[Reports]) -> dict[str, dict]:
+    """Open each border-risk covariate on the analysis units, as the monthly run will."""
+    from .population import covariate_values
+    from .units import analysis_units
+
+    counts = pd.concat([p.counts for p in parts], ignore_index=True) if parts else None
+    rows: dict[str, dict] = {}
+    try:
+        analysis = analysis_units(
+            units, counts if counts is not None else pd.DataFrame({"unit_id": []})
+        )
+    except InputError as exc:
+        return {"covariates": _row("covariate", exc.file or "", "error", str(exc))}
+    for cv in cfg.risk.covariates:
+        path = cv.raster if cv.raster is not None else cv.table
+        try:
+            v = covariate_values(cv, analysis, units)
+        except InputError as exc:
+            rows[f"covariate {cv.name}"] = _row("covariate", path, "error", str(exc))
+            continue
+        msg = f"{int(v.notna().sum())} units, values {v.min():.3g} to {v.max():.3g}"
+        rows[f"covariate {cv.name}"] = _row("covariate", path, message=msg)
+    return rows
