@@ -17,6 +17,7 @@ import matplotlib.colors as mcolors
 import matplotlib.patheffects as path_effects
 import numpy as np
 import pandas as pd
+import shapely
 from matplotlib.axes import Axes
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
@@ -387,6 +388,20 @@ def _legend(
         handlelength=1.6,
         handleheight=1.1,
     )
+
+
+def _label_spots(countries: gpd.GeoSeries, frame: tuple[float, float, float, float]):
+    """Place each country's name on its surface, off the scale bar and the north arrow."""
+    # Keep names off the scale bar (lower left) and the north arrow (upper right) where the
+    # country reaches beyond them; shapely point_on_surface of what is left.
+    fw, fh = frame[2] - frame[0], frame[3] - frame[1]
+    furniture = shapely.union(
+        shapely.box(frame[0], frame[1], frame[0] + 0.32 * fw, frame[1] + 0.14 * fh),
+        shapely.box(frame[2] - 0.12 * fw, frame[3] - 0.22 * fh, frame[2], frame[3]),
+    )
+    free = countries.difference(furniture)
+    free = free.where(~free.is_empty, countries)
+    return free.representative_point()
 
 
 def _country_labels(ax: Axes, base: BaseMap, *, compact: bool = False) -> None:

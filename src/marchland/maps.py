@@ -12,21 +12,36 @@ by the caller (``hotspots.CLUSTER_COLOURS``).
 
 Drawing is kept quick: :func:`base_map` simplifies the geometry once (to about a tenth of a
 millimetre at print size) and dissolves the country outlines once; every map reuses it.
+
+This module is the public front: signatures, documentation and argument checks. The work
+lies beside it: ``_mapkit`` (palettes, notes, furniture), ``_mapclass`` (classing and
+legend wording), ``_maplayers`` (rate panels, fronts, silent outlines, depots) and
+``_epicurves``.
 """
 
-import math
 from collections.abc import Mapping, Sequence
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
-import shapely
 from matplotlib.figure import Figure
-from matplotlib.patches import Circle
 
 from ._epicurves import epi_curves
+from ._mapclass import (
+    _arrival_classes,
+    _cluster_colours,
+    _cluster_entries,
+    _front_lines,
+    _priority_colours,
+    _priority_entries,
+    _rate_bounds,
+    _rate_colours,
+    _rate_entries,
+    _risk_colours,
+    _risk_entries,
+)
 from ._mapkit import (
-    _MAP_SIZE,
+    _MAP_SIZE,  # noqa: F401  (the figure size, read by tests)
     AFFECTED_COLOUR,
     ARRIVAL_RAMP,
     CASE_BAR,
@@ -52,20 +67,16 @@ from ._mapkit import (
     ZERO_COLOUR,
     BaseMap,
     MapNotes,
-    _country_labels,
     _fill,
-    _fmt_num,
     _footer,
-    _frame,
     _furnish,
+    _label_spots,
     _legend,
     _new_map,
     _no_math,
-    _north_arrow,
-    _ramp,
-    _scale_bar,
     _side_text,
 )
+from ._maplayers import _draw_depots, _draw_fronts, _draw_silent, _rate_panels
 
 __all__ = [
     "AFFECTED_COLOUR",
@@ -160,16 +171,7 @@ def base_map(
     names = dict(country_names or {})
     pad = side * 0.03
     frame = (minx - pad, miny - pad, maxx + pad, maxy + pad)
-    # Keep names off the scale bar (lower left) and the north arrow (upper right) where the
-    # country reaches beyond them; shapely point_on_surface of what is left.
-    fw, fh = frame[2] - frame[0], frame[3] - frame[1]
-    furniture = shapely.union(
-        shapely.box(frame[0], frame[1], frame[0] + 0.32 * fw, frame[1] + 0.14 * fh),
-        shapely.box(frame[2] - 0.12 * fw, frame[3] - 0.22 * fh, frame[2], frame[3]),
-    )
-    free = countries.geometry.difference(furniture)
-    free = free.where(~free.is_empty, countries.geometry)
-    spot = free.representative_point()
+    spot = _label_spots(countries.geometry, frame)
     countries = countries.assign(
         label=[str(names.get(c, c)) for c in countries.index],
         label_x=spot.x.to_numpy(),
@@ -215,82 +217,10 @@ def rate_classes(
     >>> rate_classes([0, 1, 1, 2, 10, 11, 50, np.nan], k=3).tolist()
     [2.0, 11.0, 50.0]
     """
-    x = np.asarray(values, dtype=float).ravel()
-    x = np.sort(x[np.isfinite(x) & (x > 0)])
-    if x.size == 0:
-        return np.array([])
-    distinct = np.unique(x)
-    if distinct.size <= k:
-        return distinct
-    if x.size > 300:
-        x = x[np.linspace(0, x.size - 1, 300).round().astype(int)]
-    import warnings
-
-    import mapclassify
-
-    with warnings.catch_warnings():
-        # Without numba mapclassify warns it uses its pure-Python path; 300 values are quick.
-        warnings.filterwarnings("ignore", message="Numba not installed")
-        bins = np.asarray(mapclassify.FisherJenks(x, k=k).bins, dtype=float)
-    bins[-1] = distinct[-1]
-    return np.unique(bins)
-
-
-def _class_of(values: pd.Series, bins: np.ndarray) -> np.ndarray:
-    """Class index (0..len(bins)-1) of positive values; -1 zero, -2 missing."""
-    v = values.to_numpy(dtype=float)
-    out = np.full(v.shape, -2, dtype=int)
-    pos = np.isfinite(v) & (v > 0)
-    out[np.isfinite(v) & (v <= 0)] = -1
-    if bins.size:
-        out[pos] = np.minimum(np.searchsorted(bins, v[pos], side="left"), bins.size - 1)
-    return out
-
-
-def _class_labels(bins: np.ndarray) -> list[str]:
-    lows = np.concatenate([[0.0], bins[:-1]])
-    labels = []
-    for i, (lo, hi) in enumerate(zip(lows, bins, strict=True)):
-        left = "above 0" if i == 0 else f"above {_fmt_num(lo)}"
-        labels.append(f"{left} to {_fmt_num(hi)}")
-    return labels
+    return _rate_bounds(values, k)
 
 
 # --- rate maps --------------------------------------------------------------------------------
-def _rate_entries(bins: np.ndarray, colours: list[str], classes: np.ndarray) -> list:
-    entries = [
-        (lab, {"facecolor": c, "edgecolor": "#7d7a72", "linewidth": 0.4})
-        for lab, c in zip(_class_labels(bins), colours, strict=True)
-    ]
-    entries.append(
-        ("0 (reported zero)", {"facecolor": ZERO_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4})
-    )
-    if (classes == -2).any():
-        entries.append(
-            (
-                "no report in the period",
-                {
-                    "facecolor": NO_REPORT_COLOUR,
-                    "edgecolor": "#9a968c",
-                    "hatch": NO_REPORT_HATCH,
-                    "linewidth": 0.4,
-                },
-            )
-        )
-    return entries
-
-
-def _rate_colours(rate: pd.Series, bins: np.ndarray) -> tuple[pd.Series, np.ndarray, list]:
-    classes = _class_of(rate, bins)
-    colours = _ramp(RATE_COLOURS, max(len(bins), 1))
-    out = np.where(
-        classes >= 0,
-        np.array(colours, dtype=object)[np.maximum(classes, 0)],
-        np.where(classes == -1, ZERO_COLOUR, NO_REPORT_COLOUR),
-    )
-    return pd.Series(out, index=rate.index), classes, colours
-
-
 def attack_rate_map(
     base: BaseMap,
     rate: pd.Series,
@@ -333,14 +263,14 @@ def attack_rate_map(
     True
     """
     bins = rate_classes(rate) if bins is None else np.asarray(bins, dtype=float)
-    colours, classes, ramp = _rate_colours(rate, bins)
+    colours, classes = _rate_colours(rate, bins)
     fig, ax = _new_map(
         title or f"Attack rate {period}".strip(),
         f"{notes.region}: cases per 100,000 population, by analysis unit",
     )
     _fill(ax, base, colours, hatch_ids=rate.index[classes == -2])
     _furnish(fig, ax, base, notes)
-    _legend(fig, _rate_entries(bins, ramp, classes), f"Attack rate per 100,000\n{period}".strip())
+    _legend(fig, _rate_entries(bins, classes), f"Attack rate per 100,000\n{period}".strip())
     return _no_math(fig)
 
 
@@ -375,46 +305,11 @@ def rate_small_multiples(
     ['Sep', 'Oct']
     """
     bins = rate_classes(rates) if bins is None else np.asarray(bins, dtype=float)
-    n = rates.shape[1]
-    ncols = 3 if n > 4 else max(n, 1)
-    nrows = max(1, math.ceil(n / ncols))
-    fig = Figure(figsize=_MAP_SIZE, dpi=DPI, facecolor="white")
-    fig.text(
-        0.02, 0.955, "Attack rate by month", fontsize=13, fontweight="bold", ha="left", va="center"
-    )
-    fig.text(
-        0.02,
-        0.922,
-        f"{notes.region}: cases per 100,000; one class scheme shared by every panel",
-        fontsize=9,
-        ha="left",
-        va="center",
-        color="#4a4740",
-    )
-    all_classes = []
-    # Panels take the full width; the legend runs along the bottom instead of down the side.
-    width, height = 0.96 / ncols, 0.66 / nrows
-    ramp: list[str] = []
-    for i, col in enumerate(rates.columns):
-        r, c = divmod(i, ncols)
-        ax = fig.add_axes(
-            (0.02 + c * width, 0.235 + (nrows - 1 - r) * height, width * 0.97, height * 0.9)
-        )
-        colours, classes, ramp = _rate_colours(rates[col], bins)
-        all_classes.append(classes)
-        _fill(ax, base, colours, hatch_ids=rates.index[classes == -2], compact=True)
-        _frame(ax, base)
-        _country_labels(ax, base, compact=True)
-        ax.set_title(str(col), fontsize=8.5, pad=3)
-        if i == 0:
-            _scale_bar(ax, base, compact=True)
-        if i == min(ncols, n) - 1:
-            _north_arrow(ax, base, compact=True)
+    fig, classes = _rate_panels(base, rates, notes, bins)
     _footer(fig, notes)
-    classes = np.concatenate(all_classes) if all_classes else np.array([], dtype=int)
     _legend(
         fig,
-        _rate_entries(bins, ramp or _ramp(RATE_COLOURS, max(len(bins), 1)), classes),
+        _rate_entries(bins, classes),
         "Attack rate per 100,000 (month)",
         x=0.02,
         y=0.215,
@@ -477,28 +372,17 @@ def cluster_map(
     missing = sorted(present - set(colours))
     if missing:
         raise ValueError(f"'colours' needs an entry for every label; missing {missing}")
-    col = lab.map(lambda x: colours.get(x, OTHER_COLOUR) if isinstance(x, str) else OTHER_COLOUR)
     fig, ax = _new_map(title, subtitle)
     untested = set(untested)
-    _fill(ax, base, col, hatch_ids=lab.index[lab.isin(untested)], hatch=NOT_TESTED_HATCH)
+    _fill(
+        ax,
+        base,
+        _cluster_colours(lab, colours),
+        hatch_ids=lab.index[lab.isin(untested)],
+        hatch=NOT_TESTED_HATCH,
+    )
     _furnish(fig, ax, base, notes)
-    wording = dict(legend or {})
-    entries = []
-    for key, colour in colours.items():
-        n = int((lab == key).sum())
-        if n == 0 and key not in (always or ()):
-            continue
-        style = {"facecolor": colour, "edgecolor": "#7d7a72", "linewidth": 0.4}
-        if key in untested:
-            style["hatch"] = NOT_TESTED_HATCH
-        entries.append((f"{wording.get(key, key)} ({n})", style))
-    if lab.isna().any():
-        entries.append(
-            (
-                f"not in the analysis ({int(lab.isna().sum())})",
-                {"facecolor": OTHER_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4},
-            )
-        )
+    entries = _cluster_entries(lab, colours, legend=legend, always=always, untested=untested)
     _legend(fig, entries, "Local cluster of attack rate\n(number of units)")
     return _no_math(fig)
 
@@ -551,49 +435,16 @@ def arrival_map(
         f"{notes.region}: period of the first reported case; lines outline each month's "
         "newly affected area",
     )
-    known = arr.dropna()
-    col = pd.Series(OTHER_COLOUR, index=arr.index, dtype=object)
-    entries = []
-    if len(known):
-        freq = "Q"
-        periods = (known + pd.Timedelta(days=3)).dt.to_period(freq)
-        if periods.max().ordinal - periods.min().ordinal + 1 > 8:
-            freq = "2Q"
-            periods = (known + pd.Timedelta(days=3)).dt.to_period("Q")
-            periods = periods.map(lambda p: (p.year, (p.quarter - 1) // 2))
-        classes = sorted(periods.unique())
-        ramp = _ramp(ARRIVAL_RAMP, len(classes))
-        lookup = dict(zip(classes, ramp, strict=True))
-        col.loc[known.index] = periods.map(lookup).to_numpy()
-        for c, colour in zip(classes, ramp, strict=True):
-            if freq == "Q":
-                label = f"{c.start_time:%b}-{c.end_time:%b %Y}"
-            else:
-                year, half = c
-                label = f"{'Jan-Jun' if half == 0 else 'Jul-Dec'} {year}"
-            n = int((periods == c).sum())
-            entries.append(
-                (f"{label} ({n})", {"facecolor": colour, "edgecolor": "#7d7a72", "linewidth": 0.4})
-            )
-    _fill(ax, base, col)
-    if fronts is not None and len(fronts):
-        fronts.boundary.plot(ax=ax, color="#2a2723", linewidth=0.7, zorder=3)
-        if current is not None and current in fronts.index:
-            fronts.loc[[current]].boundary.plot(ax=ax, color=FRONT_COLOUR, linewidth=1.8, zorder=6)
+    colours, entries = _arrival_classes(arr)
+    _fill(ax, base, colours)
+    _draw_fronts(ax, fronts, current)
     _furnish(fig, ax, base, notes)
-    entries.append(
-        (
-            f"no case reported yet ({int(arr.isna().sum())})",
-            {"facecolor": OTHER_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4},
-        )
+    _legend(
+        fig,
+        entries,
+        "First reported case\n(number of units)",
+        lines=_front_lines(fronts, current),
     )
-    handles_extra = []
-    if fronts is not None and len(fronts):
-        handles_extra.append(("outline of a month's newly affected area", "#2a2723", 0.9))
-        if current is not None and current in fronts.index:
-            month = pd.Period(current, freq="M")
-            handles_extra.append((f"newly affected in {month:%B %Y}", FRONT_COLOUR, 1.8))
-    _legend(fig, entries, "First reported case\n(number of units)", lines=handles_extra)
     return _no_math(fig)
 
 
@@ -640,49 +491,19 @@ def risk_map(
     >>> [t.get_text() for t in fig.legends[0].texts][3]
     '20% to 40% (1)'
     """
-    p = probability.astype(float)
-    bins = np.asarray(RISK_BINS)
-    cls = np.minimum(np.searchsorted(bins, p.to_numpy(), side="left"), len(bins) - 1)
-    col = pd.Series(np.array(RISK_COLOURS, dtype=object)[cls], index=p.index)
-    aff = pd.Index(list(affected))
-    col = pd.concat([col, pd.Series(AFFECTED_COLOUR, index=aff.difference(col.index))])
+    colours, cls = _risk_colours(probability, affected)
     fig, ax = _new_map(
         f"Border risk: first case within {horizon_weeks} weeks",
         f"{notes.region}: unaffected units within two steps of an affected one",
     )
-    _fill(ax, base, col, default=NOT_CANDIDATE_COLOUR)
-    sil = base.units[base.units.index.isin(list(silent))]
-    if len(sil):
-        sil.boundary.plot(ax=ax, color="#1d1d1b", linewidth=0.9, linestyle=(0, (2, 1.5)), zorder=6)
+    _fill(ax, base, colours, default=NOT_CANDIDATE_COLOUR)
+    any_silent = _draw_silent(ax, base, silent)
     _furnish(fig, ax, base, notes)
-    lows = (0.0, *RISK_BINS[:-1])
-    entries = [
-        (
-            f"{lo:.0%} to {hi:.0%} ({int((cls == i).sum())})",
-            {"facecolor": c, "edgecolor": "#7d7a72", "linewidth": 0.4},
-        )
-        for i, (lo, hi, c) in enumerate(zip(lows, RISK_BINS, RISK_COLOURS, strict=True))
-    ]
-    entries.append(
-        (
-            "affected (cases by the as-of date)",
-            {"facecolor": AFFECTED_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4},
-        )
+    _legend(
+        fig,
+        _risk_entries(cls, silent=any_silent),
+        f"Probability of a first case\nwithin {horizon_weeks} weeks",
     )
-    entries.append(
-        (
-            "not a candidate",
-            {"facecolor": NOT_CANDIDATE_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4},
-        )
-    )
-    if len(sil):
-        entries.append(
-            (
-                "silent: no recent report",
-                {"facecolor": "none", "edgecolor": "#1d1d1b", "linestyle": "--", "linewidth": 0.9},
-            )
-        )
-    _legend(fig, entries, f"Probability of a first case\nwithin {horizon_weeks} weeks")
     if side_note:
         _side_text(fig, side_note, y=0.47)
     return _no_math(fig)
@@ -731,109 +552,17 @@ def priority_map(
     >>> "reach: 50 km straight line" in [t.get_text() for t in fig.legends[0].texts]
     True
     """
-    r = rank.astype(float)
-    bands = np.select([r <= 5, r <= 10, r <= 20], [0, 1, 2], 3)
-    col = pd.Series(np.array(PRIORITY_COLOURS, dtype=object)[bands], index=r.index)
     fig, ax = _new_map(
         "Pre-positioning priorities",
         f"{notes.region}: candidate districts ranked by expected need; depots "
         "chosen to cover risk-weighted population",
     )
-    _fill(ax, base, col)
-    if sites is not None and len(sites):
-        ax.scatter(
-            sites.geometry.x,
-            sites.geometry.y,
-            marker="s",
-            s=14,
-            facecolor="white",
-            edgecolor=DEPOT_COLOUR,
-            linewidth=0.7,
-            zorder=7,
-        )
-    if depots is not None and len(depots):
-        if reach_km:
-            for pt in depots.geometry:
-                ax.add_patch(
-                    Circle(
-                        (pt.x, pt.y),
-                        reach_km * 1000,
-                        facecolor="none",
-                        edgecolor=DEPOT_COLOUR,
-                        linewidth=0.8,
-                        linestyle=(0, (4, 2)),
-                        zorder=7,
-                    )
-                )
-        existing = _existing(depots)
-        ax.scatter(
-            depots.geometry.x,
-            depots.geometry.y,
-            marker="s",
-            s=40,
-            facecolor=np.where(existing, EXISTING_DEPOT_COLOUR, DEPOT_COLOUR),
-            edgecolor="white",
-            linewidth=0.8,
-            zorder=8,
-        )
-        if "name" in depots:
-            for pt, name in zip(depots.geometry, depots["name"], strict=True):
-                ax.annotate(
-                    str(name),
-                    (pt.x, pt.y),
-                    xytext=(5, 4),
-                    textcoords="offset points",
-                    fontsize=7,
-                    zorder=9,
-                    color=DEPOT_COLOUR,
-                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.8),
-                )
+    _fill(ax, base, _priority_colours(rank))
+    _draw_depots(ax, depots, reach_km=reach_km, sites=sites)
     _furnish(fig, ax, base, notes)
-    entries = [
-        (lab, {"facecolor": c, "edgecolor": "#7d7a72", "linewidth": 0.4})
-        for lab, c in zip(
-            ("rank 1 to 5", "rank 6 to 10", "rank 11 to 20", "rank above 20"),
-            PRIORITY_COLOURS,
-            strict=True,
-        )
-    ]
-    entries.append(
-        ("not a candidate", {"facecolor": OTHER_COLOUR, "edgecolor": "#7d7a72", "linewidth": 0.4})
-    )
-    if depots is not None and len(depots):
-        existing = _existing(depots)
-        if (~existing).any():
-            entries.append(
-                (
-                    f"depot to open ({int((~existing).sum())})",
-                    {"facecolor": DEPOT_COLOUR, "edgecolor": "white"},
-                )
-            )
-        if existing.any():
-            entries.append(
-                (
-                    f"existing depot ({int(existing.sum())})",
-                    {"facecolor": EXISTING_DEPOT_COLOUR, "edgecolor": "white"},
-                )
-            )
-        if reach_km:
-            entries.append(
-                (
-                    f"reach: {reach_km:g} km straight line",
-                    {"facecolor": "none", "edgecolor": DEPOT_COLOUR, "linestyle": "--"},
-                )
-            )
-    if sites is not None and len(sites):
-        entries.append(("candidate depot site", {"facecolor": "white", "edgecolor": DEPOT_COLOUR}))
-    _legend(fig, entries, "Priority rank (1 = first)")
+    _legend(fig, _priority_entries(depots, reach_km, sites), "Priority rank (1 = first)")
     _side_text(fig, "Planning quantities use\nexample values, not guidance.", y=0.22)
     return _no_math(fig)
-
-
-def _existing(depots: pd.DataFrame) -> np.ndarray:
-    if "existing" not in depots:
-        return np.zeros(len(depots), dtype=bool)
-    return depots["existing"].fillna(False).astype(bool).to_numpy()
 
 
 def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
