@@ -65,7 +65,8 @@ padding:.3rem .2rem}
 .pair{display:grid;grid-template-columns:minmax(0,2.2fr) minmax(0,1fr);gap:1rem;
 align-items:start} .side{background:#fff;border:1px solid #e0dacb;padding:.6rem .8rem;
 font-size:.86rem}
-table{border-collapse:collapse;font-size:.8rem;margin:.4rem 0;background:#fff}
+table{border-collapse:collapse;font-size:.8rem;margin:.4rem 0;background:#fff;display:block;
+max-width:100%;overflow-x:auto}
 th,td{border:1px solid #e0dacb;padding:.2rem .45rem;text-align:left;vertical-align:top}
 td:first-child{white-space:nowrap}
 th{background:#f0ece1} td.n{text-align:right;font-variant-numeric:tabular-nums}
