@@ -225,20 +225,7 @@ def population_from_table(
     >>> population_from_table(u, pd.DataFrame({"unit_id": ["a"], "population": [120]})).tolist()
     [120.0, nan]
     """
-    file = None
-    if isinstance(table, pd.DataFrame):
-        t = table
-    else:
-        file = Path(table)
-        try:
-            t = pd.read_csv(file, dtype={id_column: str})
-        except Exception as exc:  # pandas raises many types for unreadable files
-            raise InputError(f"cannot read the population table: {exc}", file=file) from None
-    for c in (id_column, value_column):
-        if c not in t.columns:
-            raise InputError(f"the population table has no column {c!r}", file=file, column=c)
-    ids = t[id_column].astype(str).str.strip()
-    vals = pd.to_numeric(t[value_column], errors="coerce")
+    t, ids, vals, file = _read_unit_table(table, id_column, value_column, "population")
     # Each check names the first offending row (data rows count from 1).
     for bad, reason, column, shown in (
         (vals.isna() | (vals < 0), "population needs to be a number >= 0", value_column,
@@ -329,20 +316,7 @@ def covariate_from_table(
     """
     from .units import to_analysis_ids
 
-    file = None
-    if isinstance(table, pd.DataFrame):
-        t = table
-    else:
-        file = Path(table)
-        try:
-            t = pd.read_csv(file, dtype={id_column: str})
-        except Exception as exc:  # pandas raises many types for unreadable files
-            raise InputError(f"cannot read the covariate table: {exc}", file=file) from None
-    for c in (id_column, value_column):
-        if c not in t.columns:
-            raise InputError(f"the covariate table has no column {c!r}", file=file, column=c)
-    ids = t[id_column].astype(str).str.strip()
-    vals = pd.to_numeric(t[value_column], errors="coerce")
+    t, ids, vals, file = _read_unit_table(table, id_column, value_column, "covariate")
     aid = to_analysis_ids(ids, units, analysis)
     for bad, reason, column, shown in (
         (~np.isfinite(vals), "the value needs to be a number", value_column,
@@ -433,3 +407,23 @@ def covariate_values(covariate, analysis, all_units=None) -> pd.Series:
         value_column=covariate.value_column,
         name=covariate.name,
     )
+
+
+def _read_unit_table(
+    table: pd.DataFrame | str | os.PathLike[str], id_column: str, value_column: str, what: str
+) -> tuple[pd.DataFrame, pd.Series, pd.Series, Path | None]:
+    """Read a unit-id/value table (a frame or a CSV path): the frame, ids, numeric values, file."""
+    file = None
+    if isinstance(table, pd.DataFrame):
+        t = table
+    else:
+        file = Path(table)
+        try:
+            t = pd.read_csv(file, dtype={id_column: str})
+        except Exception as exc:  # pandas raises many types for unreadable files
+            raise InputError(f"cannot read the {what} table: {exc}", file=file) from None
+    for c in (id_column, value_column):
+        if c not in t.columns:
+            raise InputError(f"the {what} table has no column {c!r}", file=file, column=c)
+    ids = t[id_column].astype(str).str.strip()
+    return t, ids, pd.to_numeric(t[value_column], errors="coerce"), file
