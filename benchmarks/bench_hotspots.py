@@ -1,4 +1,4 @@
-"""Time and memory of marchland.hotspots next to esda on the same data, in the same run.
+"""Time and memory of our local Moran next to esda on the same data, in the same run.
 
     $ .venv/bin/python benchmarks/bench_hotspots.py            # 10,000 and 50,000 units
     $ .venv/bin/python benchmarks/bench_hotspots.py --sizes 10000 --weighting shared
@@ -11,7 +11,7 @@ raised block, populations from a log-normal. 999 permutations everywhere; esda i
 ``keep_simulations=False`` and ``n_jobs=1``.
 
 Compared:
-  marchland.hotspots   cases + population + BorderGraph -> EB standardisation, permutations,
+  marchland (stats)    cases + population + BorderGraph -> EB standardisation, permutations,
                        BH q-values, labels (everything the monthly run asks for)
   esda Moran_Local     bare, on the same EB-standardised rates, row-standardised Graph given
   esda Moran_Local_Rate  the esda equivalent of hotspots (EB standardisation included)
@@ -79,7 +79,7 @@ def _child(target: str, n_units: int, weighting: str) -> dict:
 
     graph, cases, pop = _lattice(n_units)
     if target == "marchland":
-        from marchland.hotspots import hotspots
+        from marchland.stats.autocorrelation import hotspots
 
         def run():
             return hotspots(cases, pop, graph, permutations=PERMUTATIONS, seed=SEED,
@@ -88,7 +88,7 @@ def _child(target: str, n_units: int, weighting: str) -> dict:
     else:
         import esda
 
-        from marchland.rates import eb_standardised
+        from marchland.stats import eb_standardised
 
         g_row = graph.weights(weighting, row_standardise=True)
         y = eb_standardised(cases, pop).to_numpy()

@@ -22,9 +22,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from marchland.config import ReportColumns, ReportSpec
-from marchland.region import check
-from marchland.reports import read_reports
+from marchland.config.schema import ReportColumns, ReportSpec
+from marchland.inputs.reports import read_reports
+from marchland.pack.region import check
 
 
 def synthetic(u: int, w: int, c: int, folder: Path, seed: int = 1):

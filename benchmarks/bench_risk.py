@@ -13,8 +13,8 @@ import time
 
 import pandas as pd
 
-from marchland import _risksim
-from marchland.risk import border_risk, run_backtest
+from marchland.risk import _sim
+from marchland.risk.score import border_risk, run_backtest
 
 
 def main() -> None:
@@ -28,8 +28,8 @@ def main() -> None:
     t = time.perf_counter()
     # A slower weekly hazard than the tests' default, so the outbreak is still spreading at the
     # end of the run instead of covering the grid early.
-    coef = dict(_risksim.TRUE_WEEKLY, intercept=_risksim.TRUE_WEEKLY["intercept"] - 0.5)
-    sim = _risksim.simulate(
+    coef = dict(_sim.TRUE_WEEKLY, intercept=_sim.TRUE_WEEKLY["intercept"] - 0.5)
+    sim = _sim.simulate(
         a.side, a.side, weeks=a.weeks, seed=1, n_seeds=12, stripe=10, coefficients=coef
     )
     n = len(sim.units)

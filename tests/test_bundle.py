@@ -21,8 +21,8 @@ import pyogrio
 import pytest
 from month_world import fake_region, write_world
 
-from marchland import _monthsteps, bundle, monthly
 from marchland.errors import InputError
+from marchland.pack import _steps, bundle, monthly
 
 
 @pytest.fixture(scope="module")
@@ -238,14 +238,14 @@ def test_report_carries_cautions_headline_and_backtest(written, result):
 
 
 def test_missing_module_is_shown_absent_not_faked(world, tmp_path, monkeypatch):
-    real = _monthsteps._need
+    real = _steps._need
 
     def no_hotspots(module, *names):
-        if module == "hotspots":
-            raise monthly._Absent("module marchland.hotspots is not available yet")
+        if module == "stats.autocorrelation":
+            raise monthly._Absent("module marchland.stats.autocorrelation is not available yet")
         return real(module, *names)
 
-    monkeypatch.setattr(_monthsteps, "_need", no_hotspots)
+    monkeypatch.setattr(_steps, "_need", no_hotspots)
     monkeypatch.setattr(monthly, "_open_region", fake_region)
     res = monthly.run_month(world, "2026-10")
     assert res.hotspots is None and res.global_moran is None
@@ -326,7 +326,8 @@ def test_a_run_killed_midway_leaves_the_previous_bundle(world, result, tmp_path,
 import sys, time
 sys.path.insert(0, {str(os.path.dirname(__file__))!r})
 from month_world import fake_region
-from marchland import bundle, monthly
+from marchland.pack import bundle
+from marchland.pack import monthly
 monthly._open_region = fake_region
 bundle._write_figures = lambda result, root: {{}}
 bundle._write_report = lambda *a: time.sleep(120)
@@ -383,8 +384,10 @@ def test_country_names_reach_maps_and_country_tables(world, monkeypatch):
     # take a country_name; give the names through two fixed-code [[boundaries]] entries.
     import dataclasses
 
-    from marchland import _figures, _report, maps
-    from marchland.config import BoundarySource, load_config
+    from marchland.config.load import load_config
+    from marchland.config.schema import BoundarySource
+    from marchland.figures import maps
+    from marchland.pack import _figures, _report
 
     cfg = load_config(world)
     extra = tuple(

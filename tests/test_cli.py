@@ -17,8 +17,9 @@ import pytest
 from click.testing import CliRunner
 from month_world import fake_region, write_world
 
-from marchland import __version__, cli, monthly
+from marchland import __version__, cli
 from marchland.errors import InputError
+from marchland.pack import monthly
 
 
 @pytest.fixture
@@ -35,7 +36,7 @@ def world(tmp_path_factory):
 def grid(monkeypatch):
     """Read the grid world's region from the grid itself (the file readers are tested apart)."""
     monkeypatch.setattr(monthly, "_open_region", fake_region)
-    monkeypatch.setattr("marchland.bundle._write_figures", lambda result, root: {})
+    monkeypatch.setattr("marchland.pack.bundle._write_figures", lambda result, root: {})
 
 
 def test_help_is_quick_and_carries_the_cautions(runner):
@@ -56,7 +57,7 @@ def test_help_is_quick_and_carries_the_cautions(runner):
 def test_importing_the_cli_stays_light():
     code = (
         "import sys, marchland.cli; heavy = [m for m in ('geopandas', 'matplotlib', "
-        "'esda', 'libpysal', 'statsmodels', 'marchland.rates') if m in sys.modules]; "
+        "'esda', 'libpysal', 'statsmodels', 'marchland.stats.rates') if m in sys.modules]; "
         "print(heavy)"
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
@@ -209,7 +210,7 @@ def test_check_exits_2_when_a_source_cannot_be_used(runner, world, tmp_path):
 
 
 def test_run_reads_the_real_files(runner, world, tmp_path, monkeypatch):
-    monkeypatch.setattr("marchland.bundle._write_figures", lambda result, root: {})
+    monkeypatch.setattr("marchland.pack.bundle._write_figures", lambda result, root: {})
     res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-10", "--out", str(tmp_path)])
     assert res.exit_code == 0, res.stderr
     import json

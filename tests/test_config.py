@@ -12,7 +12,8 @@ from pathlib import Path
 
 import pytest
 
-from marchland.config import Config, config_from_dict, load_config
+from marchland.config.load import config_from_dict, load_config
+from marchland.config.schema import Config
 from marchland.errors import ConfigError
 
 MINIMAL = """
@@ -219,10 +220,11 @@ def test_risk_options_and_depot_modes(folder: Path) -> None:
 
 
 def test_severe_share_has_one_default(folder: Path) -> None:
-    from marchland import config, supplies
+    from marchland.config import schema
+    from marchland.supplies import plan
 
-    assert supplies.DEFAULT_SEVERE_SHARE is config.DEFAULT_SEVERE_SHARE
-    assert load_config(write(folder, MINIMAL)).supplies.severe_share == config.DEFAULT_SEVERE_SHARE
+    assert plan.DEFAULT_SEVERE_SHARE is schema.DEFAULT_SEVERE_SHARE
+    assert load_config(write(folder, MINIMAL)).supplies.severe_share == schema.DEFAULT_SEVERE_SHARE
 
 
 COVARIATE = '[[risk.covariates]]\nname = "flood"\nraster = "flood.tif"\n'

@@ -177,7 +177,7 @@ def test_district_populations_are_in_range():
 
 
 def test_flood_share_is_a_share_and_higher_along_the_senn():
-    from marchland.population import zonal_mean
+    from marchland.inputs.population import zonal_mean
 
     with rasterio.open(DATA / "flood_share.tif") as src:
         a = src.read(1, masked=True)

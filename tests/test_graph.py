@@ -1,4 +1,4 @@
-"""Tests of marchland.graph and marchland._contiguity on small invented layers.
+"""Tests of marchland.graph and marchland.graph._contiguity on small invented layers.
 
 What must be covered (after libpysal's contiguity tests): shuffled unit order, string and
 integer-like ids, islands, both rules (queen, rook); and for the cross-border part: gaps just
@@ -19,13 +19,8 @@ from hypothesis import strategies as st
 from libpysal.graph import Graph
 
 from marchland.errors import InputError
-from marchland.graph import (
-    EDGE_COLUMNS,
-    BorderGraph,
-    as_border_graph,
-    border_graph,
-    edges_layer,
-)
+from marchland.graph import BorderGraph, as_border_graph, border_graph, edges_layer
+from marchland.graph.border import EDGE_COLUMNS
 
 CRS = "EPSG:3035"
 CELL = 2000.0

@@ -1,4 +1,4 @@
-"""Unit and property tests for marchland.hotspots on small invented graphs.
+"""Unit and property tests for marchland.stats.autocorrelation on small invented graphs.
 
 Covered, each over both graph kinds (BorderGraph and plain libpysal Graph) where a graph is
 involved: islands and units without a value (NaN with a reason, not tested, their own label),
@@ -22,10 +22,10 @@ from hypothesis import strategies as st
 from libpysal.graph import Graph
 from scipy import sparse
 
-from marchland import _permute
 from marchland.errors import InputError
 from marchland.graph import BorderGraph
-from marchland.hotspots import (
+from marchland.stats import _permute, eb_standardised
+from marchland.stats.autocorrelation import (
     CLUSTER_COLOURS,
     CLUSTER_LEGEND,
     HOTSPOT_COLOURS,
@@ -40,7 +40,6 @@ from marchland.hotspots import (
     hotspots,
     local_moran,
 )
-from marchland.rates import eb_standardised
 
 KINDS = ["BorderGraph", "Graph"]
 
@@ -300,7 +299,7 @@ def demo_region():
     import warnings
 
     from marchland.demo import scenario_path
-    from marchland.region import open_region
+    from marchland.pack.region import open_region
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # the demo's deliberate input problems warn
@@ -315,8 +314,8 @@ def test_demo_hot_area_is_high_high_in_its_hot_months(demo_region):
     # the counts known 3 days after month end do not yet make a cluster at FDR 0.05, so the
     # check starts with the second hot month (and records the onset month's q-values).
     from marchland.demo import scenario_path
-    from marchland.monthly import default_as_of
-    from marchland.rates import window_counts
+    from marchland.pack.monthly import default_as_of
+    from marchland.stats import window_counts
 
     region, cfg = demo_region, demo_region.config
     truth = pd.read_csv(scenario_path().parent / "truth" / "hot.csv")

@@ -27,7 +27,7 @@ from matplotlib.collections import PatchCollection, PathCollection
 from month_world import grid_units
 from shapely.geometry import Point, Polygon, box
 
-from marchland import maps
+from marchland.figures import maps
 
 NOTES = maps.MapNotes("2026-11-03", "Source: invented test reports.", "Grid world")
 
@@ -274,7 +274,7 @@ def test_save_figure_writes_png_at_200_dpi(tmp_path, every_map):
 
 def test_maps_imports_no_analysis_module():
     code = (
-        "import sys, marchland.maps; "
+        "import sys, marchland.figures.maps; "
         "bad = [m for m in ('rates', 'hotspots', 'spread', 'risk', 'supplies', 'region', "
         "'reports', 'units', 'graph') if 'marchland.' + m in sys.modules]; print(bad)"
     )

@@ -4,7 +4,7 @@ import pandas as pd
 import pytest
 from month_world import fake_region, write_world
 
-from marchland import monthly
+from marchland.pack import monthly
 
 
 @pytest.fixture(scope="module")
@@ -44,7 +44,7 @@ def test_config_covariates_reach_the_score_and_the_backtest(world, tmp_path):
     # config: the risk table gets its part and value, and the backtest is given the same table.
     from month_world import _ids
 
-    from marchland import risk as risk_module
+    from marchland.risk import score as risk_module
 
     (tmp_path / "east.csv").write_text(
         "code,col\n" + "".join(f"{uid},{i}\n" for i, _j, _c, _p, uid in _ids())

@@ -23,7 +23,7 @@ import shapely
 from affine import Affine
 
 from marchland.errors import DataWarning, InputError
-from marchland.population import (
+from marchland.inputs.population import (
     covariate_from_table,
     population_from_table,
     require_population,

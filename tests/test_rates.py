@@ -1,4 +1,4 @@
-"""Unit and property tests for marchland.rates on small invented data.
+"""Unit and property tests for marchland.stats.rates on small invented data.
 
 Covered: result columns and index, zero counts, zero / missing population, not-reported
 (<NA>) counts kept apart from reported zeros, shuffled unit order (rates unchanged), inputs
@@ -19,7 +19,7 @@ from libpysal.graph import Graph
 
 from marchland.errors import InputError
 from marchland.graph import BorderGraph
-from marchland.rates import (
+from marchland.stats import (
     aggregate_rates,
     attack_rates,
     case_fatality,

@@ -18,10 +18,10 @@ import pandas as pd
 import pytest
 import shapely
 
-from marchland.config import load_config
+from marchland.config.load import load_config
 from marchland.errors import DataWarning, InputError
-from marchland.region import CheckReport, Region, check, open_region
-from marchland.reports import REASONS, as_of
+from marchland.inputs.reports import REASONS, as_of
+from marchland.pack.region import CheckReport, Region, check, open_region
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIO = ROOT / "demo_data" / "scenario.toml"
@@ -195,7 +195,7 @@ def test_week_conventions_line_up_with_the_simulated_truth(region: Region) -> No
 def test_check_opens_the_risk_covariates_as_the_run_will(tmp_path):
     from dataclasses import replace
 
-    from marchland.config import RiskCovariate
+    from marchland.config.schema import RiskCovariate
     from marchland.demo import scenario_path
 
     cfg = load_config(scenario_path())

@@ -22,7 +22,7 @@ import subprocess
 import pytest
 from month_world import fake_region, write_world
 
-from marchland import bundle, monthly
+from marchland.pack import bundle, monthly
 
 _CHECK = """<script>
 window.addEventListener("load", function () {

@@ -19,9 +19,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from marchland.config import ChecksConfig, MatchingConfig, ReportColumns, ReportSpec
+from marchland.config.schema import ChecksConfig, MatchingConfig, ReportColumns, ReportSpec
 from marchland.errors import DataWarning, InputError
-from marchland.reports import REASONS, as_of, read_reports
+from marchland.inputs.reports import REASONS, as_of, read_reports
 
 TODAY = "2026-06-01"
 
@@ -384,7 +384,7 @@ def test_row_accounting_property(tmp_path: Path, units: pd.DataFrame, rows: list
     ],
 )
 def test_normalise(raw: str, folded: str) -> None:
-    from marchland._names import normalise
+    from marchland.inputs._names import normalise
 
     assert normalise(raw, ("district of", "district")) == folded
 

@@ -16,17 +16,18 @@ import pandas as pd
 import pytest
 from libpysal.graph import Graph
 
-from marchland import _hazard, _risksim
 from marchland.errors import InputError
 from marchland.graph import BorderGraph
-from marchland.risk import (
+from marchland.risk import _sim
+from marchland.risk._backtest import _hazard
+from marchland.risk.score import (
     PRIOR_COEFFICIENTS,
     backtest_risk,
     border_risk,
     fit_risk_model,
     run_backtest,
 )
-from marchland.risk import _example as example
+from marchland.risk.score import _example as example
 from marchland.spread import affected_episodes
 
 PARTS = [
@@ -41,7 +42,7 @@ PARTS = [
 
 @pytest.fixture(scope="module")
 def sim():
-    return _risksim.simulate(14, 14, weeks=34, seed=11, stripe=3)
+    return _sim.simulate(14, 14, weeks=34, seed=11, stripe=3)
 
 
 @pytest.fixture(scope="module")
@@ -84,7 +85,7 @@ def test_parts_add_up_to_the_linear_predictor(sim, sim_as_of):
 
 
 def test_candidates_are_unaffected_units_within_two_steps(sim, sim_as_of):
-    from marchland.reports import as_of
+    from marchland.inputs.reports import as_of
     from marchland.spread import first_cases
 
     r = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
@@ -98,7 +99,7 @@ def test_candidates_are_unaffected_units_within_two_steps(sim, sim_as_of):
 
 def test_cross_border_and_drivers(sim, sim_as_of):
     r = border_risk(sim.counts, sim.units, sim.graph, as_of=sim_as_of)
-    from marchland.reports import as_of
+    from marchland.inputs.reports import as_of
     from marchland.spread import first_cases
 
     first = first_cases(as_of(sim.counts, sim_as_of))
@@ -317,10 +318,10 @@ def test_bad_inputs_are_input_errors():
 # --- simulation recovery ----------------------------------------------------------------
 def test_simulation_recovery_of_known_cloglog_coefficients():
     """95% intervals cover the true weekly coefficients in >= 90% of 50 replicates."""
-    truth = pd.Series(_risksim.TRUE_WEEKLY)
+    truth = pd.Series(_sim.TRUE_WEEKLY)
     covered = []
     for seed in range(1000, 1050):
-        sim = _risksim.simulate(18, 18, weeks=36, seed=seed, stripe=3)
+        sim = _sim.simulate(18, 18, weeks=36, seed=seed, stripe=3)
         m = fit_risk_model(
             sim.counts,
             sim.units,
@@ -403,7 +404,7 @@ def demo():
     import warnings
 
     from marchland.demo import scenario_path
-    from marchland.region import open_region
+    from marchland.pack.region import open_region
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -513,7 +514,7 @@ from hypothesis import strategies as st  # noqa: E402
 )
 def test_invariants_on_random_outbreaks(seed, horizon, cut):
     rng = np.random.default_rng(seed)
-    units, graph = _risksim.grid_region(5, 4, seed=seed % 1000, stripe=2)
+    units, graph = _sim.grid_region(5, 4, seed=seed % 1000, stripe=2)
     weeks = pd.date_range("2026-01-05", periods=14, freq="7D")
     ids = units.index.to_numpy()
     cases = rng.poisson(rng.gamma(0.3, 2.0, (len(ids), 1)) * np.ones(14)) * (

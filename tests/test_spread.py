@@ -1,4 +1,4 @@
-"""Unit tests for marchland.spread on small invented data.
+"""Unit tests for marchland.spread.arrival on small invented data.
 
 Covered: the as-of view (a retrospective correction moves a first case), missing weeks are not
 zeros (confirmation rule and quiet periods), re-introduction episodes, never-reporting units,
@@ -187,7 +187,6 @@ from shapely.geometry import box  # noqa: E402
 from marchland.errors import DataWarning, InputError  # noqa: E402
 from marchland.graph import BorderGraph  # noqa: E402
 from marchland.spread import (  # noqa: E402
-    Velocity,
     corridor,
     cross_border_introductions,
     front_outlines,
@@ -196,6 +195,7 @@ from marchland.spread import (  # noqa: E402
     spread_fronts,
     spread_velocity,
 )
+from marchland.spread._velocity import Velocity  # noqa: E402
 
 
 def _strip(n=6, countries=("AAA", "AAA", "AAA", "BBB", "BBB", "CCC"), cell=10_000.0):
@@ -521,7 +521,7 @@ _rows = st.lists(
     as_of_day=st.integers(0, 120),
 )
 def test_first_cases_equal_a_literal_reading_of_the_rule(rows, k, extra, min_cases, as_of_day):
-    from marchland.reports import as_of
+    from marchland.inputs.reports import as_of
 
     c = _counts(rows)
     date = W0 + pd.Timedelta(days=as_of_day)
@@ -553,7 +553,7 @@ def _naive_episode_starts(view, quiet_weeks):
 @settings(max_examples=60, deadline=None)
 @given(rows=_rows, quiet_weeks=st.integers(1, 4))
 def test_episodes_equal_a_literal_reading_of_the_rule(rows, quiet_weeks):
-    from marchland.reports import as_of
+    from marchland.inputs.reports import as_of
 
     c = _counts(rows)
     ep = affected_episodes(c, reintroduction_weeks=quiet_weeks)

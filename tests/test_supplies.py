@@ -1,4 +1,4 @@
-"""Tests for marchland.supplies: priority list, planning quantities, totals, depot choice.
+"""Tests for marchland.supplies.plan: priority list, planning quantities, totals, depot choice.
 
 Covered here:
 - quantities against a hand-computed example (arithmetic stated beside each value), the
@@ -28,7 +28,6 @@ from shapely.geometry import box
 
 from marchland.errors import InputError
 from marchland.supplies import (
-    ITEM_UNITS,
     SupplyPlan,
     assign_depots,
     choose_depots,
@@ -38,6 +37,7 @@ from marchland.supplies import (
     read_supply_items,
     totals,
 )
+from marchland.supplies._input import ITEM_UNITS
 
 CRS = "EPSG:3035"
 ITEMS_CSV = """# Example values for the test, not guidance.
@@ -257,7 +257,7 @@ def test_plan_checks_rates():
 
 
 def test_plan_from_config_dataclass_and_mapping(tmp_path):
-    from marchland.config import PlanningRates, SuppliesConfig
+    from marchland.config.schema import PlanningRates, SuppliesConfig
 
     path = tmp_path / "items.csv"
     path.write_text(ITEMS_CSV)
@@ -600,8 +600,8 @@ def demo():
     import warnings
 
     from marchland.demo import scenario_path
-    from marchland.region import open_region
-    from marchland.risk import border_risk
+    from marchland.pack.region import open_region
+    from marchland.risk.score import border_risk
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")

@@ -21,8 +21,8 @@ import shapely
 from pyproj import Geod
 
 from marchland.errors import DataWarning, InputError
-from marchland.reports import as_of
-from marchland.units import analysis_units, counts_to_analysis, read_units
+from marchland.inputs.reports import as_of
+from marchland.inputs.units import analysis_units, counts_to_analysis, read_units
 
 
 def grid(prefix: str, x0: float, y0: float, n: int, size: float, crs: str) -> gpd.GeoDataFrame:
@@ -277,8 +277,8 @@ def test_counts_that_cannot_be_placed(files: dict[str, Path]) -> None:
 
 
 def test_units_from_config(files: dict[str, Path]) -> None:
-    from marchland.config import config_from_dict
-    from marchland.units import units_from_config
+    from marchland.config.load import config_from_dict
+    from marchland.inputs.units import units_from_config
 
     raw = {
         "region": {"crs": "EPSG:3035"},

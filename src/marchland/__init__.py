@@ -6,35 +6,34 @@ quick and does not pull in the statistics stack until it is needed.
 
 from __future__ import annotations
 
-import importlib
-import sys
-import types
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from ._lazy import exports
 
 __version__ = "0.1.0"
 
 _EXPORTS: dict[str, str] = {
-    "read_units": "units",
-    "analysis_units": "units",
-    "zonal_population": "population",
-    "read_reports": "reports",
-    "border_graph": "graph",
-    "attack_rates": "rates",
-    "case_fatality": "rates",
-    "smooth_rates": "rates",
-    "local_moran": "hotspots",
-    "hotspots": "hotspots",
-    "first_cases": "spread",
-    "spread_fronts": "spread",
-    "spread_velocity": "spread",
-    "cross_border_introductions": "spread",
-    "corridor": "spread",
-    "border_risk": "risk",
-    "backtest_risk": "risk",
-    "prioritise": "supplies",
-    "choose_depots": "supplies",
-    "open_region": "region",
-    "run_month": "monthly",
+    "read_units": "inputs.units",
+    "analysis_units": "inputs.units",
+    "zonal_population": "inputs.population",
+    "read_reports": "inputs.reports",
+    "border_graph": "graph.build",
+    "attack_rates": "stats.rates",
+    "case_fatality": "stats.rates",
+    "smooth_rates": "stats.rates",
+    "local_moran": "stats.autocorrelation",
+    "hotspots": "stats.autocorrelation",
+    "first_cases": "spread.arrival",
+    "spread_fronts": "spread.fronts",
+    "spread_velocity": "spread.arrival",
+    "cross_border_introductions": "spread.fronts",
+    "corridor": "spread.fronts",
+    "border_risk": "risk.score",
+    "backtest_risk": "risk.score",
+    "prioritise": "supplies.plan",
+    "choose_depots": "supplies.depots",
+    "open_region": "pack.region",
+    "run_month": "pack.monthly",
 }
 
 __all__ = [
@@ -62,48 +61,18 @@ __all__ = [
 ]
 
 if TYPE_CHECKING:  # pragma: no cover
-    from .graph import border_graph
-    from .hotspots import hotspots, local_moran
-    from .monthly import run_month
-    from .population import zonal_population
-    from .rates import attack_rates, case_fatality, smooth_rates
-    from .region import open_region
-    from .reports import read_reports
-    from .risk import backtest_risk, border_risk
-    from .spread import (
-        corridor,
-        cross_border_introductions,
-        first_cases,
-        spread_fronts,
-        spread_velocity,
-    )
-    from .supplies import choose_depots, prioritise
-    from .units import analysis_units, read_units
+    from .graph.build import border_graph
+    from .inputs.population import zonal_population
+    from .inputs.reports import read_reports
+    from .inputs.units import analysis_units, read_units
+    from .pack.monthly import run_month
+    from .pack.region import open_region
+    from .risk.score import backtest_risk, border_risk
+    from .spread.arrival import first_cases, spread_velocity
+    from .spread.fronts import corridor, cross_border_introductions, spread_fronts
+    from .stats.autocorrelation import hotspots, local_moran
+    from .stats.rates import attack_rates, case_fatality, smooth_rates
+    from .supplies.depots import choose_depots
+    from .supplies.plan import prioritise
 
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        module = importlib.import_module(f".{_EXPORTS[name]}", __name__)
-        return getattr(module, name)
-    raise AttributeError(f"module 'marchland' has no attribute {name!r}")
-
-
-def __dir__() -> list[str]:
-    return sorted([*globals(), *__all__])
-
-
-# ``hotspots`` is both a module and the function it exports. Importing the submodule binds the
-# module on the package, which would hide the function; this keeps ``marchland.hotspots`` the
-# function (as design.md's API says) while the module stays importable by its full dotted path.
-_SHADOWED = frozenset(name for name, module in _EXPORTS.items() if name == module)
-
-
-class _PublicFront(types.ModuleType):
-    def __getattribute__(self, name: str) -> Any:
-        value = super().__getattribute__(name)
-        if name in _SHADOWED and isinstance(value, types.ModuleType):
-            return getattr(value, name)
-        return value
-
-
-sys.modules[__name__].__class__ = _PublicFront
+__getattr__, __dir__ = exports(__name__, _EXPORTS)

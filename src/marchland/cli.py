@@ -159,7 +159,7 @@ def _console(ctx: click.Context):
 
 
 def _load(config_path: Path):
-    from .config import load_config
+    from .config.load import load_config
 
     return load_config(config_path)
 
@@ -177,7 +177,7 @@ def check(ctx: click.Context, config: Path) -> None:
     \b
     $ marchland check demo_data/scenario.toml
     """
-    from .region import check as _check
+    from .pack.region import check as _check
 
     report = _check(_load(config))
     click.echo(report.to_text())
@@ -251,7 +251,7 @@ def backtest(ctx: click.Context, config: Path) -> None:
     \b
     $ marchland backtest demo_data/scenario.toml
     """
-    from .monthly import backtest_table
+    from .pack.monthly import backtest_table
 
     console = _console(ctx)
     cfg = _load(config)
@@ -271,8 +271,8 @@ def backtest(ctx: click.Context, config: Path) -> None:
 def _run_and_write(
     ctx: click.Context, cfg: Any, month: str | None, out: Path | None, overwrite: bool, as_of: Any
 ) -> None:
-    from .bundle import check_destination, write_month
-    from .monthly import run_month
+    from .pack.bundle import check_destination, write_month
+    from .pack.monthly import run_month
 
     console = _console(ctx)
     out_dir = Path(out) if out is not None else Path(cfg.output.dir)

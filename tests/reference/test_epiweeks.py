@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 from epiweeks import Week, Year
 
-from marchland._weeks import (
+from marchland.inputs.weeks import (
     epi_week,
     from_year_week,
     month_weeks,

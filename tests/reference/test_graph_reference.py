@@ -24,10 +24,10 @@ import shapely
 from libpysal.graph import Graph
 from libpysal.weights import Queen
 
-from marchland.config import load_config
+from marchland.config.load import load_config
 from marchland.demo import scenario_path
 from marchland.graph import border_graph
-from marchland.units import read_units
+from marchland.inputs.units import read_units
 
 CRS = "EPSG:3035"
 

@@ -1,4 +1,4 @@
-"""Outside checks of marchland.rates.
+"""Outside checks of marchland.stats.rates.
 
 Sources: a classic published table of exact 95% Poisson limits (values from memory), scipy's
 gamma and Poisson distributions, statsmodels' ``confint_poisson`` and ``proportion_confint``,
@@ -23,7 +23,7 @@ from statsmodels.stats.proportion import proportion_confint
 from statsmodels.stats.rates import confint_poisson
 
 from marchland.graph import BorderGraph
-from marchland.rates import (
+from marchland.stats import (
     attack_rates,
     case_fatality,
     eb_standardised,

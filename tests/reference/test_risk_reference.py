@@ -19,10 +19,10 @@ from scipy import stats
 from statsmodels.genmod.families import Binomial
 from statsmodels.genmod.families.links import CLogLog
 
-from marchland import _hazard, _risksim
-from marchland import _riskfeatures as rf
-from marchland._riskmodel import _panel_at, _risk_sets
-from marchland.risk import fit_risk_model
+from marchland.risk import _features as rf
+from marchland.risk import _hazard, _sim
+from marchland.risk._model import _panel_at, _risk_sets
+from marchland.risk.score import fit_risk_model
 
 RTOL = 1e-6
 
@@ -65,7 +65,7 @@ def test_ridge_fit_equals_statsmodels_fit_regularized(spector):
 
 
 def test_pipeline_fit_equals_statsmodels_on_its_risk_sets():
-    sim = _risksim.simulate(12, 12, weeks=30, seed=7, stripe=3)
+    sim = _sim.simulate(12, 12, weeks=30, seed=7, stripe=3)
     as_of = sim.counts["received"].max()
     model = fit_risk_model(
         sim.counts, sim.units, sim.graph, as_of=as_of, horizon_weeks=2, penalty=0.0, min_events=0

@@ -1,4 +1,4 @@
-"""Checks of marchland.spread against sources this project did not write.
+"""Checks of marchland.spread.arrival against sources this project did not write.
 
 Sources:
 - pointpats (pointpats.spacetime.Knox) on libpysal's built-in ``burkitt`` example: Burkitt's
@@ -119,7 +119,7 @@ def test_knox_monte_carlo_agrees_with_pointpats(burkitt):
 def test_knox_permutation_mean_is_the_exact_null_expectation(burkitt):
     # Under random relabelling of times, each spatial pair is a uniformly random pair of
     # distinct events, so E[count] = space_pairs * time_pairs / pairs exactly (Knox 1964).
-    from marchland._knox import knox_counts, permutation_counts
+    from marchland.spread._knox import knox_counts, permutation_counts
 
     xy = burkitt[["X", "Y"]].to_numpy()
     t = burkitt["T"].to_numpy(dtype=float)
@@ -274,7 +274,7 @@ def test_distance_regression_interval_is_inverse_of_statsmodels_slope_interval()
 @pytest.fixture(scope="module")
 def demo():
     from marchland.demo import scenario_path
-    from marchland.region import open_region
+    from marchland.pack.region import open_region
 
     region = open_region(scenario_path())
     truth_dir = scenario_path().parent / "truth"
@@ -348,7 +348,7 @@ def test_demo_true_cross_border_introductions_are_found(demo):
 
 
 def test_demo_retrospective_correction_moves_a_first_case(demo):
-    # Independent reading of Tavrenne's raw report files (pandas, not marchland.reports):
+    # Independent reading of Tavrenne's raw report files (pandas, not marchland.inputs.reports):
     # a (district, week) sent first as 0 and corrected upwards later, before any other case.
     from marchland.demo import scenario_path
 

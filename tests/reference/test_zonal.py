@@ -20,8 +20,8 @@ import rasterio
 from rasterstats import zonal_stats
 
 from marchland.errors import DataWarning
-from marchland.population import zonal_mean, zonal_population
-from marchland.units import read_units
+from marchland.inputs.population import zonal_mean, zonal_population
+from marchland.inputs.units import read_units
 
 ROOT = Path(__file__).resolve().parents[2]
 B = ROOT / "boundaries"

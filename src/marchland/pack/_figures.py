@@ -1,0 +1,323 @@
+"""Which figures a month's bundle holds, drawn from a MonthResult with the figures stage.
+
+Kept apart from ``maps`` (which draws from plain tables and knows no result object) and from
+``bundle`` (which writes files): this is the one place that picks the columns each figure shows.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from ..figures import maps
+from ._steps import province_of
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .monthly import MonthResult
+
+
+def source_line(result: MonthResult) -> str:
+    """Return the data-source line of every figure."""
+    names = [r.name for r in result.config.reports]
+    # Codes, not names: the line is drawn unwrapped under every figure and must fit (the maps
+    # carry the names).
+    countries = sorted({r.country for r in result.config.reports})
+    return (
+        f"Source: weekly reports from {', '.join(countries)} ({len(names)} report sources) "
+        "as received by the as-of date."
+    )
+
+
+def notes_for(result: MonthResult) -> maps.MapNotes:
+    """Return the MapNotes of a result."""
+    return maps.MapNotes(
+        as_of=f"{result.as_of:%Y-%m-%d}",
+        source=source_line(result),
+        region=result.config.region.name,
+    )
+
+
+def _month_label(month: str) -> str:
+    return f"{pd.Period(month, freq='M'):%B %Y}"
+
+
+def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
+    """Yield ``(name, figure, caption)`` for every figure the result supports, in atlas order.
+
+    Figures are yielded one at a time and closed by the caller's saving, so memory stays flat.
+    """
+    notes = notes_for(result)
+    base = maps.base_map(result.units, country_names=result.config.country_names)
+    month = _month_label(result.month)
+
+    if result.rates is not None:
+        hist = result.rates_history
+        bins = maps.rate_classes(hist if hist is not None else result.rates["month_rate"])
+        rate = result.rates["month_rate"].where(result.rates["month_weeks_reported"] > 0)
+        yield (
+            "attack_rate",
+            maps.attack_rate_map(base, rate, notes, bins=bins, period=month),
+            f"Attack rate per 100,000 in {month}. Classes (Fisher-Jenks on the last six "
+            "months pooled) are the same as in the monthly panels.",
+        )
+        if hist is not None:
+            panels = hist.copy()
+            panels.columns = [f"{pd.Period(c, freq='M'):%b %Y}" for c in panels.columns]
+            yield (
+                "attack_rate_months",
+                maps.rate_small_multiples(base, panels, notes, bins=bins),
+                "Attack rate per 100,000 for each of the last six months, one shared class scheme.",
+            )
+    if result.hotspots is not None and result.cluster_colours is not None:
+        hs = result.hotspots
+        fdr = result.config.analysis.fdr
+        yield (
+            "hotspots",
+            maps.cluster_map(
+                base,
+                hs["label"],
+                result.cluster_colours,
+                notes,
+                legend=result.cluster_legend,
+                always=result.cluster_significant,
+                untested=_untested_labels(result),
+                title=f"Hotspots, {month}",
+                subtitle=f"{notes.region}: rate-adjusted local Moran's I; coloured where the "
+                f"false discovery rate q < {fdr:g}",
+            ),
+            "Clusters of the month's attack rate (empirical Bayes standardised local Moran's I, "
+            f"{result.config.analysis.permutations} conditional permutations, Benjamini-Hochberg "
+            f"q < {fdr:g}).",
+        )
+    if result.fronts is not None:
+        yield (
+            "arrival",
+            maps.arrival_map(
+                base,
+                result.fronts["first_week"],
+                notes,
+                fronts=result.front_outlines,
+                current=result.month,
+            ),
+            "Quarter of the first reported case per unit; lines outline each month's newly "
+            "affected area, this month's heavier.",
+        )
+    if result.risk is not None:
+        risk = result.risk
+        affected = []
+        if result.fronts is not None:
+            affected = result.fronts.index[result.fronts["first_week"].notna()]
+        silent = risk.index[risk["silent"].astype(bool)] if "silent" in risk else []
+        yield (
+            "border_risk",
+            maps.risk_map(
+                base,
+                risk["probability"],
+                affected,
+                notes,
+                silent=silent,
+                horizon_weeks=result.config.risk.horizon_weeks,
+                side_note=backtest_note(result),
+            ),
+            "Probability of a first case within the horizon for unaffected units within two "
+            "graph steps of an affected one; the side panel gives the backtest.",
+        )
+    if result.priorities is not None:
+        depots = result.depots
+        yield (
+            "priorities",
+            maps.priority_map(
+                base,
+                result.priorities["rank"],
+                notes,
+                depots=depots,
+                reach_km=result.config.supplies.reach_km,
+                sites=result.depot_sites,
+            ),
+            "Candidate districts ranked for pre-positioning, depots to open and their reach. "
+            "Quantities use example planning values, not guidance.",
+        )
+    yield from _epi_figures(result, notes)
+
+
+def _untested_labels(result: MonthResult) -> tuple[str, ...]:
+    """Cluster labels that mean the unit was not tested (drawn with a pattern on the map)."""
+    from ..stats.autocorrelation import NO_NEIGHBOURS, NO_VALUE
+
+    return tuple(k for k in (NO_NEIGHBOURS, NO_VALUE) if k in (result.cluster_colours or {}))
+
+
+def cover_page(result: MonthResult, captions: list[str]) -> Any:
+    """Draw the atlas's first page: title, as-of date, headline numbers, contents, cautions."""
+    import textwrap
+
+    from matplotlib.figure import Figure
+
+    from ..figures._mapkit import _MAP_SIZE, _no_math
+
+    h = result.headline
+    month = _month_label(result.month)
+    fig = Figure(figsize=_MAP_SIZE, facecolor="white")
+    fig.text(0.06, 0.90, result.config.region.name, fontsize=18, fontweight="bold")
+    fig.text(0.06, 0.85, f"Monthly atlas, {month}", fontsize=13)
+    fig.text(
+        0.06,
+        0.81,
+        f"Data as received by {result.as_of:%Y-%m-%d}; "
+        f"{h['units']} analysis units; seed {result.seed}.",
+        fontsize=9,
+        color="#4a4740",
+    )
+
+    def num(v: Any, fmt: str) -> str:
+        return "not computed" if v is None else format(v, fmt)
+
+    lines = [
+        f"Cases reported in {month}: {num(h['cases'], ',.0f')}",
+        f"Deaths reported in {month}: {num(h['deaths'], ',.0f')}",
+        f"Attack rate per 100,000, whole region: {num(h['rate'], '.1f')}",
+        f"Units with a first case this month: {num(h['newly_affected'], 'd')}",
+        f"Global Moran's I (rate-adjusted): {num(h['global_moran_i'], '.3f')}",
+        f"Expected newly affected units, next {result.config.risk.horizon_weeks} weeks: "
+        f"{num(h['expected_new_units'], '.1f')}",
+    ]
+    fig.text(0.06, 0.74, "\n".join(lines), fontsize=10, va="top", linespacing=1.6)
+    pages = [f"{i + 2}. {_page_title(c)}" for i, c in enumerate(captions)]
+    fig.text(0.06, 0.47, "Pages", fontsize=10, fontweight="bold")
+    fig.text(0.06, 0.45, "\n".join(pages), fontsize=7, va="top", linespacing=1.5, color="#2b2925")
+    fig.text(
+        0.06,
+        0.08,
+        textwrap.fill(maps.CAUTION_LINE, 100),
+        fontsize=8,
+        style="italic",
+        color="#6b2a22",
+        va="top",
+    )
+    return _no_math(fig)
+
+
+def _page_title(caption: str) -> str:
+    """Return the caption's first clause for the contents (a cut-off sentence reads as broken)."""
+    import re
+
+    head = re.split(r"; |\. ", caption.strip(), maxsplit=1)[0].rstrip(".")
+    if len(head) > 110:
+        head = re.sub(r"\s*\([^)]*\)$", "", head)
+    return head if len(head) <= 110 else head[:107].rsplit(" ", 1)[0] + " ..."
+
+
+def backtest_note(result: MonthResult) -> str:
+    """Backtest numbers as a short monospace block for the risk map's side panel."""
+    bt = result.backtest
+    if bt is None or not len(bt):
+        return "Backtest: not available."
+    lines = [
+        "How far to trust it",
+        "(rolling-origin backtest)",
+        "",
+        f"{'model':<11}{'AUC':>6}{'Brier':>7}",
+    ]
+    for model, row in bt.iterrows():
+        lines.append(f"{str(model):<11}{_f(row.get('auc'), 2):>6}{_f(row.get('brier'), 3):>7}")
+    k = result.config.risk.top_k
+    if "hits_top_k" in bt and "score" in bt.index:
+        lines.append("")
+        lines.append(f"score: {_f(bt.loc['score', 'hits_top_k'], 1)} of top {k}")
+        lines.append("hit within the horizon")
+    if "n_origins" in bt and "score" in bt.index:
+        lines.append(f"over {int(bt.loc['score', 'n_origins'])} past weeks")
+    return "\n".join(lines)
+
+
+def _f(v: Any, digits: int) -> str:
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return "-"
+    return "-" if not np.isfinite(x) else f"{x:.{digits}f}"
+
+
+def weekly_by(result: MonthResult, key: pd.Series | None) -> dict[str, pd.DataFrame]:
+    """Weekly cases and deaths summed per group (``key``: unit id -> group; None = region)."""
+    w = result.weekly
+    if w is None or not len(w):
+        return {}
+    df = w.assign(cases=w["cases"].astype("Float64"), deaths=w["deaths"].astype("Float64"))
+    df["group"] = "region" if key is None else df["unit_id"].map(key)
+    g = df.groupby(["group", "week"])
+    summed = pd.DataFrame(
+        {"cases": g["cases"].sum(min_count=1), "deaths": g["deaths"].sum(min_count=1)}
+    )
+    out = {}
+    for name, part in summed.groupby(level=0, sort=True):
+        out[str(name)] = part.droplevel(0).astype(float)
+    return out
+
+
+def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[str, Any, str]]:
+    delay = result.config.analysis.reporting_delay_weeks
+    as_of = result.as_of
+    week_days = 7
+    reg = weekly_by(result, None)
+    if not reg:
+        return
+    shaded = (
+        f"the last {delay} complete weeks up to the as-of date are shaded and their bars drawn "
+        "paler: reporting incomplete"
+    )
+    yield (
+        "epi_region",
+        maps.epi_curves(
+            {notes.region or "Region": reg["region"]},
+            notes,
+            as_of=as_of,
+            delay_weeks=delay,
+            title="Weekly cases and deaths, whole region",
+            week_days=week_days,
+        ),
+        f"Weekly reported cases (bars) and deaths (line) for the whole region; {shaded}.",
+    )
+    units = result.units
+    label = result.config.country_label
+    countries = {label(c): w for c, w in weekly_by(result, units["country"]).items()}
+    yield (
+        "epi_countries",
+        maps.epi_curves(
+            countries,
+            notes,
+            as_of=as_of,
+            delay_weeks=delay,
+            title="Weekly cases and deaths by country",
+            ncols=2,
+            week_days=week_days,
+        ),
+        f"Weekly reported cases and deaths per country; {shaded}.",
+    )
+    prov = province_of(units)
+    names = {}
+    if result.all_units is not None and "name" in result.all_units:
+        names = result.all_units["name"].to_dict()
+    per_prov = weekly_by(result, prov)
+    country_of_prov = units.groupby(prov)["country"].first()
+    for country in sorted(units["country"].unique()):
+        ids = sorted(p for p in per_prov if country_of_prov.get(p) == country)
+        if not ids:
+            continue
+        panels = {f"{names.get(p, p)} ({p})": per_prov[p] for p in ids}
+        yield (
+            f"epi_provinces_{country}",
+            maps.epi_curves(
+                panels,
+                notes,
+                as_of=as_of,
+                delay_weeks=delay,
+                title=f"Weekly cases and deaths by province, {label(country)}",
+                ncols=3,
+                week_days=week_days,
+            ),
+            f"Weekly reported cases and deaths per province of {label(country)}; {shaded}.",
+        )

@@ -1,0 +1,254 @@
+"""The rolling-origin backtest behind :func:`marchland.risk.score.run_backtest`."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ..errors import InputError
+from ..inputs.reports import as_of as _as_of_view
+from . import _features as rf
+from . import _hazard
+from ._model import _MODEL_FEATURES, MODELS, _complete_week, _fit, _panel_at
+
+
+# --- the backtest --------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class Backtest:
+    """Rolling-origin backtest of the border-risk model and its baselines.
+
+    Attributes
+    ----------
+    summary : pandas.DataFrame
+        Indexed by ``model`` (``score``, ``distance``, ``neighbours``), columns ``auc brier
+        hits_top_k n_origins n_scored n_events``; ``hits_top_k`` is the mean number of the
+        top ``top_k`` candidates per origin that did report a case within the horizon.
+    by_country : pandas.DataFrame
+        The same, indexed by ``model`` and ``country`` (top k taken within the country).
+    by_origin : pandas.DataFrame
+        The same, indexed by ``model`` and ``origin`` (the last complete week).
+    predictions : pandas.DataFrame
+        One row per origin and candidate: ``origin unit_id country outcome`` and one
+        probability column per model, with ``kind_<model>`` ("fitted"/"prior").
+    top_k, horizon_weeks : int
+    """
+
+    summary: pd.DataFrame
+    by_country: pd.DataFrame
+    by_origin: pd.DataFrame
+    predictions: pd.DataFrame
+    top_k: int
+    horizon_weeks: int
+
+
+def _metrics(pred: pd.DataFrame, model: str, top_k: int) -> dict:
+    p = pred[model].to_numpy()
+    y = pred["outcome"].to_numpy(dtype=bool)
+    # Top k per origin, ties broken by unit id as in border_risk's rank.
+    ranked = pred.assign(_p=-p).sort_values(["origin", "_p", "unit_id"])
+    top = ranked.groupby("origin", sort=False).head(top_k)
+    n_origins = int(pred["origin"].nunique())
+    hits = top.groupby("origin")["outcome"].sum()
+    return {
+        "auc": _hazard.auc(p, y),
+        "brier": _hazard.brier(p, y),
+        "hits_top_k": float(hits.reindex(pred["origin"].unique(), fill_value=0).mean())
+        if n_origins
+        else float("nan"),
+        "n_origins": n_origins,
+        "n_scored": len(pred),
+        "n_events": int(y.sum()),
+    }
+
+
+def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
+    rows = []
+    groups = [(None, pred)] if by is None else list(pred.groupby(by, sort=True))
+    for model in MODELS:
+        for key, g in groups:
+            m = _metrics(g, model, top_k)
+            rows.append({"model": model, **({} if by is None else {by: key}), **m})
+    index = ["model"] if by is None else ["model", by]
+    columns = [*index, "auc", "brier", "hits_top_k", "n_origins", "n_scored", "n_events"]
+    out = pd.DataFrame(rows, columns=columns).set_index(index)
+    return out.astype({"n_origins": "int64", "n_scored": "int64", "n_events": "int64"})
+
+
+def _origins_task(
+    counts: pd.DataFrame,
+    final_pos: np.ndarray,
+    static: rf.Static,
+    grid: pd.DatetimeIndex,
+    origins: Sequence[int],
+    params: dict,
+) -> list[pd.DataFrame]:
+    """Score every model at each origin (a worker's share of the backtest)."""
+    h = params["horizon_weeks"]
+    lag = pd.Timedelta(days=params["report_lag_days"])
+    r = params["reintroduction_weeks"]
+    out = []
+    for t in origins:
+        date = grid[t] + pd.Timedelta(days=6) + lag
+        panel, week = _panel_at(
+            counts,
+            static,
+            date,
+            week0=grid[0],
+            recent_weeks=params["recent_weeks"],
+            reintroduction_weeks=r,
+            min_cases=params["min_cases"],
+        )
+        if panel is None:
+            continue
+        t0 = len(panel.weeks) - 1
+        cand = np.flatnonzero(panel.at_risk[:, t0])
+        # Candidates of unknown population cannot be scored; they are left out of the test.
+        full = rf.matrix(panel, static.features, cand, np.full(len(cand), t0))
+        cand = cand[np.isfinite(full).all(axis=1)]
+        if not len(cand):
+            continue
+        # What happened by t0 + h in the final data; cases reported late for weeks up to t0
+        # count too: the unit was affected and the score should have found it.
+        # A re-introduction candidate's window opens after its last positive week known at t0
+        # (its quiet weeks, as spread counts them, may be revised to cases later).
+        pos = panel.cases[cand] >= params["min_cases"]
+        nt = pos.shape[1]
+        lo = np.where(pos.any(axis=1), nt - pos[:, ::-1].argmax(axis=1), 0)
+        outcome = (final_pos[cand, t0 + h + 1] - final_pos[cand, lo]) > 0
+        frame = pd.DataFrame(
+            {
+                "origin": panel.weeks[-1],
+                "unit_id": static.ids[cand],
+                "country": static.country[cand],
+                "outcome": outcome,
+            }
+        )
+        for model in MODELS:
+            names = static.features if model == "score" else _MODEL_FEATURES[model]
+            m = _fit(
+                panel,
+                names,
+                as_of=date,
+                week=week,
+                horizon_weeks=h,
+                min_events=params["min_events"],
+                penalty=params["penalty"],
+                min_cases=params["min_cases"],
+            )
+            x = rf.matrix(panel, names, cand, np.full(len(cand), t0))
+            frame[model] = m.probability(x)
+            frame[f"kind_{model}"] = m.kind
+        out.append(frame)
+    return out
+
+
+def run(
+    counts: pd.DataFrame,
+    static: rf.Static,
+    *,
+    horizon_weeks: int,
+    origins: Sequence[object] | None,
+    min_history_weeks: int,
+    report_lag_days: int,
+    top_k: int,
+    recent_weeks: int,
+    reintroduction_weeks: int | None,
+    min_events: int,
+    penalty: float,
+    min_cases: int,
+    n_jobs: int,
+    as_of: object,
+) -> Backtest:
+    """Run the backtest on checked inputs (see ``marchland.risk.score.run_backtest``)."""
+    slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
+    if as_of is not None:
+        slim = slim[slim["received"] <= pd.Timestamp(as_of)]
+    unknown = ~slim["unit_id"].isin(static.ids)
+    if unknown.any():
+        raise InputError(
+            "counts name units that are not analysis units of the graph; aggregate counts to "
+            "the analysis units first",
+            column="unit_id",
+            value=slim["unit_id"].to_numpy()[unknown.to_numpy()][0],
+        )
+    # Unit ids as categories of the graph's ids: the as-of view at every origin sorts by unit,
+    # and sorting category codes is several times faster than sorting strings.
+    slim = slim.assign(unit_id=pd.Categorical(slim["unit_id"], categories=static.ids))
+    final = _as_of_view(slim, None)
+    empty = _backtest(_empty_predictions(), top_k, horizon_weeks)
+    if final.empty:
+        return empty
+    grid = rf.week_grid(final["week"].min(), final["week"].max())
+    final_panel_cases = np.zeros((len(static.ids), len(grid)))
+    ui = final["unit_id"].cat.codes.to_numpy()
+    c = pd.to_numeric(final["cases"], errors="coerce").fillna(0).to_numpy(dtype=float)
+    np.add.at(final_panel_cases, (ui, grid.get_indexer(final["week"])), c)
+    pos = final_panel_cases >= min_cases
+    final_pos = np.concatenate([np.zeros((len(static.ids), 1)), np.cumsum(pos, axis=1)], axis=1)
+    last = len(grid) - 1 - horizon_weeks
+    if origins is None:
+        any_case = np.flatnonzero(pos.any(axis=0))
+        if not len(any_case):
+            return empty
+        idx = list(range(int(any_case[0]) + min_history_weeks, last + 1))
+    else:
+        ts = pd.DatetimeIndex(pd.to_datetime(list(origins)))
+        idx = sorted({_complete_week(grid, d + pd.Timedelta(days=6)) for d in ts})
+        bad = [grid[0] + pd.Timedelta(days=7 * i) for i in idx if not 0 <= i <= last]
+        if bad:
+            raise InputError(
+                f"origins need {horizon_weeks} weeks of data after them and must lie within "
+                f"the reported weeks ({grid[0].date()} to {grid[-1].date()}); "
+                f"{bad[0].date()} is outside",
+                column="origins",
+                value=str(bad[0].date()),
+            )
+    params = {
+        "horizon_weeks": horizon_weeks,
+        "report_lag_days": report_lag_days,
+        "reintroduction_weeks": reintroduction_weeks,
+        "recent_weeks": recent_weeks,
+        "min_events": min_events,
+        "penalty": penalty,
+        "min_cases": min_cases,
+    }
+    if n_jobs == 1 or len(idx) < 2:
+        frames = _origins_task(slim, final_pos, static, grid, idx, params)
+    else:
+        from joblib import Parallel, delayed, effective_n_jobs
+
+        k = min(effective_n_jobs(n_jobs), len(idx))
+        # Interleaved shares balance early (small) and late (large) origins across workers.
+        shares = [idx[i::k] for i in range(k)]
+        parts = Parallel(n_jobs=k, backend="loky")(
+            delayed(_origins_task)(slim, final_pos, static, grid, s, params) for s in shares
+        )
+        frames = [f for p in parts for f in p]
+    if not frames:
+        return empty
+    pred = pd.concat(frames, ignore_index=True)
+    # Two origin weeks can meet at one scoring week when nobody had reported the later week
+    # yet; score that week once.
+    pred = pred.drop_duplicates(["origin", "unit_id"]).sort_values(["origin", "unit_id"])
+    return _backtest(pred.reset_index(drop=True), top_k, horizon_weeks)
+
+
+def _backtest(pred: pd.DataFrame, top_k: int, horizon_weeks: int) -> Backtest:
+    return Backtest(
+        _table(pred, top_k, None),
+        _table(pred, top_k, "country"),
+        _table(pred, top_k, "origin"),
+        pred,
+        top_k,
+        horizon_weeks,
+    )
+
+
+def _empty_predictions() -> pd.DataFrame:
+    cols = {"origin": "datetime64[ns]", "unit_id": object, "country": object, "outcome": bool}
+    cols.update({m: float for m in MODELS})
+    cols.update({f"kind_{m}": object for m in MODELS})
+    return pd.DataFrame({k: pd.Series(dtype=v) for k, v in cols.items()})

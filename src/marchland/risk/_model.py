@@ -1,0 +1,351 @@
+"""The border-risk hazard model: risk sets, fit or prior, and scoring with parts.
+
+:mod:`marchland.risk.score` is the public front; this module holds the model behind it, and
+:mod:`marchland.risk._backtest` replays it week by week.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from ..errors import InputError
+from ..inputs.reports import as_of as _as_of_view
+from ..spread.arrival import first_cases
+from . import _features as rf
+from . import _hazard
+
+FEATURES = rf.FEATURES
+MODELS = ("score", "distance", "neighbours")
+_MODEL_FEATURES = {
+    "distance": ("distance_km",),
+    "neighbours": ("affected_neighbours",),
+}
+
+#: Prior coefficients (per unit of each raw feature) used when the history holds fewer than
+#: ``min_events`` first cases. They are judgement, not estimates from data (no published
+#: source): more incidence along the border, more growth, more people and less distance raise
+#: the hazard; cross-border exposure is neutral a priori (shown, not weighted). Covariates get 0.
+PRIOR_COEFFICIENTS: dict[str, float] = {
+    "near_pressure": 0.5,
+    "far_pressure": 0.25,
+    "cross_share": 0.0,
+    "growth": 0.3,
+    "distance_km": -0.05,
+    "log_population": 0.3,
+    "affected_neighbours": 0.5,
+}
+#: Prior weekly hazard on the cloglog scale for a unit of 100,000 people next to an affected unit
+#: with no recent incidence: 1 - exp(-exp(-4)) = 1.8 % a week (judgement). For a horizon of h
+#: weeks the intercept is this plus log(h), the cloglog's grouped-time property.
+PRIOR_WEEKLY_INTERCEPT = -4.0
+_PRIOR_REFERENCE = {"log_population": math.log(1e5)}
+
+
+@dataclass(frozen=True, eq=False)
+class RiskModel:
+    """A fitted (or prior) border-risk model, as of one date.
+
+    Attributes
+    ----------
+    kind : {"fitted", "prior"}
+        "prior" when the history held fewer than ``min_events`` first cases.
+    features : tuple of str
+        Feature names, in the order of the ``part_`` columns.
+    coefficients : pandas.Series
+        ``intercept`` and one coefficient per feature, per unit of the raw feature.
+    std_errors : pandas.Series
+        Standard errors of ``coefficients`` (penalised-likelihood information); NaN for a prior.
+    standardised : pandas.Series
+        Coefficients per standard deviation of each feature (what the penalty acts on).
+    center : pandas.Series
+        Feature means the ``part_`` columns are measured from.
+    as_of, week : pandas.Timestamp
+        The as-of date and the last complete week it covers.
+    horizon_weeks, n_risk_sets, n_events, penalty : numbers
+        ``n_events`` counts units with a first case among the risk sets.
+    converged : bool
+    note : str
+        Why a prior was used, or how the fit went.
+    """
+
+    kind: str
+    features: tuple[str, ...]
+    coefficients: pd.Series
+    std_errors: pd.Series
+    standardised: pd.Series
+    center: pd.Series
+    as_of: pd.Timestamp
+    week: pd.Timestamp
+    horizon_weeks: int
+    n_risk_sets: int
+    n_events: int
+    penalty: float
+    converged: bool
+    note: str
+
+    def linear_predictor(self, x: np.ndarray) -> np.ndarray:
+        """Linear predictor for rows of raw features (columns in ``features`` order)."""
+        b = self.coefficients.to_numpy()
+        return b[0] + np.asarray(x, dtype=float) @ b[1:]
+
+    def probability(self, x: np.ndarray) -> np.ndarray:
+        """Probability of a first case within ``horizon_weeks``."""
+        return _hazard.inverse_cloglog(self.linear_predictor(x))
+
+    def intervals(self, conf: float = 0.95) -> pd.DataFrame:
+        """Wald intervals of the raw coefficients: ``estimate lower upper``."""
+        from scipy import stats
+
+        z = stats.norm.ppf(0.5 + conf / 2)
+        est, se = self.coefficients, self.std_errors
+        return pd.DataFrame({"estimate": est, "lower": est - z * se, "upper": est + z * se})
+
+
+# --- preparing the data --------------------------------------------------------------------
+def _complete_week(weeks: pd.DatetimeIndex, date: pd.Timestamp) -> int:
+    """Index of the last week on the grid whose seven days end on or before ``date``.
+
+    The grid ends at the latest week anyone had reported by then, so the scoring week is the
+    latest complete week with data: a week nobody has reported yet is not read as all zeros.
+    """
+    return int(np.searchsorted(weeks + pd.Timedelta(days=6), date, side="right")) - 1
+
+
+def _check_options(horizon_weeks, recent_weeks, min_events, penalty, silent_weeks=1) -> None:
+    for name, v in (
+        ("horizon_weeks", horizon_weeks),
+        ("recent_weeks", recent_weeks),
+        ("silent_weeks", silent_weeks),
+    ):
+        if not isinstance(v, (int, np.integer)) or v < 1:
+            raise InputError(f"'{name}' needs to be a whole number >= 1. {v!r} was given instead.")
+    if not isinstance(min_events, (int, np.integer)) or min_events < 0:
+        raise InputError(f"'min_events' needs to be a whole number >= 0. {min_events!r} given.")
+    if not (np.isfinite(penalty) and penalty >= 0):
+        raise InputError(f"'penalty' needs to be a number >= 0. {penalty!r} was given instead.")
+
+
+def _check_counts(counts: pd.DataFrame) -> None:
+    need = ("unit_id", "week", "cases", "received")
+    missing = [c for c in need if c not in counts.columns]
+    if missing:
+        raise InputError(f"counts need columns {list(need)}; missing {missing}", column=missing[0])
+
+
+def _panel_at(
+    counts: pd.DataFrame,
+    static: rf.Static,
+    date: pd.Timestamp,
+    *,
+    week0: pd.Timestamp | None,
+    recent_weeks: int,
+    reintroduction_weeks: int | None,
+    min_cases: int,
+) -> tuple[rf.Panel | None, pd.Timestamp | None]:
+    """Build the panel of data known on ``date``, cut at its last complete week."""
+    view = _as_of_view(counts, date)
+    if view.empty:
+        return None, None
+    start = view["week"].min() if week0 is None else week0
+    off = (view["week"] - start) % pd.Timedelta(days=7)
+    if (off != pd.Timedelta(0)).any():
+        bad = view.loc[off != pd.Timedelta(0)].iloc[0]
+        raise InputError(
+            "counts mix week calendars: every 'week' must start on the same weekday as "
+            f"{start.date()} ({start.day_name()})",
+            column="week",
+            value=str(pd.Timestamp(bad["week"]).date()),
+        )
+    grid = rf.week_grid(start, max(view["week"].max(), start))
+    t0 = _complete_week(grid, date)
+    if t0 < 0:
+        return None, None
+    weeks = grid[: t0 + 1]
+    view = view[view["week"] <= weeks[-1]]
+    first = first_cases(view, min_cases=min_cases)
+    panel = rf.build_panel(
+        view,
+        first,
+        static,
+        weeks,
+        recent_weeks=recent_weeks,
+        reintroduction_weeks=reintroduction_weeks,
+        min_cases=min_cases,
+    )
+    return panel, weeks[-1]
+
+
+def _risk_sets(panel: rf.Panel | None, names: tuple[str, ...], horizon_weeks: int, min_cases: int):
+    """Features ``x``, outcomes ``y`` and (unit, week) positions of the training risk sets."""
+    rows = cols = np.zeros(0, dtype=np.int64)
+    y = np.zeros(0, dtype=bool)
+    if panel is not None:
+        last = len(panel.weeks) - 1 - horizon_weeks
+        if last >= 0:
+            rows, cols = np.nonzero(panel.at_risk[:, : last + 1])
+            y = rf.future_any(panel.cases, horizon_weeks, min_cases)[rows, cols]
+    x = rf.matrix(panel, names, rows, cols) if panel is not None else np.zeros((0, len(names)))
+    ok = np.isfinite(x).all(axis=1)  # units of unknown population are not fitted on
+    return x[ok], y[ok], rows[ok], cols[ok]
+
+
+def _fit(
+    panel: rf.Panel | None,
+    names: tuple[str, ...],
+    *,
+    as_of: pd.Timestamp,
+    week: pd.Timestamp | None,
+    horizon_weeks: int,
+    min_events: int,
+    penalty: float,
+    min_cases: int,
+) -> RiskModel:
+    """Fit on risk sets whose outcome window ends by the last complete week (or use the prior)."""
+    index = pd.Index(["intercept", *names])
+    x, y, rows, _ = _risk_sets(panel, names, horizon_weeks, min_cases)
+    n_events = int(np.unique(rows[y]).size)
+    if n_events >= max(min_events, 1) and 0 < y.sum() < len(y):
+        fit = _hazard.fit_cloglog(x, y, penalty=penalty)
+        coef = pd.Series(fit.coef_raw, index=index)
+        se = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_raw), 0, None)), index=index)
+        std = pd.Series(fit.coef, index=index)
+        center = pd.Series(fit.center, index=index[1:])
+        note = (
+            f"fitted on {len(y)} unit-weeks with {n_events} first cases; "
+            f"ridge penalty {penalty:g} on standardised features"
+            + ("" if fit.converged else "; the fit did not converge")
+        )
+        return RiskModel(
+            "fitted",
+            names,
+            coef,
+            se,
+            std,
+            center,
+            as_of,
+            week,
+            horizon_weeks,
+            len(y),
+            n_events,
+            float(penalty),
+            fit.converged,
+            note,
+        )
+    b = np.array([PRIOR_COEFFICIENTS.get(f, 0.0) for f in names])
+    ref = np.array([_PRIOR_REFERENCE.get(f, 0.0) for f in names])
+    intercept = PRIOR_WEEKLY_INTERCEPT + math.log(horizon_weeks) - float(b @ ref)
+    coef = pd.Series(np.concatenate([[intercept], b]), index=index)
+    center = pd.Series(np.zeros(len(names)), index=index[1:])
+    note = (
+        f"prior coefficients: the history holds {n_events} first cases, fewer than "
+        f"min_events={min_events}"
+    )
+    return RiskModel(
+        "prior",
+        names,
+        coef,
+        pd.Series(np.nan, index=index),
+        pd.Series(np.nan, index=index),
+        center,
+        as_of,
+        week,
+        horizon_weeks,
+        len(y),
+        n_events,
+        float(penalty),
+        True,
+        note,
+    )
+
+
+# --- scoring -------------------------------------------------------------------------------
+def _drivers(panel: rf.Panel, static: rf.Static, cand: np.ndarray, t0: int, top: int = 3):
+    """Up to ``top`` affected units within two steps per candidate, strongest pressure first."""
+    affected = panel.first <= t0
+    sub = static.reach[cand].tocoo()
+    u, v = sub.row, sub.col
+    keep = affected[v]
+    u, v = u[keep], v[keep]
+    inc = panel.incidence[:, t0]
+    w = np.asarray(static.w1[cand[u], v] + static.w2[cand[u], v]).ravel()
+    d = pd.DataFrame({"u": u, "v": static.ids[v], "push": w * inc[v]})
+    km = pd.Series(static.pair_km, index=[static.pair_u, static.pair_v])
+    d["km"] = km.reindex(pd.MultiIndex.from_arrays([cand[u], v])).to_numpy()
+    d = d.sort_values(["u", "push", "km", "v"], ascending=[True, False, True, True])
+    d["k"] = d.groupby("u").cumcount()
+    d = d[d["k"] < top]
+    # Join the ids column-wise (vectorised string sums), not one Python call per candidate.
+    wide = d.pivot(index="u", columns="k", values="v").reindex(range(len(cand)))
+    out = pd.Series("", index=wide.index)
+    for k in wide.columns:
+        col = wide[k]
+        out = out.where(col.isna(), (out + " " + col.fillna("")).str.lstrip())
+    return out.to_numpy(dtype=object)
+
+
+def _score(
+    model: RiskModel,
+    panel: rf.Panel | None,
+    static: rf.Static,
+    *,
+    silent_weeks: int,
+    details: bool = True,
+) -> pd.DataFrame:
+    names = model.features
+    cols = ["probability", "rank", "cross_border", "silent", "drivers", "country"]
+    cols += [f"part_{f}" for f in names] + list(names) + ["affected_neighbours", "note"]
+    if panel is None:
+        out = pd.DataFrame(columns=cols, index=pd.Index([], name="unit_id"))
+        return _attach(out, model, 0.0)
+    t0 = len(panel.weeks) - 1
+    cand = np.flatnonzero(panel.at_risk[:, t0])
+    t = np.full(len(cand), t0)
+    x = rf.matrix(panel, names, cand, t)
+    scored = np.isfinite(x).all(axis=1)
+    p = np.where(scored, model.probability(np.where(scored[:, None], x, 0.0)), np.nan)
+    # Unscored candidates (unknown population) go last, without a rank.
+    order = np.lexsort((static.ids[cand].to_numpy(), -np.nan_to_num(p, nan=-1.0), ~scored))
+    rank = np.empty(len(cand), dtype=np.int64)
+    rank[order] = np.arange(1, len(cand) + 1)
+    rank = pd.array(rank, dtype="Int64")
+    rank[~scored] = pd.NA
+    out = pd.DataFrame({"probability": p, "rank": rank}, index=pd.Index(static.ids[cand]))
+    if details:
+        affected = (panel.first <= t0).astype(float)
+        cross = np.asarray(static.reach_cross[cand] @ affected).ravel() > 0
+        lo = max(0, t0 - silent_weeks + 1)
+        silent = ~panel.reported[cand, lo : t0 + 1].any(axis=1)
+        out["cross_border"] = cross
+        out["silent"] = silent
+        out["drivers"] = _drivers(panel, static, cand, t0)
+        out["country"] = static.country[cand]
+        b = model.coefficients.to_numpy()[1:]
+        parts = (x - model.center.to_numpy()) * b
+        for k, f in enumerate(names):
+            out[f"part_{f}"] = parts[:, k]
+        for k, f in enumerate(names):
+            out[f] = x[:, k]
+        out["affected_neighbours"] = panel.features["affected_neighbours"][cand, t0]
+        out["note"] = np.where(scored, "", "population unknown: not scored")
+    out = out.iloc[order].rename_axis("unit_id")
+    return _attach(out, model, float(np.nansum(p)))
+
+
+def _attach(out: pd.DataFrame, model: RiskModel, expected: float) -> pd.DataFrame:
+    b = model.coefficients
+    out.attrs = {
+        "model": model.kind,
+        "note": model.note,
+        "expected_new_units": expected,
+        "as_of": model.as_of.isoformat(),
+        "week": None if model.week is None else model.week.isoformat(),
+        "horizon_weeks": model.horizon_weeks,
+        "n_events": model.n_events,
+        "baseline": float(b.iloc[0] + b.iloc[1:].to_numpy() @ model.center.to_numpy()),
+        "coefficients": {k: float(v) for k, v in b.items()},
+    }
+    return out
