@@ -69,7 +69,7 @@ MONTH = "2026-10"
 # Outbreak model (sparse; per week): within-district transmission, coupling by shared border.
 _BETA = 1.3
 _SEASON = 0.3
-_COUPLE = 0.12
+_COUPLE = 0.04
 _CROSS = 0.3
 _POOL = 0.02  # share of people at risk
 _CFR = 0.015
@@ -297,7 +297,7 @@ def simulate(world: World, population: np.ndarray, rng: np.random.Generator):
 
     The demo's model holds a dense n x n coupling matrix (20 GB at 50k districts); here the
     coupling is a scipy.sparse matrix by shared border length, weaker across countries. Seeds:
-    one district per country in the first weeks, and one more per 1,500 districts at random
+    one district per country in the first weeks, and one more per 600 districts at random
     weeks in the first year, so a large world has several foci.
 
     Returns
@@ -323,7 +323,7 @@ def simulate(world: World, population: np.ndarray, rng: np.random.Generator):
     season = 1 + _SEASON * np.cos(2 * np.pi * (woy - 6) / 52)
     country = d["country"].to_numpy()
     seeds = [(rng.choice(np.flatnonzero(country == c)), rng.integers(0, 4)) for c in COUNTRIES]
-    extra = n // 1500
+    extra = n // 600
     seeds += list(zip(rng.choice(n, extra), rng.integers(0, 52, extra), strict=True))
     seed_at = pd.DataFrame(seeds, columns=["pos", "t"])
     cases = np.zeros((n, N_WEEKS), dtype=np.int64)
