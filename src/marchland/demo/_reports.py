@@ -68,11 +68,15 @@ def _month_end(p: pd.Period) -> pd.Timestamp:
     return p.to_timestamp(how="end").normalize()
 
 
-def write_tvr(sc, cases, deaths, folder: Path, rng, dirt) -> dict:
-    """Tavrenne: one CSV per monthly transmission, explicit zeros, late rows, corrections."""
+def write_tvr(sc, cases, deaths, folder: Path, rng, dirt, *, country: str = "TVR") -> dict:
+    """Tavrenne: one CSV per monthly transmission, explicit zeros, late rows, corrections.
+
+    ``country`` writes another country's districts the same way (``<code>_weekly_*.csv``);
+    the benchmark world (``benchmarks/world.py``) uses it for every country.
+    """
     d = sc.districts
     weeks = sc.outbreak.weeks
-    idx = np.flatnonzero(d["country"].to_numpy() == "TVR")
+    idx = np.flatnonzero(d["country"].to_numpy() == country)
     n_w = len(weeks)
     frame = pd.DataFrame(
         {
@@ -161,8 +165,8 @@ def write_tvr(sc, cases, deaths, folder: Path, rng, dirt) -> dict:
                 ]
             )
             tags[id(rows[-1])] = ("week_start", "future-week")
-        _record(dirt, f"reports/tvr_weekly_{m}.csv", rows, tags)
-        _write_csv(folder / f"tvr_weekly_{m}.csv", header, rows)
+        _record(dirt, f"reports/{country.lower()}_weekly_{m}.csv", rows, tags)
+        _write_csv(folder / f"{country.lower()}_weekly_{m}.csv", header, rows)
     return {"first_case_correction": (code, weeks[t0].strftime("%Y-%m-%d"))}
 
 
