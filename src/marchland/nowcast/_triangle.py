@@ -1,0 +1,95 @@
+"""Reporting triangles as arrays: unit-week cells by delay, and their sums over groups.
+
+Delay convention (shared by every function of the stage): a week's *last day* is its first day
+plus 6 days. For an as-of date ``A`` a week is ``k = (A - last_day) // 7`` whole weeks old. The
+value of the week at delay ``d`` is the latest revision received on or before
+``A - 7 * (k - d)`` days: the triangle's diagonals are weekly snapshots taken on ``A``, ``A - 7``,
+``A - 14``, ..., so the newest diagonal is exactly what is known on ``A``. Delay 0 is what was
+known within the week's first 0-6 days after its end (the same offset for every week).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+DAY = np.timedelta64(1, "D")
+
+
+@dataclass(frozen=True)
+class Cells:
+    """Unit-week cells of the triangle for one as-of date (plain arrays, no copies of input)."""
+
+    units: pd.Index  # unit ids (rows of ``values``' first axis come from pairs)
+    weeks: pd.DatetimeIndex  # every week from the first reported one to the last ended one
+    age: np.ndarray  # (T,) whole weeks between each week's last day and as_of
+    pair_unit: np.ndarray  # (P,) unit position of each reported unit-week
+    pair_week: np.ndarray  # (P,) week position of each reported unit-week
+    values: np.ndarray  # (P, D+1) value known at each delay; NaN = not yet reported by then
+    latest: np.ndarray  # (P,) value as known on as_of (may include revisions after delay D)
+
+
+def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cells:
+    """Place every revision received by ``as_of`` into its (unit, week, delay) cell."""
+    c = counts.loc[:, ["unit_id", "week", "cases", "received"]]
+    c = c[c["cases"].notna() & (c["received"] <= as_of)]
+    week = c["week"].to_numpy("datetime64[ns]")
+    last_day = week + 6 * DAY
+    c = c[last_day <= np.datetime64(as_of)]
+    week = c["week"].to_numpy("datetime64[ns]")
+    received = c["received"].to_numpy("datetime64[ns]")
+    a = np.datetime64(as_of, "ns")
+    age_row = ((a - (week + 6 * DAY)) // DAY) // 7
+    # The first delay whose snapshot date A - 7 (k - d) is on or after the received date.
+    delay = np.maximum(0, age_row - ((a - received) // DAY) // 7)
+    units, u = np.unique(c["unit_id"].to_numpy(dtype=object), return_inverse=True)
+    if len(c):
+        first = week.min()
+        n_weeks = int(((a - first) // DAY - 6) // 7 + 1)
+        weeks = pd.date_range(pd.Timestamp(first), periods=n_weeks, freq="7D")
+    else:
+        weeks = pd.DatetimeIndex([], dtype="datetime64[ns]")
+    t = ((week - (weeks.to_numpy()[0] if len(weeks) else week)) // DAY) // 7
+    age = (((a - (weeks.to_numpy() + 6 * DAY)) // DAY) // 7).astype(np.int64)
+    order = np.lexsort((np.arange(len(c)), received, t, u))  # stable: later row wins on ties
+    u, t, delay = u[order], t[order], delay[order]
+    cases = c["cases"].to_numpy(dtype=float, na_value=np.nan)[order]
+    key = u.astype(np.int64) * max(len(weeks), 1) + t
+    # Value known on as_of: the last revision of each unit-week.
+    is_last = np.r_[key[1:] != key[:-1], True] if len(key) else np.zeros(0, bool)
+    pair_key = key[is_last]
+    pair_unit, pair_week = u[is_last], t[is_last]
+    latest = cases[is_last]
+    values = np.full((len(pair_key), max_delay + 1), np.nan)
+    inside = delay <= max_delay
+    pos = np.searchsorted(pair_key, key[inside])
+    # Assigning in received order leaves the latest revision in each (unit-week, delay) cell.
+    values[pos, delay[inside]] = cases[inside]
+    values = pd.DataFrame(values).ffill(axis=1).to_numpy()
+    # Cells after the as-of date are unknown, not the last value carried on.
+    values[np.arange(max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
+    return Cells(pd.Index(units, name="unit_id"), weeks, age, pair_unit, pair_week, values, latest)
+
+
+def group_sums(cells: Cells, group_of_unit: np.ndarray, n_groups: int) -> dict[str, np.ndarray]:
+    """Sum unit cells to groups: ``C`` (G, T, D+1), ``latest`` (G, T), ``n`` units reporting.
+
+    A unit-week not yet reported at a delay adds nothing to that delay's total: the triangle
+    records what was known, and late units are part of what the delay pattern learns.
+    """
+    n_t = len(cells.weeks)
+    n_d = cells.values.shape[1]
+    g = group_of_unit[cells.pair_unit]
+    flat = g * n_t + cells.pair_week
+    size = n_groups * n_t
+    vals = np.nan_to_num(cells.values)
+    out_c = np.stack(
+        [np.bincount(flat, weights=vals[:, d], minlength=size) for d in range(n_d)], axis=-1
+    ).reshape(n_groups, n_t, n_d)
+    # Cells not observable by as_of are NaN in the group triangle too.
+    out_c[:, np.arange(n_d)[None, :] > cells.age[:, None]] = np.nan
+    latest = np.bincount(flat, weights=cells.latest, minlength=size).reshape(n_groups, n_t)
+    n_units = np.bincount(flat, minlength=size).reshape(n_groups, n_t)
+    return {"C": out_c, "latest": latest, "n": n_units}
