@@ -67,7 +67,7 @@ def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cel
     pos = np.searchsorted(pair_key, key[inside])
     # Assigning in received order leaves the latest revision in each (unit-week, delay) cell.
     values[pos, delay[inside]] = cases[inside]
-    values = pd.DataFrame(values).ffill(axis=1).to_numpy()
+    values = pd.DataFrame(values).ffill(axis=1).to_numpy(copy=True)
     # Cells after the as-of date are unknown, not the last value carried on.
     values[np.arange(max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
     return Cells(pd.Index(units, name="unit_id"), weeks, age, pair_unit, pair_week, values, latest)

@@ -1,0 +1,13 @@
+"""Nowcast stage: reporting triangles, completeness, nowcast of recent weeks, reporting gaps.
+
+In: Counts with every revision (``unit_id week cases received``; see DEVELOPERS.md) and,
+optionally, the Units table (``country parent_id level``) for province grouping.
+Out: pandas DataFrames, one row per (group, week) or (unit, week): the reporting triangle, the
+nowcast with its interval and status, the complete unit x week panel with gaps marked.
+May use the earlier stages: errors, config, inputs, graph (today only ``errors``).
+"""
+
+
+from .nowcasting import STATUSES, nowcast, reporting_triangle
+
+__all__ = ["STATUSES", "nowcast", "reporting_triangle"]
