@@ -66,6 +66,7 @@ def estimate(
     units: pd.DataFrame | None,
     window: int,
     n_past: int,
+    warn: bool = True,
 ) -> Estimate:
     """Group triangles, their patterns and the nowcast arrays (see ``nowcast``)."""
     n_d = max_delay
@@ -86,20 +87,20 @@ def estimate(
     Sc = S if by in ("country", "region") else group_sums(cells, ci, len(countries))
     Cc, _ = _trim(Sc["C"], age, keep)
     Fc, phic = _pattern(Cc, ag, n_d, window, n_past, method)
-    # Countries without a usable history: fewer than max_delay weeks that reached the last
-    # delay, or every revision received on one day (no delays to learn from).
+    # Countries without a usable history: no week that reached the last delay (fewer than
+    # max_delay + 1 weeks of data), or every revision received on one day (no delays to learn).
     sub = counts.loc[counts["received"] <= as_of, ["unit_id", "received"]]
     sub_country = country_of(pd.Index(sub["unit_id"]), units)
     n_dates = sub.groupby(sub_country)["received"].nunique().reindex(countries).fillna(0)
     first_c = np.full(len(countries), len(cells.weeks))
     np.minimum.at(first_c, ci[cells.pair_unit], cells.pair_week)
     complete_c = np.where(first_c < len(age), age[np.minimum(first_c, len(age) - 1)] - n_d + 1, 0)
-    bad_c = (complete_c < n_d) | (n_dates.to_numpy() < 2)
-    if bad_c.any():
+    bad_c = (complete_c < 1) | (n_dates.to_numpy() < 2)
+    if bad_c.any() and warn:
         warnings.warn(
             "no usable reporting-delay history for "
-            f"{', '.join(map(str, countries[bad_c]))} (fewer than {n_d} weeks past the last "
-            "delay, or every report received on one day): their recent weeks are shown as "
+            f"{', '.join(map(str, countries[bad_c]))} (fewer than {n_d + 1} weeks of reports, "
+            "or every report received on one day): their recent weeks are shown as "
             "reported, without a nowcast (status 'as-reported')",
             DataWarning,
             stacklevel=4,
@@ -112,7 +113,7 @@ def estimate(
         Fo, phio = _pattern(Cg, ag, n_d, window, n_past, method)
         use = (ag[:, None] >= n_d) & (ag[:, None] < n_d + window)
         volume = np.nansum(np.where(use.T, Cg[:, :, n_d], 0), axis=1)
-        own = (volume >= MIN_OWN_CASES) & (use.sum() >= n_d)
+        own = volume >= MIN_OWN_CASES
         F = np.where(own[:, None], Fo, F)
         phi = np.where(own[:, None], phio, phi)
         pattern = np.where(own, groups, pattern)

@@ -75,7 +75,9 @@ def reporting_triangle(
     """
     stamp = check_args(counts, as_of, by, "chain-ladder", max_delay_weeks, 0.5)
     window, n_past = _defaults(max_delay_weeks, None)
-    e = estimate(counts, stamp, by, "chain-ladder", max_delay_weeks, units, window, n_past)
+    e = estimate(
+        counts, stamp, by, "chain-ladder", max_delay_weeks, units, window, n_past, warn=False
+    )
     C = e.C
     g, t = np.nonzero(np.arange(len(e.weeks))[None, :] >= e.first[:, None])
     key = "country" if by == "region" else KEY[by]
@@ -106,7 +108,10 @@ def nowcast(
     previous ``2 max_delay_weeks + 4`` weekly as-of dates, judged against what became known
     later (the simple baseline of Wolffram et al. 2023). Countries never share a pattern.
     Provinces and units use their country's pattern unless they have at least 100 cases in the
-    estimation weeks and ``max_delay_weeks`` weeks that reached the last delay.
+    estimation weeks. A country with fewer than ``max_delay_weeks + 1`` weeks of reports (no
+    week has reached the last delay) or whose reports were all received on one day has no
+    delay history: its weeks are shown as reported (status "as-reported") with a
+    ``DataWarning`` naming it, never a guess.
 
     Parameters
     ----------
