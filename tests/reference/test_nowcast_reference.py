@@ -60,8 +60,6 @@ def test_factors_and_ultimates_match_chainladder():
     age = np.arange(n - 1, -1, -1)
     f = factors(C, age, 0, window=n)[0]
     np.testing.assert_allclose(f, ref_ldf, rtol=1e-6)
-    nc = nowcast(
-        counts, as_of=as_of, method="chain-ladder", max_delay_weeks=n - 1, window_weeks=n
-    )
+    nc = nowcast(counts, as_of=as_of, method="chain-ladder", max_delay_weeks=n - 1, window_weeks=n)
     np.testing.assert_allclose(nc["nowcast"].to_numpy(), ref_ult, rtol=1e-6)
     assert to_final(f[None])[0, 0] == pytest.approx(np.prod(ref_ldf), rel=1e-6)

@@ -13,8 +13,9 @@ KEY = {"region": "region", "country": "country", "province": "province", "unit":
 NEEDED = ("unit_id", "week", "cases", "received")
 
 
-def check_args(counts: pd.DataFrame, as_of: object, by: str, method: str, max_delay: int,
-               conf: float) -> pd.Timestamp:
+def check_args(
+    counts: pd.DataFrame, as_of: object, by: str, method: str, max_delay: int, conf: float
+) -> pd.Timestamp:
     """Check arguments; return ``as_of`` as a Timestamp."""
     if by not in BY:
         raise ValueError(f"'by' needs to be one of {BY}. {by!r} was given instead.")

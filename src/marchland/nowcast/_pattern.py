@@ -43,14 +43,12 @@ def to_final(f: np.ndarray) -> np.ndarray:
 
 
 def point(C: np.ndarray, age: np.ndarray, F: np.ndarray, offset: int) -> dict[str, np.ndarray]:
-    """Reported value and chain-ladder estimate for weeks younger than D at the offset date."""
+    """Give the reported value and chain-ladder estimate of weeks younger than D at the offset."""
     n_d = C.shape[2] - 1
     a = age - offset
     live = (a >= 0) & (a < n_d)
     k = np.clip(a, 0, n_d)
-    R = np.take_along_axis(C, np.broadcast_to(k[None, :, None], (C.shape[0], len(k), 1)), 2)[
-        ..., 0
-    ]
+    R = np.take_along_axis(C, np.broadcast_to(k[None, :, None], (C.shape[0], len(k), 1)), 2)[..., 0]
     Fk = F[:, k]
     with np.errstate(invalid="ignore"):
         N = np.where(np.isinf(Fk), np.nan, R * Fk)
