@@ -70,7 +70,7 @@ def reporting_triangle(
     ...     "week": pd.to_datetime(["2026-01-05"] * 2 + ["2026-01-12"]),
     ...     "cases": pd.array([3, 5, 1], dtype="Int64"),
     ...     "received": pd.to_datetime(["2026-01-12", "2026-01-20", "2026-01-19"])})
-    >>> reporting_triangle(c, as_of="2026-01-25", max_delay_weeks=2).to_numpy().tolist()
+    >>> reporting_triangle(c, as_of="2026-01-21", max_delay_weeks=2).to_numpy().tolist()
     [[3.0, 5.0, nan], [1.0, nan, nan]]
     """
     stamp = check_args(counts, as_of, by, "chain-ladder", max_delay_weeks, 0.5)
