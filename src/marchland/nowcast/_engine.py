@@ -89,9 +89,9 @@ def estimate(
     Fc, phic = _pattern(Cc, ag, n_d, window, n_past, method)
     # Countries without a usable history: no week that reached the last delay (fewer than
     # max_delay + 1 weeks of data), or every revision received on one day (no delays to learn).
-    sub = counts.loc[counts["received"] <= as_of, ["unit_id", "received"]]
-    sub_country = country_of(pd.Index(sub["unit_id"]), units)
-    n_dates = sub.groupby(sub_country)["received"].nunique().reindex(countries).fillna(0)
+    pair = pd.DataFrame({"c": ci[cells.row_unit], "r": cells.row_received})
+    n_dates = pair.drop_duplicates().groupby("c").size().reindex(range(len(countries)))
+    n_dates = n_dates.fillna(0)
     first_c = np.full(len(countries), len(cells.weeks))
     np.minimum.at(first_c, ci[cells.pair_unit], cells.pair_week)
     complete_c = np.where(first_c < len(age), age[np.minimum(first_c, len(age) - 1)] - n_d + 1, 0)
@@ -106,16 +106,16 @@ def estimate(
             stacklevel=4,
         )
     cidx = np.searchsorted(countries, g_country.astype(str))
-    F = Fc[cidx]
-    phi = phic[cidx]
+    F = Fc[cidx].copy()
+    phi = phic[cidx].copy()
     pattern = countries[cidx].astype(object)
     if by in ("province", "unit"):
-        Fo, phio = _pattern(Cg, ag, n_d, window, n_past, method)
         use = (ag[:, None] >= n_d) & (ag[:, None] < n_d + window)
         volume = np.nansum(np.where(use.T, Cg[:, :, n_d], 0), axis=1)
         own = volume >= MIN_OWN_CASES
-        F = np.where(own[:, None], Fo, F)
-        phi = np.where(own[:, None], phio, phi)
+        if own.any():  # only groups with enough data of their own get a pattern fitted
+            Fo, phio = _pattern(Cg[own], ag, n_d, window, n_past, method)
+            F[own], phi[own] = Fo, phio
         pattern = np.where(own, groups, pattern)
     p = point(S["C"], age, F, 0)
     first = np.full(len(groups), len(cells.weeks))
@@ -145,4 +145,8 @@ def bounds(e: Estimate, conf: float, method: str) -> tuple[np.ndarray, np.ndarra
     if method != "negbin":
         nan = np.full(e.R.shape, np.nan)
         return nan, nan
-    return nb_bounds(e.R, e.N, e.phi, conf)
+    lower = np.full(e.R.shape, np.nan)
+    upper = np.full(e.R.shape, np.nan)
+    live = e.age < e.C.shape[2] - 1  # only young weeks have an interval to compute
+    lower[:, live], upper[:, live] = nb_bounds(e.R[:, live], e.N[:, live], e.phi[:, live], conf)
+    return lower, upper

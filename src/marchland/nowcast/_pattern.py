@@ -11,7 +11,7 @@ import numpy as np
 from scipy import special, stats
 
 # Candidate negative-binomial sizes; the top end is practically Poisson.
-PHI_GRID = np.logspace(-1, 4, 61)
+PHI_GRID = np.logspace(-1, 4, 41)
 MIN_POINTS = 4  # fewer past errors than this at a delay: use the group's pooled estimate
 
 
@@ -56,13 +56,12 @@ def point(C: np.ndarray, age: np.ndarray, F: np.ndarray, offset: int) -> dict[st
 
 
 def _nb_loglik(z: np.ndarray, mu: np.ndarray) -> np.ndarray:
-    """NB log-likelihood of counts z with means mu, for every size in PHI_GRID (last axis)."""
+    """NB log-likelihood of z with means mu per size in PHI_GRID, less terms free of size."""
     phi = PHI_GRID
     z, mu = z[..., None], mu[..., None]
     return (
         special.gammaln(z + phi)
         - special.gammaln(phi)
-        - special.gammaln(z + 1)
         + phi * np.log(phi / (phi + mu))
         + z * np.log(mu / (phi + mu))
     )
