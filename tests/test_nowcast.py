@@ -319,3 +319,18 @@ def test_missing_columns_and_empty():
         nowcast(c.drop(columns="received"), as_of="2026-04-01")
     with pytest.raises(InputError, match="empty"):
         nowcast(c.iloc[:0], as_of="2026-04-01")
+
+
+def test_panel_sums_match_country_nowcast_when_every_unit_reports(sim):
+    # In the simulation every unit sends a first report at delay 0, so the panel's revision
+    # factors and the country's chain-ladder factors see the same growth.
+    ids = pd.Index(sim["unit_id"].unique(), name="unit_id")
+    units = pd.DataFrame({"country": ids.str[:3]}, index=ids)
+    a = pd.Timestamp("2026-02-11")
+    agg = aggregate_panel(fill_gaps(sim, units, as_of=a), units, by="country")
+    nc = nowcast(sim, as_of=a, method="chain-ladder")
+    both = agg.merge(nc, on=["country", "week"], suffixes=("", "_nc"))
+    assert len(both) == len(nc)
+    np.testing.assert_allclose(both["cases"], both["nowcast"], rtol=1e-9)
+    young = both[both["delay_weeks"] < 8]
+    assert (young["status"] == "estimated").any()

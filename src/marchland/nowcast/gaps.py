@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from ._groups import check_args, country_of, province_of
-from ._pattern import factors, to_final
+from ._pattern import to_final
 from ._triangle import unit_cells
 
 PANEL_STATUSES = ("reported", "nowcast", "imputed", "unknown")
@@ -94,19 +94,16 @@ def fill_gaps(
     keep = pos[cells.pair_unit] >= 0
     pu, pt = pos[cells.pair_unit][keep], cells.pair_week[keep]
     X = cells.values[keep]
-    # Revision factors per country from reported unit-weeks: a (country, pair) "triangle".
-    Cc = np.zeros((len(countries), n_t, n_d + 1))
-    both = np.concatenate(
-        [~np.isnan(X[:, 1:]) & ~np.isnan(X[:, :-1]), np.zeros((len(X), 1), bool)], 1
-    )
-    for d in range(n_d + 1):  # a loop over delays only
-        np.add.at(
-            Cc[:, :, d],
-            (ci[pu], pt),
-            np.where(both[:, d] | (d > 0) & both[:, d - 1], np.nan_to_num(X[:, d]), 0),
-        )
-    F = to_final(factors(Cc, cells.age, 0, 2 * n_d))
-    F = np.where(np.isinf(F), 1.0, F)  # no revision pattern to learn: leave values as sent
+    # Revision factors per country from unit-weeks already reported at delay d only: late units
+    # are imputed below, so they must not also raise the factors (Mack 1993 weighting).
+    f = np.ones((len(countries), n_d))
+    a_pair = cells.age[pt]
+    for d in range(n_d):  # a loop over delays only
+        use = ~np.isnan(X[:, d]) & (a_pair >= d + 1) & (a_pair <= d + 2 * n_d)
+        num = np.bincount(ci[pu][use], weights=X[use, d + 1], minlength=len(countries))
+        den = np.bincount(ci[pu][use], weights=X[use, d], minlength=len(countries))
+        f[:, d] = np.where(den > 0, num / np.where(den > 0, den, 1), 1.0)
+    F = to_final(f)
     latest = np.full((n_u, n_t), np.nan)
     latest[pu, pt] = cells.latest[keep]
     k = np.minimum(cells.age, n_d)
