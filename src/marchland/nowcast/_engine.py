@@ -1,0 +1,152 @@
+"""The nowcast as arrays: groups, their delay patterns (own or their country's) and estimates."""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from marchland.errors import DataWarning
+
+from ._groups import country_of, group_of
+from ._pattern import calibrate, factors, nb_bounds, point, to_final
+from ._triangle import Cells, group_sums, unit_cells
+
+# A province or unit uses its own delay pattern only with this many cases in the weeks the
+# pattern is estimated from (common practice: below ~100 events chain-ladder factors are noisy)
+# and at least max_delay_weeks weeks that have reached the last delay.
+MIN_OWN_CASES = 100
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """Arrays for one nowcast: groups x weeks."""
+
+    groups: np.ndarray
+    country: np.ndarray  # country of each group
+    weeks: pd.DatetimeIndex
+    age: np.ndarray
+    first: np.ndarray  # (G,) first week position each group reported
+    reported: np.ndarray  # (G, T) known on as_of
+    n_units: np.ndarray
+    R: np.ndarray  # (G, T) value at the week's current delay
+    N: np.ndarray  # (G, T) point estimate (NaN: not estimable)
+    phi: np.ndarray  # (G, T) NB size of the remainder
+    fallback: np.ndarray  # (G,) True: as reported (no usable delay history)
+    pattern: np.ndarray  # (G,) whose delay pattern was used
+    cells: Cells
+    C: np.ndarray  # (G, T, D+1) the group triangle
+    unit_group: np.ndarray  # (U,) group position of each unit in cells.units
+
+
+def _pattern(C, age, n_d, window, n_past, method):
+    f = factors(C, age, 0, window)
+    F = to_final(f)
+    if method == "negbin":
+        phi, _ = calibrate(C, age, window, n_past)
+    else:
+        phi = np.full((C.shape[0], n_d), np.nan)
+    return F, phi
+
+
+def _trim(C: np.ndarray, age: np.ndarray, keep: int) -> tuple[np.ndarray, np.ndarray]:
+    """Only the recent weeks matter to the patterns; older weeks are dropped for speed."""
+    sel = age < keep
+    return C[:, sel], age[sel]
+
+
+def estimate(
+    counts: pd.DataFrame,
+    as_of: pd.Timestamp,
+    by: str,
+    method: str,
+    max_delay: int,
+    units: pd.DataFrame | None,
+    window: int,
+    n_past: int,
+    warn: bool = True,
+) -> Estimate:
+    """Group triangles, their patterns and the nowcast arrays (see ``nowcast``)."""
+    n_d = max_delay
+    cells = unit_cells(counts, as_of, n_d)
+    ids = cells.units
+    unit_country = country_of(ids, units)
+    countries, ci = np.unique(unit_country.astype(str), return_inverse=True)
+    labels = group_of(ids, "country" if by == "region" else by, units).astype(str)
+    groups, gi = np.unique(labels, return_inverse=True)
+    g_country = np.empty(len(groups), dtype=object)
+    g_country[gi] = unit_country
+    S = group_sums(cells, gi, len(groups))
+    age = cells.age
+    keep = n_d + window + n_past + 1
+    Cg, ag = _trim(S["C"], age, keep)
+
+    # Countries: the pattern every group falls back on.
+    Sc = S if by in ("country", "region") else group_sums(cells, ci, len(countries))
+    Cc, _ = _trim(Sc["C"], age, keep)
+    Fc, phic = _pattern(Cc, ag, n_d, window, n_past, method)
+    # Countries without a usable history: no week that reached the last delay (fewer than
+    # max_delay + 1 weeks of data), or every revision received on one day (no delays to learn).
+    pair = pd.DataFrame({"c": ci[cells.row_unit], "r": cells.row_received})
+    n_dates = pair.drop_duplicates().groupby("c").size().reindex(range(len(countries)))
+    n_dates = n_dates.fillna(0)
+    first_c = np.full(len(countries), len(cells.weeks))
+    np.minimum.at(first_c, ci[cells.pair_unit], cells.pair_week)
+    complete_c = np.where(first_c < len(age), age[np.minimum(first_c, len(age) - 1)] - n_d + 1, 0)
+    bad_c = (complete_c < 1) | (n_dates.to_numpy() < 2)
+    if bad_c.any() and warn:
+        warnings.warn(
+            "no usable reporting-delay history for "
+            f"{', '.join(map(str, countries[bad_c]))} (fewer than {n_d + 1} weeks of reports, "
+            "or every report received on one day): their recent weeks are shown as "
+            "reported, without a nowcast (status 'as-reported')",
+            DataWarning,
+            stacklevel=4,
+        )
+    cidx = np.searchsorted(countries, g_country.astype(str))
+    F = Fc[cidx].copy()
+    phi = phic[cidx].copy()
+    pattern = countries[cidx].astype(object)
+    if by in ("province", "unit"):
+        use = (ag[:, None] >= n_d) & (ag[:, None] < n_d + window)
+        volume = np.nansum(np.where(use.T, Cg[:, :, n_d], 0), axis=1)
+        own = volume >= MIN_OWN_CASES
+        if own.any():  # only groups with enough data of their own get a pattern fitted
+            Fo, phio = _pattern(Cg[own], ag, n_d, window, n_past, method)
+            F[own], phi[own] = Fo, phio
+        pattern = np.where(own, groups, pattern)
+    p = point(S["C"], age, F, 0)
+    first = np.full(len(groups), len(cells.weeks))
+    np.minimum.at(first, gi[cells.pair_unit], cells.pair_week)
+    phi_t = phi[:, np.clip(age, 0, n_d - 1)]
+    return Estimate(
+        groups=groups,
+        country=g_country,
+        weeks=cells.weeks,
+        age=age,
+        first=first,
+        reported=S["latest"],
+        n_units=S["n"],
+        R=p["R"],
+        N=p["N"],
+        phi=phi_t,
+        fallback=bad_c[cidx],
+        pattern=pattern,
+        cells=cells,
+        C=S["C"],
+        unit_group=gi,
+    )
+
+
+def bounds(e: Estimate, conf: float, method: str) -> tuple[np.ndarray, np.ndarray]:
+    """Interval arrays (NaN for the plain chain-ladder, which has none)."""
+    if method != "negbin":
+        nan = np.full(e.R.shape, np.nan)
+        return nan, nan
+    lower = np.full(e.R.shape, np.nan)
+    upper = np.full(e.R.shape, np.nan)
+    live = e.age < e.C.shape[2] - 1  # only young weeks have an interval to compute
+    lower[:, live], upper[:, live] = nb_bounds(e.R[:, live], e.N[:, live], e.phi[:, live], conf)
+    return lower, upper

@@ -1,0 +1,107 @@
+"""Reporting triangles as arrays: unit-week cells by delay, and their sums over groups.
+
+Delay convention (shared by every function of the stage): a week's *last day* is its first day
+plus 6 days. For an as-of date ``A`` a week is ``k = (A - last_day) // 7`` whole weeks old. The
+value of the week at delay ``d`` is the latest revision received on or before
+``A - 7 * (k - d)`` days: the triangle's diagonals are weekly snapshots taken on ``A``, ``A - 7``,
+``A - 14``, ..., so the newest diagonal is exactly what is known on ``A``. Delay 0 is what was
+known within the week's first 0-6 days after its end (the same offset for every week).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+DAY = np.timedelta64(1, "D")
+
+
+@dataclass(frozen=True)
+class Cells:
+    """Unit-week cells of the triangle for one as-of date (plain arrays, no copies of input)."""
+
+    units: pd.Index  # unit ids (rows of ``values``' first axis come from pairs)
+    weeks: pd.DatetimeIndex  # every week from the first reported one to the last ended one
+    age: np.ndarray  # (T,) whole weeks between each week's last day and as_of
+    pair_unit: np.ndarray  # (P,) unit position of each reported unit-week
+    pair_week: np.ndarray  # (P,) week position of each reported unit-week
+    values: np.ndarray  # (P, D+1) value known at each delay; NaN = not yet reported by then
+    latest: np.ndarray  # (P,) value as known on as_of (may include revisions after delay D)
+    row_unit: np.ndarray  # (R,) unit position of every revision used
+    row_received: np.ndarray  # (R,) its received date (days since 1970-01-01)
+
+
+def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cells:
+    """Place every revision received by ``as_of`` into its (unit, week, delay) cell."""
+    # Whole days since the epoch: integer arithmetic is much faster than datetime64 on millions.
+    a = (np.datetime64(as_of, "ns") - np.datetime64(0, "ns")) // DAY
+    week_all = (counts["week"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+    rec_all = (counts["received"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+    cases_all = counts["cases"].to_numpy(dtype=float, na_value=np.nan)
+    ok = ~np.isnan(cases_all) & (rec_all <= a) & (week_all + 6 <= a)
+    week, received, cases = week_all[ok], rec_all[ok], cases_all[ok]
+    age_row = (a - week - 6) // 7
+    # The first delay whose snapshot date A - 7 (k - d) is on or after the received date.
+    delay = np.maximum(0, age_row - (a - received) // 7)
+    u, units = pd.factorize(counts["unit_id"].to_numpy(dtype=object)[ok], sort=True)
+    units = np.asarray(units, dtype=object)
+    first = week.min() if len(week) else a
+    n_weeks = int((a - first - 6) // 7 + 1) if len(week) else 0
+    weeks = pd.date_range(pd.Timestamp(int(first), unit="D"), periods=n_weeks, freq="7D")
+    weeks = weeks.astype("datetime64[ns]")
+    t = (week - first) // 7
+    age = ((a - (first + 7 * np.arange(n_weeks)) - 6) // 7).astype(np.int64)
+    key = u.astype(np.int64) * max(n_weeks, 1) + t
+    order = np.lexsort((received, key))  # stable: for equal dates the later row wins
+    key, u, t, delay = key[order], u[order], t[order], delay[order]
+    cases, received = cases[order], received[order]
+    # Value known on as_of: the last revision of each unit-week.
+    is_last = np.r_[key[1:] != key[:-1], True] if len(key) else np.zeros(0, bool)
+    pair_key = key[is_last]
+    pair_unit, pair_week = u[is_last], t[is_last]
+    latest = cases[is_last]
+    values = np.full((len(pair_key), max_delay + 1), np.nan)
+    inside = delay <= max_delay
+    pos = np.searchsorted(pair_key, key[inside])
+    # Assigning in received order leaves the latest revision in each (unit-week, delay) cell.
+    values[pos, delay[inside]] = cases[inside]
+    # Carry each cell's value to the later delays until the next revision (forward fill).
+    last = np.maximum.accumulate(np.where(np.isnan(values), 0, np.arange(max_delay + 1)), axis=1)
+    values = values[np.arange(len(values))[:, None], last]
+    # Cells after the as-of date are unknown, not the last value carried on.
+    values[np.arange(max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
+    return Cells(
+        pd.Index(units, name="unit_id"),
+        weeks,
+        age,
+        pair_unit,
+        pair_week,
+        values,
+        latest,
+        u,
+        received,
+    )
+
+
+def group_sums(cells: Cells, group_of_unit: np.ndarray, n_groups: int) -> dict[str, np.ndarray]:
+    """Sum unit cells to groups: ``C`` (G, T, D+1), ``latest`` (G, T), ``n`` units reporting.
+
+    A unit-week not yet reported at a delay adds nothing to that delay's total: the triangle
+    records what was known, and late units are part of what the delay pattern learns.
+    """
+    n_t = len(cells.weeks)
+    n_d = cells.values.shape[1]
+    g = group_of_unit[cells.pair_unit]
+    flat = g * n_t + cells.pair_week
+    size = n_groups * n_t
+    vals = np.nan_to_num(cells.values)
+    out_c = np.stack(
+        [np.bincount(flat, weights=vals[:, d], minlength=size) for d in range(n_d)], axis=-1
+    ).reshape(n_groups, n_t, n_d)
+    # Cells not observable by as_of are NaN in the group triangle too.
+    out_c[:, np.arange(n_d)[None, :] > cells.age[:, None]] = np.nan
+    latest = np.bincount(flat, weights=cells.latest, minlength=size).reshape(n_groups, n_t)
+    n_units = np.bincount(flat, minlength=size).reshape(n_groups, n_t)
+    return {"C": out_c, "latest": latest, "n": n_units}

@@ -1,0 +1,213 @@
+"""Gaps are not zeros: the complete unit x week panel, and sums that never add a gap as 0.
+
+A unit-week nobody reported is unknown. ``fill_gaps`` gives every unit of every week an
+estimate and says where it came from; ``aggregate_panel`` sums the panel to provinces,
+countries or the region and carries the estimated part (or flags the week incomplete).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from ._groups import check_args, country_of, province_of
+from ._pattern import to_final
+from ._triangle import unit_cells
+
+PANEL_STATUSES = ("reported", "nowcast", "imputed", "unknown")
+AGG_BY = ("region", "country", "province")
+
+
+def _rolling(values: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Sum and number of reported values over the ``n`` weeks before each week (U, T)."""
+    ok = ~np.isnan(values)
+    cs = np.concatenate([np.zeros((len(values), 1)), np.cumsum(np.nan_to_num(values), 1)], 1)
+    cn = np.concatenate([np.zeros((len(values), 1)), np.cumsum(ok, 1)], 1)
+    t = np.arange(values.shape[1])
+    lo = np.maximum(t - n, 0)
+    return cs[:, t] - cs[:, lo], cn[:, t] - cn[:, lo]
+
+
+def fill_gaps(
+    counts: pd.DataFrame,
+    units: pd.DataFrame,
+    *,
+    as_of: object,
+    max_delay_weeks: int = 8,
+    recent_weeks: int = 8,
+) -> pd.DataFrame:
+    """Complete unit x week panel of cases, each value marked by where it came from.
+
+    A unit-week reported by ``as_of`` keeps its value ("reported"), scaled up by its country's
+    revision pattern while it is younger than ``max_delay_weeks`` ("nowcast": chain-ladder
+    factors of reported unit-weeks only, Mack 1993, so late *units* are not counted twice). An
+    unreported unit-week is "imputed" by a ratio estimate: the unit's mean over its last
+    ``recent_weeks`` reported weeks, divided by the same mean summed over the units of its
+    country that did report that week, times those units' values. The ratio keeps the unit's
+    usual share of its country while following the country's current level. If no unit of the
+    country reported that week (the whole country silent, or not yet due), the unit's own recent
+    mean is used: the last known level, carried forward no further than ``recent_weeks``.
+    A unit with no reported week in that span stays "unknown" (``cases`` NaN).
+
+    Parameters
+    ----------
+    counts : pandas.DataFrame
+        Counts with every revision (``unit_id week cases received``).
+    units : pandas.DataFrame
+        Indexed by ``unit_id`` (the panel's units), with ``country``.
+    as_of : date-like
+        Date of the panel.
+    max_delay_weeks : int
+        Age from which a week is taken as complete.
+    recent_weeks : int
+        Weeks behind a unit's recent level.
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``unit_id week country cases reported status``, one row per unit and week from its
+        country's first reported week to the last week ended by ``as_of``; ``reported`` is
+        NaN where nothing was reported, ``status`` one of ``PANEL_STATUSES``.
+
+    References
+    ----------
+    Mack, T. (1993). ASTIN Bulletin 23(2), 213-225.
+    Cochran, W. G. (1977). Sampling Techniques, 3rd ed., ch. 6 (ratio estimators).
+
+    Examples
+    --------
+    >>> from marchland.region import open_region
+    >>> from marchland.demo import scenario_path
+    >>> reg = open_region(scenario_path())
+    >>> panel = fill_gaps(reg.counts, reg.units, as_of="2026-06-03")
+    >>> sorted(panel["status"].unique())
+    ['imputed', 'nowcast', 'reported']
+    """
+    stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
+    n_d = max_delay_weeks
+    cells = unit_cells(counts, stamp, n_d)
+    ids = pd.Index(units.index, name="unit_id")
+    u_country = country_of(ids, units).astype(str)
+    countries, ci = np.unique(u_country, return_inverse=True)
+    n_u, n_t = len(ids), len(cells.weeks)
+    pos = ids.get_indexer(cells.units)
+    keep = pos[cells.pair_unit] >= 0
+    pu, pt = pos[cells.pair_unit][keep], cells.pair_week[keep]
+    X = cells.values[keep]
+    # Revision factors per country from unit-weeks already reported at delay d only: late units
+    # are imputed below, so they must not also raise the factors (Mack 1993 weighting).
+    f = np.ones((len(countries), n_d))
+    a_pair = cells.age[pt]
+    for d in range(n_d):  # a loop over delays only
+        use = ~np.isnan(X[:, d]) & (a_pair >= d + 1) & (a_pair <= d + 2 * n_d)
+        num = np.bincount(ci[pu][use], weights=X[use, d + 1], minlength=len(countries))
+        den = np.bincount(ci[pu][use], weights=X[use, d], minlength=len(countries))
+        f[:, d] = np.where(den > 0, num / np.where(den > 0, den, 1), 1.0)
+    F = to_final(f)
+    latest = np.full((n_u, n_t), np.nan)
+    latest[pu, pt] = cells.latest[keep]
+    k = np.minimum(cells.age, n_d)
+    value = latest * F[ci][:, k]
+    young = (cells.age < n_d)[None, :]
+    level_sum, level_n = _rolling(latest, recent_weeks)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        level = level_sum / level_n
+    has = ~np.isnan(latest)
+    # Per country and week: estimate over reporting units, and their summed recent level.
+    est = np.zeros((len(countries), n_t))
+    np.add.at(est, ci, np.where(has, value, 0))
+    lev = np.zeros((len(countries), n_t))
+    np.add.at(lev, ci, np.where(has & ~np.isnan(level), level, 0))
+    any_rep = np.zeros((len(countries), n_t), bool)
+    np.logical_or.at(any_rep, ci, has)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(any_rep & (lev > 0), est / lev, np.nan)[ci]
+    imputed = np.where(np.isnan(ratio), level, level * ratio)
+    cases = np.where(has, value, imputed)
+    status = np.where(
+        has,
+        np.where(young, "nowcast", "reported"),
+        np.where(np.isnan(imputed), "unknown", "imputed"),
+    )
+    first = np.full(len(countries), n_t)
+    np.minimum.at(first, ci[pu], pt)
+    u, t = np.nonzero(np.arange(n_t)[None, :] >= first[ci][:, None])
+    return pd.DataFrame(
+        {
+            "unit_id": ids.to_numpy()[u],
+            "week": cells.weeks[t],
+            "country": u_country[u],
+            "cases": cases[u, t],
+            "reported": latest[u, t],
+            "status": status[u, t],
+        }
+    )
+
+
+def aggregate_panel(
+    panel: pd.DataFrame, units: pd.DataFrame | None = None, *, by: str = "region"
+) -> pd.DataFrame:
+    """Sum a ``fill_gaps`` panel to provinces, countries or the region, gaps carried.
+
+    Parameters
+    ----------
+    panel : pandas.DataFrame
+        The output of ``fill_gaps``.
+    units : pandas.DataFrame, optional
+        ``parent_id level`` for provinces and ``population`` for rates.
+    by : {"region", "country", "province"}
+        The grouping.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Per (group, week): ``cases`` (all parts; NaN when some unit is unknown), ``reported``
+        (reported values only), ``estimated`` (the nowcast and imputed part), ``units``,
+        ``units_imputed``, ``units_unknown``, ``status`` ("reported", "estimated" or
+        "incomplete"), and with ``units.population`` also ``population`` and ``rate`` per
+        100,000 (NaN when incomplete).
+
+    Examples
+    --------
+    >>> from marchland.region import open_region
+    >>> from marchland.demo import scenario_path
+    >>> reg = open_region(scenario_path())
+    >>> panel = fill_gaps(reg.counts, reg.units, as_of="2026-06-03")
+    >>> agg = aggregate_panel(panel, reg.units, by="country")
+    >>> sorted(agg["status"].unique())
+    ['estimated', 'reported']
+    """
+    if by not in AGG_BY:
+        raise ValueError(f"'by' needs to be one of {AGG_BY}. {by!r} was given instead.")
+    key = {"region": "region", "country": "country", "province": "province"}[by]
+    p = panel.assign(
+        region="region",
+        province=province_of(pd.Index(panel["unit_id"]), units),
+        _est=np.where(
+            panel["status"].isin(["nowcast", "imputed"]),
+            panel["cases"] - panel["reported"].fillna(0),
+            0.0,
+        ),
+        _imp=panel["status"].eq("imputed"),
+        _unk=panel["status"].eq("unknown"),
+    )
+    if units is not None and "population" in units:
+        p["_pop"] = pd.Series(units["population"]).reindex(p["unit_id"]).to_numpy(dtype=float)
+    g = p.groupby([key, "week"], sort=True)
+    out = g.agg(
+        cases=("cases", "sum"),
+        reported=("reported", "sum"),
+        estimated=("_est", "sum"),
+        units=("unit_id", "size"),
+        units_imputed=("_imp", "sum"),
+        units_unknown=("_unk", "sum"),
+    )
+    incomplete = out["units_unknown"] > 0
+    out.loc[incomplete, "cases"] = np.nan
+    out["status"] = np.where(
+        incomplete, "incomplete", np.where(out["estimated"] != 0, "estimated", "reported")
+    )
+    if "_pop" in p:
+        out["population"] = g["_pop"].sum()
+        out["rate"] = out["cases"] / out["population"] * 100_000
+    return out.reset_index()
