@@ -144,7 +144,7 @@ def emerging_clusters(
     >>> cases.loc[["u00", "u01", "u04"], weeks[-2:]] = 20
     >>> out = emerging_clusters(None, units, as_of="2026-03-01", panel=cases, seed=1,
     ...                         permutations=99)
-    >>> sorted(out.loc[1, "units"]), out.loc[1, "start"].date(), out.loc[1, "p"]
+    >>> sorted(out.loc[1, "units"]), out.loc[1, "start"].date(), float(out.loc[1, "p"])
     (['u00', 'u01', 'u04'], datetime.date(2026, 2, 16), 0.01)
     """
     if method not in METHODS:
@@ -270,7 +270,7 @@ def _zones(xy, adjacency, size, cap, max_units):
 
 
 def _adjacency(graph: BorderGraph, ids: pd.Index) -> sparse.csr_matrix:
-    """The graph's 0/1 adjacency among ``ids``, rows in the order of ``ids``."""
+    """Build the graph's 0/1 adjacency among ``ids``, rows in the order of ``ids``."""
     e = graph.edges
     i, j = ids.get_indexer(e["focal"].astype(str)), ids.get_indexer(e["neighbor"].astype(str))
     keep = (i >= 0) & (j >= 0)
