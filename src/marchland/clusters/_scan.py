@@ -168,3 +168,34 @@ def select_clusters(
         picks.append((int(h), int(i), int(k)))
         used[order[i, : k + 1]] = True
     return picks
+
+
+def zones(xy, adjacency, size, cap, max_units):
+    """Neighbour order wide enough for every base under the cap (grown by doubling)."""
+    n = len(xy)
+    limit = n if max_units is None else min(n, int(max_units))
+    k = min(limit, 32)
+    while True:
+        order, ok = neighbour_order(xy, k, adjacency)
+        _, valid = zone_limits(order, ok, size, cap)
+        if k >= limit or not valid[:, -1].any():
+            break
+        k = min(limit, 2 * k)
+    width = max(1, int(valid.sum(axis=1).max()))
+    return order[:, :width], valid[:, :width]
+
+
+def candidates(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max_units=None):
+    """Every candidate cylinder at once: ``order, valid, observed, expected, llr``.
+
+    ``observed``, ``expected`` and ``llr`` have shape (H, n, K): height index ``h`` (last
+    ``h + 1`` weeks), centre, base size index ``k`` (``k + 1`` units, ``order[i, :k + 1]``).
+    ``cell`` holds the expected count of every unit-week under the null.
+    """
+    order, valid = zones(xy, adjacency, size, cap, max_units)
+    total = float(table.sum())
+    # Expected count of every cylinder: the cell expectations summed the same way as cases.
+    mu = cylinder_counts(recent_sums(cell, max_weeks), order)
+    obs = cylinder_counts(recent_sums(table, max_weeks), order)
+    llr = np.where(valid, poisson_llr(obs, mu, total), 0.0)
+    return order, valid, obs, mu, llr

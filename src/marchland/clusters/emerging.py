@@ -215,11 +215,9 @@ def emerging_clusters(
         cell = np.outer(size, table.sum(axis=0)) / total
         draw = _scan.permutation_draw(table, rng)
     cap = max_share * size.sum()
-    order, ok, valid = _zones(xy, adjacency, size, cap, max_units)
-    # Expected count of every cylinder: the cell expectations summed the same way as cases.
-    mu = _scan.cylinder_counts(_scan.recent_sums(cell, max_weeks), order)
-    obs = _scan.cylinder_counts(_scan.recent_sums(table, max_weeks), order)
-    llr = np.where(valid, _scan.poisson_llr(obs, mu, total), 0.0)
+    order, valid, obs, mu, llr = _scan.candidates(
+        table, cell, xy, size, cap, max_weeks, adjacency=adjacency, max_units=max_units
+    )
     picks = _scan.select_clusters(llr, valid, order, max_clusters)
     if not picks:
         attrs["note"] = "no cylinder had more cases than expected"
@@ -252,21 +250,6 @@ def emerging_clusters(
     out.index = pd.RangeIndex(1, len(out) + 1, name="cluster")
     out.attrs.update(attrs)
     return out
-
-
-def _zones(xy, adjacency, size, cap, max_units):
-    """Neighbour order wide enough for every base under the cap (grown by doubling)."""
-    n = len(xy)
-    limit = n if max_units is None else min(n, int(max_units))
-    k = min(limit, 32)
-    while True:
-        order, ok = _scan.neighbour_order(xy, k, adjacency)
-        _, valid = _scan.zone_limits(order, ok, size, cap)
-        if k >= limit or not valid[:, -1].any():
-            break
-        k = min(limit, 2 * k)
-    width = max(1, int(valid.sum(axis=1).max()))
-    return order[:, :width], ok[:, :width], valid[:, :width]
 
 
 def _adjacency(graph: BorderGraph, ids: pd.Index) -> sparse.csr_matrix:
