@@ -70,7 +70,7 @@ def test_every_cylinder_matches_the_paper(example):
     ref = brute_force(xy, table)
     assert len(ref) > 2 * 15 * MAX_WEEKS  # bases of several sizes, not only single units
     assert sum(v[3] > 0 for v in ref.values()) > 10
-    got = {(h, i, k) for h, i, k in zip(*np.nonzero(np.broadcast_to(valid, llr.shape)))}
+    got = set(map(tuple, np.argwhere(np.broadcast_to(valid, llr.shape)).tolist()))
     assert got == set(ref)
     for (h, i, k), (zone, c, m, r) in ref.items():
         assert frozenset(order[i, : k + 1]) == zone
