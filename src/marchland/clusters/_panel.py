@@ -26,7 +26,7 @@ def case_panel(
     """Cases per unit (rows) and week (columns) over the window, as known on ``as_of``.
 
     The window ends at ``end_week`` or, by default, at the latest week that at least half the
-    units had reported by ``as_of`` (the newest weeks are often reported by a few units only).
+    units reporting lately (any week of the last ``window_weeks``) had reported by ``as_of`` (the newest weeks are often reported by a few units only).
     A unit missing any week of the window is dropped (missing is not zero) and listed in the
     second value returned.
     """
@@ -41,7 +41,9 @@ def case_panel(
         )
     if end_week is None:
         per_week = known.groupby("week")["unit_id"].nunique()
-        enough = per_week[per_week >= 0.5 * len(ids)]
+        # Units reporting at all lately (a country may not have started reporting yet).
+        recent = known[known["week"] > per_week.index.max() - WEEK * window_weeks]
+        enough = per_week[per_week >= 0.5 * recent["unit_id"].nunique()]
         end = enough.index.max() if len(enough) else per_week.index.max()
     else:
         end = pd.Timestamp(end_week)

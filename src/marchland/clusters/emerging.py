@@ -95,7 +95,8 @@ def emerging_clusters(
         behind the cylinders, short enough that old waves do not set the baseline.
     end_week : date-like, optional
         Last week of the window (its first day). Default: the latest week that at least half
-        the units had reported by ``as_of``.
+        the units reporting lately had reported by ``as_of`` (the newest weeks are often
+        reported by a few units only).
     max_units : int, optional
         Also cap a base at this many units (for large regions, bounds time and memory).
     max_clusters : int
@@ -177,7 +178,8 @@ def emerging_clusters(
                 DataWarning,
                 stacklevel=2,
             )
-    table_df = check_panel(panel, max_weeks)
+    # Units in id order: ties in distance and the random tables then do not depend on row order.
+    table_df = check_panel(panel, max_weeks).sort_index()
     unknown = table_df.index.difference(ids)
     if len(unknown):
         raise InputError(f"panel rows are not analysis units: {list(unknown[:5])}", "unit_id")
