@@ -47,7 +47,7 @@ def planted_panel(
 
 
 def long_counts(panel: pd.DataFrame, *, delay_days: int = 8) -> pd.DataFrame:
-    """The panel as a Counts table (one version per unit-week, received after the week)."""
+    """Turn the panel into a Counts table (one version per unit-week, received after the week)."""
     long = panel.stack().rename("cases").reset_index()
     long["cases"] = long["cases"].astype("Int64")
     long["deaths"] = pd.array([0] * len(long), dtype="Int64")

@@ -26,7 +26,8 @@ def case_panel(
     """Cases per unit (rows) and week (columns) over the window, as known on ``as_of``.
 
     The window ends at ``end_week`` or, by default, at the latest week that at least half the
-    units reporting lately (any week of the last ``window_weeks``) had reported by ``as_of`` (the newest weeks are often reported by a few units only).
+    units reporting lately (any week of the last ``window_weeks``) had reported by ``as_of``
+    (the newest weeks are often reported by a few units only).
     A unit missing any week of the window is dropped (missing is not zero) and listed in the
     second value returned.
     """

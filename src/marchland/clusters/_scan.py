@@ -13,6 +13,7 @@ import numpy as np
 from scipy import sparse
 from scipy.sparse import csgraph
 from scipy.spatial import cKDTree
+from scipy.special import xlogy
 from scipy.stats import random_table
 
 # Memory for one batch of simulated cylinder counts (float64), in bytes.
@@ -109,14 +110,18 @@ def null_maxima(
     """
     per_sim = max_weeks * order.size * 8 * 4
     batch = int(max(1, min(n_sims, BATCH_BYTES // max(per_sim, 1))))
+    mu = np.broadcast_to(mu, (max_weeks, *order.shape))
+    # LLR = c log c - c log mu + (C-c) log(C-c) - (C-c) log(C-mu): the mu parts once, here.
+    log_mu = np.log(np.where(valid & (mu > 0), mu, 1.0))
+    log_rest = np.log(np.maximum(total - mu, 1e-300))
     out = np.empty(n_sims)
     done = 0
     while done < n_sims:
         b = min(batch, n_sims - done)
-        tables = draw(b).astype(float)
-        c = cylinder_counts(recent_sums(tables, max_weeks), order)
-        llr = poisson_llr(c, mu, total)
-        llr = np.where(valid, llr, 0.0)
+        c = cylinder_counts(recent_sums(draw(b).astype(float), max_weeks), order)
+        rest = total - c
+        llr = xlogy(c, c) - c * log_mu + xlogy(rest, rest) - rest * log_rest
+        llr = np.where((c > mu) & valid, llr, 0.0)
         out[done : done + b] = llr.reshape(b, -1).max(axis=1)
         done += b
     return out
