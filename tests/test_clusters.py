@@ -55,11 +55,11 @@ def test_power_planted_excess_is_found(lattice):
 def test_size_without_excess(lattice):
     # No planted excess: a level-0.05 test should flag about 5% of runs; we allow 7%.
     flagged = 0
-    for s in range(100):
+    for s in range(60):
         panel, _ = planted_panel(10, rate=2.0, rr=1.0, seed=1000 + s)
         out = emerging_clusters(None, lattice, as_of=AS_OF, panel=panel, permutations=99, seed=s)
         flagged += len(out) > 0 and out["p"].iloc[0] < 0.05
-    assert flagged <= 7
+    assert flagged <= 4  # 7% of 60 runs; benchmarks/bench_clusters.py --runs runs more
 
 
 # --- properties --------------------------------------------------------------------------------
