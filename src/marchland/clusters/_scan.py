@@ -1,0 +1,206 @@
+"""The scan kernel: zones by nearest neighbours, cylinder counts, LLR, Monte Carlo maxima.
+
+Plain arrays in, plain arrays out. A candidate cylinder is (height ``h``, centre ``i``, size
+``k``): the centre and its ``k - 1`` nearest units, over the last ``h`` weeks of the window.
+Counts for every cylinder come from cumulative sums over each centre's ordered neighbour list,
+so no Python loop runs over cylinders. Written here rather than taken from a library because no
+well-kept Python library offers a prospective space-time scan (scipy gives the random tables).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import sparse
+from scipy.sparse import csgraph
+from scipy.spatial import cKDTree
+from scipy.special import xlogy
+from scipy.stats import random_table
+
+# Memory for one batch of simulated cylinder counts (float64), in bytes.
+BATCH_BYTES = 64 * 2**20
+
+
+def neighbour_order(
+    xy: np.ndarray, k: int, adjacency: sparse.csr_matrix | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Order each unit's ``k`` nearest units (itself first): by centroid distance, or by hops.
+
+    Returns ``order`` (n, k) unit positions and ``ok`` (n, k), False where a unit cannot be
+    reached (graph order beyond the unit's connected component).
+    """
+    n = len(xy)
+    k = min(k, n)
+    if adjacency is None:
+        _, order = cKDTree(xy).query(xy, k=k)
+        order = np.asarray(order, dtype=np.int64).reshape(n, k)
+        # A tie at distance 0 (shared centroids) could put another unit first; the centre leads.
+        return _centre_first(order), np.ones((n, k), dtype=bool)
+    hops = csgraph.shortest_path(adjacency, unweighted=True, directed=False)
+    dist = np.sqrt(((xy[:, None, :] - xy[None, :, :]) ** 2).sum(-1))
+    # Hops first, centroid distance breaks ties within a ring.
+    key = np.where(np.isfinite(hops), hops, n + 1) * (dist.max() + 1.0) + dist
+    order = np.argsort(key, axis=1, kind="stable")[:, :k]
+    ok = np.isfinite(np.take_along_axis(hops, order, axis=1))
+    return _centre_first(order), ok
+
+
+def _centre_first(order: np.ndarray) -> np.ndarray:
+    n = order.shape[0]
+    centre = np.arange(n)
+    if (order[:, 0] == centre).all():
+        return order
+    out = order.copy()
+    pos = np.argmax(order == centre[:, None], axis=1)
+    out[centre, pos] = order[:, 0]
+    out[:, 0] = centre
+    return out
+
+
+def zone_limits(
+    order: np.ndarray, ok: np.ndarray, size: np.ndarray, cap: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Cumulative zone size and the mask of zones no larger than ``cap`` (a prefix per row)."""
+    zsize = np.cumsum(np.where(ok, size[order], 0.0), axis=1)
+    valid = np.cumprod(ok & (zsize <= cap * (1 + 1e-12)), axis=1).astype(bool)
+    return zsize, valid
+
+
+def recent_sums(table: np.ndarray, max_weeks: int) -> np.ndarray:
+    """Cases per unit in the last 1..max_weeks weeks: ``(..., n, T) -> (..., H, n)``."""
+    tail = table[..., ::-1][..., :max_weeks]
+    return np.moveaxis(np.cumsum(tail, axis=-1), -1, -2)
+
+
+def cylinder_counts(recent: np.ndarray, order: np.ndarray) -> np.ndarray:
+    """Observed cases of every cylinder: ``(..., H, n) -> (..., H, n, K)``."""
+    return np.cumsum(recent[..., order], axis=-1)
+
+
+def poisson_llr(c: np.ndarray, mu: np.ndarray, total: float) -> np.ndarray:
+    """Log of the Poisson generalised likelihood ratio; 0 unless ``c > mu`` (excess only).
+
+    Kulldorff et al. (2005), eq. for the space-time permutation scan:
+    ``(c/mu)^c ((C-c)/(C-mu))^(C-c)``, with ``C`` the total number of cases.
+    """
+    c = np.asarray(c, dtype=float)
+    mu = np.broadcast_to(mu, c.shape)
+    up = (c > mu) & (mu > 0)
+    out = np.zeros(c.shape)
+    cc, mm = c[up], mu[up]
+    rest = total - cc
+    inside = cc * np.log(cc / mm)
+    # (C - c) log((C - c)/(C - mu)) -> 0 when every case is inside the cylinder.
+    outside = np.where(rest > 0, rest * np.log(np.where(rest > 0, rest, 1.0) / (total - mm)), 0.0)
+    out[up] = inside + outside
+    return out
+
+
+def null_maxima(
+    draw,
+    n_sims: int,
+    order: np.ndarray,
+    mu: np.ndarray,
+    valid: np.ndarray,
+    total: float,
+    max_weeks: int,
+) -> np.ndarray:
+    """Largest LLR of each simulated table, drawn in batches so memory stays bounded.
+
+    ``draw(b)`` returns ``b`` tables of shape (n, T) with the null distribution.
+    """
+    per_sim = max_weeks * order.size * 8 * 4
+    batch = int(max(1, min(n_sims, BATCH_BYTES // max(per_sim, 1))))
+    mu = np.broadcast_to(mu, (max_weeks, *order.shape))
+    # LLR = c log c - c log mu + (C-c) log(C-c) - (C-c) log(C-mu): the mu parts once, here.
+    log_mu = np.log(np.where(valid & (mu > 0), mu, 1.0))
+    log_rest = np.log(np.maximum(total - mu, 1e-300))
+    out = np.empty(n_sims)
+    done = 0
+    while done < n_sims:
+        b = min(batch, n_sims - done)
+        c = cylinder_counts(recent_sums(draw(b).astype(float), max_weeks), order)
+        rest = total - c
+        llr = xlogy(c, c) - c * log_mu + xlogy(rest, rest) - rest * log_rest
+        llr = np.where((c > mu) & valid, llr, 0.0)
+        out[done : done + b] = llr.reshape(b, -1).max(axis=1)
+        done += b
+    return out
+
+
+def permutation_draw(table: np.ndarray, rng: np.random.Generator):
+    """Random tables with the unit and week margins of ``table`` (the case-time permutation)."""
+    rows = table.sum(axis=1).astype(np.int64)
+    cols = table.sum(axis=0).astype(np.int64)
+    keep = rows > 0
+    dist = random_table(rows[keep], cols, seed=rng)
+
+    def draw(b: int) -> np.ndarray:
+        out = np.zeros((b, *table.shape))
+        out[:, keep, :] = dist.rvs(size=b)
+        return out
+
+    return draw
+
+
+def multinomial_draw(total: int, prob: np.ndarray, rng: np.random.Generator):
+    """Tables of ``total`` cases spread over cells with probabilities ``prob`` (Poisson null)."""
+    flat = prob.ravel() / prob.sum()
+
+    def draw(b: int) -> np.ndarray:
+        return rng.multinomial(total, flat, size=b).reshape(b, *prob.shape)
+
+    return draw
+
+
+def select_clusters(
+    llr: np.ndarray, valid: np.ndarray, order: np.ndarray, max_clusters: int
+) -> list[tuple[int, int, int]]:
+    """Most likely cylinder, then the best ones sharing no unit with those already chosen.
+
+    Returns ``(h_index, centre, k_index)`` triples, best first; only cylinders with LLR > 0.
+    """
+    n = order.shape[0]
+    used = np.zeros(n, dtype=bool)
+    score = np.where(valid, llr, 0.0)
+    picks: list[tuple[int, int, int]] = []
+    for _ in range(max_clusters):  # one pass per reported cluster, vectorised over cylinders
+        overlap = np.logical_or.accumulate(used[order], axis=1)
+        s = np.where(overlap[None, :, :], 0.0, score)
+        best = int(np.argmax(s))
+        if s.flat[best] <= 0:
+            break
+        h, i, k = np.unravel_index(best, s.shape)
+        picks.append((int(h), int(i), int(k)))
+        used[order[i, : k + 1]] = True
+    return picks
+
+
+def zones(xy, adjacency, size, cap, max_units):
+    """Neighbour order wide enough for every base under the cap (grown by doubling)."""
+    n = len(xy)
+    limit = n if max_units is None else min(n, int(max_units))
+    k = min(limit, 32)
+    while True:
+        order, ok = neighbour_order(xy, k, adjacency)
+        _, valid = zone_limits(order, ok, size, cap)
+        if k >= limit or not valid[:, -1].any():
+            break
+        k = min(limit, 2 * k)
+    width = max(1, int(valid.sum(axis=1).max()))
+    return order[:, :width], valid[:, :width]
+
+
+def candidates(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max_units=None):
+    """Every candidate cylinder at once: ``order, valid, observed, expected, llr``.
+
+    ``observed``, ``expected`` and ``llr`` have shape (H, n, K): height index ``h`` (last
+    ``h + 1`` weeks), centre, base size index ``k`` (``k + 1`` units, ``order[i, :k + 1]``).
+    ``cell`` holds the expected count of every unit-week under the null.
+    """
+    order, valid = zones(xy, adjacency, size, cap, max_units)
+    total = float(table.sum())
+    # Expected count of every cylinder: the cell expectations summed the same way as cases.
+    mu = cylinder_counts(recent_sums(cell, max_weeks), order)
+    obs = cylinder_counts(recent_sums(table, max_weeks), order)
+    llr = np.where(valid, poisson_llr(obs, mu, total), 0.0)
+    return order, valid, obs, mu, llr
