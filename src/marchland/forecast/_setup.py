@@ -21,8 +21,8 @@ from ._weights import OrderMatrix
 
 WEEK = pd.Timedelta(days=7)
 MIN_FIT_WEEKS = 8  # fewer known weeks than this cannot pin down five or more parameters
-DEFAULT_WINDOW_WEEKS = 16  # chosen by backtest_forecast on the demo (see benchmarks/)
-DEFAULT_SKIP_RECENT_WEEKS = 0  # chosen by backtest_forecast on the demo (see benchmarks/)
+DEFAULT_WINDOW_WEEKS = 8  # best demo CRPS of 8, 16, 26 weeks in backtest_forecast (benchmarks/)
+DEFAULT_SKIP_RECENT_WEEKS = 0  # leaving out 1 week scored worse on the demo (benchmarks/)
 POPULATION_PER = 100_000  # endemic rate nu is per 100,000 people per week
 
 
@@ -42,7 +42,7 @@ def last_week_over(anchor: pd.Timestamp, date: pd.Timestamp) -> pd.Timestamp:
 
 def week_angles(weeks: pd.DatetimeIndex) -> np.ndarray:
     """Position of each week in the year, in radians (for the sin/cos seasonal terms)."""
-    return 2 * np.pi * (weeks.dayofyear.to_numpy() - 1) / 365.25
+    return 2 * np.pi * (weeks.day_of_year.to_numpy() - 1) / 365.25
 
 
 @dataclass(frozen=True)
