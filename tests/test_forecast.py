@@ -37,7 +37,7 @@ def sim():
 
 # --- parameter recovery ------------------------------------------------------------------------
 def test_parameter_recovery_interval_coverage():
-    # 60 seeded outbreaks on a 10 x 10 lattice (100 units, 16 weeks): the 95 % Wald intervals
+    # 50 seeded outbreaks on a 10 x 10 lattice (100 units, 16 weeks): the 95 % Wald intervals
     # from the Hessian must cover the true values in 90-98 % of fits, pooled over 5 parameters.
     units, g = lattice(10)
     bg = as_border_graph(g, countries=units["country"])
@@ -45,7 +45,7 @@ def test_parameter_recovery_interval_coverage():
     orders = OrderMatrix.from_graph(bg, ids, 5)
     e = units["population"].to_numpy() / 100_000
     covered = []
-    for seed in range(60):
+    for seed in range(50):
         s = simulate_outbreak(10, 16, seed=seed, lam=TRUE["lambda"], intercept=TRUE["intercept"],
                               phi=TRUE["phi"], d=TRUE["d"], psi=TRUE["psi"])
         block = s.panel.to_numpy(dtype=float)

@@ -227,6 +227,10 @@ class Problem:
                 theta[self.names.index(name)] = np.log(v)
         return theta
 
+    def _hessian(self, theta: np.ndarray) -> np.ndarray:
+        hess = approx_fprime(theta, lambda t: self.nll_grad(t)[1], centered=True)
+        return (hess + hess.T) / 2
+
     def fit(self, covariate_names=()) -> Fit:
         """Maximise the likelihood; covariance from the numerical Hessian of the gradient."""
         m = len(self.y)
@@ -236,17 +240,30 @@ class Problem:
             v, g = self.nll_grad(theta)
             return v / m, g / m
 
+        # TNC (bounded truncated Newton) is several times faster here than L-BFGS-B; a few
+        # Newton steps on the numerical Hessian then polish the optimum to full precision.
         res = optimize.minimize(
-            f,
-            self.start(),
-            jac=True,
-            method="L-BFGS-B",
-            bounds=bounds,
-            options={"maxiter": 2000, "ftol": 1e-15, "gtol": 1e-10},
+            f, self.start(), jac=True, method="TNC", bounds=bounds, options={"maxfun": 2000}
         )
         theta = res.x
-        hess = approx_fprime(theta, lambda t: self.nll_grad(t)[1], centered=True)
-        hess = (hess + hess.T) / 2
+        hess = self._hessian(theta)
+        for _ in range(3):
+            value, grad = self.nll_grad(theta)
+            try:
+                step = np.linalg.solve(hess, grad)
+            except np.linalg.LinAlgError:
+                break
+            trial = theta - step
+            inside = all(
+                (lo is None or t > lo) and (hi is None or t < hi)
+                for t, (lo, hi) in zip(trial, bounds, strict=True)
+            )
+            if not inside or not self.nll_grad(trial)[0] <= value:
+                break
+            theta = trial
+            if np.max(np.abs(step)) < 1e-10:
+                break
+        hess = self._hessian(theta)
         try:
             cov = np.linalg.inv(hess)
         except np.linalg.LinAlgError:
