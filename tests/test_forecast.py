@@ -21,7 +21,7 @@ from marchland.forecast._model import ModelSpec, Problem
 from marchland.forecast._setup import MIN_FIT_WEEKS, week_angles
 from marchland.forecast._synthetic import lattice, simulate_outbreak
 from marchland.forecast._weights import OrderMatrix
-from marchland.graph import as_border_graph
+from marchland.graph import BorderGraph, as_border_graph
 
 TRUE = {"intercept": -1.0, "lambda": 0.5, "phi": 0.3, "d": 1.5, "psi": 3.0}
 
@@ -46,14 +46,24 @@ def test_parameter_recovery_interval_coverage():
     e = units["population"].to_numpy() / 100_000
     covered = []
     for seed in range(50):
-        s = simulate_outbreak(10, 16, seed=seed, lam=TRUE["lambda"], intercept=TRUE["intercept"],
-                              phi=TRUE["phi"], d=TRUE["d"], psi=TRUE["psi"])
+        s = simulate_outbreak(
+            10,
+            16,
+            seed=seed,
+            lam=TRUE["lambda"],
+            intercept=TRUE["intercept"],
+            phi=TRUE["phi"],
+            d=TRUE["d"],
+            psi=TRUE["psi"],
+        )
         block = s.panel.to_numpy(dtype=float)
-        prob = Problem.build(block, e, np.zeros((100, 0)), week_angles(s.panel.columns[1:]),
-                             orders, ModelSpec())
+        prob = Problem.build(
+            block, e, np.zeros((100, 0)), week_angles(s.panel.columns[1:]), orders, ModelSpec()
+        )
         table = prob.fit().table(0.95)
-        covered.append([table.loc[k, "lower"] <= v <= table.loc[k, "upper"]
-                        for k, v in TRUE.items()])
+        covered.append(
+            [table.loc[k, "lower"] <= v <= table.loc[k, "upper"] for k, v in TRUE.items()]
+        )
     covered = np.array(covered)
     print("recovery coverage per parameter:", dict(zip(TRUE, covered.mean(axis=0), strict=True)))
     assert 0.90 <= covered.mean() <= 0.98
@@ -62,18 +72,29 @@ def test_parameter_recovery_interval_coverage():
 
 # --- the forecast object -----------------------------------------------------------------------
 def test_forecast_table_and_parameters(sim):
-    f = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=3, n_paths=400,
-                 window_weeks=20)
+    f = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=3, n_paths=400, window_weeks=20
+    )
     assert isinstance(f, Forecast)
     t = f.table
-    assert list(t.columns) == ["week", "horizon", "mean", "median", "lower", "upper", "p_any",
-                               "note"]
+    assert list(t.columns) == [
+        "week",
+        "horizon",
+        "mean",
+        "median",
+        "lower",
+        "upper",
+        "p_any",
+        "note",
+    ]
     assert len(t) == 4 * len(sim.units)
     assert t.index.name == "unit_id" and set(t.index) == set(sim.units.index)
     assert (t["lower"] <= t["median"]).all() and (t["median"] <= t["upper"]).all()
     assert t["p_any"].between(0, 1).all()
-    assert (t["week"].unique() == pd.date_range(f.origin_week + pd.Timedelta(days=7),
-                                                periods=4, freq="7D")).all()
+    assert (
+        t["week"].unique()
+        == pd.date_range(f.origin_week + pd.Timedelta(days=7), periods=4, freq="7D")
+    ).all()
     assert f.paths.shape == (4, len(sim.units), 400)
     np.testing.assert_allclose(t["mean"], f.paths.mean(axis=2).ravel())
     assert list(f.parameters.columns[:4]) == ["estimate", "lower", "upper", "se"]
@@ -91,8 +112,11 @@ def test_aggregate_sums_paths_not_intervals(sim):
     row = agg[(agg.index == "C0") & (agg["horizon"] == 1)].iloc[0]
     assert row["mean"] == pytest.approx(by_hand.mean())
     assert row["upper"] == np.quantile(by_hand, 0.95, method="inverted_cdf")
-    unit_upper = f.table[f.table["horizon"] == 1].loc[sim.units.index[sim.units.country == "C0"],
-                                                        "upper"].sum()
+    unit_upper = (
+        f.table[f.table["horizon"] == 1]
+        .loc[sim.units.index[sim.units.country == "C0"], "upper"]
+        .sum()
+    )
     assert row["upper"] < unit_upper  # summing unit intervals would overstate the spread
     region = f.aggregate("region")
     assert len(region) == 4 and (region["n_units"] == 100).all()
@@ -118,11 +142,13 @@ def test_border_graph_and_libpysal_graph_agree(sim):
 
 def test_panel_input_is_used(sim):
     a = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50)
-    b = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50,
-                 panel=sim.panel)
+    b = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50, panel=sim.panel
+    )
     pd.testing.assert_frame_equal(a.table, b.table)
-    doubled = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50,
-                       panel=sim.panel * 2)
+    doubled = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50, panel=sim.panel * 2
+    )
     assert doubled.table["mean"].sum() > 1.5 * a.table["mean"].sum()
 
 
@@ -154,7 +180,6 @@ def test_islands_warn_and_get_no_neighbourhood_part(sim):
     lone = sim.units.index[0]
     cut = bg.subgraph([u for u in bg.ids if u != lone])
     edges = cut.edges
-    from marchland.graph import BorderGraph
 
     with_island = BorderGraph(edges, bg.ids, bg.countries)
     with pytest.warns(DataWarning, match=r"islands: \['U00000'\].*neighbourhood part is 0"):
@@ -185,14 +210,16 @@ def test_backtest_on_simulated_outbreak_beats_baselines():
     s = simulate_outbreak(10, 40, seed=11, lam=0.6, phi=0.3)
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        bt = backtest_forecast(s.counts, s.units, s.graph, window_weeks=12, step_weeks=3,
-                               n_paths=300, seed=2)
+        bt = backtest_forecast(
+            s.counts, s.units, s.graph, window_weeks=12, step_weeks=3, n_paths=300, seed=2
+        )
     a = bt[bt["country"] == "all"]
     print(a.round(3).to_string())
     assert set(a.index) == {"endemic-epidemic", "last-week", "mean-4-weeks"}
     for h in range(1, 5):
         at = a[a["horizon"] == h]["crps"]
-        assert at["endemic-epidemic"] < at["last-week"] and at["endemic-epidemic"] < at[
-            "mean-4-weeks"], h
+        assert (
+            at["endemic-epidemic"] < at["last-week"] and at["endemic-epidemic"] < at["mean-4-weeks"]
+        ), h
     cov = a.loc["endemic-epidemic", "coverage"]
     assert cov.between(0.85, 0.95).all()

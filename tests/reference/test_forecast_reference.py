@@ -32,8 +32,9 @@ def _problem(sim, spec, z=None):
     z = np.zeros((len(ids), 0)) if z is None else z
     names = tuple(f"z{k}" for k in range(z.shape[1]))
     angles = week_angles(sim.panel.columns[1:])
-    prob = Problem.build(sim.panel.to_numpy(float), e, z, angles,
-                         OrderMatrix.from_graph(bg, ids, 5), spec, names)
+    prob = Problem.build(
+        sim.panel.to_numpy(float), e, z, angles, OrderMatrix.from_graph(bg, ids, 5), spec, names
+    )
     return prob, e, z, angles
 
 
@@ -93,8 +94,16 @@ def test_sample_crps_matches_closed_form_negative_binomial():
 def test_pit_is_uniform_for_data_from_the_model():
     # Czado, Gneiting & Held (2009): randomised PIT of calibrated count forecasts is U(0, 1).
     sim = simulate_outbreak(10, 34, seed=21)
-    det = backtest_forecast(sim.counts, sim.units, sim.graph, window_weeks=16, step_weeks=3,
-                            n_paths=200, seed=4, details=True)
+    det = backtest_forecast(
+        sim.counts,
+        sim.units,
+        sim.graph,
+        window_weeks=16,
+        step_weeks=3,
+        n_paths=200,
+        seed=4,
+        details=True,
+    )
     pit = det.loc[(det["model"] == "endemic-epidemic") & (det["horizon"] == 1), "pit"]
     assert len(pit) >= 300
     assert stats.kstest(pit, "uniform").pvalue > 0.01

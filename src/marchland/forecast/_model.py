@@ -218,7 +218,7 @@ class Problem:
         return -float(ll.sum()), -grad
 
     def start(self) -> np.ndarray:
-        """Starting values: a third of the mean rate endemic, the rest to the other parts."""
+        """Give starting values: a third of the mean rate endemic, the rest to other parts."""
         rate = max(self.y.sum(), 0.5) / self.e.sum()
         theta = np.zeros(len(self.names))
         theta[0] = np.log(rate / 3)

@@ -1,5 +1,6 @@
-"""Proper scores for count forecasts: CRPS (scoringrules, from samples), log score, randomised
-PIT and interval coverage; and the negative binomial noise of the naive baselines.
+"""Proper scores for count forecasts, and the negative binomial noise of the naive baselines.
+
+CRPS (scoringrules, from samples), log score, randomised PIT and interval coverage.
 
 The CRPS is scoringrules' ``crps_ensemble``; the log score and the PIT use the exact predictive
 distribution where we have it: for the model, the mixture over paths of the negative binomial

@@ -67,7 +67,7 @@ class Origin:
 
 
 def check_units(units) -> tuple[pd.Index, np.ndarray]:
-    """Unit ids and the population offset (per 100,000), with clear errors."""
+    """Return unit ids and the population offset (per 100,000), with clear errors."""
     if "population" not in units.columns:
         raise InputError("units need a 'population' column for the endemic offset")
     pop = pd.to_numeric(units["population"], errors="coerce").to_numpy(dtype=float)

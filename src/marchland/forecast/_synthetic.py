@@ -32,7 +32,7 @@ class Synthetic:
 
 
 def lattice(side: int, countries: int = 2) -> tuple[pd.DataFrame, Graph]:
-    """A ``side`` x ``side`` grid of square units (queen contiguity), split into countries."""
+    """Build a ``side`` x ``side`` grid of square units (queen contiguity) in countries."""
     x, y = np.meshgrid(np.arange(side), np.arange(side))
     x, y = x.ravel(), y.ravel()
     ids = pd.Index([f"U{i:05d}" for i in range(side * side)], name="unit_id")

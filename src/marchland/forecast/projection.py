@@ -87,7 +87,11 @@ class Forecast:
         --------
         >>> import marchland.region as region, marchland.demo as demo
         >>> r = region.open_region(demo.scenario_path())
-        >>> f = forecast(r.counts, r.units, r.graph, as_of="2026-09-01", seed=1, n_paths=200)
+        >>> import warnings
+        >>> from marchland.errors import DataWarning
+        >>> with warnings.catch_warnings():
+        ...     warnings.simplefilter("ignore", DataWarning)  # the demo graph has one island
+        ...     f = forecast(r.counts, r.units, r.graph, as_of="2026-09-01", seed=1, n_paths=200)
         >>> f.aggregate("region")[["horizon", "mean"]].shape
         (4, 2)
         """
@@ -256,7 +260,11 @@ def forecast(
     --------
     >>> import marchland.region as region, marchland.demo as demo
     >>> r = region.open_region(demo.scenario_path())
-    >>> f = forecast(r.counts, r.units, r.graph, as_of="2026-09-01", seed=1, n_paths=200)
+    >>> import warnings
+    >>> from marchland.errors import DataWarning
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore", DataWarning)  # the demo graph has one island
+    ...     f = forecast(r.counts, r.units, r.graph, as_of="2026-09-01", seed=1, n_paths=200)
     >>> sorted(f.table["horizon"].unique().tolist())
     [1, 2, 3, 4]
     >>> list(f.parameters.index)
