@@ -1,0 +1,61 @@
+"""Speed and skill of the forecast stage (not a test; prints numbers).
+
+$ python benchmarks/bench_forecast.py [--big] [--backtest]
+- demo: fit + 1,000 paths of 4 weeks (target < 10 s)
+- --big: 10,000 lattice units x 156 weeks (target < 2 min)
+- --backtest: demo and simulated rolling-origin scores per horizon against the baselines
+"""
+
+import sys
+import time
+
+import pandas as pd
+
+import marchland.demo as demo
+import marchland.region as region
+from marchland.forecast import backtest_forecast, forecast
+from marchland.forecast._synthetic import simulate_outbreak
+
+pd.set_option("display.width", 160)
+
+
+def timed(label, fn):
+    t = time.perf_counter()
+    out = fn()
+    print(f"{label}: {time.perf_counter() - t:.2f} s", flush=True)
+    return out
+
+
+r = region.open_region(demo.scenario_path())
+timed(
+    "demo fit + 1000 paths x 4 weeks",
+    lambda: forecast(r.counts, r.units, r.graph, as_of="2026-09-01", seed=1, n_paths=1000),
+)
+
+if "--big" in sys.argv:
+    s = timed(
+        "simulate 10,000 units x 156 weeks",
+        lambda: simulate_outbreak(100, 156, seed=1, lam=0.5, phi=0.3),
+    )
+    as_of = s.panel.columns[-1] + pd.Timedelta(days=9)
+    f = timed(
+        "10,000 units: fit (156 weeks) + 1000 paths x 4 weeks",
+        lambda: forecast(
+            s.counts, s.units, s.graph, as_of=as_of, window_weeks=156, seed=1, n_paths=1000
+        ),
+    )
+    print(f.parameters)
+
+if "--backtest" in sys.argv:
+    for w in (8, 16, 26):
+        bt = timed(
+            f"demo backtest window {w}",
+            lambda w=w: backtest_forecast(r.counts, r.units, r.graph, window_weeks=w, n_paths=300),
+        )
+        print(bt[bt["country"] == "all"].round(3).to_string())
+    s = simulate_outbreak(10, 60, seed=3, lam=0.6, phi=0.3)
+    bt = timed(
+        "simulated backtest",
+        lambda: backtest_forecast(s.counts, s.units, s.graph, window_weeks=12, n_paths=300),
+    )
+    print(bt[bt["country"] == "all"].round(3).to_string())

@@ -1,0 +1,120 @@
+"""Outside checks of the forecast stage: scipy, statsmodels and scoringrules.
+
+- the model's log-likelihood equals scipy.stats.nbinom.logpmf summed by hand, with the means
+  (power-law weights included) rebuilt independently from scipy's shortest paths;
+- with no autoregressive and no neighbourhood part the fit is statsmodels' NB2 regression;
+- scoringrules' sample CRPS of a large negative binomial sample matches the closed-form CRPS
+  of that distribution (numeric sum), as our backtest uses it;
+- randomised PIT of forecasts of data drawn from the model itself is uniform.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import statsmodels.api as sm
+from scipy import sparse, stats
+from scipy.sparse import csgraph
+
+from marchland.forecast import backtest_forecast
+from marchland.forecast._model import ModelSpec, Problem, endemic_design
+from marchland.forecast._scores import crps
+from marchland.forecast._setup import week_angles
+from marchland.forecast._synthetic import lattice, simulate_outbreak
+from marchland.forecast._weights import OrderMatrix
+from marchland.graph import as_border_graph
+
+
+def _problem(sim, spec, z=None):
+    bg = as_border_graph(sim.graph, countries=sim.units["country"])
+    ids = sim.units.index
+    e = sim.units["population"].to_numpy() / 100_000
+    z = np.zeros((len(ids), 0)) if z is None else z
+    names = tuple(f"z{k}" for k in range(z.shape[1]))
+    angles = week_angles(sim.panel.columns[1:])
+    prob = Problem.build(
+        sim.panel.to_numpy(float), e, z, angles, OrderMatrix.from_graph(bg, ids, 5), spec, names
+    )
+    return prob, e, z, angles
+
+
+def test_loglik_equals_scipy_nbinom_with_means_by_hand():
+    sim = simulate_outbreak(8, 20, seed=3)
+    prob, e, _, _ = _problem(sim, ModelSpec())
+    fit = prob.fit()
+    lam, phi, d, psi = (fit.value(k) for k in ("log_lambda", "log_phi", "log_d", "log_psi"))
+    # Graph orders from scipy's all-pairs shortest paths on the libpysal adjacency (dense: small).
+    adj = sim.graph.sparse
+    order = csgraph.shortest_path(adj, unweighted=True, directed=False)
+    u = np.where((order >= 1) & (order <= 5), order, np.inf) ** (-d)
+    w = u / u.sum(axis=1, keepdims=True)  # row j: what unit j passes on, sums to 1
+    y = sim.panel.to_numpy(float)
+    mu = (e * np.exp(fit.beta[0]))[:, None] + lam * y[:, :-1] + phi * (w.T @ y[:, :-1])
+    by_hand = stats.nbinom.logpmf(y[:, 1:], psi, psi / (psi + mu)).sum()  # scipy.stats.nbinom
+    np.testing.assert_allclose(fit.loglik, by_hand, rtol=1e-10)
+    assert isinstance(adj, sparse.sparray | sparse.spmatrix)
+
+
+def test_endemic_only_fit_equals_statsmodels_negative_binomial():
+    # statsmodels.discrete.discrete_model.NegativeBinomial (NB2) with offset log e.
+    sim = simulate_outbreak(8, 20, seed=5, lam=0.4, phi=0.2)
+    rng = np.random.default_rng(0)
+    z = rng.normal(size=(len(sim.units), 1))
+    spec = ModelSpec(autoregressive=False, neighbourhood=False, seasonal=True)
+    prob, e, z, angles = _problem(sim, spec, z)
+    fit = prob.fit(("z0",))
+    y = sim.panel.to_numpy(float)[:, 1:]
+    x = endemic_design(angles, z, True)
+    n, t, p = x.shape
+    xs, off = x.reshape(n * t, p), np.repeat(np.log(e), t)
+    # Newton from a statsmodels Poisson GLM start: all statsmodels' own, none of our estimates.
+    pois = sm.GLM(y.ravel(), xs, family=sm.families.Poisson(), offset=off).fit()
+    ref = sm.NegativeBinomial(y.ravel(), xs, offset=off, loglike_method="nb2").fit(
+        start_params=[*pois.params, 0.5], method="newton", maxiter=200, tol=1e-12, disp=False
+    )
+    np.testing.assert_allclose(fit.beta, ref.params[:p], atol=1e-4)
+    np.testing.assert_allclose(1 / fit.value("log_psi"), ref.params[p], atol=1e-4)  # alpha
+    np.testing.assert_allclose(fit.loglik, ref.llf, rtol=1e-8)
+
+
+def test_sample_crps_matches_closed_form_negative_binomial():
+    # Closed form for a count distribution: CRPS(F, y) = sum_k (F(k) - 1{y <= k})^2
+    # (Gneiting & Raftery 2007, eq. 20 for integer support); scoringrules.crps_ensemble on
+    # 40,000 draws must agree within Monte Carlo error.
+    rng = np.random.default_rng(1)
+    mu, psi = 6.0, 2.5
+    k = np.arange(0, 400)
+    cdf = stats.nbinom.cdf(k, psi, psi / (psi + mu))
+    ys = np.array([0, 3, 6, 15])
+    exact = np.array([np.sum((cdf - (y <= k)) ** 2) for y in ys])
+    draws = stats.nbinom.rvs(psi, psi / (psi + mu), size=(len(ys), 40_000), random_state=rng)
+    np.testing.assert_allclose(crps(ys, draws), exact, rtol=0.02)
+
+
+def test_pit_is_uniform_for_data_from_the_model():
+    # Czado, Gneiting & Held (2009): randomised PIT of calibrated count forecasts is U(0, 1).
+    sim = simulate_outbreak(10, 34, seed=21)
+    det = backtest_forecast(
+        sim.counts,
+        sim.units,
+        sim.graph,
+        window_weeks=16,
+        step_weeks=3,
+        n_paths=200,
+        seed=4,
+        details=True,
+    )
+    pit = det.loc[(det["model"] == "endemic-epidemic") & (det["horizon"] == 1), "pit"]
+    assert len(pit) >= 300
+    assert stats.kstest(pit, "uniform").pvalue > 0.01
+
+
+def test_lattice_graph_is_queen_contiguity():
+    # libpysal's own lattice weights give the same neighbours as our lattice helper.
+    from libpysal.weights import lat2W
+
+    units, g = lattice(6)
+    ref = lat2W(6, 6, rook=False)
+    ours = {i: sorted(units.index.get_indexer(g[u].index)) for i, u in enumerate(units.index)}
+    assert all(ours[i] == sorted(ref.neighbors[i]) for i in range(36))
+    assert pd.Index(units.index).is_unique

@@ -1,0 +1,225 @@
+"""Tests of the forecast stage (marchland.forecast).
+
+Covered: parameter recovery on simulated lattices (coverage of the 95 % intervals), shape and
+contents of the forecast table and its aggregation, the seed, no mutation of inputs, both graph
+kinds, the panel= input, and bad input (unit with no history, all-zero history, islands, too
+few weeks, units missing from the graph). The demo backtest checks that the model beats the
+naive baselines; outside references are in tests/reference/test_forecast_reference.py.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from marchland.errors import DataWarning, InputError
+from marchland.forecast import Forecast, backtest_forecast, forecast
+from marchland.forecast._model import ModelSpec, Problem
+from marchland.forecast._setup import MIN_FIT_WEEKS, week_angles
+from marchland.forecast._synthetic import lattice, simulate_outbreak
+from marchland.forecast._weights import OrderMatrix
+from marchland.graph import BorderGraph, as_border_graph
+
+TRUE = {"intercept": -1.0, "lambda": 0.5, "phi": 0.3, "d": 1.5, "psi": 3.0}
+
+
+def _as_of(sim, weeks_after=0):
+    return sim.panel.columns[-1] + pd.Timedelta(days=9 + 7 * weeks_after)
+
+
+@pytest.fixture(scope="module")
+def sim():
+    return simulate_outbreak(10, 30, seed=7, **{k: v for k, v in TRUE.items() if k != "lambda"})
+
+
+# --- parameter recovery ------------------------------------------------------------------------
+def test_parameter_recovery_interval_coverage():
+    # 50 seeded outbreaks on a 10 x 10 lattice (100 units, 16 weeks): the 95 % Wald intervals
+    # from the Hessian must cover the true values in 90-98 % of fits, pooled over 5 parameters.
+    units, g = lattice(10)
+    bg = as_border_graph(g, countries=units["country"])
+    ids = units.index
+    orders = OrderMatrix.from_graph(bg, ids, 5)
+    e = units["population"].to_numpy() / 100_000
+    covered = []
+    for seed in range(50):
+        s = simulate_outbreak(
+            10,
+            16,
+            seed=seed,
+            lam=TRUE["lambda"],
+            intercept=TRUE["intercept"],
+            phi=TRUE["phi"],
+            d=TRUE["d"],
+            psi=TRUE["psi"],
+        )
+        block = s.panel.to_numpy(dtype=float)
+        prob = Problem.build(
+            block, e, np.zeros((100, 0)), week_angles(s.panel.columns[1:]), orders, ModelSpec()
+        )
+        table = prob.fit().table(0.95)
+        covered.append(
+            [table.loc[k, "lower"] <= v <= table.loc[k, "upper"] for k, v in TRUE.items()]
+        )
+    covered = np.array(covered)
+    print("recovery coverage per parameter:", dict(zip(TRUE, covered.mean(axis=0), strict=True)))
+    assert 0.90 <= covered.mean() <= 0.98
+    assert (covered.mean(axis=0) >= 0.8).all()
+
+
+# --- the forecast object -----------------------------------------------------------------------
+def test_forecast_table_and_parameters(sim):
+    f = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=3, n_paths=400, window_weeks=20
+    )
+    assert isinstance(f, Forecast)
+    t = f.table
+    assert list(t.columns) == [
+        "week",
+        "horizon",
+        "mean",
+        "median",
+        "lower",
+        "upper",
+        "p_any",
+        "note",
+    ]
+    assert len(t) == 4 * len(sim.units)
+    assert t.index.name == "unit_id" and set(t.index) == set(sim.units.index)
+    assert (t["lower"] <= t["median"]).all() and (t["median"] <= t["upper"]).all()
+    assert t["p_any"].between(0, 1).all()
+    assert (
+        t["week"].unique()
+        == pd.date_range(f.origin_week + pd.Timedelta(days=7), periods=4, freq="7D")
+    ).all()
+    assert f.paths.shape == (4, len(sim.units), 400)
+    np.testing.assert_allclose(t["mean"], f.paths.mean(axis=2).ravel())
+    assert list(f.parameters.columns[:4]) == ["estimate", "lower", "upper", "se"]
+    # True values inside the 95 % intervals on this seed (a single fit; recovery test above
+    # checks the rate).
+    for k, v in TRUE.items():
+        if k != "lambda":
+            assert f.parameters.loc[k, "lower"] <= v <= f.parameters.loc[k, "upper"], k
+
+
+def test_aggregate_sums_paths_not_intervals(sim):
+    f = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=3, n_paths=400)
+    agg = f.aggregate("country")
+    by_hand = f.paths[0][(sim.units["country"] == "C0").to_numpy()].sum(axis=0)
+    row = agg[(agg.index == "C0") & (agg["horizon"] == 1)].iloc[0]
+    assert row["mean"] == pytest.approx(by_hand.mean())
+    assert row["upper"] == np.quantile(by_hand, 0.95, method="inverted_cdf")
+    unit_upper = (
+        f.table[f.table["horizon"] == 1]
+        .loc[sim.units.index[sim.units.country == "C0"], "upper"]
+        .sum()
+    )
+    assert row["upper"] < unit_upper  # summing unit intervals would overstate the spread
+    region = f.aggregate("region")
+    assert len(region) == 4 and (region["n_units"] == 100).all()
+    with pytest.raises(ValueError, match="'by' needs to be one of"):
+        f.aggregate("planet")
+
+
+def test_seed_repeats_and_inputs_unchanged(sim):
+    counts, units = sim.counts.copy(), sim.units.copy()
+    a = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50)
+    b = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50)
+    pd.testing.assert_frame_equal(a.table, b.table)
+    pd.testing.assert_frame_equal(sim.counts, counts)
+    pd.testing.assert_frame_equal(sim.units, units)
+
+
+def test_border_graph_and_libpysal_graph_agree(sim):
+    bg = as_border_graph(sim.graph, countries=sim.units["country"])
+    a = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50)
+    b = forecast(sim.counts, sim.units, bg, as_of=_as_of(sim), seed=5, n_paths=50)
+    pd.testing.assert_frame_equal(a.table, b.table)
+
+
+def test_panel_input_is_used(sim):
+    a = forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50)
+    b = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50, panel=sim.panel
+    )
+    pd.testing.assert_frame_equal(a.table, b.table)
+    doubled = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=5, n_paths=50, panel=sim.panel * 2
+    )
+    assert doubled.table["mean"].sum() > 1.5 * a.table["mean"].sum()
+
+
+# --- bad input ---------------------------------------------------------------------------------
+def test_unit_with_no_history_is_nan_with_note(sim):
+    gone = sim.units.index[0]
+    counts = sim.counts[sim.counts["unit_id"] != gone]
+    f = forecast(counts, sim.units, sim.graph, as_of=_as_of(sim), seed=1, n_paths=50)
+    rows = f.table.loc[[gone]]
+    assert rows["mean"].isna().all() and rows["note"].str.contains("no report").all()
+    assert f.table.drop(index=gone)["mean"].notna().all()
+    assert f.aggregate("region")["n_unknown"].eq(1).all()
+    assert any("no recent report" in n for n in f.notes)
+
+
+def test_all_zero_history_unit_and_all_zero_region(sim):
+    quiet = sim.units.index[5]
+    counts = sim.counts.copy()
+    counts.loc[counts["unit_id"] == quiet, "cases"] = 0
+    f = forecast(counts, sim.units, sim.graph, as_of=_as_of(sim), seed=1, n_paths=200)
+    assert f.table.loc[quiet, "mean"].notna().all()
+    counts["cases"] = 0
+    with pytest.raises(InputError, match="no cases reported"):
+        forecast(counts, sim.units, sim.graph, as_of=_as_of(sim), seed=1)
+
+
+def test_islands_warn_and_get_no_neighbourhood_part(sim):
+    bg = as_border_graph(sim.graph, countries=sim.units["country"])
+    lone = sim.units.index[0]
+    cut = bg.subgraph([u for u in bg.ids if u != lone])
+    edges = cut.edges
+
+    with_island = BorderGraph(edges, bg.ids, bg.countries)
+    with pytest.warns(DataWarning, match=r"islands: \['U00000'\].*neighbourhood part is 0"):
+        f = forecast(sim.counts, sim.units, with_island, as_of=_as_of(sim), seed=1, n_paths=50)
+    assert f.table["mean"].notna().all()
+
+
+def test_too_few_weeks_names_the_minimum(sim):
+    early = sim.panel.columns[4] + pd.Timedelta(days=9)
+    with pytest.raises(InputError, match=f"at least {MIN_FIT_WEEKS} are needed"):
+        forecast(sim.counts, sim.units, sim.graph, as_of=early)
+    with pytest.raises(ValueError, match="'window_weeks' needs to be at least"):
+        forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), window_weeks=3)
+
+
+def test_unit_missing_from_graph_and_bad_population(sim):
+    extra = sim.units.iloc[:1].rename(index={sim.units.index[0]: "ZZZ"})
+    with pytest.raises(ValueError, match="graph must hold every unit"):
+        forecast(sim.counts, pd.concat([sim.units, extra]), sim.graph, as_of=_as_of(sim))
+    bad = sim.units.copy()
+    bad.iloc[3, bad.columns.get_loc("population")] = 0
+    with pytest.raises(InputError, match="population must be a positive number"):
+        forecast(sim.counts, bad, sim.graph, as_of=_as_of(sim))
+
+
+# --- backtest ----------------------------------------------------------------------------------
+def test_backtest_on_simulated_outbreak_beats_baselines():
+    s = simulate_outbreak(10, 40, seed=11, lam=0.6, phi=0.3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        bt = backtest_forecast(
+            s.counts, s.units, s.graph, window_weeks=12, step_weeks=3, n_paths=300, seed=2
+        )
+    a = bt[bt["country"] == "all"]
+    print(a.round(3).to_string())
+    assert set(a.index) == {"endemic-epidemic", "last-week", "mean-4-weeks"}
+    for h in range(1, 5):
+        at = a[a["horizon"] == h]["crps"]
+        assert (
+            at["endemic-epidemic"] < at["last-week"] and at["endemic-epidemic"] < at["mean-4-weeks"]
+        ), h
+    cov = a.loc["endemic-epidemic", "coverage"]
+    assert cov.between(0.85, 0.95).all()
