@@ -19,7 +19,7 @@ from marchland.clusters._clustersim import lattice_units, planted_panel
 
 def demo(permutations: int) -> None:
     from marchland.demo import scenario_path
-    from marchland.region import open_region
+    from marchland.pack import open_region
 
     region = open_region(scenario_path())
     for as_of in ("2026-04-30", "2026-08-31"):

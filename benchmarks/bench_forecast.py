@@ -12,9 +12,9 @@ import time
 import pandas as pd
 
 import marchland.demo as demo
-import marchland.region as region
-from marchland.forecast import backtest_forecast, forecast
-from marchland.forecast._synthetic import simulate_outbreak
+import marchland.pack as region
+from marchland.projections import backtest_forecast, forecast
+from marchland.projections._synthetic import simulate_outbreak
 
 pd.set_option("display.width", 160)
 

@@ -9,10 +9,10 @@ import warnings
 import numpy as np
 import pandas as pd
 
+from marchland.delays import fill_gaps, nowcast
 from marchland.demo import scenario_path
 from marchland.errors import DataWarning
-from marchland.nowcast import fill_gaps, nowcast
-from marchland.region import open_region
+from marchland.pack import open_region
 
 
 def synthetic(n_units: int = 10_000, n_weeks: int = 156, seed: int = 0) -> pd.DataFrame:

@@ -1,4 +1,4 @@
-"""Tests of the forecast stage (marchland.forecast).
+"""Tests of the forecast stage (marchland.projections).
 
 Covered: parameter recovery on simulated lattices (coverage of the 95 % intervals), shape and
 contents of the forecast table and its aggregation, the seed, no mutation of inputs, both graph
@@ -16,12 +16,12 @@ import pandas as pd
 import pytest
 
 from marchland.errors import DataWarning, InputError
-from marchland.forecast import Forecast, backtest_forecast, forecast
-from marchland.forecast._model import ModelSpec, Problem
-from marchland.forecast._setup import MIN_FIT_WEEKS, week_angles
-from marchland.forecast._synthetic import lattice, simulate_outbreak
-from marchland.forecast._weights import OrderMatrix
 from marchland.graph import BorderGraph, as_border_graph
+from marchland.projections import Forecast, backtest_forecast, forecast
+from marchland.projections._model import ModelSpec, Problem
+from marchland.projections._setup import MIN_FIT_WEEKS, week_angles
+from marchland.projections._synthetic import lattice, simulate_outbreak
+from marchland.projections._weights import OrderMatrix
 
 TRUE = {"intercept": -1.0, "lambda": 0.5, "phi": 0.3, "d": 1.5, "psi": 3.0}
 

@@ -18,9 +18,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from marchland.demo import scenario_path
-from marchland.errors import DataWarning, InputError
-from marchland.nowcast import (
+from marchland.delays import (
     PANEL_STATUSES,
     STATUSES,
     aggregate_panel,
@@ -28,8 +26,10 @@ from marchland.nowcast import (
     nowcast,
     reporting_triangle,
 )
-from marchland.region import open_region
-from marchland.reports import as_of
+from marchland.demo import scenario_path
+from marchland.errors import DataWarning, InputError
+from marchland.inputs import as_of
+from marchland.pack import open_region
 
 # Share of a week's final count first known at each delay (0..5), per simulated country.
 DELAYS = {

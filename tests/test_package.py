@@ -26,6 +26,10 @@ DESIGN_NAMES = {
     "choose_depots",
     "open_region",
     "run_month",
+    "nowcast",
+    "forecast",
+    "backtest_forecast",
+    "emerging_clusters",
 }
 
 

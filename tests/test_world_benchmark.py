@@ -13,7 +13,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from marchland.region import open_region
+from marchland.pack import open_region
 
 _SCRIPT = Path(__file__).resolve().parents[1] / "benchmarks" / "world.py"
 

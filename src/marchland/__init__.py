@@ -34,6 +34,10 @@ _EXPORTS: dict[str, str] = {
     "choose_depots": "supplies.depots",
     "open_region": "pack.region",
     "run_month": "pack.monthly",
+    "nowcast": "delays.nowcasting",
+    "forecast": "projections.projection",
+    "backtest_forecast": "projections.backtest",
+    "emerging_clusters": "clusters.emerging",
 }
 
 __all__ = [
@@ -58,15 +62,23 @@ __all__ = [
     "choose_depots",
     "open_region",
     "run_month",
+    "nowcast",
+    "forecast",
+    "backtest_forecast",
+    "emerging_clusters",
 ]
 
 if TYPE_CHECKING:  # pragma: no cover
+    from .clusters.emerging import emerging_clusters
+    from .delays.nowcasting import nowcast
     from .graph.build import border_graph
     from .inputs.population import zonal_population
     from .inputs.reports import read_reports
     from .inputs.units import analysis_units, read_units
     from .pack.monthly import run_month
     from .pack.region import open_region
+    from .projections.backtest import backtest_forecast
+    from .projections.projection import forecast
     from .risk.score import backtest_risk, border_risk
     from .spread.arrival import first_cases, spread_velocity
     from .spread.fronts import corridor, cross_border_introductions, spread_fronts

@@ -16,13 +16,13 @@ import statsmodels.api as sm
 from scipy import sparse, stats
 from scipy.sparse import csgraph
 
-from marchland.forecast import backtest_forecast
-from marchland.forecast._model import ModelSpec, Problem, endemic_design
-from marchland.forecast._scores import crps
-from marchland.forecast._setup import week_angles
-from marchland.forecast._synthetic import lattice, simulate_outbreak
-from marchland.forecast._weights import OrderMatrix
 from marchland.graph import as_border_graph
+from marchland.projections import backtest_forecast
+from marchland.projections._model import ModelSpec, Problem, endemic_design
+from marchland.projections._scores import crps
+from marchland.projections._setup import week_angles
+from marchland.projections._synthetic import lattice, simulate_outbreak
+from marchland.projections._weights import OrderMatrix
 
 
 def _problem(sim, spec, z=None):

@@ -14,8 +14,8 @@ import pytest
 
 cl = pytest.importorskip("chainladder", reason="chainladder is in the test extra")
 
-from marchland.nowcast import nowcast, reporting_triangle  # noqa: E402
-from marchland.nowcast._pattern import factors, to_final  # noqa: E402
+from marchland.delays import nowcast, reporting_triangle  # noqa: E402
+from marchland.delays._pattern import factors, to_final  # noqa: E402
 
 START = pd.Timestamp("2024-01-01")  # a Monday
 # chainladder's sample loader parses integer years with a format, which pandas deprecates; a

@@ -9,8 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from marchland.errors import InputError
-from marchland.reports import as_of as _as_of
+from ..errors import InputError
+from ..inputs.reports import as_of as _as_of
 
 WEEK = pd.Timedelta(weeks=1)
 

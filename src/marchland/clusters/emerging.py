@@ -13,9 +13,8 @@ import numpy as np
 import pandas as pd
 from scipy import sparse
 
-from marchland.errors import DataWarning, InputError
-from marchland.graph import BorderGraph, as_border_graph
-
+from ..errors import DataWarning, InputError
+from ..graph.border import BorderGraph, as_border_graph
 from . import _scan
 from ._panel import case_panel, check_panel
 

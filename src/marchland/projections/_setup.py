@@ -13,9 +13,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from marchland.errors import DataWarning, InputError
-from marchland.reports import as_of as known_as_of
-
+from ..errors import DataWarning, InputError
+from ..inputs.reports import as_of as known_as_of
 from ._model import Fit, ModelSpec, Problem, fill_lags
 from ._weights import OrderMatrix
 

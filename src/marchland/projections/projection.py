@@ -14,8 +14,7 @@ import numpy as np
 import pandas as pd
 from scipy import sparse
 
-from marchland.graph import BorderGraph, as_border_graph
-
+from ..graph.border import BorderGraph, as_border_graph
 from ._model import ModelSpec
 from ._setup import (
     DEFAULT_SKIP_RECENT_WEEKS,
@@ -85,7 +84,7 @@ class Forecast:
 
         Examples
         --------
-        >>> import marchland.region as region, marchland.demo as demo
+        >>> import marchland.pack as region, marchland.demo as demo
         >>> r = region.open_region(demo.scenario_path())
         >>> import warnings
         >>> from marchland.errors import DataWarning
@@ -258,7 +257,7 @@ def forecast(
 
     Examples
     --------
-    >>> import marchland.region as region, marchland.demo as demo
+    >>> import marchland.pack as region, marchland.demo as demo
     >>> r = region.open_region(demo.scenario_path())
     >>> import warnings
     >>> from marchland.errors import DataWarning

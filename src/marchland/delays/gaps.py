@@ -76,7 +76,7 @@ def fill_gaps(
 
     Examples
     --------
-    >>> from marchland.region import open_region
+    >>> from marchland.pack import open_region
     >>> from marchland.demo import scenario_path
     >>> reg = open_region(scenario_path())
     >>> panel = fill_gaps(reg.counts, reg.units, as_of="2026-06-03")
@@ -169,7 +169,7 @@ def aggregate_panel(
 
     Examples
     --------
-    >>> from marchland.region import open_region
+    >>> from marchland.pack import open_region
     >>> from marchland.demo import scenario_path
     >>> reg = open_region(scenario_path())
     >>> panel = fill_gaps(reg.counts, reg.units, as_of="2026-06-03")

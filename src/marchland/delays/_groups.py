@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from marchland.errors import InputError
+from ..errors import InputError
 
 BY = ("region", "country", "province", "unit")
 METHODS = ("negbin", "chain-ladder")

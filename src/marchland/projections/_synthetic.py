@@ -14,8 +14,7 @@ import pandas as pd
 import shapely
 from libpysal.graph import Graph
 
-from marchland.graph import as_border_graph
-
+from ..graph.border import as_border_graph
 from ._simulate import simulate_paths
 from ._weights import OrderMatrix
 

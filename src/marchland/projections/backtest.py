@@ -92,7 +92,7 @@ def backtest_forecast(
 
     Examples
     --------
-    >>> import marchland.region as region, marchland.demo as demo
+    >>> import marchland.pack as region, marchland.demo as demo
     >>> r = region.open_region(demo.scenario_path())
     >>> import warnings
     >>> from marchland.errors import DataWarning

@@ -167,7 +167,7 @@ def nowcast(
 
     Examples
     --------
-    >>> from marchland.region import open_region
+    >>> from marchland.pack import open_region
     >>> from marchland.demo import scenario_path
     >>> counts = open_region(scenario_path()).counts
     >>> nc = nowcast(counts, as_of="2026-09-02", by="country", seed=1)

@@ -8,8 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from marchland.errors import DataWarning
-
+from ..errors import DataWarning
 from ._groups import country_of, group_of
 from ._pattern import calibrate, factors, nb_bounds, point, to_final
 from ._triangle import Cells, group_sums, unit_cells
