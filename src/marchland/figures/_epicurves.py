@@ -191,7 +191,7 @@ def epi_curves(
 
 
 def _nowcast_marks(ax: Axes, weeks: pd.DatetimeIndex, df: pd.DataFrame, week_days: int) -> None:
-    """The estimate of the weeks still arriving (diamonds on a line) and its interval (bars).
+    """Draw the estimate of the weeks still arriving (diamonds, a line) and its interval.
 
     Drawn only where ``estimate`` is given (the caller leaves complete weeks NaN), so a
     reader sees at once which weeks are estimated and by how much above the reported bar.
@@ -213,9 +213,9 @@ def _nowcast_marks(ax: Axes, weeks: pd.DatetimeIndex, df: pd.DataFrame, week_day
         zorder=4,
         label="interval of the estimate (reporting delay)",
     )
-    ax.plot(
-        x,
-        est[ok],
+    ax.plot(  # NaN between estimated runs breaks the line: only neighbouring weeks join
+        weeks + pd.Timedelta(days=week_days * 0.425),
+        est,
         color=NOWCAST_MARK,
         linewidth=0.9,
         marker="D",

@@ -160,9 +160,7 @@ def recent_weeks(
         "country": pop.groupby(units["country"]).sum(),
         "province": pop.groupby(units["parent_id"]).sum(),
     }
-    by_area["population"] = [
-        popg[lv].get(gr, np.nan) for lv, gr in by_area.index.to_list()
-    ]
+    by_area["population"] = [popg[lv].get(gr, np.nan) for lv, gr in by_area.index.to_list()]
     by_area["reported_rate"] = by_area["reported_cases"] / by_area["population"] * 100_000
     by_area["adjusted_rate"] = by_area["adjusted_cases"] / by_area["population"] * 100_000
     by_area = by_area.reset_index()

@@ -278,7 +278,7 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
 
 
 def _rates_with_adjusted(result: MonthResult) -> pd.DataFrame | None:
-    """The rates table with the month's nowcast-adjusted cases and rate beside the reported."""
+    """Return the rates table with the month's nowcast-adjusted cases and rate beside it."""
     if result.rates is None or result.month_adjusted is None:
         return result.rates
     adj = result.month_adjusted[["adjusted_cases", "adjusted_rate"]].add_prefix("month_")
