@@ -48,7 +48,10 @@ def _coverage(result: MonthResult) -> str:
 
 def _rate_subtitle(result: MonthResult) -> str:
     region = result.config.region.name
-    return f"{region}: cases per 100,000, reported counts (not adjusted); {_coverage(result)}"
+    return (
+        f"{region}: cases per 100,000 from reported counts, not nowcast-adjusted; "
+        f"{_coverage(result)}"
+    )
 
 
 def _month_label(month: str) -> str:

@@ -26,7 +26,8 @@ def coverage_note(result: MonthResult) -> str:
         return ""
     month = f"{pd.Period(result.month, freq='M'):%B %Y}"
     return (
-        f'<p class="note"><strong>{esc(month)}: {esc(cov["note"])}.</strong> Reported counts '
+        f'<p class="note"><strong>{esc(month)}: {esc(cov["note"])}; figures given as reported '
+        "and nowcast-adjusted.</strong> Reported counts "
         "are what has arrived by the as-of date; nowcast-adjusted adds the expected late reports "
         "and an estimate for units that sent nothing.</p>"
     )

@@ -180,7 +180,7 @@ def month_coverage(period: pd.Period, as_of: pd.Timestamp, table: pd.DataFrame) 
     >>> t = pd.DataFrame({"level": "region", "week": pd.to_datetime(["2026-10-05"]),
     ...                   "status": ["estimated"]})
     >>> month_coverage(pd.Period("2026-10", "M"), pd.Timestamp("2026-10-15"), t)["note"]
-    'weeks 1-1 of 4 in; nowcast-adjusted'
+    'weeks 1-1 of 4 in'
     """
     first_day = 0
     if len(table):
@@ -191,9 +191,9 @@ def month_coverage(period: pd.Period, as_of: pd.Timestamp, table: pd.DataFrame) 
     n_est = int(reg["status"].ne("reported").sum())
     n, k = len(weeks), len(ended)
     if k < n:
-        note = f"weeks 1-{k} of {n} in; nowcast-adjusted" if k else f"no week of {n} ended yet"
+        note = f"weeks 1-{k} of {n} in" if k else f"no week of {n} ended yet"
     elif n_est:
-        note = f"all {n} weeks in; the last {n_est} still arriving (nowcast-adjusted)"
+        note = f"all {n} weeks in; the last {n_est} still arriving"
     else:
         note = f"all {n} weeks in and complete"
     return {"weeks": n, "weeks_in": k, "weeks_estimated": n_est, "partial": k < n, "note": note}
