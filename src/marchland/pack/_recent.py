@@ -180,7 +180,7 @@ def month_coverage(period: pd.Period, as_of: pd.Timestamp, table: pd.DataFrame) 
     >>> t = pd.DataFrame({"level": "region", "week": pd.to_datetime(["2026-10-05"]),
     ...                   "status": ["estimated"]})
     >>> month_coverage(pd.Period("2026-10", "M"), pd.Timestamp("2026-10-15"), t)["note"]
-    'weeks 1-1 of 4 in'
+    'weeks 1-2 of 5 in'
     """
     first_day = 0
     if len(table):
