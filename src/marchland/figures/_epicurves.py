@@ -165,7 +165,7 @@ def epi_curves(
                 bbox_to_anchor=(0.01, 1 - 0.62 / height),
                 fontsize=7,
                 frameon=False,
-                ncols=4,
+                ncols=3,  # four columns overflow once the estimate has its two entries
             )
             first = False
     fig.text(
