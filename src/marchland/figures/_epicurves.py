@@ -24,6 +24,7 @@ from ._mapkit import _MAP_SIZE, CASE_BAR, DEATH_LINE, DELAY_SHADE, DPI, MapNotes
 # which bars the shaded zone covers even where a bar hides the shade behind it.
 INCOMPLETE_BAR = "#aab4cd"
 AS_OF_LINE = "#6b2a22"
+NOWCAST_MARK = "#1f2a44"
 
 
 def epi_curves(
@@ -43,7 +44,8 @@ def epi_curves(
     series : Mapping
         Panel title -> DataFrame indexed by week start (Timestamp) with ``cases`` and
         ``deaths`` columns. A week absent from the index had no report at all; it is drawn as
-        a gap, never as zero.
+        a gap, never as zero. Optional ``estimate``, ``lower`` and ``upper`` columns (NaN for
+        complete weeks) draw the nowcast of the weeks still arriving over the bars.
     notes : MapNotes
     as_of : date-like
         The as-of date. The last ``delay_weeks`` complete weeks up to it (weeks that ended on
@@ -124,6 +126,8 @@ def epi_curves(
             week_days,
             incomplete_from=delay_start if delay_weeks > 0 else None,
         )
+        if "estimate" in df:
+            _nowcast_marks(ax, weeks, df, week_days)
         ax.set_ylim(bottom=0)
         ax2 = ax.twinx()
         ax2.plot(
@@ -161,7 +165,7 @@ def epi_curves(
                 bbox_to_anchor=(0.01, 1 - 0.62 / height),
                 fontsize=7,
                 frameon=False,
-                ncols=4,
+                ncols=3,  # four columns overflow once the estimate has its two entries
             )
             first = False
     fig.text(
@@ -184,6 +188,43 @@ def epi_curves(
         style="italic",
     )
     return _no_math(fig)
+
+
+def _nowcast_marks(ax: Axes, weeks: pd.DatetimeIndex, df: pd.DataFrame, week_days: int) -> None:
+    """Draw the estimate of the weeks still arriving (diamonds, a line) and its interval.
+
+    Drawn only where ``estimate`` is given (the caller leaves complete weeks NaN), so a
+    reader sees at once which weeks are estimated and by how much above the reported bar.
+    """
+    est = df["estimate"].to_numpy(dtype=float)
+    ok = np.isfinite(est)
+    if not ok.any():
+        return
+    x = weeks[ok] + pd.Timedelta(days=week_days * 0.425)
+    lower = df["lower"].to_numpy(dtype=float)[ok] if "lower" in df else np.full(ok.sum(), np.nan)
+    upper = df["upper"].to_numpy(dtype=float)[ok] if "upper" in df else np.full(ok.sum(), np.nan)
+    has = np.isfinite(lower) & np.isfinite(upper)
+    ax.vlines(
+        x[has],
+        lower[has],
+        upper[has],
+        color=NOWCAST_MARK,
+        linewidth=1.6,
+        zorder=4,
+        label="interval of the estimate (reporting delay)",
+    )
+    ax.plot(  # NaN between estimated runs breaks the line: only neighbouring weeks join
+        weeks + pd.Timedelta(days=week_days * 0.425),
+        est,
+        color=NOWCAST_MARK,
+        linewidth=0.9,
+        marker="D",
+        markersize=3.2,
+        zorder=5,
+        label="estimate: late reports and silent units added",
+    )
+    top = float(np.nanmax(np.concatenate([est[ok], upper[has]])))
+    ax.set_ylim(0, max(ax.get_ylim()[1], top * 1.08))
 
 
 def _delay_zone(

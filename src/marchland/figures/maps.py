@@ -229,6 +229,7 @@ def attack_rate_map(
     bins: np.ndarray | None = None,
     period: str = "",
     title: str | None = None,
+    subtitle: str | None = None,
 ) -> Figure:
     """Choropleth of attack rate per 100,000 by unit.
 
@@ -243,6 +244,9 @@ def attack_rate_map(
         Class upper bounds (from :func:`rate_classes`); default: computed from ``rate``.
     period : str
         Period the rate covers, for the title and legend (e.g. ``"October 2026"``).
+    subtitle : str, optional
+        Line under the title (default: what the rate is, by analysis unit); say there which
+        counts the rate uses and whether the period is partly in.
     title : str, optional
 
     Returns
@@ -266,7 +270,7 @@ def attack_rate_map(
     colours, classes = _rate_colours(rate, bins)
     fig, ax = _new_map(
         title or f"Attack rate {period}".strip(),
-        f"{notes.region}: cases per 100,000 population, by analysis unit",
+        subtitle or f"{notes.region}: cases per 100,000 population, by analysis unit",
     )
     _fill(ax, base, colours, hatch_ids=rate.index[classes == -2])
     _furnish(fig, ax, base, notes)

@@ -40,6 +40,20 @@ def notes_for(result: MonthResult) -> maps.MapNotes:
     )
 
 
+def _coverage(result: MonthResult) -> str:
+    """How much of the month is in, e.g. "weeks 1-2 of 4 in; nowcast-adjusted"."""
+    cov = result.month_coverage
+    return cov["note"] if cov else "no nowcast this run"
+
+
+def _rate_subtitle(result: MonthResult) -> str:
+    region = result.config.region.name
+    return (
+        f"{region}: cases per 100,000 from reported counts, not nowcast-adjusted; "
+        f"{_coverage(result)}"
+    )
+
+
 def _month_label(month: str) -> str:
     return f"{pd.Period(month, freq='M'):%B %Y}"
 
@@ -59,9 +73,12 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         rate = result.rates["month_rate"].where(result.rates["month_weeks_reported"] > 0)
         yield (
             "attack_rate",
-            maps.attack_rate_map(base, rate, notes, bins=bins, period=month),
-            f"Attack rate per 100,000 in {month}. Classes (Fisher-Jenks on the last six "
-            "months pooled) are the same as in the monthly panels.",
+            maps.attack_rate_map(
+                base, rate, notes, bins=bins, period=month, subtitle=_rate_subtitle(result)
+            ),
+            f"Attack rate per 100,000 in {month}, from reported counts ({_coverage(result)}; "
+            "the nowcast-adjusted rate is in the rates table). Classes (Fisher-Jenks on the "
+            "last six months pooled) are the same as in the monthly panels.",
         )
         if hist is not None:
             panels = hist.copy()
@@ -258,17 +275,47 @@ def weekly_by(result: MonthResult, key: pd.Series | None) -> dict[str, pd.DataFr
     return out
 
 
+def with_nowcast(
+    series: dict[str, pd.DataFrame], result: MonthResult, level: str
+) -> dict[str, pd.DataFrame]:
+    """Add the nowcast's ``estimate lower upper`` (estimated weeks only) to weekly series.
+
+    Bars stay the reported counts; the estimate is where the totals really stand, with late
+    reports and units that sent nothing added (never a silent unit taken as zero).
+    """
+    nc = result.nowcast
+    if nc is None:
+        return series
+    part = nc[nc["level"].eq(level) & nc["status"].ne("reported")]
+    out = {}
+    for name, df in series.items():
+        g = part[part["group"].eq(name)].set_index("week")[["estimate", "lower", "upper"]]
+        out[name] = df.join(g, how="outer")
+    return out
+
+
+def _band_sentence(result: MonthResult) -> str:
+    if result.nowcast is None:
+        return ""
+    return (
+        " Diamonds on a line: the estimate of the weeks still arriving (late reports and units "
+        "that sent nothing added; bars are what has arrived); the vertical bar through a "
+        "diamond is its 90% interval for reporting delay: the week's final count will probably "
+        "fall inside it, and the wider it is, the less is in yet."
+    )
+
+
 def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[str, Any, str]]:
     delay = result.config.analysis.reporting_delay_weeks
     as_of = result.as_of
     week_days = 7
-    reg = weekly_by(result, None)
+    reg = with_nowcast(weekly_by(result, None), result, "region")
     if not reg:
         return
     shaded = (
         f"the last {delay} complete weeks up to the as-of date are shaded and their bars drawn "
-        "paler: reporting incomplete"
-    )
+        "paler: reporting incomplete."
+    ) + _band_sentence(result)
     yield (
         "epi_region",
         maps.epi_curves(
@@ -279,11 +326,12 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
             title="Weekly cases and deaths, whole region",
             week_days=week_days,
         ),
-        f"Weekly reported cases (bars) and deaths (line) for the whole region; {shaded}.",
+        f"Weekly reported cases (bars) and deaths (line) for the whole region; {shaded}",
     )
     units = result.units
     label = result.config.country_label
-    countries = {label(c): w for c, w in weekly_by(result, units["country"]).items()}
+    by_country = with_nowcast(weekly_by(result, units["country"]), result, "country")
+    countries = {label(c): w for c, w in by_country.items()}
     yield (
         "epi_countries",
         maps.epi_curves(
@@ -295,13 +343,13 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
             ncols=2,
             week_days=week_days,
         ),
-        f"Weekly reported cases and deaths per country; {shaded}.",
+        f"Weekly reported cases and deaths per country; {shaded}",
     )
     prov = province_of(units)
     names = {}
     if result.all_units is not None and "name" in result.all_units:
         names = result.all_units["name"].to_dict()
-    per_prov = weekly_by(result, prov)
+    per_prov = with_nowcast(weekly_by(result, prov), result, "province")
     country_of_prov = units.groupby(prov)["country"].first()
     for country in sorted(units["country"].unique()):
         ids = sorted(p for p in per_prov if country_of_prov.get(p) == country)
@@ -319,5 +367,5 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
                 ncols=3,
                 week_days=week_days,
             ),
-            f"Weekly reported cases and deaths per province of {label(country)}; {shaded}.",
+            f"Weekly reported cases and deaths per province of {label(country)}; {shaded}",
         )

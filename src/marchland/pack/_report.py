@@ -16,6 +16,7 @@ import pandas as pd
 from .. import __version__
 from ..figures.maps import CAUTION_LINE
 from ._html import _fmt, _num, _section, _tile, esc
+from ._nowcastsection import coverage_note, nowcast_section
 from ._sections import (
     _cautions,
     _epi_section,
@@ -90,7 +91,7 @@ def _headline(result: MonthResult) -> str:
             else f"sum of probabilities over {h['candidates']:,} candidates",
         ),
     ]
-    return '<div class="tiles">' + "".join(tiles) + "</div>"
+    return '<div class="tiles">' + "".join(tiles) + "</div>" + coverage_note(result)
 
 
 def _contents(sections: Sequence[tuple[str, str]]) -> str:
@@ -133,6 +134,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
                 ("headline", "Headline"),
                 ("rates", "Attack rates"),
                 ("epi", "Epi curves"),
+                ("nowcast", "Latest weeks"),
                 ("hotspots", "Hotspots"),
                 ("spread", "Spread"),
                 ("risk", "Border risk"),
@@ -144,6 +146,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         _section("Headline", _headline(result), "headline"),
         _rates_section(result, figures),
         _epi_section(result, figures),
+        nowcast_section(result, figures),
         _hotspot_section(result, figures),
         _spread_section(result, figures),
         _risk_section(result, figures),

@@ -19,11 +19,13 @@ from ._html import (
     esc,
     table_html,
 )
+from ._nowcastsection import adjusted_rates_table, coverage_note
 
 
 def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    body = _absent(result, "rates")
+    body = _absent(result, "rates") + coverage_note(result)
     body += _figure(figures, "attack_rate") + _figure(figures, "attack_rate_months")
+    body += adjusted_rates_table(result)
     if result.rates_by_area is not None:
         a = result.rates_by_area
         cols = {
@@ -55,6 +57,8 @@ def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         )
     if result.rates is not None:
         r = result.rates.sort_values("month_rate", ascending=False)
+        if result.month_adjusted is not None:
+            r = r.join(result.month_adjusted[["adjusted_rate"]].add_prefix("month_"))
         cols = {
             "name": "unit",
             "country": "country",
@@ -63,6 +67,7 @@ def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             "month_rate": "rate",
             "month_lower": "lower",
             "month_upper": "upper",
+            "month_adjusted_rate": "rate nowcast-adjusted",
             "month_rate_eb": "smoothed (EB)",
             "month_rate_seb": "smoothed (spatial EB)",
             "cumulative_rate": "since start",

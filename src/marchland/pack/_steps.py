@@ -129,6 +129,20 @@ class _Context:
         by_area = _flatten_areas(agg, windows, self.region, self.cfg)
         return {"rates": table, "rates_history": history, "rates_by_area": by_area}
 
+    # -- nowcast ---------------------------------------------------------------------------
+    def nowcast(self) -> dict[str, Any]:
+        _need("delays", "nowcast", "fill_gaps", "aggregate_panel")
+        from ._recent import recent_weeks
+
+        return recent_weeks(
+            self.counts_to_month,
+            self.units,
+            as_of=self.as_of,
+            period=self.period,
+            seed=self.seed,
+            province=province_of(self.units),
+        )
+
     # -- hotspots --------------------------------------------------------------------------
     def hotspots(self) -> dict[str, Any]:
         h = _need(

@@ -239,7 +239,7 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
     t: dict[str, Any] = {
         "units": _flat(units.drop(columns="geometry")).sort_index(),
         "weekly": result.weekly,
-        "rates": result.rates,
+        "rates": _rates_with_adjusted(result),
         "rates_history": result.rates_history,
         "rates_by_area": result.rates_by_area,
         "hotspots": result.hotspots,
@@ -264,6 +264,8 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
         if result.depots is None
         else pd.DataFrame(result.depots.drop(columns="geometry")),
         "depot_assignment": result.depot_assignment,
+        "nowcast": result.nowcast,
+        "rates_adjusted_by_area": result.month_adjusted_by_area,
         "completeness": result.completeness,
         "completeness_by_country": result.completeness_by_country,
         "matches": result.matches,
@@ -273,6 +275,14 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
         else result.graph.edges.sort_values(["focal", "neighbor"]),
     }
     return t
+
+
+def _rates_with_adjusted(result: MonthResult) -> pd.DataFrame | None:
+    """Return the rates table with the month's nowcast-adjusted cases and rate beside it."""
+    if result.rates is None or result.month_adjusted is None:
+        return result.rates
+    adj = result.month_adjusted[["adjusted_cases", "adjusted_rate"]].add_prefix("month_")
+    return result.rates.join(adj, how="left")
 
 
 def _write_tables(result: MonthResult, root: Path) -> dict[str, pd.DataFrame]:

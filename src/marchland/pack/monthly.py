@@ -41,6 +41,7 @@ STEPS = (
     "read inputs",
     "graph",
     "rates",
+    "nowcast",
     "hotspots",
     "spread",
     "border risk",
@@ -76,6 +77,17 @@ class MonthResult:
         Month attack rate per unit for the last six months (columns ``YYYY-MM``).
     rates_by_area : pandas.DataFrame
         Province, country and region rates from summed counts, one row per area and window.
+    nowcast : pandas.DataFrame
+        The latest weeks as they really are, per ``level`` (region, country, province),
+        ``group`` and ``week``: ``reported``, ``estimate`` (reported scaled for late revisions
+        plus an estimate for units that sent nothing; never a gap added as zero), ``lower``
+        ``upper`` (the delay interval), ``units_imputed``, ``status`` (reported, estimated,
+        incomplete). See :mod:`marchland.pack._recent`.
+    month_adjusted, month_adjusted_by_area : pandas.DataFrame
+        The month's cases and attack rate as reported and nowcast-adjusted, per unit and per
+        area (``reported_cases adjusted_cases reported_rate adjusted_rate``).
+    month_coverage : dict
+        ``weeks weeks_in weeks_estimated partial note``: how much of the month is in.
     hotspots : pandas.DataFrame
         ``I p q quadrant label`` (+ Gi* columns ``gi_z gi_p`` when available).
     global_moran : dict
@@ -114,6 +126,10 @@ class MonthResult:
     rates: pd.DataFrame | None = None
     rates_history: pd.DataFrame | None = None
     rates_by_area: pd.DataFrame | None = None
+    nowcast: pd.DataFrame | None = None
+    month_adjusted: pd.DataFrame | None = None
+    month_adjusted_by_area: pd.DataFrame | None = None
+    month_coverage: dict | None = None
     hotspots: pd.DataFrame | None = None
     global_moran: dict | None = None
     first_cases: pd.Series | None = None
@@ -382,6 +398,7 @@ def run_month(
         ctx = _Context(cfg, region, period, as_of_ts)
 
         fields.update(run("rates", ctx.rates) or {})
+        fields.update(run("nowcast", ctx.nowcast) or {})
         fields.update(run("hotspots", ctx.hotspots) or {})
         fields.update(run("spread", ctx.spread) or {})
         risk = run("border risk", ctx.risk)
@@ -441,10 +458,29 @@ def _region_fields(region: Any, period: pd.Period, as_of: pd.Timestamp) -> dict[
         "rejects": getattr(region, "rejects", None),
         "completeness": getattr(region, "completeness", None),
         "completeness_by_country": getattr(region, "completeness_by_country", None),
+        **_completeness_as_of(region, period, as_of),
         "accounting": getattr(region, "accounting", None),
         "matches": getattr(region, "matches", None),
     }
     return out
+
+
+def _completeness_as_of(region: Any, period: pd.Period, as_of: pd.Timestamp) -> dict[str, Any]:
+    """Completeness and "last received" as known on ``as_of``, weeks up to the month's end.
+
+    A run for a past month shows the data as they were then: rows received later, and weeks
+    after the month, are left out. Empty when the region holds no raw reports to recount.
+    """
+    from ..inputs.reports import reporting_completeness
+
+    rep = getattr(region, "reports", None)
+    all_units = getattr(region, "all_units", None)
+    if rep is None or all_units is None:
+        return {}
+    c = rep.counts
+    keep = (c["received"] <= as_of).to_numpy() & (week_month(c["week"]) <= period).to_numpy()
+    unit, country = reporting_completeness(c[keep], all_units, region.config.reports)
+    return {"completeness": unit, "completeness_by_country": country}
 
 
 def _graph_fields(region: Any) -> dict[str, Any]:
