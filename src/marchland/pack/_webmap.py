@@ -31,8 +31,6 @@ import shapely
 
 from ..figures import _mapclass as mc
 from ..figures._mapkit import (
-    AFFECTED_COLOUR,
-    NO_REPORT_COLOUR,
     NOT_CANDIDATE_COLOUR,
     OTHER_COLOUR,
 )
@@ -474,7 +472,7 @@ def map_section(result: MonthResult) -> str:
     Returns
     -------
     str
-        HTML; every string from input data is escaped (JSON with ``<`` escaped as ``\\u003c``).
+        HTML; every string from input data is escaped (``<`` in the JSON block as a unicode escape).
     """
     data, _ = map_data(result)
     units = result.units
