@@ -282,7 +282,7 @@ def svg_paths(geometry: Any, *, tolerance: float | None = None) -> tuple[list[st
     >>> from shapely.geometry import box
     >>> paths, size = svg_paths([box(0, 0, 1, 1), box(1, 0, 2, 1)], tolerance=0)
     >>> paths[0], size
-    ('M0 0l0 5000 5000 0 0 -5000z', (10000, 5000))
+    ('M5000 5000l0 -5000 -5000 0 0 5000z', (10000, 5000))
     """
     geoms = np.asarray(getattr(geometry, "values", geometry), dtype=object)
     minx, miny, maxx, maxy = shapely.total_bounds(geoms)
