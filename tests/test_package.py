@@ -26,6 +26,7 @@ DESIGN_NAMES = {
     "choose_depots",
     "open_region",
     "run_month",
+    "run_week",
     "nowcast",
     "forecast",
     "backtest_forecast",

@@ -34,6 +34,7 @@ _EXPORTS: dict[str, str] = {
     "choose_depots": "supplies.depots",
     "open_region": "pack.region",
     "run_month": "pack.monthly",
+    "run_week": "pack.weekly",
     "nowcast": "delays.nowcasting",
     "forecast": "projections.projection",
     "backtest_forecast": "projections.backtest",
@@ -62,6 +63,7 @@ __all__ = [
     "choose_depots",
     "open_region",
     "run_month",
+    "run_week",
     "nowcast",
     "forecast",
     "backtest_forecast",
@@ -77,6 +79,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from .inputs.units import analysis_units, read_units
     from .pack.monthly import run_month
     from .pack.region import open_region
+    from .pack.weekly import run_week
     from .projections.backtest import backtest_forecast
     from .projections.projection import forecast
     from .risk.score import backtest_risk, border_risk

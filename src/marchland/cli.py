@@ -43,6 +43,7 @@ $ marchland run demo_data/scenario.toml --month 2026-10
 """
 
 _MONTH = re.compile(r"^\d{4}-(0[1-9]|1[0-2])$")
+_WEEK = re.compile(r"^\d{4}-W(0[1-9]|[1-4]\d|5[0-3])$")
 
 # Verbosity of the current invocation: read by the error handler after click has unwound.
 _state: dict[str, int] = {"verbosity": 0}
@@ -112,6 +113,12 @@ _overwrite_opt = click.option(
 def _month(ctx: click.Context, param: click.Parameter, value: str | None) -> str | None:
     if value is not None and not _MONTH.match(value):
         raise click.BadParameter(f"needs YYYY-MM (e.g. 2026-10); {value!r} was given instead.")
+    return value
+
+
+def _week(ctx: click.Context, param: click.Parameter, value: str | None) -> str | None:
+    if value is not None and not _WEEK.match(value):
+        raise click.BadParameter(f"needs YYYY-Www (e.g. 2026-W42); {value!r} was given instead.")
     return value
 
 
@@ -189,10 +196,16 @@ def check(ctx: click.Context, config: Path) -> None:
 @_config_arg
 @click.option(
     "--month",
-    required=True,
     callback=_month,
     metavar="YYYY-MM",
     help="The month to analyse, e.g. 2026-10 (weeks belong to the month of their mid-week day).",
+)
+@click.option(
+    "--week",
+    callback=_week,
+    metavar="YYYY-Www",
+    help="Instead of a month: the short weekly update for partners, e.g. 2026-W42, written "
+    "as OUT/YYYY-Www/.",
 )
 @_out_opt
 @_overwrite_opt
@@ -206,7 +219,13 @@ def check(ctx: click.Context, config: Path) -> None:
 )
 @click.pass_context
 def run(
-    ctx: click.Context, config: Path, month: str, out: Path | None, overwrite: bool, as_of: Any
+    ctx: click.Context,
+    config: Path,
+    month: str | None,
+    week: str | None,
+    out: Path | None,
+    overwrite: bool,
+    as_of: Any,
 ) -> None:
     r"""Run rates, hotspots, spread, border risk and supplies for one month of CONFIG.
 
@@ -216,9 +235,33 @@ def run(
 
     \b
     $ marchland run demo_data/scenario.toml --month 2026-10 --out out
+    $ marchland run demo_data/scenario.toml --week 2026-W42 --out out
     """
+    if (month is None) == (week is None):
+        raise click.UsageError("give exactly one of --month YYYY-MM or --week YYYY-Www.")
+    if week is not None and as_of is not None:
+        raise click.UsageError("--as-of applies to --month only; a week is read as of its end.")
     cfg = _load(config)
+    if week is not None:
+        _week_and_write(ctx, cfg, week, out, overwrite)
+        return
     _run_and_write(ctx, cfg, month, out, overwrite, as_of)
+
+
+def _week_and_write(ctx: click.Context, cfg: Any, week: str, out: Path | None, overwrite: bool):
+    from .pack._weekpage import write_week
+    from .pack.bundle import check_destination
+    from .pack.weekly import run_week
+
+    console = _console(ctx)
+    out_dir = Path(out) if out is not None else Path(cfg.output.dir)
+    check_destination(out_dir, week, overwrite=overwrite)
+    result = run_week(cfg, week)
+    dest = write_week(result, out_dir, overwrite=overwrite)
+    console.print(
+        f"[bold]marchland[/bold] {week} (as of {result.as_of:%Y-%m-%d}) written to {dest}"
+    )
+    console.print(f"[dim]{CAUTIONS}[/dim]")
 
 
 @cli.command(short_help="Run the bundled fictional scenario for its latest month.")

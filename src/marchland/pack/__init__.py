@@ -16,6 +16,9 @@ _EXPORTS = {
     "run_month": "monthly",
     "MonthResult": "monthly",
     "write_month": "bundle",
+    "run_week": "weekly",
+    "WeekResult": "weekly",
+    "write_week": "_weekpage",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = exports(__name__, _EXPORTS)

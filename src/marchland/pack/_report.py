@@ -1,6 +1,7 @@
 """report.html: one self-contained page for the month (inline CSS, images as data URIs).
 
-No script, no font or style sheet from elsewhere, no link that leaves the page: the file can
+One inline script (the interactive map, allowed by its hash), no font or style sheet from
+elsewhere, no link that leaves the page: the file can
 be mailed or opened offline. Every string that comes from input data (unit names, sources,
 reasons, config values) goes through :func:`html.escape`; numbers are formatted here.
 """
@@ -15,6 +16,7 @@ import pandas as pd
 
 from .. import __version__
 from ..figures.maps import CAUTION_LINE
+from . import _webmap
 from ._html import _fmt, _num, _section, _tile, esc
 from ._nowcastsection import coverage_note, nowcast_section
 from ._sections import (
@@ -121,9 +123,10 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         '<html lang="en"><head><meta charset="utf-8">',
         '<meta name="viewport" content="width=device-width, initial-scale=1">',
         # Nothing may load from elsewhere: images are data URIs, styles inline, no scripts.
+        # The map's one inline script is allowed by its hash; nothing may connect anywhere.
         '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
-        "img-src data:; style-src 'unsafe-inline'\">",
-        f"<title>{esc(title)}</title><style>{_CSS}</style></head><body><main>",
+        f"img-src data:; style-src 'unsafe-inline'; script-src {_webmap.script_hash()}\">",
+        f"<title>{esc(title)}</title><style>{_CSS}{_webmap.style()}</style></head><body><main>",
         f'<header class="top"><h1>{esc(title)}</h1>',
         f'<div class="sub">Data as received by {result.as_of:%Y-%m-%d} &middot; analysis '
         f"units: {len(result.units):,} &middot; seed {esc(result.seed)} &middot; made "
@@ -132,6 +135,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         _contents(
             [
                 ("headline", "Headline"),
+                ("map", "Interactive map"),
                 ("rates", "Attack rates"),
                 ("epi", "Epi curves"),
                 ("nowcast", "Latest weeks"),
@@ -144,6 +148,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
             ]
         ),
         _section("Headline", _headline(result), "headline"),
+        _webmap.map_section(result),
         _rates_section(result, figures),
         _epi_section(result, figures),
         nowcast_section(result, figures),
