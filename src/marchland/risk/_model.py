@@ -58,7 +58,9 @@ class RiskModel:
     coefficients : pandas.Series
         ``intercept`` and one coefficient per feature, per unit of the raw feature.
     std_errors : pandas.Series
-        Standard errors of ``coefficients`` (penalised-likelihood information); NaN for a prior.
+        Standard errors of ``coefficients``, clustered by unit (sandwich on the penalised
+        likelihood): one unit's overlapping outcome windows are not independent. NaN for a
+        prior.
     standardised : pandas.Series
         Coefficients per standard deviation of each feature (what the penalty acts on).
     center : pandas.Series
@@ -86,6 +88,8 @@ class RiskModel:
     penalty: float
     converged: bool
     note: str
+    #: Model-based (information) standard errors, which ignore the clustering; for comparison.
+    std_errors_model: pd.Series | None = None
 
     def linear_predictor(self, x: np.ndarray) -> np.ndarray:
         """Linear predictor for rows of raw features (columns in ``features`` order)."""
@@ -209,9 +213,10 @@ def _fit(
     x, y, rows, _ = _risk_sets(panel, names, horizon_weeks, min_cases)
     n_events = int(np.unique(rows[y]).size)
     if n_events >= max(min_events, 1) and 0 < y.sum() < len(y):
-        fit = _hazard.fit_cloglog(x, y, penalty=penalty)
+        fit = _hazard.fit_cloglog(x, y, penalty=penalty, groups=rows)
         coef = pd.Series(fit.coef_raw, index=index)
-        se = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_raw), 0, None)), index=index)
+        se = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_cluster_raw), 0, None)), index=index)
+        se_model = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_raw), 0, None)), index=index)
         std = pd.Series(fit.coef, index=index)
         center = pd.Series(fit.center, index=index[1:])
         note = (
@@ -234,6 +239,7 @@ def _fit(
             float(penalty),
             fit.converged,
             note,
+            se_model,
         )
     b = np.array([PRIOR_COEFFICIENTS.get(f, 0.0) for f in names])
     ref = np.array([_PRIOR_REFERENCE.get(f, 0.0) for f in names])
