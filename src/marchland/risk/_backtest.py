@@ -12,7 +12,7 @@ from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from . import _features as rf
 from . import _hazard
-from ._model import _MODEL_FEATURES, MODELS, _complete_week, _fit, _panel_at
+from ._model import _MODEL_FEATURES, MODELS, _complete_week, _fit, _panel_at, complete_weeks
 
 
 # --- the backtest --------------------------------------------------------------------------
@@ -80,6 +80,7 @@ def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
 def _origins_task(
     counts: pd.DataFrame,
     final_pos: np.ndarray,
+    final_complete: np.ndarray,
     static: rf.Static,
     grid: pd.DatetimeIndex,
     origins: Sequence[int],
@@ -117,7 +118,15 @@ def _origins_task(
         pos = panel.cases[cand] >= params["min_cases"]
         nt = pos.shape[1]
         lo = np.where(pos.any(axis=1), nt - pos[:, ::-1].argmax(axis=1), 0)
-        outcome = (final_pos[cand, t0 + h + 1] - final_pos[cand, lo]) > 0
+        # Judged on the final data by week of occurrence. A case in a week up to t0 that was
+        # reported after the origin is not a new case: the unit was not at risk, leave it out.
+        # A window running past the final data's complete weeks is censored, not a negative.
+        old = (final_pos[cand, t0 + 1] - final_pos[cand, lo]) > 0
+        keep = ~old & (t0 + h <= final_complete[cand])
+        cand = cand[keep]
+        if not len(cand):
+            continue
+        outcome = (final_pos[cand, t0 + h + 1] - final_pos[cand, t0 + 1]) > 0
         frame = pd.DataFrame(
             {
                 "origin": panel.weeks[-1],
@@ -188,6 +197,7 @@ def run(
     np.add.at(final_panel_cases, (ui, grid.get_indexer(final["week"])), c)
     pos = final_panel_cases >= min_cases
     final_pos = np.concatenate([np.zeros((len(static.ids), 1)), np.cumsum(pos, axis=1)], axis=1)
+    final_complete = complete_weeks(slim, static, len(grid) - 1)
     last = len(grid) - 1 - horizon_weeks
     if origins is None:
         any_case = np.flatnonzero(pos.any(axis=0))
@@ -216,7 +226,7 @@ def run(
         "min_cases": min_cases,
     }
     if n_jobs == 1 or len(idx) < 2:
-        frames = _origins_task(slim, final_pos, static, grid, idx, params)
+        frames = _origins_task(slim, final_pos, final_complete, static, grid, idx, params)
     else:
         from joblib import Parallel, delayed, effective_n_jobs
 
@@ -224,7 +234,8 @@ def run(
         # Interleaved shares balance early (small) and late (large) origins across workers.
         shares = [idx[i::k] for i in range(k)]
         parts = Parallel(n_jobs=k, backend="loky")(
-            delayed(_origins_task)(slim, final_pos, static, grid, s, params) for s in shares
+            delayed(_origins_task)(slim, final_pos, final_complete, static, grid, s, params)
+            for s in shares
         )
         frames = [f for p in parts for f in p]
     if not frames:
