@@ -547,3 +547,29 @@ def test_invariants_on_random_outbreaks(seed, horizon, cut):
         pd.concat([counts, late]), units, graph, as_of=as_of, horizon_weeks=horizon, min_events=3
     )
     pd.testing.assert_frame_equal(r, r2)
+
+
+def test_forecast_model_is_a_backtest_row_from_its_paths(sim):
+    from marchland.projections.projection import forecast
+
+    weeks = pd.DatetimeIndex(sorted(sim.counts["week"].unique()))
+    origins = weeks[20:23]
+    bt = run_backtest(sim.counts, sim.units, sim.graph, origins=origins, forecast_paths=50, seed=4)
+    assert bt.summary.index.tolist() == ["score", "distance", "neighbours", "forecast"]
+    p = bt.predictions
+    assert p["forecast"].between(0, 1).all()
+    # The first origin's column is P(any case in the horizon) over the forecast's own paths.
+    o = p["origin"].min()
+    date = o + pd.Timedelta(days=6 + 3)
+    f = forecast(
+        sim.counts[sim.counts["received"] <= date],
+        sim.units,
+        sim.graph,
+        as_of=date,
+        horizon_weeks=4,
+        seed=4,
+        n_paths=50,
+    )
+    ref = pd.Series((f.paths > 0).any(axis=0).mean(axis=1), index=f.units.index)
+    first = p[p["origin"] == o]
+    np.testing.assert_allclose(first["forecast"], ref.reindex(first["unit_id"]).to_numpy())

@@ -67,7 +67,7 @@ def _metrics(pred: pd.DataFrame, model: str, top_k: int) -> dict:
 def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
     rows = []
     groups = [(None, pred)] if by is None else list(pred.groupby(by, sort=True))
-    for model in MODELS:
+    for model in [m for m in (*MODELS, "forecast") if m in pred.columns]:
         for key, g in groups:
             m = _metrics(g, model, top_k)
             rows.append({"model": model, **({} if by is None else {by: key}), **m})
@@ -150,8 +150,33 @@ def _origins_task(
             x = rf.matrix(panel, names, cand, np.full(len(cand), t0))
             frame[model] = m.probability(x)
             frame[f"kind_{model}"] = m.kind
+        if params.get("forecast") is not None:
+            frame["forecast"] = _forecast_any(counts, static, date, cand, h, params["forecast"])
+            frame["kind_forecast"] = "fitted"
         out.append(frame)
     return out
+
+
+def _forecast_any(counts, static, date, cand, h, spec) -> np.ndarray:
+    """P(at least one case in the next ``h`` weeks) from the forecast model's paths.
+
+    Weeks are combined within each simulated path (any case in any week), which keeps their
+    dependence, rather than as ``1 - prod(1 - p_any)``.
+    """
+    import warnings
+
+    from ..errors import DataWarning
+    from ..projections.projection import forecast
+
+    units, graph, n_paths, seed = spec
+    known = counts[counts["received"] <= date]
+    known = known.assign(unit_id=known["unit_id"].astype(str))
+    with warnings.catch_warnings():
+        # Islands have no neighbourhood part; the forecast warns, the backtest only scores.
+        warnings.simplefilter("ignore", DataWarning)
+        f = forecast(known, units, graph, as_of=date, horizon_weeks=h, seed=seed, n_paths=n_paths)
+    p = (f.paths > 0).any(axis=0).mean(axis=1)
+    return pd.Series(p, index=f.units.index).reindex(static.ids[cand]).to_numpy(dtype=float)
 
 
 def run(
@@ -170,6 +195,7 @@ def run(
     min_cases: int,
     n_jobs: int,
     as_of: object,
+    forecast: tuple | None = None,
 ) -> Backtest:
     """Run the backtest on checked inputs (see ``marchland.risk.score.run_backtest``)."""
     slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
@@ -224,6 +250,7 @@ def run(
         "min_events": min_events,
         "penalty": penalty,
         "min_cases": min_cases,
+        "forecast": forecast,
     }
     if n_jobs == 1 or len(idx) < 2:
         frames = _origins_task(slim, final_pos, final_complete, static, grid, idx, params)
