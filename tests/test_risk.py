@@ -573,3 +573,36 @@ def test_forecast_model_is_a_backtest_row_from_its_paths(sim):
     ref = pd.Series((f.paths > 0).any(axis=0).mean(axis=1), index=f.units.index)
     first = p[p["origin"] == o]
     np.testing.assert_allclose(first["forecast"], ref.reindex(first["unit_id"]).to_numpy())
+
+
+# --- reporting delays (issue 13) ---------------------------------------------------------
+def test_backtest_is_calibrated_under_per_country_delays():
+    """Mean predicted probability within 0.05 of the observed share, pooled over 4 seeds.
+
+    Three invented countries with different reporting delays, one sending rows only for weeks
+    with cases (simulation, rule 3: a property test, not evidence against the world).
+    """
+    predicted, observed = [], []
+    for seed in range(4):
+        sim = _sim.simulate(15, 15, weeks=30, seed=seed, stripe=3, countries=("TVR", "OSK", "MRW"))
+        sim = _sim.with_delays(
+            sim, {"TVR": 0.5, "OSK": 2.0, "MRW": 3.0}, only_cases=("MRW",), seed=seed
+        )
+        p = run_backtest(sim.counts, sim.units, sim.graph, min_history_weeks=6).predictions
+        predicted.append(p["score"].mean())
+        observed.append(p["outcome"].mean())
+    assert abs(np.mean(predicted) - np.mean(observed)) < 0.05, (predicted, observed)
+
+
+def test_backtest_leaves_out_late_reported_old_cases_and_censored_windows():
+    sim = _sim.simulate(12, 12, weeks=26, seed=3, stripe=3, countries=("TVR", "OSK", "MRW"))
+    sim = _sim.with_delays(sim, {"TVR": 0.5, "OSK": 2.0, "MRW": 3.0}, only_cases=("MRW",), seed=3)
+    bt = run_backtest(sim.counts, sim.units, sim.graph, min_history_weeks=4, horizon_weeks=2)
+    p = bt.predictions
+    truth = sim.first.reindex(p["unit_id"]).to_numpy()
+    origin = p["origin"].to_numpy()
+    # No candidate's true first case lies in a week up to its origin (reported later).
+    assert not (truth <= origin).any()
+    # The outcome is exactly a true first case within the horizon.
+    within = (truth > origin) & (truth <= origin + np.timedelta64(14, "D"))
+    np.testing.assert_array_equal(p["outcome"].to_numpy(), within)
