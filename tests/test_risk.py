@@ -547,3 +547,62 @@ def test_invariants_on_random_outbreaks(seed, horizon, cut):
         pd.concat([counts, late]), units, graph, as_of=as_of, horizon_weeks=horizon, min_events=3
     )
     pd.testing.assert_frame_equal(r, r2)
+
+
+def test_forecast_model_is_a_backtest_row_from_its_paths(sim):
+    from marchland.projections.projection import forecast
+
+    weeks = pd.DatetimeIndex(sorted(sim.counts["week"].unique()))
+    origins = weeks[20:23]
+    bt = run_backtest(sim.counts, sim.units, sim.graph, origins=origins, forecast_paths=50, seed=4)
+    assert bt.summary.index.tolist() == ["score", "distance", "neighbours", "forecast"]
+    p = bt.predictions
+    assert p["forecast"].between(0, 1).all()
+    # The first origin's column is P(any case in the horizon) over the forecast's own paths.
+    o = p["origin"].min()
+    date = o + pd.Timedelta(days=6 + 3)
+    f = forecast(
+        sim.counts[sim.counts["received"] <= date],
+        sim.units,
+        sim.graph,
+        as_of=date,
+        horizon_weeks=4,
+        seed=4,
+        n_paths=50,
+    )
+    ref = pd.Series((f.paths > 0).any(axis=0).mean(axis=1), index=f.units.index)
+    first = p[p["origin"] == o]
+    np.testing.assert_allclose(first["forecast"], ref.reindex(first["unit_id"]).to_numpy())
+
+
+# --- reporting delays (issue 13) ---------------------------------------------------------
+def test_backtest_is_calibrated_under_per_country_delays():
+    """Mean predicted probability within 0.05 of the observed share, pooled over 4 seeds.
+
+    Three invented countries with different reporting delays, one sending rows only for weeks
+    with cases (simulation, rule 3: a property test, not evidence against the world).
+    """
+    predicted, observed = [], []
+    for seed in range(4):
+        sim = _sim.simulate(15, 15, weeks=30, seed=seed, stripe=3, countries=("TVR", "OSK", "MRW"))
+        sim = _sim.with_delays(
+            sim, {"TVR": 0.5, "OSK": 2.0, "MRW": 3.0}, only_cases=("MRW",), seed=seed
+        )
+        p = run_backtest(sim.counts, sim.units, sim.graph, min_history_weeks=6).predictions
+        predicted.append(p["score"].mean())
+        observed.append(p["outcome"].mean())
+    assert abs(np.mean(predicted) - np.mean(observed)) < 0.05, (predicted, observed)
+
+
+def test_backtest_leaves_out_late_reported_old_cases_and_censored_windows():
+    sim = _sim.simulate(12, 12, weeks=26, seed=3, stripe=3, countries=("TVR", "OSK", "MRW"))
+    sim = _sim.with_delays(sim, {"TVR": 0.5, "OSK": 2.0, "MRW": 3.0}, only_cases=("MRW",), seed=3)
+    bt = run_backtest(sim.counts, sim.units, sim.graph, min_history_weeks=4, horizon_weeks=2)
+    p = bt.predictions
+    truth = sim.first.reindex(p["unit_id"]).to_numpy()
+    origin = p["origin"].to_numpy()
+    # No candidate's true first case lies in a week up to its origin (reported later).
+    assert not (truth <= origin).any()
+    # The outcome is exactly a true first case within the horizon.
+    within = (truth > origin) & (truth <= origin + np.timedelta64(14, "D"))
+    np.testing.assert_array_equal(p["outcome"].to_numpy(), within)

@@ -12,7 +12,7 @@ from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from . import _features as rf
 from . import _hazard
-from ._model import _MODEL_FEATURES, MODELS, _complete_week, _fit, _panel_at
+from ._model import _MODEL_FEATURES, MODELS, _complete_week, _fit, _panel_at, complete_weeks
 
 
 # --- the backtest --------------------------------------------------------------------------
@@ -67,7 +67,7 @@ def _metrics(pred: pd.DataFrame, model: str, top_k: int) -> dict:
 def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
     rows = []
     groups = [(None, pred)] if by is None else list(pred.groupby(by, sort=True))
-    for model in MODELS:
+    for model in [m for m in (*MODELS, "forecast") if m in pred.columns]:
         for key, g in groups:
             m = _metrics(g, model, top_k)
             rows.append({"model": model, **({} if by is None else {by: key}), **m})
@@ -80,6 +80,7 @@ def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
 def _origins_task(
     counts: pd.DataFrame,
     final_pos: np.ndarray,
+    final_complete: np.ndarray,
     static: rf.Static,
     grid: pd.DatetimeIndex,
     origins: Sequence[int],
@@ -117,7 +118,15 @@ def _origins_task(
         pos = panel.cases[cand] >= params["min_cases"]
         nt = pos.shape[1]
         lo = np.where(pos.any(axis=1), nt - pos[:, ::-1].argmax(axis=1), 0)
-        outcome = (final_pos[cand, t0 + h + 1] - final_pos[cand, lo]) > 0
+        # Judged on the final data by week of occurrence. A case in a week up to t0 that was
+        # reported after the origin is not a new case: the unit was not at risk, leave it out.
+        # A window running past the final data's complete weeks is censored, not a negative.
+        old = (final_pos[cand, t0 + 1] - final_pos[cand, lo]) > 0
+        keep = ~old & (t0 + h <= final_complete[cand])
+        cand = cand[keep]
+        if not len(cand):
+            continue
+        outcome = (final_pos[cand, t0 + h + 1] - final_pos[cand, t0 + 1]) > 0
         frame = pd.DataFrame(
             {
                 "origin": panel.weeks[-1],
@@ -141,8 +150,33 @@ def _origins_task(
             x = rf.matrix(panel, names, cand, np.full(len(cand), t0))
             frame[model] = m.probability(x)
             frame[f"kind_{model}"] = m.kind
+        if params.get("forecast") is not None:
+            frame["forecast"] = _forecast_any(counts, static, date, cand, h, params["forecast"])
+            frame["kind_forecast"] = "fitted"
         out.append(frame)
     return out
+
+
+def _forecast_any(counts, static, date, cand, h, spec) -> np.ndarray:
+    """P(at least one case in the next ``h`` weeks) from the forecast model's paths.
+
+    Weeks are combined within each simulated path (any case in any week), which keeps their
+    dependence, rather than as ``1 - prod(1 - p_any)``.
+    """
+    import warnings
+
+    from ..errors import DataWarning
+    from ..projections.projection import forecast
+
+    units, graph, n_paths, seed = spec
+    known = counts[counts["received"] <= date]
+    known = known.assign(unit_id=known["unit_id"].astype(str))
+    with warnings.catch_warnings():
+        # Islands have no neighbourhood part; the forecast warns, the backtest only scores.
+        warnings.simplefilter("ignore", DataWarning)
+        f = forecast(known, units, graph, as_of=date, horizon_weeks=h, seed=seed, n_paths=n_paths)
+    p = (f.paths > 0).any(axis=0).mean(axis=1)
+    return pd.Series(p, index=f.units.index).reindex(static.ids[cand]).to_numpy(dtype=float)
 
 
 def run(
@@ -161,6 +195,7 @@ def run(
     min_cases: int,
     n_jobs: int,
     as_of: object,
+    forecast: tuple | None = None,
 ) -> Backtest:
     """Run the backtest on checked inputs (see ``marchland.risk.score.run_backtest``)."""
     slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
@@ -188,6 +223,7 @@ def run(
     np.add.at(final_panel_cases, (ui, grid.get_indexer(final["week"])), c)
     pos = final_panel_cases >= min_cases
     final_pos = np.concatenate([np.zeros((len(static.ids), 1)), np.cumsum(pos, axis=1)], axis=1)
+    final_complete = complete_weeks(slim, static, len(grid) - 1)
     last = len(grid) - 1 - horizon_weeks
     if origins is None:
         any_case = np.flatnonzero(pos.any(axis=0))
@@ -214,9 +250,10 @@ def run(
         "min_events": min_events,
         "penalty": penalty,
         "min_cases": min_cases,
+        "forecast": forecast,
     }
     if n_jobs == 1 or len(idx) < 2:
-        frames = _origins_task(slim, final_pos, static, grid, idx, params)
+        frames = _origins_task(slim, final_pos, final_complete, static, grid, idx, params)
     else:
         from joblib import Parallel, delayed, effective_n_jobs
 
@@ -224,7 +261,8 @@ def run(
         # Interleaved shares balance early (small) and late (large) origins across workers.
         shares = [idx[i::k] for i in range(k)]
         parts = Parallel(n_jobs=k, backend="loky")(
-            delayed(_origins_task)(slim, final_pos, static, grid, s, params) for s in shares
+            delayed(_origins_task)(slim, final_pos, final_complete, static, grid, s, params)
+            for s in shares
         )
         frames = [f for p in parts for f in p]
     if not frames:

@@ -167,6 +167,29 @@ def _rolling(a: np.ndarray, window: int, lag: int = 0) -> np.ndarray:
     return c[:, window : window + nt] - c[:, :nt]
 
 
+def _rolling_known(a: np.ndarray, window: int, lag: int = 0) -> np.ndarray:
+    """Window sum with unknown (NaN) weeks left out: the known weeks' mean times ``window``.
+
+    NaN where no week of the window is known: an unreported week is unknown, never zero.
+    """
+    known = np.isfinite(a)
+    total = _rolling(np.where(known, a, 0.0), window, lag)
+    n = _rolling(known.astype(float), window, lag)
+    return np.divide(total * window, n, out=np.full_like(total, np.nan), where=n > 0)
+
+
+def _known_mean(w: sparse.csr_matrix, v: np.ndarray) -> np.ndarray:
+    """``w @ v`` over the known (finite) entries of ``v``, weights renormalised to them.
+
+    A row whose neighbours are all unknown gets 0 (no known pressure).
+    """
+    known = np.isfinite(v)
+    num = w @ np.where(known, v, 0.0)
+    den = w @ known.astype(float)
+    full = np.asarray(w.sum(axis=1)).reshape(-1, 1)
+    return np.divide(num * full, den, out=np.zeros_like(num), where=den > 0)
+
+
 @dataclass(frozen=True, eq=False)
 class Panel:
     """Dense unit x week arrays of one as-of view, and the features at every week."""
@@ -178,6 +201,7 @@ class Panel:
     incidence: np.ndarray  # cases per 100,000 in the last ``recent_weeks`` weeks
     features: dict[str, np.ndarray]
     at_risk: np.ndarray  # candidate at the end of week t
+    complete: np.ndarray  # per unit, the last week index whose cases are taken as complete
 
 
 def week_grid(start: pd.Timestamp, end: pd.Timestamp) -> pd.DatetimeIndex:
@@ -194,8 +218,16 @@ def build_panel(
     recent_weeks: int = 3,
     reintroduction_weeks: int | None = None,
     min_cases: int = 1,
+    filled: np.ndarray | None = None,
+    complete: np.ndarray | None = None,
 ) -> Panel:
-    """Arrays and features on ``weeks`` from an as-of ``view`` and its first-case weeks."""
+    """Arrays and features on ``weeks`` from an as-of ``view`` and its first-case weeks.
+
+    ``filled`` (units x weeks, NaN unknown), when given, is the nowcast-adjusted panel the
+    incidence features are computed from (:func:`marchland.delays.fill_gaps`); otherwise the
+    reported cases are used with unreported weeks unknown. ``complete`` gives per unit the
+    last week whose count is taken as complete (default: the last week).
+    """
     n, nt = len(static.ids), len(weeks)
     v = view[view["week"].isin(weeks)]
     ui = static.ids.get_indexer(v["unit_id"])
@@ -239,18 +271,22 @@ def build_panel(
             value=static.ids[no_pop][0],
         )
     pop = np.where(known, static.population, 1.0)
-    recent = _rolling(cases, recent_weeks)
+    # Incidence from the nowcast-adjusted panel, or the reports; a week nobody reported is
+    # unknown (left out, the window's known weeks scaled up), not zero.
+    base = np.where(counted, cases, np.nan) if filled is None else filled
+    recent = _rolling_known(base, recent_weeks)
     inc = recent / pop[:, None] * 1e5
-    near_raw = static.w1 @ inc
+    near_raw = _known_mean(static.w1, inc)
     near = np.log1p(near_raw)
-    cross = np.divide(
-        static.w1_cross @ inc, near_raw, out=np.zeros_like(near_raw), where=near_raw > 0
-    )
-    far = np.log1p(static.w2 @ inc)
-    nb = static.reach @ cases
-    growth = np.log1p(_rolling(nb, recent_weeks)) - np.log1p(
-        _rolling(nb, recent_weeks, lag=recent_weeks)
-    )
+    inc0 = np.nan_to_num(inc)
+    near0 = static.w1 @ inc0
+    # The cross-border share among the known neighbours (renormalising cancels in the ratio).
+    cross = np.divide(static.w1_cross @ inc0, near0, out=np.zeros_like(near0), where=near0 > 0)
+    far = np.log1p(_known_mean(static.w2, inc))
+    before = _rolling_known(base, recent_weeks, lag=recent_weeks)
+    nb_now = static.reach @ np.nan_to_num(recent)
+    nb_before = static.reach @ np.nan_to_num(before)
+    growth = np.log1p(nb_now) - np.log1p(nb_before)
     # Distance to the nearest affected unit within two steps: the smallest pair distance
     # among neighbours affected by week t, as a running minimum over weeks.
     dist = np.full((n, nt + 1), np.inf)
@@ -281,7 +317,9 @@ def build_panel(
             positive, counted & ~positive, reintroduction_weeks, before=affected[:, 0]
         )
     at_risk = free & within2
-    return Panel(weeks, cases, reported, fwi, inc, feats, at_risk)
+    if complete is None:
+        complete = np.full(n, nt - 1, dtype=np.int64)
+    return Panel(weeks, cases, reported, fwi, np.nan_to_num(inc), feats, at_risk, complete)
 
 
 def future_any(cases: np.ndarray, horizon: int, min_cases: int = 1) -> np.ndarray:

@@ -16,6 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 from scipy import stats
 
 # Probabilities are kept this far from 0 and 1 so the IRLS weights stay finite
@@ -35,6 +36,7 @@ class Fit:
 
     coef: np.ndarray  # on the standardised scale, intercept first
     cov: np.ndarray  # covariance of ``coef`` (inverse penalised information)
+    cov_cluster: np.ndarray | None  # sandwich covariance clustered by ``groups`` (if given)
     center: np.ndarray  # column means used to standardise
     scale: np.ndarray  # column standard deviations used to standardise (1 for constants)
     converged: bool
@@ -53,6 +55,14 @@ class Fit:
         j = self._jacobian()
         return j @ self.cov @ j.T
 
+    @property
+    def cov_cluster_raw(self) -> np.ndarray | None:
+        """Cluster-robust covariance of :attr:`coef_raw` (None without groups)."""
+        if self.cov_cluster is None:
+            return None
+        j = self._jacobian()
+        return j @ self.cov_cluster @ j.T
+
     def _jacobian(self) -> np.ndarray:
         k = len(self.coef)
         j = np.zeros((k, k))
@@ -68,6 +78,7 @@ def fit_cloglog(
     *,
     penalty: float = 1.0,
     prior: np.ndarray | None = None,
+    groups: np.ndarray | None = None,
     standardise: bool = True,
     tol: float = 1e-9,
     max_iter: int = 100,
@@ -78,6 +89,14 @@ def fit_cloglog(
     standardised columns; the intercept is not penalised. ``penalty=0`` is the plain maximum
     likelihood fit. Columns without variation get their coefficient fixed at 0. Converged
     when no standardised coefficient moves by more than ``tol`` in a step.
+
+    With ``groups`` (one label per row, e.g. the unit of each unit-week) the fit also carries
+    the cluster-robust sandwich covariance ``H^-1 (sum_g s_g s_g') H^-1 * c``: ``H`` the
+    penalised observed information, ``s_g`` the per-group sums of the log-likelihood scores and
+    ``c = G / (G - 1) * (n - 1) / (n - k)`` the small-sample factor statsmodels applies with
+    ``cov_type="cluster"`` (Liang & Zeger 1986). Rows of one unit overlap in their outcome
+    windows (a case in week t + 2 is an event for the risk sets of t and t + 1), so they are
+    not independent and the model-based covariance is too small.
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -131,8 +150,26 @@ def fit_cloglog(
     cov = np.linalg.inv(info)
     cov[:, 1:][:, constant] = 0.0
     cov[1:, :][constant, :] = 0.0
+    cov_cluster = None
+    if groups is not None:
+        # Score of each row: z * (y - mu) * dmu / (mu (1 - mu)); summed within groups.
+        codes, uniq = pd.factorize(np.asarray(groups))
+        s = z * ((y - mu) * dmu / (mu * (1 - mu)))[:, None]
+        sg = np.zeros((len(uniq), k + 1))
+        np.add.at(sg, codes, s)
+        g_n = len(uniq)
+        n_free = k + 1 - int(constant.sum())
+        c = g_n / max(g_n - 1, 1) * (n - 1) / max(n - n_free, 1)
+        # The bread is the observed (not expected) information, as statsmodels uses: with
+        # a = exp(eta), -d2 loglik / d eta2 = a^2 (1 - mu) / mu - (y - mu) (a / mu - a^2 (1 - mu)
+        # / mu^2); its expectation is the IRLS weight ``w`` above.
+        w_obs = e**2 * (1 - mu) / mu - (y - mu) * (e / mu - e**2 * (1 - mu) / mu**2)
+        bread = np.linalg.inv((z * w_obs[:, None]).T @ z + np.diag(pen))
+        cov_cluster = c * bread @ (sg.T @ sg) @ bread
+        cov_cluster[:, 1:][:, constant] = 0.0
+        cov_cluster[1:, :][constant, :] = 0.0
     deviance = float(-2 * np.sum(y * np.log(mu) + (1 - y) * np.log1p(-mu)))
-    return Fit(b, cov, center, scale, converged, it, deviance)
+    return Fit(b, cov, cov_cluster, center, scale, converged, it, deviance)
 
 
 def _penalised_deviance(z, y, b, pen, b0) -> float:

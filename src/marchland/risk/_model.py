@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..delays.gaps import fill_gaps
 from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
@@ -58,7 +59,9 @@ class RiskModel:
     coefficients : pandas.Series
         ``intercept`` and one coefficient per feature, per unit of the raw feature.
     std_errors : pandas.Series
-        Standard errors of ``coefficients`` (penalised-likelihood information); NaN for a prior.
+        Standard errors of ``coefficients``, clustered by unit (sandwich on the penalised
+        likelihood): one unit's overlapping outcome windows are not independent. NaN for a
+        prior.
     standardised : pandas.Series
         Coefficients per standard deviation of each feature (what the penalty acts on).
     center : pandas.Series
@@ -86,6 +89,8 @@ class RiskModel:
     penalty: float
     converged: bool
     note: str
+    #: Model-based (information) standard errors, which ignore the clustering; for comparison.
+    std_errors_model: pd.Series | None = None
 
     def linear_predictor(self, x: np.ndarray) -> np.ndarray:
         """Linear predictor for rows of raw features (columns in ``features`` order)."""
@@ -167,6 +172,7 @@ def _panel_at(
     weeks = grid[: t0 + 1]
     view = view[view["week"] <= weeks[-1]]
     first = first_cases(view, min_cases=min_cases)
+    known = counts[counts["received"] <= date]
     panel = rf.build_panel(
         view,
         first,
@@ -175,8 +181,52 @@ def _panel_at(
         recent_weeks=recent_weeks,
         reintroduction_weeks=reintroduction_weeks,
         min_cases=min_cases,
+        filled=_filled(known, static, weeks, date),
+        complete=complete_weeks(known, static, len(weeks) - 1),
     )
     return panel, weeks[-1]
+
+
+def _filled(known: pd.DataFrame, static: rf.Static, weeks: pd.DatetimeIndex, date) -> np.ndarray:
+    """Nowcast-adjusted cases on the unit x week grid (NaN unknown), from delays.fill_gaps."""
+    units = pd.DataFrame({"country": static.country}, index=static.ids)
+    c = known.assign(unit_id=known["unit_id"].astype(str))
+    gaps = fill_gaps(c, units, as_of=date)
+    out = np.full((len(static.ids), len(weeks)), np.nan)
+    ui = static.ids.get_indexer(gaps["unit_id"])
+    wi = weeks.get_indexer(gaps["week"])
+    ok = (ui >= 0) & (wi >= 0)
+    out[ui[ok], wi[ok]] = gaps["cases"].to_numpy(dtype=float)[ok]
+    return out
+
+
+#: Share of first reports of a week with cases that arrive within the delay taken as complete.
+DELAY_QUANTILE = 0.9
+
+
+def complete_weeks(known: pd.DataFrame, static: rf.Static, last: int) -> np.ndarray:
+    """Per unit, the last week index (of a grid ending at ``last``) taken as fully reported.
+
+    A week counts as complete once it is older than its country's ``DELAY_QUANTILE`` reporting
+    delay: the delay, in whole weeks after the week ended, to the first report of a unit-week
+    with cases, among the reports known. Outcome windows running past it are censored, not
+    negatives (a case may still be on its way).
+    """
+    pos = known[pd.to_numeric(known["cases"], errors="coerce").fillna(0) > 0]
+    q = pd.Series(0, index=pd.Index(np.unique(static.country)), dtype=np.int64)
+    if len(pos):
+        first_rec = pos.groupby([pos["unit_id"].astype(str), pos["week"]], observed=True)[
+            "received"
+        ].min()
+        wk = first_rec.index.get_level_values(1)
+        delay = (first_rec.to_numpy() - (wk + pd.Timedelta(days=7))) // pd.Timedelta(days=7)
+        country = pd.Series(static.country, index=static.ids).reindex(
+            first_rec.index.get_level_values(0)
+        )
+        d = pd.Series(np.maximum(np.asarray(delay, dtype=float), 0.0), index=country.to_numpy())
+        qq = d.groupby(level=0).quantile(DELAY_QUANTILE)
+        q = q.add(np.ceil(qq).astype(np.int64), fill_value=0).astype(np.int64)
+    return last - q.reindex(static.country).to_numpy(dtype=np.int64)
 
 
 def _risk_sets(panel: rf.Panel | None, names: tuple[str, ...], horizon_weeks: int, min_cases: int):
@@ -187,6 +237,9 @@ def _risk_sets(panel: rf.Panel | None, names: tuple[str, ...], horizon_weeks: in
         last = len(panel.weeks) - 1 - horizon_weeks
         if last >= 0:
             rows, cols = np.nonzero(panel.at_risk[:, : last + 1])
+            # Windows running past the weeks taken as complete are censored, not negatives.
+            done = cols + horizon_weeks <= panel.complete[rows]
+            rows, cols = rows[done], cols[done]
             y = rf.future_any(panel.cases, horizon_weeks, min_cases)[rows, cols]
     x = rf.matrix(panel, names, rows, cols) if panel is not None else np.zeros((0, len(names)))
     ok = np.isfinite(x).all(axis=1)  # units of unknown population are not fitted on
@@ -209,9 +262,10 @@ def _fit(
     x, y, rows, _ = _risk_sets(panel, names, horizon_weeks, min_cases)
     n_events = int(np.unique(rows[y]).size)
     if n_events >= max(min_events, 1) and 0 < y.sum() < len(y):
-        fit = _hazard.fit_cloglog(x, y, penalty=penalty)
+        fit = _hazard.fit_cloglog(x, y, penalty=penalty, groups=rows)
         coef = pd.Series(fit.coef_raw, index=index)
-        se = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_raw), 0, None)), index=index)
+        se = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_cluster_raw), 0, None)), index=index)
+        se_model = pd.Series(np.sqrt(np.clip(np.diag(fit.cov_raw), 0, None)), index=index)
         std = pd.Series(fit.coef, index=index)
         center = pd.Series(fit.center, index=index[1:])
         note = (
@@ -234,6 +288,7 @@ def _fit(
             float(penalty),
             fit.converged,
             note,
+            se_model,
         )
     b = np.array([PRIOR_COEFFICIENTS.get(f, 0.0) for f in names])
     ref = np.array([_PRIOR_REFERENCE.get(f, 0.0) for f in names])

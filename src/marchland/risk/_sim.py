@@ -41,11 +41,17 @@ class Simulation:
 
 
 def grid_region(
-    nx: int, ny: int, *, side_m: float = 10_000.0, seed: int = 0, stripe: int | None = None
+    nx: int,
+    ny: int,
+    *,
+    side_m: float = 10_000.0,
+    seed: int = 0,
+    stripe: int | None = None,
+    countries: tuple[str, ...] = ("TVR", "OSK"),
 ):
-    """Square units on an ``nx`` by ``ny`` grid in two countries, "TVR" and "OSK".
+    """Square units on an ``nx`` by ``ny`` grid in (by default two) countries.
 
-    The countries alternate every ``stripe`` columns (default: the left half and the right).
+    The countries take turns every ``stripe`` columns (default: the left half and the right).
     """
     import geopandas as gpd
     from shapely import box
@@ -57,7 +63,7 @@ def grid_region(
     ix, iy = ix.ravel(), iy.ravel()
     ids = pd.Index([f"U{i:03d}-{j:03d}" for i, j in zip(ix, iy, strict=True)], name="unit_id")
     stripe = max(nx // 2, 1) if stripe is None else stripe
-    country = np.where((ix // stripe) % 2 == 0, "TVR", "OSK")
+    country = np.asarray(countries)[(ix // stripe) % len(countries)]
     pop = np.round(np.exp(rng.normal(np.log(8e4), 0.6, len(ids))))
     units = gpd.GeoDataFrame(
         {"country": country, "population": pop},
@@ -96,11 +102,12 @@ def simulate(
     recent_weeks: int = 3,
     start: str = "2026-01-05",
     stripe: int | None = None,
+    countries: tuple[str, ...] = ("TVR", "OSK"),
 ) -> Simulation:
     """Run the diffusion; features are recomputed each week from the cases so far."""
     coef = dict(TRUE_WEEKLY if coefficients is None else coefficients)
     rng = np.random.default_rng(seed)
-    units, graph = grid_region(nx, ny, seed=seed, stripe=stripe)
+    units, graph = grid_region(nx, ny, seed=seed, stripe=stripe, countries=countries)
     static = rf.build_static(units, graph)
     n = len(static.ids)
     grid = rf.week_grid(pd.Timestamp(start), pd.Timestamp(start) + rf.WEEK * (weeks - 1))
@@ -149,6 +156,32 @@ def simulate(
     )
     eta = pd.DataFrame(eta_out, index=grid, columns=static.ids)
     return Simulation(counts, units, graph, eta, fw)
+
+
+def with_delays(
+    sim: Simulation,
+    mean_delay_weeks: dict[str, float],
+    *,
+    only_cases: tuple[str, ...] = (),
+    seed: int = 0,
+) -> Simulation:
+    """Report the simulated weeks late, by country, and leave out zero weeks of some countries.
+
+    Each unit-week is received ``1 + D`` weeks after it starts, ``D`` geometric on 0, 1, ...
+    with the country's mean ``mean_delay_weeks``; countries in ``only_cases`` send a row only
+    for weeks with cases (a week without a row is then unreported, though it had none).
+    """
+    rng = np.random.default_rng(seed)
+    c = sim.counts
+    country = sim.units["country"].reindex(c["unit_id"]).to_numpy()
+    mean = pd.Series(mean_delay_weeks).reindex(country).fillna(0.0).to_numpy(dtype=float)
+    d = rng.geometric(1.0 / (1.0 + mean)) - 1
+    received = c["week"] + pd.to_timedelta(7 * (1 + d), unit="D")
+    out = c.assign(received=received.to_numpy())
+    drop = np.isin(country, list(only_cases)) & (out["cases"].to_numpy(dtype=float) == 0)
+    out = out[~drop].reset_index(drop=True)
+    out["row"] = np.arange(1, len(out) + 1)
+    return Simulation(out, sim.units, sim.graph, sim.eta, sim.first)
 
 
 def _panel(cases, first, static, weeks, recent_weeks) -> rf.Panel:

@@ -285,6 +285,8 @@ def run_backtest(
     covariates: pd.DataFrame | None = None,
     n_jobs: int = 1,
     as_of: object = None,
+    forecast_paths: int = 0,
+    seed: int | None = None,
 ) -> Backtest:
     """Rolling-origin backtest with the by-country and by-origin breakdowns.
 
@@ -313,6 +315,13 @@ penalty, min_cases, covariates
     as_of : date-like, optional
         Replay only what was known on this date: reports received later are dropped first,
         so outcomes too are judged on the data of that date (for a monthly report).
+    forecast_paths : int, default 0
+        With ``n > 0``, also score the forecast model (:func:`marchland.projections.forecast`,
+        ``n`` simulated paths per origin) as model ``forecast``: P(at least one case within
+        the horizon) from its paths. About a second per origin on the demo, hence off by
+        default.
+    seed : int, optional
+        Seed of the forecast model's paths.
 
     Returns
     -------
@@ -358,6 +367,7 @@ penalty, min_cases, covariates
         min_cases=min_cases,
         n_jobs=n_jobs,
         as_of=as_of,
+        forecast=(units, graph, int(forecast_paths), seed) if forecast_paths else None,
     )
 
 
@@ -380,6 +390,8 @@ def backtest_risk(
     n_jobs: int = 1,
     as_of: object = None,
     by: str | None = None,
+    forecast_paths: int = 0,
+    seed: int | None = None,
 ) -> pd.DataFrame:
     """Rolling-origin backtest of :func:`border_risk` against two baselines.
 
@@ -390,7 +402,7 @@ def backtest_risk(
     ----------
     counts, units, graph, horizon_weeks, origins, min_history_weeks, report_lag_days, top_k, \
 recent_weeks, reintroduction_weeks, min_events, penalty, min_cases, covariates, n_jobs, \
-as_of
+as_of, forecast_paths, seed
         As in :func:`run_backtest`.
     by : {None, "country"}, optional
         ``"country"``: one row per model and country instead of per model.
@@ -398,7 +410,8 @@ as_of
     Returns
     -------
     pandas.DataFrame
-        Indexed by ``model`` (rows ``score``, ``distance``, ``neighbours``), columns ``auc
+        Indexed by ``model`` (rows ``score``, ``distance``, ``neighbours``, and ``forecast``
+        with ``forecast_paths``), columns ``auc
         brier hits_top_k n_origins n_scored n_events``.
 
     References
@@ -431,6 +444,8 @@ as_of
         covariates=covariates,
         n_jobs=n_jobs,
         as_of=as_of,
+        forecast_paths=forecast_paths,
+        seed=seed,
     )
     return bt.summary if by is None else bt.by_country
 
