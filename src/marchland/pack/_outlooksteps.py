@@ -98,6 +98,7 @@ def forecast_step(ctx: Any) -> dict[str, Any]:
         "forecast": fc,
         "forecast_areas": areas,
         "forecast_backtest": backtest_summary(ctx, pj),
+        "filled_panel": wide,
     }
 
 

@@ -16,6 +16,7 @@ import pandas as pd
 from .. import __version__
 from ..figures.maps import CAUTION_LINE
 from ._html import _fmt, _num, _section, _tile, esc
+from ._outlook import clusters_section, forecast_section
 from ._sections import (
     _cautions,
     _epi_section,
@@ -134,8 +135,10 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
                 ("rates", "Attack rates"),
                 ("epi", "Epi curves"),
                 ("hotspots", "Hotspots"),
+                ("clusters", "Emerging clusters"),
                 ("spread", "Spread"),
                 ("risk", "Border risk"),
+                ("outlook", "The next four weeks"),
                 ("supplies", "Pre-positioning"),
                 ("data", "Data received"),
                 ("cautions", "Cautions"),
@@ -145,8 +148,10 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         _rates_section(result, figures),
         _epi_section(result, figures),
         _hotspot_section(result, figures),
+        clusters_section(result, figures),
         _spread_section(result, figures),
         _risk_section(result, figures),
+        forecast_section(result, figures),
         _supplies_section(result, figures),
         _quality_section(result),
         _cautions(),

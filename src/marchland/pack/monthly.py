@@ -95,6 +95,8 @@ class MonthResult:
     forecast, forecast_areas, forecast_backtest
         The four-week :class:`marchland.projections.Forecast` from the filled panel, its sums
         per region, country and province (``level`` column), and a lean backtest.
+    filled_panel : pandas.DataFrame
+        The nowcast-filled unit x week cases both steps used (NaN: unknown).
     priorities, depots, depot_sites, depot_assignment, supply_totals, supply_totals_by_depot
         From :mod:`marchland.supplies.plan`; the totals are per country and per depot catchment
         (each candidate in the catchment of its nearest open depot).
@@ -145,6 +147,7 @@ class MonthResult:
     forecast: Any = None
     forecast_areas: pd.DataFrame | None = None
     forecast_backtest: pd.DataFrame | None = None
+    filled_panel: pd.DataFrame | None = None
     cluster_colours: Mapping[str, str] | None = None
     cluster_legend: Mapping[str, str] | None = None
     cluster_significant: tuple[str, ...] = ()
