@@ -200,6 +200,7 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         cov = allc[allc["model"] == "endemic-epidemic"].set_index("horizon")["coverage"]
         wide["coverage"] = cov
         wide = wide.reset_index()
+        wide["horizon"] = wide["horizon"].astype(int)
         cols = {"horizon": "weeks ahead"}
         cols.update({m: f"CRPS {m}" for m in wide.columns if m not in ("horizon", "coverage")})
         cols["coverage"] = f"model {result.forecast.conf if fc else 0.9:.0%} coverage"
