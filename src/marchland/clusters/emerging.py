@@ -224,7 +224,9 @@ def emerging_clusters(
         attrs["note"] = "no cylinder had more cases than expected"
         empty.attrs.update(attrs)
         return empty
-    null = _scan.null_maxima(draw, permutations, order, mu, valid, total, max_weeks)
+    null = _scan.null_maxima(
+        draw, permutations, order, mu, valid, total, max_weeks, n_weeks=n_weeks
+    )
     rows = []
     for h, i, k in picks:
         c, m, s = obs[h, i, k], mu[h, i, k], llr[h, i, k]

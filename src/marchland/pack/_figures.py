@@ -13,6 +13,7 @@ import numpy as np
 import pandas as pd
 
 from ..figures import maps
+from ._outlook import outlook_figures
 from ._steps import province_of
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -158,6 +159,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
             "Quantities use example planning values, not guidance.",
         )
     yield from _epi_figures(result, notes)
+    yield from outlook_figures(result, notes, base)
 
 
 def _untested_labels(result: MonthResult) -> tuple[str, ...]:

@@ -19,6 +19,7 @@ from ..figures.maps import CAUTION_LINE
 from . import _webmap
 from ._html import _fmt, _num, _section, _tile, esc
 from ._nowcastsection import coverage_note, nowcast_section
+from ._outlook import clusters_section, forecast_section
 from ._sections import (
     _cautions,
     _epi_section,
@@ -140,8 +141,10 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
                 ("epi", "Epi curves"),
                 ("nowcast", "Latest weeks"),
                 ("hotspots", "Hotspots"),
+                ("clusters", "Emerging clusters"),
                 ("spread", "Spread"),
                 ("risk", "Border risk"),
+                ("outlook", "The next four weeks"),
                 ("supplies", "Pre-positioning"),
                 ("data", "Data received"),
                 ("cautions", "Cautions"),
@@ -153,8 +156,10 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         _epi_section(result, figures),
         nowcast_section(result, figures),
         _hotspot_section(result, figures),
+        clusters_section(result, figures),
         _spread_section(result, figures),
         _risk_section(result, figures),
+        forecast_section(result, figures),
         _supplies_section(result, figures),
         _quality_section(result),
         _cautions(),

@@ -39,6 +39,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import InputError
+from . import _outlooksteps as _outlook
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
@@ -258,6 +259,12 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
         "backtest": result.backtest,
         "backtest_by_country": result.backtest_by_country,
         "priorities": result.priorities,
+        "clusters": None if result.clusters is None else _outlook.clusters_table(result.clusters),
+        "forecast": None
+        if result.forecast is None
+        else _outlook.forecast_table(result.forecast, result.units),
+        "forecast_by_area": result.forecast_areas,
+        "forecast_backtest": result.forecast_backtest,
         "supply_totals": result.supply_totals,
         "supply_totals_by_depot": result.supply_totals_by_depot,
         "depots": None
@@ -332,6 +339,9 @@ def _write_layers(result: MonthResult, path: Path) -> None:
         "priorities": _geo(units, result.priorities),
         "depots": result.depots,
         "edges": result.edges,
+        "clusters": None
+        if result.clusters is None
+        else _outlook.clusters_layer(result.clusters, result.units),
     }
     for name, layer in layers.items():
         if layer is None or len(layer) == 0:

@@ -33,6 +33,7 @@ from ..config.load import load_config
 from ..config.schema import Config
 from ..errors import DataWarning, InputError
 from ..inputs.weeks import week_month
+from . import _outlooksteps as _outlook
 from ._steps import _Absent, _Context, _need, risk_covariates, risk_options
 
 Progress = Callable[[str, str, float | None], None]
@@ -46,6 +47,8 @@ STEPS = (
     "spread",
     "border risk",
     "backtest",
+    "clusters",
+    "forecast",
     "supplies",
 )
 
@@ -98,6 +101,14 @@ class MonthResult:
         From :func:`marchland.risk.score.border_risk`; ``risk.attrs`` has ``expected_new_units``.
     backtest, backtest_by_country : pandas.DataFrame
         Indexed by ``model`` (``score distance neighbours``).
+    clusters : pandas.DataFrame
+        Emerging space-time clusters (:func:`marchland.clusters.emerging_clusters`) on the
+        nowcast-filled panel; ``attrs`` say which panel and how many units were scanned.
+    forecast, forecast_areas, forecast_backtest
+        The four-week :class:`marchland.projections.Forecast` from the filled panel, its sums
+        per region, country and province (``level`` column), and a lean backtest.
+    filled_panel : pandas.DataFrame
+        The nowcast-filled unit x week cases both steps used (NaN: unknown).
     priorities, depots, depot_sites, depot_assignment, supply_totals, supply_totals_by_depot
         From :mod:`marchland.supplies.plan`; the totals are per country and per depot catchment
         (each candidate in the catchment of its nearest open depot).
@@ -148,6 +159,11 @@ class MonthResult:
     depot_assignment: pd.DataFrame | None = None
     supply_totals: pd.DataFrame | None = None
     supply_totals_by_depot: pd.DataFrame | None = None
+    clusters: pd.DataFrame | None = None
+    forecast: Any = None
+    forecast_areas: pd.DataFrame | None = None
+    forecast_backtest: pd.DataFrame | None = None
+    filled_panel: pd.DataFrame | None = None
     cluster_colours: Mapping[str, str] | None = None
     cluster_legend: Mapping[str, str] | None = None
     cluster_significant: tuple[str, ...] = ()
@@ -404,6 +420,8 @@ def run_month(
         risk = run("border risk", ctx.risk)
         fields.update(risk or {})
         fields.update(run("backtest", ctx.backtest) or {})
+        fields.update(run("clusters", lambda: _outlook.clusters_step(ctx)) or {})
+        fields.update(run("forecast", lambda: _outlook.forecast_step(ctx)) or {})
         fields.update(
             run("supplies", lambda: ctx.supplies(fields.get("risk")), needs=("border risk",)) or {}
         )

@@ -120,7 +120,7 @@ class Forecast:
             np.bincount(codes, weights=~known, minlength=len(groups)).astype(int),
             len(self.weeks),
         )
-        out.index.name = "unit_id" if by == "unit" else "group"
+        out.index.name = "unit_id" if isinstance(by, str) and by == "unit" else "group"
         return out
 
 
