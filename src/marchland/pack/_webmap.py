@@ -197,13 +197,13 @@ def _priority_layer(result: MonthResult) -> Layer | None:
 
 
 def _nowcast_rate_layer(result: MonthResult) -> Layer | None:
-    """Nowcast-adjusted month rate, when the rates table carries ``month_rate_nowcast``."""
+    """Nowcast-adjusted month rate, when the rates table carries ``month_adjusted_rate``."""
     r = result.rates
-    if r is None or "month_rate_nowcast" not in r:
+    if r is None or "month_adjusted_rate" not in r:
         return None
     hist = result.rates_history
     bins = mc._rate_bounds(hist if hist is not None else r["month_rate"], 5)
-    rate = r["month_rate_nowcast"].astype(float)
+    rate = r["month_adjusted_rate"].astype(float)
     fill, classes = mc._rate_colours(rate, bins)
     text = (_fmt_series(rate, ",.1f") + " per 100,000 (nowcast-adjusted)").where(
         classes != -2, "no report in the month"
@@ -222,6 +222,10 @@ def _emerging_layer(result: MonthResult) -> Layer | None:
     """Emerging space-time clusters, when the result holds them (a ``units`` column per row)."""
     cl = getattr(result, "clusters", None)
     if not isinstance(cl, pd.DataFrame) or "units" not in cl or not len(cl):
+        return None
+    # The same clusters as the static map: those significant at 0.05.
+    cl = cl[cl["p"] <= 0.05] if "p" in cl else cl
+    if not len(cl):
         return None
     lab = pd.Series(np.nan, index=result.units.index, dtype=object)
     text = pd.Series("in no emerging cluster", index=result.units.index, dtype=object)
