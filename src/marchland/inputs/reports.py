@@ -302,11 +302,28 @@ def _read_source(
         fuzzy_score=matching.fuzzy_score,
         fuzzy_margin=matching.fuzzy_margin,
     )
-    parts = [
-        _parse_table(frame, spec, key, f, sheet, calendar, today, window)
-        for f in spec.files
-        for sheet, frame in read_tables(f, spec.sheets)
-    ]
+    parts = []
+    for f in spec.files:
+        tables = read_tables(f, spec.sheets)
+        skipped: list[str] = []
+        first_error = None
+        for sheet, frame in tables:
+            try:
+                parts.append(_parse_table(frame, spec, key, f, sheet, calendar, today, window))
+            except InputError as exc:
+                # A stray sheet (notes, a summary) in a workbook does not block the others.
+                if not sheet:
+                    raise
+                skipped.append(sheet)
+                first_error = first_error or exc
+        if first_error is not None and len(skipped) == len(tables):
+            raise first_error
+        if skipped:
+            warnings.warn(
+                f"{spec.name}: {f.name}: skipped sheets without the configured columns: {skipped}",
+                DataWarning,
+                stacklevel=4,
+            )
     df = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
     matches = _match_places(df, matcher, spec)
     m = matches.set_index(["code", "place"])
