@@ -127,8 +127,8 @@ def _check_writable(out: Path, dest: Path) -> None:
     if not os.access(base, os.W_OK | os.X_OK):
         raise InputError("the output folder is not writable (permission denied)", file=base)
     try:
-        probe = tempfile.NamedTemporaryFile(dir=base, prefix=".marchland-probe-")
-        probe.close()
+        with tempfile.NamedTemporaryFile(dir=base, prefix=".marchland-probe-"):
+            pass
     except OSError as exc:
         raise InputError(
             f"cannot write into the output folder: {exc.strerror or exc}", file=base

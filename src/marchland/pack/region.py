@@ -431,7 +431,7 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
 
 
 def _rejected_status(acct: pd.Series, reasons: pd.Series, max_share: float) -> tuple[str, str]:
-    """A source that rejects every row (or more than ``max_share``) is not "read"."""
+    """Give a source's check status: one rejecting every row (or > ``max_share``) fails."""
     n, rejected = int(acct["rows_in"]), int(acct["rejected"])
     if n == 0 or rejected <= max_share * n and int(acct["counted"]) > 0:
         return "ok", ""
