@@ -240,3 +240,51 @@ def test_demo_runs_the_bundled_scenario(runner, tmp_path):
     again = runner.invoke(cli.cli, ["demo", "--out", str(tmp_path)])
     assert again.exit_code == 2, again.output
     assert "--overwrite" in again.stderr, again.stderr
+
+
+# --- hostile input and environment (issue 20) --------------------------------------------------
+def test_output_path_that_is_a_file_refused_before_the_analysis(
+    runner, world, tmp_path, monkeypatch
+):
+    def never(*a, **k):
+        raise AssertionError("the analysis ran before the output was checked")
+
+    monkeypatch.setattr(monthly, "run_month", never)
+    blocker = tmp_path / "a-file"
+    blocker.write_text("x")
+    out = str(blocker / "bundles")  # a folder inside a file: cannot be made
+    res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-03", "--out", out])
+    assert res.exit_code == 2
+    err = res.output.strip().splitlines()
+    assert len(err) == 1 and "a-file" in err[0] and "not a folder" in err[0]
+
+
+def test_check_fails_a_source_with_every_row_rejected(runner, world, tmp_path):
+    import shutil
+
+    import pandas as pd
+
+    copy = tmp_path / "w"
+    shutil.copytree(world.parent, copy)
+    table = pd.read_csv(copy / "aaa.csv", dtype=str)
+    table["cases"] = "1e3"  # not a plain count: every row rejected
+    table.to_csv(copy / "aaa.csv", index=False)
+    res = runner.invoke(cli.cli, ["check", str(copy / world.name)])
+    assert res.exit_code == 2
+    assert "every row rejected" in res.output and "All sources read." not in res.output
+
+
+def test_run_refuses_a_source_with_every_row_rejected(runner, world, tmp_path):
+    import shutil
+
+    copy = tmp_path / "w"
+    shutil.copytree(world.parent, copy)
+    lines = (copy / "aaa.csv").read_text().splitlines()
+    # A trailing delimiter on the header only: every data row is one field short.
+    (copy / "aaa.csv").write_text("\n".join([lines[0] + ",", *lines[1:]]) + "\n")
+    res = runner.invoke(
+        cli.cli, ["run", str(copy / world.name), "--month", "2026-03", "--out", str(tmp_path / "o")]
+    )
+    assert res.exit_code == 2, res.output
+    assert "every row of report source" in res.output
+    assert len(res.output.strip().splitlines()) == 1

@@ -43,7 +43,8 @@ def report() -> CheckReport:
 def test_every_dirty_row_rejected_for_its_reason(region: Region) -> None:
     dirt = pd.read_csv(DIRT, dtype=str, keep_default_na=False)
     want = {
-        (Path(d.source_file).name, d.sheet, int(d.row)): (d.reason, d.column)
+        # The truth counts data rows from 1; rejects number rows as a spreadsheet (header 1).
+        (Path(d.source_file).name, d.sheet, int(d.row) + 1): (d.reason, d.column)
         for d in dirt.itertuples()
     }
     rej = region.rejects
@@ -139,7 +140,8 @@ def test_check_report(report: CheckReport) -> None:
     assert "decision support" in text.lower()
     assert f"= {int(s['used'].sum())} used + {len(dirt)} rejected" in text
     for d in dirt.itertuples():  # every dirty row is listed with its file and row
-        assert f"{Path(d.source_file).name}" in text and f"row {d.row}" in text
+        # The truth counts data rows; the check names spreadsheet rows (header = row 1).
+        assert f"{Path(d.source_file).name}" in text and f"row {int(d.row) + 1}" in text
     assert isinstance(report.notes, tuple)
     assert set(report.units["analysis_level"]) == {1, 2}
     assert report.completeness.loc["QLN", "gap_weeks"] > 0

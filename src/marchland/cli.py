@@ -72,6 +72,13 @@ class _Group(click.Group):
                 traceback.print_exc()
             click.echo(f"error: {_one_line(str(exc))}", err=True)
             sys.exit(2)
+        except OSError as exc:  # the environment (disk full, permissions, path too long)
+            if _state["verbosity"] > 0:
+                traceback.print_exc()
+            where = exc.filename if exc.filename is not None else ""
+            cause = exc.strerror or type(exc).__name__
+            click.echo(f"error: {where}{': ' if where else ''}{_one_line(cause)}", err=True)
+            sys.exit(2)
         except Exception as exc:  # a bug, not a user mistake: say so and how to see more
             if _state["verbosity"] > 0:
                 traceback.print_exc()
@@ -336,9 +343,12 @@ def _run_and_write(
 
 
 def _summary(console: Any, result: Any, dest: Path) -> None:
+    from rich.markup import escape
+
     files = sorted(p for p in dest.rglob("*") if p.is_file())
     console.print(
-        f"[bold]marchland[/bold] {result.month} (as of {result.as_of:%Y-%m-%d}) written to {dest}"
+        f"[bold]marchland[/bold] {result.month} (as of {result.as_of:%Y-%m-%d}) written to "
+        + escape(str(dest))
     )
     _print_read(console, result)
     groups: dict[str, int] = {}
@@ -357,16 +367,18 @@ def _summary(console: Any, result: Any, dest: Path) -> None:
         )
     )
     for step, reason in result.absent.items():
-        console.print(f"  [yellow]not computed[/yellow] {step}: {reason}")
+        console.print(f"  [yellow]not computed[/yellow] {escape(str(step))}: {escape(str(reason))}")
     if result.warnings:
         console.print(f"  [yellow]{len(result.warnings)} warning(s):[/yellow]")
         for w in result.warnings:
-            console.print(f"    - {w}")
+            console.print(f"    - {escape(str(w))}")
     console.print(f"[dim]{CAUTIONS}[/dim]")
 
 
 def _print_read(console: Any, result: Any) -> None:
     """Say what the run read: rows per source, counted and rejected, and the units analysed."""
+    from rich.markup import escape
+
     acc = result.accounting
     if acc is not None and len(acc):
         console.print(
@@ -381,7 +393,7 @@ def _print_read(console: Any, result: Any) -> None:
                 if (v := row.get(k)) is not None
             )
             console.print(
-                f"    {name}{f' ({kind})' if kind else ''}: "
+                f"    {escape(str(name))}{f' ({escape(kind)})' if kind else ''}: "
                 f"{int(row['rows_in']):,} rows, {int(row['rejected']):,} rejected"
             )
     units = result.units

@@ -22,8 +22,10 @@ from .schema import (
     EXTRA_FEATURES,
     FEATURES,
     LEVELS,
+    SAME_DAY_CONFLICTS,
     SECTIONS,
     SHAPES,
+    THOUSANDS,
     WEEK_FORMATS,
     WEIGHTINGS,
     ZEROS,
@@ -305,6 +307,7 @@ def _report(ctx: _Ctx, key: str, raw: Any) -> ReportSpec:
         "date_format": _date_format,
         "received_date": _date,
         "died_values": _list_of(_str),
+        "thousands": _one_of(THOUSANDS),
         "columns": lambda c, k, v: v,  # checked below, with its own key path
     }
     d = _table(ctx, key, raw, spec, required=("name", "path", "country"))
@@ -355,8 +358,17 @@ def _matching(ctx: _Ctx, raw: Any) -> MatchingConfig:
 
 
 def _checks(ctx: _Ctx, raw: Any) -> ChecksConfig:
-    spec = {"deaths_over_cases": _one_of(DEATHS_OVER_CASES)}
-    return ChecksConfig(**_table(ctx, "checks", raw, spec))
+    spec = {
+        "deaths_over_cases": _one_of(DEATHS_OVER_CASES),
+        "same_day_conflict": _one_of(SAME_DAY_CONFLICTS),
+        "earliest_date": _date,
+        "latest_date": _date,
+        "max_rejected_share": _share,
+    }
+    d = _table(ctx, "checks", raw, spec)
+    if d.get("earliest_date") and d.get("latest_date") and d["earliest_date"] > d["latest_date"]:
+        raise ctx.error("checks.latest_date", "needs to be on or after checks.earliest_date.")
+    return ChecksConfig(**d)
 
 
 def _graph(ctx: _Ctx, raw: Any) -> GraphConfig:

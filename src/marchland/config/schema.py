@@ -19,6 +19,8 @@ ZEROS = ("explicit", "cases-only")
 WEEK_FORMATS = ("date", "iso-week", "year-week")
 DATE_BASES = ("onset", "report")
 DEATHS_OVER_CASES = ("reject", "cap")
+SAME_DAY_CONFLICTS = ("reject", "last-row")
+THOUSANDS = (",", ".", " ", "'", "\u00a0")
 WEIGHTINGS = ("binary", "shared")
 LEVELS = (1, 2)
 
@@ -120,6 +122,8 @@ class ReportSpec:
     date_format: str | None = None
     received_date: _dt.date | None = None
     died_values: tuple[str, ...] = ("died",)
+    # The source's thousands separator in counts ("1,204"); None: counts are plain digits.
+    thousands: str | None = None
     columns: ReportColumns = field(default_factory=ReportColumns)
 
 
@@ -135,9 +139,21 @@ class MatchingConfig:
 
 @dataclass(frozen=True)
 class ChecksConfig:
-    """``[checks]``: what to do with rows whose deaths exceed cases ("reject" or "cap")."""
+    """``[checks]``: how doubtful rows are treated.
+
+    ``deaths_over_cases``: "reject" the row or "cap" deaths at cases. ``same_day_conflict``:
+    two rows for one unit-week received the same day with different counts are both rejected
+    ("reject") or the later row wins ("last-row"). ``earliest_date``/``latest_date``: dates
+    outside are rejected as implausible (default: 10 years before the run's date, and a year
+    after it). ``max_rejected_share``: ``check`` fails for a source rejecting more than this
+    share of its rows (a source with every row rejected always fails).
+    """
 
     deaths_over_cases: str = "reject"
+    same_day_conflict: str = "reject"
+    earliest_date: _dt.date | None = None
+    latest_date: _dt.date | None = None
+    max_rejected_share: float = 0.5
 
 
 @dataclass(frozen=True)

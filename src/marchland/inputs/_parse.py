@@ -9,7 +9,10 @@ matching, duplicates) follow in ``reports``.
 
 from __future__ import annotations
 
+import csv
 import fnmatch
+import io
+import re
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -22,41 +25,135 @@ from .weeks import convert_weeks, from_year_week, parse_year_week, week_start
 if TYPE_CHECKING:  # pragma: no cover
     from ..config.schema import ReportSpec
 
-# Day-first forms tried after ISO 8601 when a source names no date_format (US month-first
-# dates need date_format = "%m/%d/%Y").
-_DAY_FIRST = ("%d/%m/%Y", "%d.%m.%Y", "%d-%m-%Y", "%d/%m/%y")
+# Date forms a source may declare that an ISO date is not; a date in one of them but not in
+# the declared format is ambiguous (day-first or month-first) and is rejected, never guessed.
+_OTHER_FORMS = ("%d/%m/%Y", "%m/%d/%Y", "%d.%m.%Y", "%d-%m-%Y", "%d/%m/%y", "%m/%d/%y")
+# ISO 8601 calendar date, optionally with a time (workbook date cells come as "... 00:00:00").
+_ISO_DATE = r"^(\d{4}-\d{2}-\d{2})(?:[ T]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?)?$"
+# A count: digits only (at most 9: more cases than that is no district's weekly report).
+_COUNT = r"^\d{1,9}$"
+_BOMS = (
+    (b"\xff\xfe\x00\x00", "utf-32"),
+    (b"\x00\x00\xfe\xff", "utf-32"),
+    (b"\xef\xbb\xbf", "utf-8-sig"),
+    (b"\xff\xfe", "utf-16"),
+    (b"\xfe\xff", "utf-16"),
+)
+#: Name of the ``DataFrame.attrs`` entry holding rows with the wrong number of fields.
+BAD_FIELDS = "bad_fields"
+
+
+def _decode(path: Path, raw: bytes) -> str:
+    """Decode UTF-8 (with or without BOM) or BOM-marked UTF-16/32; refuse anything else."""
+    for bom, enc in _BOMS:
+        if raw.startswith(bom):
+            try:
+                return raw.decode(enc)
+            except UnicodeDecodeError as exc:
+                raise InputError(
+                    f"the file starts with a {enc.upper()} byte-order mark but is not valid "
+                    f"{enc.upper()} (byte {exc.start})",
+                    file=path,
+                ) from None
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        bad = raw[exc.start : exc.start + 1].hex()
+        hint = (
+            "UTF-16/32 without a byte-order mark"
+            if raw[:200].count(0) > 10
+            else "a single-byte code page such as Windows-1252 or Latin-1"
+        )
+        raise InputError(
+            f"the file is not UTF-8 (byte 0x{bad} at offset {exc.start}); it looks like {hint}. "
+            "Save it as UTF-8 (or UTF-16/32 with a byte-order mark)",
+            file=path,
+        ) from None
+
+
+def _csv_table(path: Path) -> pd.DataFrame:
+    """Read a CSV with the standard library so that a malformed row stays one row.
+
+    pandas' tokenizer stops at the first row with too many fields (and shifts every column
+    when the first data row has one field more than the header); here such a row is kept as
+    all-blank, with its field count in ``attrs[BAD_FIELDS]`` for the parser to reject it.
+    A trailing delimiter on every non-blank data row (and not on the header) is dropped.
+    """
+    text_ = _decode(path, path.read_bytes())
+    if "\x00" in text_:
+        raise InputError("the file holds NUL bytes; it is not a text table", file=path)
+    try:
+        records = list(csv.reader(io.StringIO(text_, newline="")))
+    except csv.Error as exc:
+        raise InputError(f"not a readable CSV table: {exc}", file=path) from None
+    if not records:
+        return pd.DataFrame()
+    header = [h.strip() for h in records[0]]
+    rows = records[1:]
+    n = len(header)
+    filled = [r for r in rows if any(c.strip() for c in r)]
+    if filled and all(len(r) == n + 1 and not r[-1].strip() for r in filled):
+        rows = [r[:n] if len(r) == n + 1 else r for r in rows]
+    seen: dict[str, int] = {}
+    names = []
+    for h in header:  # repeated headers get ".1", ".2" as pandas names them
+        k = seen.get(h, 0)
+        names.append(h if k == 0 else f"{h}.{k}")
+        seen[h] = k + 1
+    bad: dict[int, int] = {}
+    cells = []
+    for i, r in enumerate(rows):
+        if len(r) == n or not any(c.strip() for c in r):
+            cells.append((r + [""] * n)[:n])
+        else:
+            bad[i] = len(r)
+            cells.append([""] * n)
+    frame = (
+        pd.DataFrame(cells, columns=names, dtype=object)
+        if n
+        else pd.DataFrame(index=range(len(rows)))
+    )
+    frame.attrs[BAD_FIELDS] = {"rows": bad, "expected": n}
+    return frame
+
+
+def _cell(v: object) -> object:
+    # Excel stores every number as a float: a whole number cell reads as 3.0, shown as 3.
+    if isinstance(v, float) and v.is_integer() and abs(v) < 1e15:
+        return int(v)
+    return v
 
 
 def read_tables(path: Path, sheets: str = "*") -> list[tuple[str, pd.DataFrame]]:
     """Read a CSV (one table) or a workbook (one table per sheet matching ``sheets``).
 
     Returns ``[(sheet_name_or_"", frame)]``; cells are objects, blanks are NaN or "".
+    Empty sheets are left out.
     """
     suffix = path.suffix.lower()
-    try:
-        if suffix in (".xlsx", ".xlsm", ".xls"):
-            book = pd.read_excel(path, sheet_name=None, dtype=object)
-            out = [(str(k), v) for k, v in book.items() if fnmatch.fnmatchcase(str(k), sheets)]
-            if not out:
-                raise InputError(
-                    f"no sheet matches {sheets!r}; the workbook has {list(book)}", file=path
-                )
-            return out
+    if suffix not in (".xlsx", ".xlsm", ".xls"):
         try:
-            frame = pd.read_csv(
-                path, dtype=str, keep_default_na=False, skip_blank_lines=False, encoding="utf-8-sig"
-            )
-        except UnicodeDecodeError:
-            frame = pd.read_csv(
-                path, dtype=str, keep_default_na=False, skip_blank_lines=False, encoding="latin-1"
-            )
-        return [("", frame)]
-    except InputError:
-        raise
-    except pd.errors.EmptyDataError:
-        return [("", pd.DataFrame())]
-    except Exception as exc:  # pandas, openpyxl and csv raise many types for unreadable files
-        raise InputError(f"cannot read the report file: {exc}", file=path) from None
+            return [("", _csv_table(path))]
+        except OSError as exc:
+            raise InputError(f"cannot read the report file: {exc.strerror}", file=path) from None
+    try:
+        book = pd.read_excel(path, sheet_name=None, dtype=object)
+    except OSError as exc:
+        raise InputError(f"cannot read the report file: {exc.strerror}", file=path) from None
+    except Exception:  # openpyxl, zipfile and xlrd raise many types for a broken workbook
+        raise InputError(
+            "cannot read the workbook: empty, truncated or not really an Excel file", file=path
+        ) from None
+    out = [
+        (str(k), pd.DataFrame({c: pd.array([_cell(x) for x in v[c]], dtype=object) for c in v}))
+        for k, v in book.items()
+        if fnmatch.fnmatchcase(str(k), sheets) and v.shape[1]
+    ]
+    if not out:
+        raise InputError(
+            f"no non-empty sheet matches {sheets!r}; the workbook has {list(book)}", file=path
+        )
+    return out
 
 
 _NS_MIN, _NS_MAX = pd.Timestamp.min.ceil("D"), pd.Timestamp.max.floor("D")
@@ -68,32 +165,63 @@ def text(s: pd.Series) -> pd.Series:
     return out.mask(out == "")
 
 
-def dates(s: pd.Series, fmt: str | None = None) -> pd.Series:
-    """Parse dates: ``fmt`` if given, else ISO 8601 then common day-first forms; NaT if not."""
-    t = text(s)
-    if fmt:
-        out = pd.to_datetime(t, format=fmt, errors="coerce")
-    else:
-        out = pd.to_datetime(t, format="ISO8601", errors="coerce")
-        for f in _DAY_FIRST:
-            rest = out.isna() & t.notna()
-            if not rest.any():
-                break
-            out = out.where(~rest, pd.to_datetime(t.where(rest), format=f, errors="coerce"))
-    # pandas may parse a date outside the nanosecond range (year 0, 9999) at a coarser unit;
-    # such a date cannot be a report's, so it is unparseable rather than a crash.
+def _strict(t: pd.Series, fmt: str) -> pd.Series:
+    out = pd.to_datetime(t, format=fmt, errors="coerce")
+    # Outside pandas' nanosecond range (year 1, 9999): no report's date; NaT, not a crash.
     inside = out.notna() & (out >= _NS_MIN) & (out <= _NS_MAX)
-    return out.where(inside).dt.normalize().astype("datetime64[ns]")
+    return out.where(inside).astype("datetime64[ns]")
 
 
-def whole_numbers(s: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
-    """Parse counts. Returns (Int64 values, blank mask, unparseable mask)."""
+def parse_dates(s: pd.Series, fmt: str | None = None) -> tuple[pd.Series, np.ndarray]:
+    """Parse dates in the declared format (ISO 8601 always accepted besides it).
+
+    Returns (dates, ambiguous): NaT where a cell is not a date in those forms; ``ambiguous``
+    marks cells that would be a date in another common form (e.g. 10/05/2026 in an ISO
+    source), which are rejected rather than guessed.
+    """
+    t = text(s)
+    iso = t.str.extract(_ISO_DATE, expand=False)
+    out = _strict(iso, "%Y-%m-%d")
+    if fmt:
+        rest = out.isna() & t.notna()
+        if rest.any():
+            out = out.where(~rest, _strict(t.where(rest), fmt))
+    amb = np.zeros(len(t), dtype=bool)
+    rest = (out.isna() & t.notna()).to_numpy()
+    if rest.any():
+        for f in _OTHER_FORMS:
+            if f != fmt:
+                amb |= rest & _strict(t.where(rest), f).notna().to_numpy()
+    return out.dt.normalize(), amb
+
+
+def dates(s: pd.Series, fmt: str | None = None) -> pd.Series:
+    """Parse dates (see :func:`parse_dates`); NaT where not a date in the declared forms."""
+    return parse_dates(s, fmt)[0]
+
+
+def whole_numbers(
+    s: pd.Series, thousands: str | None = None
+) -> tuple[pd.Series, np.ndarray, np.ndarray]:
+    """Parse counts: plain digits (grouped by ``thousands`` if the source declares one).
+
+    Returns (Int64 values, blank mask, unparseable mask). ``1e3``, ``12.5``, ``3 cases`` and
+    numbers of more than nine digits are unparseable; ``-4`` parses (and is rejected later as
+    negative).
+    """
     t = text(s)
     blank = t.isna().to_numpy()
-    num = pd.to_numeric(t.str.replace(r"[\s\u00a0]", "", regex=True), errors="coerce")
-    num = num.astype("float64")
-    bad = ~blank & ~(np.isfinite(num) & (num == np.round(num))).to_numpy()
-    vals = num.where(~bad & ~blank).astype("Int64")
+    if thousands:
+        grouped = t.str.fullmatch(r"-?\d{1,3}(?:" + re.escape(thousands) + r"\d{3})+")
+        t = t.where(~grouped.fillna(False), t.str.replace(thousands, "", regex=False))
+    neg = t.str.startswith("-").fillna(False)
+    digits = t.str.removeprefix("-")
+    good = digits.str.fullmatch(_COUNT).fillna(False).to_numpy()
+    bad = ~blank & ~good
+    vals = pd.Series(pd.NA, index=t.index, dtype="Int64")
+    if good.any():
+        v = digits[good].astype("int64")
+        vals[good] = v.where(~neg[good], -v).to_numpy()
     return vals, blank, bad
 
 
@@ -137,10 +265,21 @@ def _get(frame: pd.DataFrame, col: str | None) -> pd.Series:
     return frame[col]
 
 
-def _dates_lenient(s: pd.Series, fmt: str | None) -> pd.Series:
-    # A configured format first; ISO 8601 dates are unambiguous, so accept them too.
-    out = dates(s, fmt)
-    return out.where(out.notna(), dates(s)) if fmt else out
+def _dates_checked(
+    df: pd.DataFrame, raw: pd.Series, fmt: str | None, col: str, window: tuple
+) -> pd.Series:
+    """Parse a date column, flag missing, ambiguous, unparseable and implausible dates.
+
+    Dates outside ``window`` come back NaT, so no week arithmetic runs near pandas' limits.
+    """
+    when, amb = parse_dates(raw, fmt)
+    flag(df, raw.isna(), "missing-value", col)
+    flag(df, amb, "ambiguous-date", col, raw)
+    flag(df, when.isna(), "unparseable", col, raw)
+    lo, hi = window
+    out = when.notna() & ((when < lo) | (when > hi))
+    flag(df, out, "implausible-date", col, raw)
+    return when.where(~out)
 
 
 def parse_table(
@@ -151,8 +290,16 @@ def parse_table(
     sheet: str,
     calendar: str,
     today: pd.Timestamp,
+    window: tuple[pd.Timestamp, pd.Timestamp] | None = None,
 ) -> pd.DataFrame:
-    """Parse one table of a report source; rows keep their first problem as ``reason``."""
+    """Parse one table of a report source; rows keep their first problem as ``reason``.
+
+    ``row`` is the row as a spreadsheet numbers it (the header is row 1). ``window`` is the
+    plausible range of dates (default: 10 years before ``today`` to a year after).
+    """
+    if window is None:
+        window = (today - pd.DateOffset(years=10), today + pd.DateOffset(years=1))
+    bad_fields = frame.attrs.get(BAD_FIELDS, {"rows": {}, "expected": frame.shape[1]})
     c = spec.columns
     fields = (
         "place",
@@ -171,10 +318,18 @@ def parse_table(
     # Every cell as stripped text once; blanks become <NA>.
     frame = frame.apply(text) if frame.shape[1] else frame
     n = len(frame)
-    df = pd.DataFrame({"file": file.name, "sheet": sheet, "row": np.arange(1, n + 1)})
+    df = pd.DataFrame({"file": file.name, "sheet": sheet, "row": np.arange(2, n + 2)})
     df["reason"] = pd.Series([None] * n, dtype=object)
     df["column"] = ""
     df["value"] = ""
+    if bad_fields["rows"]:
+        pos = np.fromiter(bad_fields["rows"], dtype=int)
+        got = pd.Series(bad_fields["rows"]).astype(str)
+        mask = np.zeros(n, dtype=bool)
+        mask[pos] = True
+        shown = pd.Series("", index=df.index, dtype=object)
+        shown.iloc[pos] = (got + f" fields, header has {bad_fields['expected']}").to_numpy()
+        flag(df, mask, "wrong-field-count", "", shown)
     df["place"] = _get(frame, c.place)
     df["code"] = _get(frame, c.code)
     empty = frame.isna().all(axis=1).to_numpy() if frame.shape[1] else np.ones(n, dtype=bool)
@@ -184,9 +339,7 @@ def parse_table(
     if linelist:
         dcol = c.onset if spec.date_basis == "onset" else c.report_date
         raw = _get(frame, dcol)
-        when = _dates_lenient(raw, spec.date_format)
-        flag(df, raw.isna(), "missing-value", dcol)
-        flag(df, when.isna(), "unparseable", dcol, raw)
+        when = _dates_checked(df, raw, spec.date_format, dcol, window)
         src = week_start(when, spec.calendar)
         wcol = dcol
     else:
@@ -194,7 +347,7 @@ def parse_table(
         raw = _get(frame, c.week)
         flag(df, raw.isna(), "missing-value", c.week)
         if spec.week_format == "date":
-            when = _dates_lenient(raw, spec.date_format)
+            when = _dates_checked(df, raw, spec.date_format, c.week, window)
             src = week_start(when, spec.calendar)
         elif spec.week_format == "iso-week":
             src = parse_year_week(raw, spec.calendar)
@@ -210,14 +363,19 @@ def parse_table(
                 yr,
             )
         flag(df, src.isna(), "unparseable", c.week, raw)
+        if spec.week_format != "date":
+            out = src.notna() & ((src < window[0]) | (src > window[1]))
+            flag(df, out, "implausible-date", c.week, raw)
+            src = src.where(~out)
         when = src
-        cases, blank, bad = whole_numbers(_get(frame, c.cases))
+        thousands = getattr(spec, "thousands", None)
+        cases, blank, bad = whole_numbers(_get(frame, c.cases), thousands)
         flag(df, blank, "missing-value", c.cases)
         flag(df, bad, "unparseable", c.cases, _get(frame, c.cases))
         df["cases"] = cases.to_numpy()
         df["_raw_cases"] = _get(frame, c.cases).to_numpy()
         if c.deaths:
-            deaths, _, bad = whole_numbers(_get(frame, c.deaths))
+            deaths, _, bad = whole_numbers(_get(frame, c.deaths), thousands)
             flag(df, bad, "unparseable", c.deaths, _get(frame, c.deaths))
             df["deaths"] = deaths.to_numpy()
             df["_raw_deaths"] = _get(frame, c.deaths).to_numpy()
@@ -226,9 +384,7 @@ def parse_table(
     rcol = c.received or (c.report_date if linelist else None)
     if rcol:
         rraw = _get(frame, rcol)
-        received = _dates_lenient(rraw, spec.date_format)
-        flag(df, rraw.isna(), "missing-value", rcol)
-        flag(df, received.isna(), "unparseable", rcol, rraw)
+        received = _dates_checked(df, rraw, spec.date_format, rcol, window)
     else:
         received = pd.Series(pd.Timestamp(spec.received_date), index=df.index)
     df["received"] = received.to_numpy()

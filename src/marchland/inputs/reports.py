@@ -65,6 +65,10 @@ REASONS = (
     "deaths-over-cases",
     "future-week",
     "duplicate",
+    "wrong-field-count",
+    "ambiguous-date",
+    "implausible-date",
+    "conflict",
 )
 
 
@@ -280,6 +284,10 @@ def _read_source(
     checks: ChecksConfig,
     today: pd.Timestamp,
 ) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame, dict]:
+    window = (
+        pd.Timestamp(checks.earliest_date or today - pd.DateOffset(years=10)),
+        pd.Timestamp(checks.latest_date or today + pd.DateOffset(years=1)),
+    )
     cands = units[(units["country"] == spec.country) & (units["level"] == spec.level)]
     if cands.empty:
         raise InputError(
@@ -294,11 +302,28 @@ def _read_source(
         fuzzy_score=matching.fuzzy_score,
         fuzzy_margin=matching.fuzzy_margin,
     )
-    parts = [
-        _parse_table(frame, spec, key, f, sheet, calendar, today)
-        for f in spec.files
-        for sheet, frame in read_tables(f, spec.sheets)
-    ]
+    parts = []
+    for f in spec.files:
+        tables = read_tables(f, spec.sheets)
+        skipped: list[str] = []
+        first_error = None
+        for sheet, frame in tables:
+            try:
+                parts.append(_parse_table(frame, spec, key, f, sheet, calendar, today, window))
+            except InputError as exc:
+                # A stray sheet (notes, a summary) in a workbook does not block the others.
+                if not sheet:
+                    raise
+                skipped.append(sheet)
+                first_error = first_error or exc
+        if first_error is not None and len(skipped) == len(tables):
+            raise first_error
+        if skipped:
+            warnings.warn(
+                f"{spec.name}: {f.name}: skipped sheets without the configured columns: {skipped}",
+                DataWarning,
+                stacklevel=4,
+            )
     df = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame()
     matches = _match_places(df, matcher, spec)
     m = matches.set_index(["code", "place"])
@@ -341,6 +366,17 @@ def _read_source(
     )
     dup = ok & df[dup_key].where(ok).duplicated(keep="first") if len(df) else ok
     _flag(df, dup.to_numpy(), "duplicate", "")
+    if spec.shape != "linelist" and checks.same_day_conflict == "reject" and len(df):
+        # One unit-week received twice on one day with different counts: file order would
+        # settle it silently, so neither row is used.
+        ok = df["reason"].isna()
+        key3 = ["unit_id", "week", "received"]
+        live = df.loc[ok, [*key3, "cases", "deaths"]].astype({"cases": object, "deaths": object})
+        live = live.fillna({"deaths": -1})
+        n = live.groupby(key3, dropna=False)[["cases", "deaths"]].transform("nunique")
+        clash = pd.Series(False, index=df.index)
+        clash[live.index] = (n.max(axis=1) > 1).to_numpy()
+        _flag(df, clash.to_numpy(), "conflict", spec.columns.cases, df["_raw_cases"])
 
     ok = df["reason"].isna()
     rejects = df.loc[~ok, ["file", "sheet", "row", "column", "value", "reason", "candidates"]]
@@ -518,7 +554,7 @@ def read_reports(
     >>> r.counts[["unit_id", "cases"]].values.tolist()
     [['TVR-01-01', 3]]
     >>> r.rejects[["row", "reason"]].values.tolist()
-    [[2, 'negative'], [3, 'blank'], [4, 'unknown-place']]
+    [[3, 'negative'], [4, 'blank'], [5, 'unknown-place']]
     >>> r.accounting[["rows_in", "counted", "rejected"]].values.tolist()
     [[4, 1, 3]]
     """

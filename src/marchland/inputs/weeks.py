@@ -99,7 +99,10 @@ def from_year_week(years: pd.Series, weeks: pd.Series, calendar: str = "iso") ->
     """
     y = pd.to_numeric(pd.Series(years), errors="coerce")
     w = pd.to_numeric(pd.Series(weeks), errors="coerce")
-    ok = y.notna() & w.notna() & (y == y.round()) & (w == w.round()) & y.between(1000, 9998)
+    # Years and weeks far outside any report (1e308, week 10**12) would overflow the date
+    # arithmetic: they give NaT, like a week that does not exist.
+    ok = y.notna() & w.notna() & (y == y.round()) & (w == w.round())
+    ok &= y.between(1900, 2200) & w.between(1, 53)
     yi = y.where(ok, 2000).astype("int64").to_numpy()
     wi = w.where(ok, 1).astype("int64").to_numpy()
     start = _week1_start(yi, calendar) + pd.to_timedelta((wi - 1) * 7, unit="D")

@@ -100,7 +100,50 @@ def check_destination(out_dir: str | os.PathLike[str], month: str, *, overwrite:
         )
     if dest.exists() and not dest.is_dir():
         raise InputError("exists and is not a folder", file=dest)
+    _check_writable(Path(out_dir), dest)
     return dest
+
+
+#: Space a bundle needs at least when there is no previous one to measure (a demo month's
+#: bundle is about 15 MB).
+_MIN_FREE = 20 * 2**20
+
+
+def _check_writable(out: Path, dest: Path) -> None:
+    """Refuse, before any analysis, an output folder that cannot take a bundle."""
+    try:
+        limit = os.pathconf(out.anchor or "/", "PC_PATH_MAX")
+    except (OSError, ValueError, AttributeError):  # no pathconf (Windows) or no such limit
+        limit = 4096
+    # The deepest file of a bundle is about 80 characters below the month's folder.
+    if len(os.fsencode(os.path.abspath(dest))) + 80 > limit:
+        raise InputError(f"the output path is too long for this file system ({limit})", file=out)
+    base = out
+    while not base.exists():
+        if base.parent == base:
+            break
+        base = base.parent
+    if not base.is_dir():
+        raise InputError("is a file, not a folder for the output", file=base)
+    if not os.access(base, os.W_OK | os.X_OK):
+        raise InputError("the output folder is not writable (permission denied)", file=base)
+    try:
+        with tempfile.NamedTemporaryFile(dir=base, prefix=".marchland-probe-"):
+            pass
+    except OSError as exc:
+        raise InputError(
+            f"cannot write into the output folder: {exc.strerror or exc}", file=base
+        ) from None
+    need = _MIN_FREE
+    if dest.is_dir():
+        need = max(need, sum(p.stat().st_size for p in dest.rglob("*") if p.is_file()))
+    free = shutil.disk_usage(base).free
+    if free < need:
+        raise InputError(
+            f"not enough free space for the bundle: {free / 2**20:.0f} MB free, about "
+            f"{need / 2**20:.0f} MB needed",
+            file=base,
+        )
 
 
 def write_month(
@@ -228,15 +271,41 @@ def _flat(df: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
+# Text a spreadsheet would run as a formula (OWASP "CSV injection"): such cells get a leading
+# single quote in CSV files only; the GeoPackage and the report keep the true text.
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def neutralise(values: pd.Series | pd.Index) -> pd.Series | pd.Index:
+    """Prefix a single quote to text cells that a spreadsheet would read as a formula.
+
+    Examples
+    --------
+    >>> neutralise(pd.Series(["=1+1", "Ast", 3, "-2", "@x"])).tolist()
+    ["'=1+1", 'Ast', 3, "'-2", "'@x"]
+    """
+
+    def fix(v: object) -> object:
+        return "'" + v if isinstance(v, str) and v.startswith(_FORMULA_START) else v
+
+    if isinstance(values, pd.MultiIndex):
+        return values.set_levels([neutralise(lv) for lv in values.levels])
+    if values.dtype == object or isinstance(values.dtype, pd.StringDtype):
+        return values.map(fix)
+    return values
+
+
 def _csv(df: pd.DataFrame, path: Path, *, index: bool = True) -> None:
     df = _flat(df)
+    df = df.apply(neutralise) if len(df.columns) else df
+    df.index = neutralise(df.index)
     # Fixed float format and line endings: same inputs and seed give the same bytes.
     df.to_csv(path, index=index, float_format="%.10g", lineterminator="\n", date_format="%Y-%m-%d")
 
 
 def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
     """Name -> table for tables/*.csv (None: the step did not run)."""
-    units = result.units
+    units = _portable(result.units, result)
     t: dict[str, Any] = {
         "units": _flat(units.drop(columns="geometry")).sort_index(),
         "weekly": result.weekly,
@@ -325,8 +394,18 @@ def _geo(units: Any, table: pd.DataFrame | None) -> Any:
     return gpd.GeoDataFrame(joined, geometry="geometry", crs=units.crs)
 
 
+def _portable(units: Any, result: MonthResult) -> Any:
+    """Units with boundary file paths relative to the config's folder (no machine paths)."""
+    if "source" not in units.columns or getattr(result, "config", None) is None:
+        return units
+    base = result.config.base_dir
+    return units.assign(
+        source=units["source"].map(lambda p: _rel(Path(p), base) if isinstance(p, str) else p)
+    )
+
+
 def _write_layers(result: MonthResult, path: Path) -> None:
-    units = result.units
+    units = _portable(result.units, result)
     layers: dict[str, Any] = {
         "units": units.assign(
             **{c: _flat(units[[c]])[c] for c in units.columns if c != "geometry"}

@@ -129,6 +129,18 @@ def open_region(config: Config | str | os.PathLike[str]) -> Region:
     units = units_from_config(cfg)
     units = units.assign(population=_population(cfg, units))
     rep = read_reports(cfg, units)
+    acc = rep.accounting
+    dropped = acc.index[(acc["rows_in"] > 0) & (acc["counted"] == 0)]
+    if len(dropped):
+        # A country must never drop out of the analysis silently (e.g. shifted columns).
+        name = dropped[0]
+        why = rep.rejects.loc[rep.rejects["source"] == name, "reason"].value_counts()
+        spec = next(s for s in cfg.reports if s.name == name)
+        raise InputError(
+            f"every row of report source {name!r} was rejected (most common: "
+            f"{why.index[0]} {int(why.iloc[0])}); run 'marchland check' for the rows",
+            file=spec.path,
+        )
     analysis = analysis_units(units, rep.counts)
     counts = counts_to_analysis(rep.counts, units, analysis)
     require_population(analysis["population"], counts)
@@ -353,9 +365,12 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
             a = rep.accounting.loc[spec.name]
             weeks = rep.counts["week"]
             reasons = rep.rejects["reason"].value_counts()
+            status, message = _rejected_status(a, reasons, cfg.checks.max_rejected_share)
             rows[spec.name] = _row(
                 "reports",
                 spec.path,
+                status,
+                message,
                 country=spec.country,
                 level=spec.level,
                 shape=spec.shape,
@@ -412,6 +427,18 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
         rejects=rejects,
         notes=tuple(notes),
         ok=ok,
+    )
+
+
+def _rejected_status(acct: pd.Series, reasons: pd.Series, max_share: float) -> tuple[str, str]:
+    """Give a source's check status: one rejecting every row (or > ``max_share``) fails."""
+    n, rejected = int(acct["rows_in"]), int(acct["rejected"])
+    if n == 0 or rejected <= max_share * n and int(acct["counted"]) > 0:
+        return "ok", ""
+    top = ", ".join(f"{k} {int(v)}" for k, v in reasons.head(3).items())
+    what = "every row" if rejected == n else f"{rejected} of {n} rows ({rejected / n:.0%})"
+    return "error", (
+        f"{what} rejected (more than checks.max_rejected_share = {max_share:g}); most common: {top}"
     )
 
 
