@@ -124,15 +124,22 @@ def test_windowed_input_gives_window_field_columns():
 
 
 def test_case_fatality_flags_and_errors():
-    deaths = _series(pd.array([0, 3, 1, pd.NA], dtype="Int64"))
+    deaths = _series(pd.array([0, 6, 1, pd.NA], dtype="Int64"))
     cases = _series([0, 100, 5, 20])
     got = case_fatality(deaths, cases)
     assert list(got.columns) == [
         "deaths", "cases", "cfr", "lower", "upper", "too_few", "above_threshold",
     ]  # fmt: skip
     assert np.isnan(got.loc["TVR-01-01", "cfr"]) and bool(got.loc["TVR-01-01", "too_few"])
-    assert got.loc["TVR-01-02", "cfr"] == pytest.approx(0.03)
-    assert bool(got.loc["TVR-01-02", "above_threshold"])
+    assert got.loc["TVR-01-02", "cfr"] == pytest.approx(0.06)
+    assert bool(got.loc["TVR-01-02", "above_threshold"])  # exact lower limit 0.022 > 0.01
+    # 3 of 100: point estimate above 1%, but the interval reaches below it -> not flagged
+    three = case_fatality(_series([0, 3, 0, 0]), _series([1, 100, 1, 1]))
+    assert not bool(three.loc["TVR-01-02", "above_threshold"])
+    wil = case_fatality(deaths, cases, method="wilson")
+    assert wil.loc["TVR-01-02", "lower"] > got.loc["TVR-01-02", "lower"]
+    with pytest.raises(ValueError, match="'method' needs to be one of"):
+        case_fatality(deaths, cases, method="jeffreys")
     assert not bool(got.loc["TVR-01-02", "too_few"])
     assert bool(got.loc["OSK-02-01", "too_few"])  # flagged, not hidden
     assert got.loc["OSK-02-01", "cfr"] == pytest.approx(0.2)
