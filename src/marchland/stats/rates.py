@@ -410,7 +410,9 @@ def smooth_rates(
     Each raw rate is pulled toward a prior mean by an amount that grows as the unit's
     population shrinks, so small units with a few cases stop dominating the map. The global
     prior is the whole region's rate; the spatial prior is the rate of the unit and its
-    neighbours (binary contiguity, the unit itself included).
+    neighbours (binary contiguity, the unit itself included). An island (no neighbour with a
+    usable population) has no neighbourhood to borrow from: it is shrunk by the global
+    estimator instead, and listed in the result's ``attrs["islands_global"]``.
 
     Parameters
     ----------
@@ -450,7 +452,10 @@ def smooth_rates(
         index = bg.ids
         align_units(cases, bg.ids, "cases", "the graph")
         e, b, valid = _rates_inputs(cases.reindex(bg.ids), population)
-        out = spatial_eb(e, b, valid, bg)
+        out, island = spatial_eb(e, b, valid, bg)
+        result = pd.Series(out * per, index=index, name="rate_smoothed")
+        result.attrs["islands_global"] = list(index[island])
+        return result
     return pd.Series(out * per, index=index, name="rate_smoothed")
 
 
