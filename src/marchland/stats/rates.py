@@ -14,6 +14,12 @@ with the same window columns.
 
 Small numbers are unstable: a district of 2,000 people with 3 cases has an attack rate of
 150 per 100,000 and an interval from 31 to 438. Read the limits, not only the rate.
+
+The attack-rate limits cover Poisson noise only. Weekly outbreak counts are over-dispersed
+(negative-binomial-like); with such counts the 95% limits cover 62-88% in simulation. We do not
+widen them with an estimated dispersion: a unit's month holds four or five weekly counts, too
+few to estimate it per unit, and a pooled quasi-Poisson estimate would read the epidemic's own
+growth within the month as noise. Every place that shows the limits says so.
 """
 
 from __future__ import annotations
@@ -191,7 +197,8 @@ def attack_rates(
         Indexed by unit_id with columns ``cases population rate lower upper``. Rates are NaN
         where cases were not reported or the population is 0 or missing. A 0 count has lower
         limit 0 and a finite upper limit. For windowed input the columns are
-        ``(window, field)``.
+        ``(window, field)``. The limits cover Poisson noise only (see the module notes):
+        over-dispersed weekly counts make the true uncertainty wider.
 
     References
     ----------
