@@ -84,13 +84,15 @@ def _values(bg: BorderGraph, seed: int = 0) -> pd.Series:
 @pytest.mark.parametrize("kind", KINDS)
 def test_columns_index_and_labels(kind):
     bg = _grid(8, 8)
-    res = local_moran(_values(bg), _as(bg, kind), permutations=199, seed=1)
+    # 16 high units of 64: a two-sided conditional p cannot fall far below (15/63)^3, so
+    # q stays near 0.07 on this small grid; test the labelling rule at fdr = 0.1.
+    res = local_moran(_values(bg), _as(bg, kind), permutations=199, seed=1, fdr=0.1)
     assert tuple(res.columns) == LOCAL_COLUMNS
     assert res.index.name == "unit_id" and list(res.index) == list(bg.ids)
     assert set(res["quadrant"]) <= set(QUADRANTS)
     labelled = res["label"] != NOT_SIGNIFICANT
     assert labelled.any()
-    assert (res.loc[labelled, "q"] < 0.05).all() and (res.loc[~labelled, "q"] >= 0.05).all()
+    assert (res.loc[labelled, "q"] < 0.1).all() and (res.loc[~labelled, "q"] >= 0.1).all()
     assert (res.loc[labelled, "label"] == res.loc[labelled, "quadrant"]).all()
     assert res["reason"].isna().all()
     assert (res["q"] >= res["p"]).all()

@@ -262,9 +262,7 @@ def binomial_limits(
     n = np.asarray(trials, dtype=float)
     with np.errstate(invalid="ignore", divide="ignore"):
         lower = np.where(x > 0, stats.beta.ppf(alpha / 2, np.maximum(x, 1), n - x + 1), 0.0)
-        upper = np.where(
-            x < n, stats.beta.ppf(1 - alpha / 2, x + 1, np.maximum(n - x, 1)), 1.0
-        )
+        upper = np.where(x < n, stats.beta.ppf(1 - alpha / 2, x + 1, np.maximum(n - x, 1)), 1.0)
     bad = ~(np.isfinite(x) & np.isfinite(n))
     return np.where(bad, np.nan, lower), np.where(bad, np.nan, upper)
 
