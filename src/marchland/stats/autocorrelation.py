@@ -197,7 +197,8 @@ def _prepare(values: pd.Series, graph: object, weighting: str, *, name: str = "v
 
 # --- local Moran's I -----------------------------------------------------------------------
 def _local_moran(prep: _Prepared, permutations: int, seed, fdr: float,
-                 max_permutations: int | None = None, method: str = "auto") -> pd.DataFrame:  # fmt: skip
+                 max_permutations: int | None = None,
+                 method: str = "auto") -> pd.DataFrame:  # fmt: skip
     n_all = len(prep.ids)
     y = prep.y
     n = len(y)
@@ -498,7 +499,8 @@ def getis_ord(
         index=pd.Index(prep.ids, name="unit_id"),
     )
     frame.attrs.update(permutations=permutations, max_permutations=max_draws,
-                       draws_used=int(draws.max(initial=0)), fdr=fdr, pvalue="two-sided")  # fmt: skip
+                       draws_used=int(draws.max(initial=0)), fdr=fdr,
+                       pvalue="two-sided")  # fmt: skip
     return frame
 
 
