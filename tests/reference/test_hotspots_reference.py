@@ -121,6 +121,28 @@ def _esda(cls, *args, **kwargs):
         np.random.set_state(state)
 
 
+def _two_sided_from(sims: np.ndarray, observed: np.ndarray, centre: np.ndarray) -> np.ndarray:
+    """The two-sided pseudo p-value by its definition, from esda's own permuted statistics.
+
+    ``sims`` is (units, permutations); ``centre`` the exact conditional-permutation mean,
+    derived in each test. A permuted value as far from it as the observed one counts (ties
+    within 1e-9 relative, as rounding between esda's loop and our vectorised sums allows).
+    """
+    far = np.abs(observed - centre)
+    tol = 1e-9 * (np.abs(observed) + sims.std(axis=1))
+    extreme = np.count_nonzero(np.abs(sims - centre[:, None]) >= (far - tol)[:, None], axis=1)
+    return (extreme + 1.0) / (sims.shape[1] + 1.0)
+
+
+def _moran_centre(z: np.ndarray) -> np.ndarray:
+    """Exact permutation mean of esda's local I with row-standardised weights.
+
+    ``I_i = (n - 1) z_i lag_i / sum z^2`` and the permuted lag averages draws from the other
+    units, whose mean is ``-z_i / (n - 1)`` (the z sum to 0): ``E[I_i] = -z_i^2 / sum z^2``.
+    """
+    return -(z * z) / (z * z).sum()
+
+
 # --- local Moran's I ---------------------------------------------------------------------
 @pytest.mark.parametrize("kind", KINDS)
 def test_local_moran_statistic_matches_esda_on_columbus(columbus, kind):
@@ -158,15 +180,26 @@ def test_both_permutation_paths_equal_esda(columbus, method, esda_draws):
 @pytest.mark.parametrize("kind", KINDS)
 def test_local_moran_pvalues_equal_esda_given_esda_draws(columbus, kind, esda_draws):
     y, g = columbus
-    ours = local_moran(y, _kind(g, kind), permutations=999, seed=SEED)["p"].to_numpy()
+    # refinement off: every unit gets exactly esda's 999 draws
+    res = local_moran(y, _kind(g, kind), permutations=999, max_permutations=999, seed=SEED)
+    assert (res["draws"] == 999).all() and res.attrs["draws_used"] == 999
     lm, (at_least, at_most, _, _) = _counts_on_esda_draws(y, g)
+    # one-sided tail counts against esda's p_sim (its folded one-sided value)
     ties = at_least + at_most - 999  # permutations that redrew an equal neighbourhood
     assert (ties >= 0).all() and (ties > 0).any()  # columbus (n=49) has some
     no_tie = ties == 0
-    np.testing.assert_array_equal(ours[no_tie], lm.p_sim[no_tie])
+    folded = _permute.folded_pvalues(at_least, at_most, 999)
+    np.testing.assert_array_equal(folded[no_tie], lm.p_sim[no_tie])
     # with ties ours counts them in both tails: never smaller, larger by at most the ties
-    assert np.all(ours[~no_tie] >= lm.p_sim[~no_tie])
-    assert np.all(ours[~no_tie] - lm.p_sim[~no_tie] <= ties[~no_tie] / 1000 + 1e-12)
+    assert np.all(folded[~no_tie] >= lm.p_sim[~no_tie])
+    assert np.all(folded[~no_tie] - lm.p_sim[~no_tie] <= ties[~no_tie] / 1000 + 1e-12)
+    np.testing.assert_array_equal(at_least, (lm.rlisas >= lm.Is[:, None]).sum(axis=1))
+    # the two-sided p by its definition, from esda's own permuted local I (same draws)
+    np.testing.assert_allclose(_moran_centre(lm.z), lm.EI_sim, atol=5 * lm.seI_sim.max() / 30)
+    expected = _two_sided_from(lm.rlisas, lm.Is, _moran_centre(lm.z))
+    np.testing.assert_array_equal(res["p"].to_numpy(), expected)
+    # two-sided is never below the one-sided tail it contains, at most about twice it
+    assert np.all(res["p"].to_numpy() >= lm.p_sim - 1e-12)
 
 
 @pytest.mark.parametrize("kind", KINDS)
@@ -182,8 +215,10 @@ def test_local_moran_pvalues_agree_with_esda_statistically(columbus, kind):
     # our own random stream (numpy Generator) against esda's: equal within Monte Carlo error
     y, g = columbus
     perms = 9999
-    ours = local_moran(y, _kind(g, kind), permutations=perms, seed=2024)["p"].to_numpy()
-    theirs = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=perms, seed=SEED).p_sim
+    ours = local_moran(y, _kind(g, kind), permutations=perms, max_permutations=perms,
+                       seed=2024)["p"].to_numpy()  # fmt: skip
+    lm = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=perms, seed=SEED)
+    theirs = _two_sided_from(lm.rlisas, lm.Is, _moran_centre(lm.z))
     sd = np.sqrt(2 * theirs * (1 - theirs) / perms)
     assert np.all(np.abs(ours - theirs) <= 4.5 * sd + 2 / (perms + 1))
 
@@ -203,14 +238,17 @@ def test_local_sum_decomposes_global_moran_as_in_anselin_1995(columbus):
 @pytest.mark.parametrize("data", list(RATE_DATA))
 def test_hotspots_match_esda_moran_local_rate(data, kind, esda_draws):
     cases, pop, g = RATE_DATA[data]()
-    ours = hotspots(cases, pop, _kind(g, kind), permutations=999, seed=SEED)
+    ours = hotspots(cases, pop, _kind(g, kind), permutations=999, max_permutations=999,
+                    seed=SEED)  # fmt: skip
     lm = _esda(esda.Moran_Local_Rate, cases.to_numpy(), pop.to_numpy(), g, permutations=999,
                seed=SEED)  # fmt: skip
     np.testing.assert_allclose(ours["I"].to_numpy(), lm.Is, rtol=1e-10, atol=1e-13)
-    # Same draws, same counts of permuted I at least as extreme; a permuted I that ties the
-    # observed one to ~1e-15 can fall either side of it by rounding (our vectorised sum against
-    # esda's numba loop), moving p by one draw, 1/(permutations + 1), in at most one unit here.
-    diff = np.abs(ours["p"].to_numpy() - lm.p_sim)
+    # Same draws: our two-sided p equals its definition applied to esda's permuted I. A
+    # permuted I that ties the observed one to ~1e-15 can fall either side of it by rounding
+    # (our vectorised sum against esda's numba loop), moving p by one draw,
+    # 1/(permutations + 1), in at most one unit here.
+    expected = _two_sided_from(lm.rlisas, lm.Is, _moran_centre(lm.z))
+    diff = np.abs(ours["p"].to_numpy() - expected)
     assert np.all(diff <= 1 / 1000 + 1e-12)
     assert np.count_nonzero(diff) <= 1
     assert ours["quadrant"].tolist() == [ESDA_QUADRANT[q] for q in lm.q]
@@ -294,10 +332,10 @@ def test_global_moran_rate_matches_esda(data, kind):
 @pytest.mark.parametrize("kind", KINDS)
 def test_gi_star_matches_esda_binary_on_columbus(columbus, kind, esda_draws):
     y, g = columbus
-    ours = getis_ord(y, _kind(g, kind), permutations=999, seed=SEED)
+    ours = getis_ord(y, _kind(g, kind), permutations=999, max_permutations=999, seed=SEED)
     # n_jobs=1: esda's default of every core starts worker processes
     lg = _esda(esda.G_Local, y.to_numpy(), g, transform="B", star=True, permutations=999,
-               seed=SEED, n_jobs=1, keep_simulations=False)  # fmt: skip
+               seed=SEED, n_jobs=1)  # fmt: skip
     np.testing.assert_allclose(ours["G"].to_numpy(), lg.Gs, rtol=1e-12)
     np.testing.assert_allclose(ours["z"].to_numpy(), lg.Zs, rtol=1e-10)
     np.testing.assert_allclose(ours["p_norm"].to_numpy(), 2 * lg.p_norm, rtol=1e-9)
@@ -310,9 +348,17 @@ def test_gi_star_matches_esda_binary_on_columbus(columbus, kind, esda_draws):
     ties = at_least + at_most - 999
     no_tie = ties == 0
     assert no_tie.mean() > 0.5
-    p, esda_p = ours["p"].to_numpy(), lg.p_sim.astype(float)  # esda keeps float32 here
-    np.testing.assert_allclose(p[no_tie], esda_p[no_tie], rtol=1e-6)
-    assert np.all(p[~no_tie] - esda_p[~no_tie] <= ties[~no_tie] / 1000 + 1e-6)
+    # one-sided tail counts against esda's p_sim (folded one-sided; esda keeps float32 here)
+    folded, esda_p = _permute.folded_pvalues(at_least, at_most, 999), lg.p_sim.astype(float)
+    np.testing.assert_allclose(folded[no_tie], esda_p[no_tie], rtol=1e-6)
+    assert np.all(folded[~no_tie] - esda_p[~no_tie] <= ties[~no_tie] / 1000 + 1e-6)
+    # two-sided p by its definition from esda's permuted Gi*; exact permutation mean of
+    # G*_i = (y_i + sum of k_i draws from the other units) / sum y
+    k = np.diff(w.indptr)
+    centre = (yv + k * (yv.sum() - yv) / (len(yv) - 1)) / yv.sum()
+    np.testing.assert_allclose(centre, lg.EG_sim, atol=5 * lg.seG_sim.max() / 30)
+    expected = _two_sided_from(lg.rGs, lg.Gs, centre)
+    np.testing.assert_allclose(ours["p"].to_numpy(), expected, rtol=1e-12)
 
 
 def test_gi_star_z_unchanged_when_a_row_of_weights_is_rescaled(columbus):
