@@ -26,6 +26,7 @@ import pandas as pd
 import pytest
 from esda.crand import vec_permutations
 from libpysal.graph import Graph, read_gal
+from libpysal.weights import lat2W
 from pyogrio import read_dataframe
 from scipy import sparse
 from statsmodels.stats.multitest import multipletests
@@ -34,6 +35,9 @@ from marchland.graph import BorderGraph
 from marchland.stats._getisord import _gi_star_z
 from marchland.stats._globalmoran import _global_moran_sims, _permute
 from marchland.stats.autocorrelation import (
+    COLD,
+    HOT,
+    QUADRANTS,
     bh_qvalues,
     getis_ord,
     global_moran,
@@ -371,3 +375,61 @@ def test_gi_star_z_unchanged_when_a_row_of_weights_is_rescaled(columbus):
     scaled[7, :] = scaled[7, :] * 3.5
     _, z_scaled = _gi_star_z(y.to_numpy(), sparse.csr_matrix(scaled))
     np.testing.assert_allclose(z_scaled, z, rtol=1e-12)
+
+
+# --- null maps: labels keep their false discovery rate ---------------------------------------
+NULL_MAPS = 400  # per example; benchmarks/bench_hotspot_null.py runs 2000
+
+
+def _null_examples():
+    """libpysal's shipped columbus (CRIME, queen) and sids2 (SIDR79, its rook .gal)."""
+    df = gpd.read_file(libpysal.examples.get_path("columbus.shp"))
+    df.index = pd.Index(df["POLYID"].astype(str), name="unit_id")
+    col = Graph.build_contiguity(df, rook=False)
+    t = read_dataframe(libpysal.examples.get_path("sids2.dbf"), read_geometry=False)
+    ids = pd.Index(t["FIPSNO"].astype(str), name="unit_id")
+    sids = _str_graph(read_gal(libpysal.examples.get_path("sids2.gal")), ids)
+    rate = pd.Series(t["SIDR79"].to_numpy(dtype=float), index=ids).loc[list(sids.unique_ids)]
+    return {"columbus": (df["CRIME"].to_numpy(), col), "sids2": (rate.to_numpy(), sids)}
+
+
+@pytest.mark.parametrize("data", ["columbus", "sids2"])
+def test_null_maps_rarely_get_any_label(data):
+    # The values of a shipped example permuted at random: every unit is null, so the false
+    # discovery rate is the chance that a map gets any label, and BH at fdr=0.05 must keep it
+    # near 5% (ceiling 6%: about one binomial standard error, 1.1%, above 5% at 400 maps).
+    # With esda's folded one-sided p this was about twice as large. The graph is built once.
+    y, g = _null_examples()[data]
+    bg = BorderGraph.from_graph(g)
+    rng = np.random.default_rng(16)
+    lm_maps = gi_maps = 0
+    for _ in range(NULL_MAPS):
+        v = pd.Series(rng.permutation(y), index=bg.ids)
+        lm = local_moran(v, bg, permutations=99, seed=rng)
+        gi = getis_ord(v, bg, permutations=99, seed=rng)
+        lm_maps += lm["label"].isin(QUADRANTS).any()
+        gi_maps += gi["label"].isin([HOT, COLD]).any()
+    assert lm_maps / NULL_MAPS <= 0.06, lm_maps
+    assert gi_maps / NULL_MAPS <= 0.06, gi_maps
+    # refinement did reach the draws BH needs: 4 m / fdr - 1 for the m units tested
+    assert lm.attrs["max_permutations"] == int(np.ceil(4 * (lm["draws"] > 0).sum() / 0.05)) - 1
+
+
+def test_planted_block_is_found_and_nothing_far_from_it():
+    # A 2 x 2 block at +6 sd on a 20 x 20 lattice of standard normal noise, queen contiguity.
+    # Theory for the block rule: a block unit's permuted lag reaches the observed one only when
+    # its 8 draws from the 399 others hold at least 3 of the other block units, probability
+    # about C(8,3) (3/399)^3 ~ 2.4e-5, below BH's bar for 4 labels, 4 x 0.05 / 400 = 5e-4, so
+    # all 4 are labelled. (Under rook, 2 of the 3 in 4 draws: ~3.4e-4, at the bar, and 2-4
+    # of the 4 are labelled.) Units more than one step (Chebyshev) from the block are null.
+    g = BorderGraph.from_graph(Graph.from_W(lat2W(20, 20, rook=False)))
+    r, c = np.divmod(np.arange(400), 20)
+    block = (r >= 9) & (r <= 10) & (c >= 9) & (c <= 10)
+    far = np.maximum(np.abs(r - 9.5), np.abs(c - 9.5)) > 1.5
+    for seed in range(3):
+        y = np.random.default_rng(seed).standard_normal(400) + 6.0 * block
+        v = pd.Series(y, index=g.ids)
+        lm = local_moran(v, g, seed=seed)["label"].to_numpy()
+        gi = getis_ord(v - v.min(), g, seed=seed)["label"].to_numpy()
+        assert (lm[block] == "High-High").all() and (gi[block] == HOT).all(), seed
+        assert (lm[far] == "Not significant").all() and (gi[far] == "Not significant").all()
