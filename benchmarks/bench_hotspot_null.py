@@ -6,6 +6,10 @@ unit is null and the false discovery rate equals the chance that a map gets any 
 should stay near or below the nominal 5%. The test suite runs 400 maps per example
 (tests/reference/test_hotspots_reference.py); this is the longer run, with a binomial
 standard error.
+
+Measured (2000 maps each, 99 first-round draws, seed 16, 2 shared cores): columbus 3.70% any
+local-Moran label, 3.85% any Gi* label (14 ms per call); sids2 3.60% and 3.70% (31 ms per
+call); binomial standard error at 5%: 0.49%.
 """
 
 from __future__ import annotations

@@ -369,7 +369,7 @@ def hotspots(
     Returns
     -------
     pandas.DataFrame
-        The columns of :func:`local_moran` (``I p q quadrant label z lag z_sim reason``);
+        The columns of :func:`local_moran` (``I p q quadrant label z lag z_sim draws reason``);
         "High-High" marks a unit whose rate and neighbours' rates are raised.
 
     References
