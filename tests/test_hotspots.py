@@ -84,13 +84,15 @@ def _values(bg: BorderGraph, seed: int = 0) -> pd.Series:
 @pytest.mark.parametrize("kind", KINDS)
 def test_columns_index_and_labels(kind):
     bg = _grid(8, 8)
-    res = local_moran(_values(bg), _as(bg, kind), permutations=199, seed=1)
+    # 16 high units of 64: a two-sided conditional p cannot fall far below (15/63)^3, so
+    # q stays near 0.07 on this small grid; test the labelling rule at fdr = 0.1.
+    res = local_moran(_values(bg), _as(bg, kind), permutations=199, seed=1, fdr=0.1)
     assert tuple(res.columns) == LOCAL_COLUMNS
     assert res.index.name == "unit_id" and list(res.index) == list(bg.ids)
     assert set(res["quadrant"]) <= set(QUADRANTS)
     labelled = res["label"] != NOT_SIGNIFICANT
     assert labelled.any()
-    assert (res.loc[labelled, "q"] < 0.05).all() and (res.loc[~labelled, "q"] >= 0.05).all()
+    assert (res.loc[labelled, "q"] < 0.1).all() and (res.loc[~labelled, "q"] >= 0.1).all()
     assert (res.loc[labelled, "label"] == res.loc[labelled, "quadrant"]).all()
     assert res["reason"].isna().all()
     assert (res["q"] >= res["p"]).all()
@@ -217,7 +219,8 @@ def test_gi_star_labels_follow_the_sign_of_z(kind):
     r, c = np.divmod(np.arange(len(bg.ids)), 12)
     v = pd.Series(np.where((r < 4) & (c < 4), 20.0, 2.0) + rng.uniform(0, 1, len(r)), bg.ids)
     res = getis_ord(v, _as(bg, kind), permutations=999, seed=3)
-    assert list(res.columns) == ["G", "z", "p_norm", "p", "q", "label", "reason"]
+    assert list(res.columns) == ["G", "z", "p_norm", "p", "q", "label", "draws", "reason"]
+    assert (res["draws"] >= 999).sum() == 144 and res.loc["QLN-99-01", "draws"] == 0
     hot, cold = res["label"] == "Hot spot", res["label"] == "Cold spot"
     assert hot.sum() >= 8  # the raised 4 x 4 block
     assert (res.loc[hot, "z"] > 0).all() and (res.loc[cold, "z"] < 0).all()
@@ -338,4 +341,8 @@ def test_demo_hot_area_is_high_high_in_its_hot_months(demo_region):
         # and the High-High units of a hot month are the hot area or its neighbours
         assert set(res.index[res["label"] == "High-High"]) <= near, month
         found.append(is_hh)
-    assert pd.concat(found).mean() >= 0.7
+    # Across hot months at least half the hot area is labelled. (This asked for 70% while p was
+    # esda's folded one-sided value, which roughly doubles the labels of a null map; with the
+    # two-sided p, 2 of the 4 hot units reach q < 0.05 among the 196 tested, the others'
+    # p-values, ~0.02 and ~0.002, are too large for BH at that m.)
+    assert pd.concat(found).mean() >= 0.5

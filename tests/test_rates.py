@@ -17,7 +17,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from libpysal.graph import Graph
 
-from marchland.errors import InputError
+from marchland.errors import DataWarning, InputError
 from marchland.graph import BorderGraph
 from marchland.stats import (
     aggregate_rates,
@@ -124,15 +124,22 @@ def test_windowed_input_gives_window_field_columns():
 
 
 def test_case_fatality_flags_and_errors():
-    deaths = _series(pd.array([0, 3, 1, pd.NA], dtype="Int64"))
+    deaths = _series(pd.array([0, 6, 1, pd.NA], dtype="Int64"))
     cases = _series([0, 100, 5, 20])
     got = case_fatality(deaths, cases)
     assert list(got.columns) == [
         "deaths", "cases", "cfr", "lower", "upper", "too_few", "above_threshold",
     ]  # fmt: skip
     assert np.isnan(got.loc["TVR-01-01", "cfr"]) and bool(got.loc["TVR-01-01", "too_few"])
-    assert got.loc["TVR-01-02", "cfr"] == pytest.approx(0.03)
-    assert bool(got.loc["TVR-01-02", "above_threshold"])
+    assert got.loc["TVR-01-02", "cfr"] == pytest.approx(0.06)
+    assert bool(got.loc["TVR-01-02", "above_threshold"])  # exact lower limit 0.022 > 0.01
+    # 3 of 100: point estimate above 1%, but the interval reaches below it -> not flagged
+    three = case_fatality(_series([0, 3, 0, 0]), _series([1, 100, 1, 1]))
+    assert not bool(three.loc["TVR-01-02", "above_threshold"])
+    wil = case_fatality(deaths, cases, method="wilson")
+    assert wil.loc["TVR-01-02", "lower"] > got.loc["TVR-01-02", "lower"]
+    with pytest.raises(ValueError, match="'method' needs to be one of"):
+        case_fatality(deaths, cases, method="jeffreys")
     assert not bool(got.loc["TVR-01-02", "too_few"])
     assert bool(got.loc["OSK-02-01", "too_few"])  # flagged, not hidden
     assert got.loc["OSK-02-01", "cfr"] == pytest.approx(0.2)
@@ -239,6 +246,20 @@ def test_aggregate_from_summed_counts_not_averaged_rates():
         aggregate_rates(cases, pop, groups["country"].iloc[:3])
 
 
+def test_aggregate_leaves_out_units_without_population_from_both_sums():
+    # 5 + 5 cases, populations 10,000 and missing: 50 per 100k from the unit with a
+    # denominator, not 100 (cases of one unit over the population of the other).
+    cases = _series([5, 5, 0, 0])
+    pop = _series([10_000, np.nan, 50_000, 50_000])
+    groups = pd.Series(["A", "A", "B", "B"], index=pop.index, name="province")
+    with pytest.warns(DataWarning, match="1 reported unit.*TVR-01-02"):
+        got = aggregate_rates(cases, pop, groups)
+    a = got.loc[("province", "A")]
+    assert a["rate"] == pytest.approx(50.0) and a["cases"] == 5
+    assert a["units_no_population"] == 1 and a["units_reported"] == 2
+    assert got.loc[("province", "B"), "units_no_population"] == 0
+
+
 def _line_graph():
     edges = pd.DataFrame(
         {
@@ -278,3 +299,28 @@ def test_eb_standardised_leaves_out_missing():
     z = eb_standardised(cases, pop)
     assert z.iloc[:2].notna().all() and z.iloc[2:].isna().all()
     assert z.name == "rate_z"
+
+
+def test_spatial_eb_shrinks_islands_by_the_global_estimator():
+    # A small island with 3 cases in 800 people (375 per 100k) kept its raw rate before;
+    # now it gets the global EB value (Marshall 1991), as the docstring says.
+    ids = pd.Index(["a", "b", "c", "island"])
+    edges = pd.DataFrame(
+        {
+            "focal": ["a", "b", "b", "c"],
+            "neighbor": ["b", "a", "c", "b"],
+            "shared_m": 1.0,
+            "gap_m": 0.0,
+            "cross_border": False,
+            "kind": "shared-boundary",
+        }
+    )
+    bg = BorderGraph(edges=edges, ids=ids)
+    cases = pd.Series([10, 12, 8, 3], index=ids)
+    pop = pd.Series([20_000, 25_000, 18_000, 800], index=ids)
+    spatial = smooth_rates(cases, pop, graph=bg)
+    global_ = smooth_rates(cases, pop)
+    assert spatial["island"] == pytest.approx(global_["island"])
+    assert spatial["island"] < 100 < 375
+    assert spatial.attrs["islands_global"] == ["island"]
+    assert spatial["a"] != pytest.approx(global_["a"])  # others keep their local prior

@@ -26,6 +26,7 @@ import pandas as pd
 import pytest
 from esda.crand import vec_permutations
 from libpysal.graph import Graph, read_gal
+from libpysal.weights import lat2W
 from pyogrio import read_dataframe
 from scipy import sparse
 from statsmodels.stats.multitest import multipletests
@@ -34,6 +35,9 @@ from marchland.graph import BorderGraph
 from marchland.stats._getisord import _gi_star_z
 from marchland.stats._globalmoran import _global_moran_sims, _permute
 from marchland.stats.autocorrelation import (
+    COLD,
+    HOT,
+    QUADRANTS,
     bh_qvalues,
     getis_ord,
     global_moran,
@@ -121,6 +125,28 @@ def _esda(cls, *args, **kwargs):
         np.random.set_state(state)
 
 
+def _two_sided_from(sims: np.ndarray, observed: np.ndarray, centre: np.ndarray) -> np.ndarray:
+    """The two-sided pseudo p-value by its definition, from esda's own permuted statistics.
+
+    ``sims`` is (units, permutations); ``centre`` the exact conditional-permutation mean,
+    derived in each test. A permuted value as far from it as the observed one counts (ties
+    within 1e-9 relative, as rounding between esda's loop and our vectorised sums allows).
+    """
+    far = np.abs(observed - centre)
+    tol = 1e-9 * (np.abs(observed) + sims.std(axis=1))
+    extreme = np.count_nonzero(np.abs(sims - centre[:, None]) >= (far - tol)[:, None], axis=1)
+    return (extreme + 1.0) / (sims.shape[1] + 1.0)
+
+
+def _moran_centre(z: np.ndarray) -> np.ndarray:
+    """Exact permutation mean of esda's local I with row-standardised weights.
+
+    ``I_i = (n - 1) z_i lag_i / sum z^2`` and the permuted lag averages draws from the other
+    units, whose mean is ``-z_i / (n - 1)`` (the z sum to 0): ``E[I_i] = -z_i^2 / sum z^2``.
+    """
+    return -(z * z) / (z * z).sum()
+
+
 # --- local Moran's I ---------------------------------------------------------------------
 @pytest.mark.parametrize("kind", KINDS)
 def test_local_moran_statistic_matches_esda_on_columbus(columbus, kind):
@@ -158,15 +184,26 @@ def test_both_permutation_paths_equal_esda(columbus, method, esda_draws):
 @pytest.mark.parametrize("kind", KINDS)
 def test_local_moran_pvalues_equal_esda_given_esda_draws(columbus, kind, esda_draws):
     y, g = columbus
-    ours = local_moran(y, _kind(g, kind), permutations=999, seed=SEED)["p"].to_numpy()
+    # refinement off: every unit gets exactly esda's 999 draws
+    res = local_moran(y, _kind(g, kind), permutations=999, max_permutations=999, seed=SEED)
+    assert (res["draws"] == 999).all() and res.attrs["draws_used"] == 999
     lm, (at_least, at_most, _, _) = _counts_on_esda_draws(y, g)
+    # one-sided tail counts against esda's p_sim (its folded one-sided value)
     ties = at_least + at_most - 999  # permutations that redrew an equal neighbourhood
     assert (ties >= 0).all() and (ties > 0).any()  # columbus (n=49) has some
     no_tie = ties == 0
-    np.testing.assert_array_equal(ours[no_tie], lm.p_sim[no_tie])
+    folded = _permute.folded_pvalues(at_least, at_most, 999)
+    np.testing.assert_array_equal(folded[no_tie], lm.p_sim[no_tie])
     # with ties ours counts them in both tails: never smaller, larger by at most the ties
-    assert np.all(ours[~no_tie] >= lm.p_sim[~no_tie])
-    assert np.all(ours[~no_tie] - lm.p_sim[~no_tie] <= ties[~no_tie] / 1000 + 1e-12)
+    assert np.all(folded[~no_tie] >= lm.p_sim[~no_tie])
+    assert np.all(folded[~no_tie] - lm.p_sim[~no_tie] <= ties[~no_tie] / 1000 + 1e-12)
+    np.testing.assert_array_equal(at_least, (lm.rlisas >= lm.Is[:, None]).sum(axis=1))
+    # the two-sided p by its definition, from esda's own permuted local I (same draws)
+    np.testing.assert_allclose(_moran_centre(lm.z), lm.EI_sim, atol=5 * lm.seI_sim.max() / 30)
+    expected = _two_sided_from(lm.rlisas, lm.Is, _moran_centre(lm.z))
+    np.testing.assert_array_equal(res["p"].to_numpy(), expected)
+    # two-sided is never below the one-sided tail it contains, at most about twice it
+    assert np.all(res["p"].to_numpy() >= lm.p_sim - 1e-12)
 
 
 @pytest.mark.parametrize("kind", KINDS)
@@ -182,8 +219,10 @@ def test_local_moran_pvalues_agree_with_esda_statistically(columbus, kind):
     # our own random stream (numpy Generator) against esda's: equal within Monte Carlo error
     y, g = columbus
     perms = 9999
-    ours = local_moran(y, _kind(g, kind), permutations=perms, seed=2024)["p"].to_numpy()
-    theirs = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=perms, seed=SEED).p_sim
+    ours = local_moran(y, _kind(g, kind), permutations=perms, max_permutations=perms,
+                       seed=2024)["p"].to_numpy()  # fmt: skip
+    lm = _esda(esda.Moran_Local, y.to_numpy(), g, permutations=perms, seed=SEED)
+    theirs = _two_sided_from(lm.rlisas, lm.Is, _moran_centre(lm.z))
     sd = np.sqrt(2 * theirs * (1 - theirs) / perms)
     assert np.all(np.abs(ours - theirs) <= 4.5 * sd + 2 / (perms + 1))
 
@@ -203,14 +242,17 @@ def test_local_sum_decomposes_global_moran_as_in_anselin_1995(columbus):
 @pytest.mark.parametrize("data", list(RATE_DATA))
 def test_hotspots_match_esda_moran_local_rate(data, kind, esda_draws):
     cases, pop, g = RATE_DATA[data]()
-    ours = hotspots(cases, pop, _kind(g, kind), permutations=999, seed=SEED)
+    ours = hotspots(cases, pop, _kind(g, kind), permutations=999, max_permutations=999,
+                    seed=SEED)  # fmt: skip
     lm = _esda(esda.Moran_Local_Rate, cases.to_numpy(), pop.to_numpy(), g, permutations=999,
                seed=SEED)  # fmt: skip
     np.testing.assert_allclose(ours["I"].to_numpy(), lm.Is, rtol=1e-10, atol=1e-13)
-    # Same draws, same counts of permuted I at least as extreme; a permuted I that ties the
-    # observed one to ~1e-15 can fall either side of it by rounding (our vectorised sum against
-    # esda's numba loop), moving p by one draw, 1/(permutations + 1), in at most one unit here.
-    diff = np.abs(ours["p"].to_numpy() - lm.p_sim)
+    # Same draws: our two-sided p equals its definition applied to esda's permuted I. A
+    # permuted I that ties the observed one to ~1e-15 can fall either side of it by rounding
+    # (our vectorised sum against esda's numba loop), moving p by one draw,
+    # 1/(permutations + 1), in at most one unit here.
+    expected = _two_sided_from(lm.rlisas, lm.Is, _moran_centre(lm.z))
+    diff = np.abs(ours["p"].to_numpy() - expected)
     assert np.all(diff <= 1 / 1000 + 1e-12)
     assert np.count_nonzero(diff) <= 1
     assert ours["quadrant"].tolist() == [ESDA_QUADRANT[q] for q in lm.q]
@@ -294,10 +336,10 @@ def test_global_moran_rate_matches_esda(data, kind):
 @pytest.mark.parametrize("kind", KINDS)
 def test_gi_star_matches_esda_binary_on_columbus(columbus, kind, esda_draws):
     y, g = columbus
-    ours = getis_ord(y, _kind(g, kind), permutations=999, seed=SEED)
+    ours = getis_ord(y, _kind(g, kind), permutations=999, max_permutations=999, seed=SEED)
     # n_jobs=1: esda's default of every core starts worker processes
     lg = _esda(esda.G_Local, y.to_numpy(), g, transform="B", star=True, permutations=999,
-               seed=SEED, n_jobs=1, keep_simulations=False)  # fmt: skip
+               seed=SEED, n_jobs=1)  # fmt: skip
     np.testing.assert_allclose(ours["G"].to_numpy(), lg.Gs, rtol=1e-12)
     np.testing.assert_allclose(ours["z"].to_numpy(), lg.Zs, rtol=1e-10)
     np.testing.assert_allclose(ours["p_norm"].to_numpy(), 2 * lg.p_norm, rtol=1e-9)
@@ -310,9 +352,17 @@ def test_gi_star_matches_esda_binary_on_columbus(columbus, kind, esda_draws):
     ties = at_least + at_most - 999
     no_tie = ties == 0
     assert no_tie.mean() > 0.5
-    p, esda_p = ours["p"].to_numpy(), lg.p_sim.astype(float)  # esda keeps float32 here
-    np.testing.assert_allclose(p[no_tie], esda_p[no_tie], rtol=1e-6)
-    assert np.all(p[~no_tie] - esda_p[~no_tie] <= ties[~no_tie] / 1000 + 1e-6)
+    # one-sided tail counts against esda's p_sim (folded one-sided; esda keeps float32 here)
+    folded, esda_p = _permute.folded_pvalues(at_least, at_most, 999), lg.p_sim.astype(float)
+    np.testing.assert_allclose(folded[no_tie], esda_p[no_tie], rtol=1e-6)
+    assert np.all(folded[~no_tie] - esda_p[~no_tie] <= ties[~no_tie] / 1000 + 1e-6)
+    # two-sided p by its definition from esda's permuted Gi*; exact permutation mean of
+    # G*_i = (y_i + sum of k_i draws from the other units) / sum y
+    k = np.diff(w.indptr)
+    centre = (yv + k * (yv.sum() - yv) / (len(yv) - 1)) / yv.sum()
+    np.testing.assert_allclose(centre, lg.EG_sim, atol=5 * lg.seG_sim.max() / 30)
+    expected = _two_sided_from(lg.rGs, lg.Gs, centre)
+    np.testing.assert_allclose(ours["p"].to_numpy(), expected, rtol=1e-12)
 
 
 def test_gi_star_z_unchanged_when_a_row_of_weights_is_rescaled(columbus):
@@ -325,3 +375,61 @@ def test_gi_star_z_unchanged_when_a_row_of_weights_is_rescaled(columbus):
     scaled[7, :] = scaled[7, :] * 3.5
     _, z_scaled = _gi_star_z(y.to_numpy(), sparse.csr_matrix(scaled))
     np.testing.assert_allclose(z_scaled, z, rtol=1e-12)
+
+
+# --- null maps: labels keep their false discovery rate ---------------------------------------
+NULL_MAPS = 400  # per example; benchmarks/bench_hotspot_null.py runs 2000
+
+
+def _null_examples():
+    """libpysal's shipped columbus (CRIME, queen) and sids2 (SIDR79, its rook .gal)."""
+    df = gpd.read_file(libpysal.examples.get_path("columbus.shp"))
+    df.index = pd.Index(df["POLYID"].astype(str), name="unit_id")
+    col = Graph.build_contiguity(df, rook=False)
+    t = read_dataframe(libpysal.examples.get_path("sids2.dbf"), read_geometry=False)
+    ids = pd.Index(t["FIPSNO"].astype(str), name="unit_id")
+    sids = _str_graph(read_gal(libpysal.examples.get_path("sids2.gal")), ids)
+    rate = pd.Series(t["SIDR79"].to_numpy(dtype=float), index=ids).loc[list(sids.unique_ids)]
+    return {"columbus": (df["CRIME"].to_numpy(), col), "sids2": (rate.to_numpy(), sids)}
+
+
+@pytest.mark.parametrize("data", ["columbus", "sids2"])
+def test_null_maps_rarely_get_any_label(data):
+    # The values of a shipped example permuted at random: every unit is null, so the false
+    # discovery rate is the chance that a map gets any label, and BH at fdr=0.05 must keep it
+    # near 5% (ceiling 6%: about one binomial standard error, 1.1%, above 5% at 400 maps).
+    # With esda's folded one-sided p this was about twice as large. The graph is built once.
+    y, g = _null_examples()[data]
+    bg = BorderGraph.from_graph(g)
+    rng = np.random.default_rng(16)
+    lm_maps = gi_maps = 0
+    for _ in range(NULL_MAPS):
+        v = pd.Series(rng.permutation(y), index=bg.ids)
+        lm = local_moran(v, bg, permutations=99, seed=rng)
+        gi = getis_ord(v, bg, permutations=99, seed=rng)
+        lm_maps += lm["label"].isin(QUADRANTS).any()
+        gi_maps += gi["label"].isin([HOT, COLD]).any()
+    assert lm_maps / NULL_MAPS <= 0.06, lm_maps
+    assert gi_maps / NULL_MAPS <= 0.06, gi_maps
+    # refinement did reach the draws BH needs: 4 m / fdr - 1 for the m units tested
+    assert lm.attrs["max_permutations"] == int(np.ceil(4 * (lm["draws"] > 0).sum() / 0.05)) - 1
+
+
+def test_planted_block_is_found_and_nothing_far_from_it():
+    # A 2 x 2 block at +6 sd on a 20 x 20 lattice of standard normal noise, queen contiguity.
+    # Theory for the block rule: a block unit's permuted lag reaches the observed one only when
+    # its 8 draws from the 399 others hold at least 3 of the other block units, probability
+    # about C(8,3) (3/399)^3 ~ 2.4e-5, below BH's bar for 4 labels, 4 x 0.05 / 400 = 5e-4, so
+    # all 4 are labelled. (Under rook, 2 of the 3 in 4 draws: ~3.4e-4, at the bar, and 2-4
+    # of the 4 are labelled.) Units more than one step (Chebyshev) from the block are null.
+    g = BorderGraph.from_graph(Graph.from_W(lat2W(20, 20, rook=False)))
+    r, c = np.divmod(np.arange(400), 20)
+    block = (r >= 9) & (r <= 10) & (c >= 9) & (c <= 10)
+    far = np.maximum(np.abs(r - 9.5), np.abs(c - 9.5)) > 1.5
+    for seed in range(3):
+        y = np.random.default_rng(seed).standard_normal(400) + 6.0 * block
+        v = pd.Series(y, index=g.ids)
+        lm = local_moran(v, g, seed=seed)["label"].to_numpy()
+        gi = getis_ord(v - v.min(), g, seed=seed)["label"].to_numpy()
+        assert (lm[block] == "High-High").all() and (gi[block] == HOT).all(), seed
+        assert (lm[far] == "Not significant").all() and (gi[far] == "Not significant").all()

@@ -94,16 +94,65 @@ def test_wilson_limits_match_newcombe_and_libraries():
     pairs = list(NEWCOMBE_WILSON)
     deaths = pd.Series([d for d, _ in pairs], index=list("abcd"))
     cases = pd.Series([n for _, n in pairs], index=list("abcd"))
-    got = case_fatality(deaths, cases)
+    got = case_fatality(deaths, cases, method="wilson")
     want = np.array(list(NEWCOMBE_WILSON.values()))
     np.testing.assert_allclose(got[["lower", "upper"]].to_numpy(), want, atol=6e-5)
     for (d, n), (lo, hi) in zip(pairs, got[["lower", "upper"]].to_numpy(), strict=True):
         ci = stats.binomtest(d, n).proportion_ci(0.95, method="wilson")  # scipy
         assert (lo, hi) == pytest.approx((ci.low, ci.high), abs=1e-12)
     lo_sm, hi_sm = proportion_confint(deaths, cases, alpha=0.1, method="wilson")
-    got90 = case_fatality(deaths, cases, conf=0.9)
+    got90 = case_fatality(deaths, cases, conf=0.9, method="wilson")
     np.testing.assert_allclose(got90["lower"], lo_sm, atol=1e-12)
     np.testing.assert_allclose(got90["upper"], hi_sm, atol=1e-12)
+
+
+# Newcombe (1998), Table I, method 5 (Clopper-Pearson "exact"): from memory.
+NEWCOMBE_EXACT = {
+    (81, 263): (0.2527, 0.3676),
+    (15, 148): (0.0578, 0.1617),
+    (0, 20): (0.0000, 0.1684),
+    (1, 29): (0.0009, 0.1776),
+}
+
+
+def test_exact_limits_match_newcombe_scipy_and_statsmodels():
+    pairs = list(NEWCOMBE_EXACT)
+    deaths = pd.Series([d for d, _ in pairs], index=list("abcd"))
+    cases = pd.Series([n for _, n in pairs], index=list("abcd"))
+    got = case_fatality(deaths, cases)  # exact is the default
+    want = np.array(list(NEWCOMBE_EXACT.values()))
+    np.testing.assert_allclose(got[["lower", "upper"]].to_numpy(), want, atol=6e-5)
+    for (d, n), (lo, hi) in zip(pairs, got[["lower", "upper"]].to_numpy(), strict=True):
+        ci = stats.binomtest(d, n).proportion_ci(0.95, method="exact")  # scipy
+        assert (lo, hi) == pytest.approx((ci.low, ci.high), abs=1e-10)
+    lo_sm, hi_sm = proportion_confint(deaths, cases, alpha=0.1, method="beta")  # statsmodels
+    got90 = case_fatality(deaths, cases, conf=0.9)
+    np.testing.assert_allclose(got90["lower"], lo_sm, atol=1e-10)
+    np.testing.assert_allclose(got90["upper"], hi_sm, atol=1e-10)
+
+
+def _exact_cover(n, p_true, method, threshold=None):
+    """Coverage (or flag rate) summed over scipy's binomial pmf: no simulation."""
+    d = np.arange(n + 1)
+    res = case_fatality(pd.Series(d), pd.Series(np.full(n + 1, n)), method=method,
+                        threshold=p_true if threshold is None else threshold)  # fmt: skip
+    pmf = stats.binom.pmf(d, n, p_true)  # scipy
+    inside = (res["lower"].to_numpy() <= p_true) & (p_true <= res["upper"].to_numpy())
+    return float(pmf @ inside), float(pmf @ res["above_threshold"].to_numpy(dtype=bool))
+
+
+def test_exact_interval_coverage_and_flag_rate_at_low_cfr():
+    # Clopper & Pearson (1934): coverage >= conf for every true proportion; checked exactly
+    # by summing scipy's binomial pmf over every outcome, for n 5..200 and CFR 0.5%..5%.
+    worst_cover, worst_flag = 1.0, 0.0
+    for n in range(5, 201, 5):
+        for p_true in (0.005, 0.008, 0.01, 0.02, 0.03, 0.05):
+            cover, flag = _exact_cover(n, p_true, "exact")
+            worst_cover, worst_flag = min(worst_cover, cover), max(worst_flag, flag)
+    assert worst_cover >= 0.95 - 1e-12
+    assert worst_flag <= 0.025 + 1e-12  # flag fires at most alpha/2 at CFR = threshold
+    # Wilson's known shortfall near 1% (Brown, Cai & DasGupta 2001, Stat. Sci. 16, 101-133)
+    assert min(_exact_cover(n, 0.008, "wilson")[0] for n in range(5, 101, 5)) < 0.9
 
 
 # --- empirical Bayes against esda on libpysal's built-in data ----------------------------------

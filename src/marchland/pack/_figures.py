@@ -107,8 +107,8 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
                 f"false discovery rate q < {fdr:g}",
             ),
             "Clusters of the month's attack rate (empirical Bayes standardised local Moran's I, "
-            f"{result.config.analysis.permutations} conditional permutations, Benjamini-Hochberg "
-            f"q < {fdr:g}).",
+            f"{_draws_text(hs, result.config.analysis.permutations)}, two-sided, "
+            f"Benjamini-Hochberg q < {fdr:g}).",
         )
     if result.fronts is not None:
         yield (
@@ -160,6 +160,21 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         )
     yield from _epi_figures(result, notes)
     yield from outlook_figures(result, notes, base)
+
+
+def _draws_text(hs, first: int) -> str:
+    """Say how many permutations are behind the hotspot p-values (first round, most per unit).
+
+    Units whose label was in doubt get more draws than the configured first round (the
+    ``draws`` column, ``attrs["max_permutations"]``), so the configured count alone understates
+    them.
+    """
+    used = int(hs["draws"].max()) if "draws" in hs and len(hs) else first
+    cap = hs.attrs.get("max_permutations")
+    if used <= first:
+        return f"{first:,} conditional permutations per unit"
+    limit = f" (limit {cap:,})" if cap and cap > used else ""
+    return f"{first:,} conditional permutations per unit, up to {used:,}{limit} where needed"
 
 
 def _untested_labels(result: MonthResult) -> tuple[str, ...]:

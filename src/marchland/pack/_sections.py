@@ -77,8 +77,10 @@ def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         body += (
             '<h3>Units with the highest attack rate this month</h3><p class="note">'
             "Raw rates per 100,000 with exact Poisson limits, and empirical Bayes smoothed "
-            "rates beside them: where the two differ much, the raw rate rests on a small "
-            "population.</p>"
+            "rates beside them. The limits cover Poisson noise only: outbreak counts vary "
+            "more than that from week to week, so the true uncertainty is wider. Where the "
+            "raw and smoothed "
+            "rates differ much, the raw rate rests on a small population.</p>"
             + table_html(
                 r, cols, index="unit_id", limit=25, kinds={"population": "int", "cfr": "pct"}
             )

@@ -183,7 +183,9 @@ class _Context:
             seed=self.seed,
             fdr=a.fdr,
         )
+        attrs = dict(hs.attrs)  # join drops them; the figures note reads max_permutations
         hs = hs.join(gi[["z", "p", "q", "label"]].add_prefix("gi_"), how="left")
+        hs.attrs.update(attrs)
         gm = h.global_moran_rate(
             cases, pop, self.graph, permutations=a.permutations, seed=self.seed, weighting=weighting
         )

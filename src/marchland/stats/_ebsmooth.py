@@ -28,7 +28,10 @@ def global_eb(e: np.ndarray, b: np.ndarray) -> np.ndarray:
     return weight * rate + (1.0 - weight) * r_mean
 
 
-def spatial_eb(e: np.ndarray, b: np.ndarray, valid: np.ndarray, graph: BorderGraph) -> np.ndarray:
+def spatial_eb(
+    e: np.ndarray, b: np.ndarray, valid: np.ndarray, graph: BorderGraph
+) -> tuple[np.ndarray, np.ndarray]:
+    """Return spatial EB rates (NaN where not valid) and the mask of islands shrunk globally."""
     # Each unit's prior is the rate of its neighbourhood, itself included (binary weights),
     # as in esda's Spatial_Empirical_Bayes; written on the edge list so it is vectorised and
     # units without a usable population are left out of their neighbours' sums.
@@ -52,4 +55,17 @@ def spatial_eb(e: np.ndarray, b: np.ndarray, valid: np.ndarray, graph: BorderGra
         smooth = r_mean + (rate - r_mean) * (r_var / (r_var + r_mean / b0))
         # A neighbourhood with no cases at all shrinks to its (zero) mean.
         smooth = np.where((r_var == 0) & np.isfinite(r_mean), r_mean, smooth)
-    return np.where(valid, smooth, np.nan)
+    # An island (no neighbour with a usable population) is its own neighbourhood: prior mean
+    # = its own rate, so nothing is smoothed and a small island keeps a wild raw rate. It is
+    # shrunk by the global estimator instead (prior: the region's mean and variance).
+    island = valid & (count == 1)
+    if island.any():
+        smooth = np.where(island, global_all(e, b, valid), smooth)
+    return np.where(valid, smooth, np.nan), island
+
+
+def global_all(e: np.ndarray, b: np.ndarray, valid: np.ndarray) -> np.ndarray:
+    """Global EB over the valid units, NaN elsewhere."""
+    out = np.full(len(e), np.nan)
+    out[valid] = global_eb(e[valid], b[valid])
+    return out

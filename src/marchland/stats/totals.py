@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import DataWarning, InputError
 from ._align import align_units
 from ._windows import sum_windows, window_masks
 from .rates import (
@@ -113,6 +114,23 @@ def window_counts(
 
 
 # --- up the hierarchy ------------------------------------------------------------------------
+def _warn_no_population(cases, population) -> None:
+    """Warn (once) naming reported units whose population is missing: left out of both sums."""
+    c = cases if isinstance(cases, pd.DataFrame) else cases.to_frame()
+    p = population if isinstance(population, pd.DataFrame) else population.to_frame()
+    has_cases = c.notna().any(axis=1)
+    no_pop = p.reindex(c.index).isna().any(axis=1)
+    bad = c.index[has_cases & no_pop]
+    if len(bad):
+        shown = ", ".join(map(str, bad[:5])) + (" ..." if len(bad) > 5 else "")
+        warnings.warn(
+            f"{len(bad)} reported unit(s) have no population and are left out of both the "
+            f"cases and the population of their group: {shown}",
+            DataWarning,
+            stacklevel=3,
+        )
+
+
 def _aggregate_one(
     cases: pd.Series, population: pd.Series, *, groups: pd.DataFrame, per: float, conf: float
 ) -> pd.DataFrame:
@@ -127,7 +145,19 @@ def _aggregate_one(
             raise InputError(
                 f"groups[{level!r}] has no group for unit {unit!r}", column=str(level), value=unit
             )
-        df = pd.DataFrame({"group": key.to_numpy(), "x": x, "pop": pop, "reported": np.isfinite(x)})
+        reported = np.isfinite(x)
+        # A reported unit without a population would add its cases but not its people and
+        # inflate the rate; it is left out of both sums and counted in units_no_population.
+        usable = reported & np.isfinite(pop)
+        df = pd.DataFrame(
+            {
+                "group": key.to_numpy(),
+                "x": np.where(usable, x, np.nan),
+                "pop": pop,
+                "reported": reported,
+                "no_pop": reported & ~usable,
+            }
+        )
         g = df.groupby("group", sort=True)
         summed = pd.DataFrame(
             {
@@ -135,14 +165,16 @@ def _aggregate_one(
                 "population": g["pop"].sum(min_count=1),
                 "units": g.size(),
                 "units_reported": g["reported"].sum(),
+                "units_no_population": g["no_pop"].sum(),
             }
         )
         # Rates come from summed counts over summed population, never from averaged rates;
-        # population counts only the units whose cases were reported.
-        pop_rep = df[df["reported"]].groupby("group")["pop"].sum().reindex(summed.index)
+        # population counts only the units whose cases were reported (and that have one).
+        pop_rep = df[usable].groupby("group")["pop"].sum().reindex(summed.index)
         rates = _attack_rates_one(summed["cases"], pop_rep.fillna(0.0), per=per, conf=conf)
         rates["units"] = summed["units"].astype("int64")
         rates["units_reported"] = summed["units_reported"].astype("int64")
+        rates["units_no_population"] = summed["units_no_population"].astype("int64")
         rates["population_all"] = summed["population"]
         rates.index = pd.MultiIndex.from_arrays(
             [np.repeat(str(level), len(rates)), rates.index], names=["level", "group"]
@@ -175,10 +207,12 @@ def aggregate_rates(
     -------
     pandas.DataFrame
         Indexed by ``(level, group)`` with ``cases population rate lower upper`` plus
-        ``units`` (units in the group), ``units_reported`` (units whose cases were reported)
-        and ``population_all`` (population of every unit in the group). ``cases`` sums the
-        reported units and ``population`` is the population of those units, so the rate is
-        not diluted by units that did not report.
+        ``units`` (units in the group), ``units_reported`` (units whose cases were reported),
+        ``units_no_population`` (reported units left out because their population is
+        missing) and ``population_all`` (population of every unit in the group). ``cases``
+        sums the reported units that have a population and ``population`` is the population
+        of those same units, so the rate is neither diluted by units that did not report nor
+        inflated by cases without a denominator; a ``DataWarning`` names any unit left out.
 
     Examples
     --------
@@ -187,12 +221,21 @@ def aggregate_rates(
     >>> country = pd.Series({"TVR-01-01": "TVR", "TVR-01-02": "TVR", "OSK-01-01": "OSK"})
     >>> aggregate_rates(cases, pop, country.rename("country"))["rate"].tolist()
     [40.0, 10.0]
+    >>> pop2 = pop.astype(float).where(pop.index != "TVR-01-02")
+    >>> cases2 = pd.Series({"TVR-01-01": 5, "TVR-01-02": 5, "OSK-01-01": 20})
+    >>> import warnings
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     out = aggregate_rates(cases2, pop2, country.rename("country"))
+    >>> out[["cases", "rate", "units_no_population"]].to_numpy().tolist()
+    [[20, 40.0, 0], [5, 50.0, 1]]
     """
     if groups is None:
         index = cases.index
         groups = pd.DataFrame({"region": "all"}, index=index)
     elif isinstance(groups, pd.Series):
         groups = groups.to_frame(groups.name if groups.name is not None else "group")
+    _warn_no_population(cases, population)
     if per <= 0:
         raise ValueError(f"'per' needs to be > 0. {per!r} was given instead.")
     _check_conf(conf)
