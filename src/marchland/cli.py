@@ -329,14 +329,13 @@ def _first_line(ctx: click.Context, month: str | None) -> None:
 
 
 def _slowest(result: Any, dest: Path, n: int = 3) -> list[tuple[str, float]]:
-    """The slowest steps of the analysis and of the bundle writing (maps, atlas, report)."""
+    """Return the slowest steps of the analysis and of the bundle writing (maps, atlas, ...)."""
+    import contextlib
     import json
 
     timings = dict(result.timings)
-    try:
+    with contextlib.suppress(OSError, ValueError, KeyError, TypeError):
         timings.update(json.loads((dest / "manifest.json").read_text())["timings_s"])
-    except (OSError, ValueError, KeyError, TypeError):
-        pass
     return sorted(timings.items(), key=lambda kv: -float(kv[1]))[:n]
 
 
