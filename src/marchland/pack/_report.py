@@ -75,7 +75,7 @@ nav.sub{display:none}
 table{display:table;width:100%;max-width:none;overflow:visible;font-size:6.4pt;
 table-layout:auto;page-break-inside:auto}
 thead{display:table-header-group} tr{break-inside:avoid}
-th,td{padding:1px 2px;overflow-wrap:anywhere;white-space:normal}
+th,td{padding:1px 2px;overflow-wrap:break-word;white-space:normal;hyphens:none}
 td:first-child{white-space:normal}
 figure{break-inside:avoid} figure img{max-height:175mm;width:auto;max-width:100%;margin:0 auto}
 h2{break-after:avoid} h3{break-after:avoid}
