@@ -57,13 +57,13 @@ def how_to_read(section: str, result: MonthResult) -> str:
             "smoothed rates to rank small units.",
             "<b>CFR</b>: deaths per case since the start, as a percentage, only where the "
             f"cumulative case count reaches {a.min_cases_cfr}.",
-            "Units marked <b>(province)</b> report only as whole provinces (about ten times the "
-            "population of a district): their rate is an average over a large area.",
+            _provinces_note(result),
         )
     if section == "hotspots":
         return _how(
             "<b>Cluster</b> (local Moran's I on rates adjusted for population): <b>High-High</b> "
-            "a unit with a high rate among neighbours with high rates (a hotspot); "
+            "(on the map: raised rate, raised-rate neighbours) a unit with a high rate among "
+            "neighbours with high rates, a hotspot; "
             "<b>Low-Low</b> the reverse; <b>High-Low</b>/<b>Low-High</b> an outlier against its "
             f"neighbours. Shown only where <b>q</b> &le; {a.fdr} (the false discovery rate, "
             f"Benjamini-Hochberg over all units; pseudo p from {a.permutations:,} "
@@ -81,7 +81,8 @@ def how_to_read(section: str, result: MonthResult) -> str:
             "unit's first case: a <b>trend surface</b> of arrival times and a <b>distance "
             "regression</b> (distance from the first units against arrival week). They answer "
             "slightly different questions; quote the one with the narrower interval and give "
-            "its interval, and say both if they differ by more than their intervals allow.",
+            "its interval, and say both if they differ by more than their intervals allow. "
+            + _speed_to_quote(result),
             "<b>Probable cross-border introduction</b>: a unit whose first case came while a "
             "neighbour across a border was already affected and no neighbour in its own country "
             "was. Evidence, not proof.",
@@ -105,6 +106,48 @@ def how_to_read(section: str, result: MonthResult) -> str:
             "quoted.",
         )
     return ""
+
+
+def _provinces_note(result: MonthResult) -> str:
+    u = result.units
+    whole = u[u["level"] == 1]
+    if not len(whole):
+        return "Every analysis unit is a district."
+    countries = ", ".join(
+        esc(result.config.country_label(c)) for c in sorted(whole["country"].unique())
+    )
+    ratio = whole["population"].median() / max(1.0, u.loc[u["level"] != 1, "population"].median())
+    return (
+        f"{countries} reports only whole provinces ({len(whole)} units, marked "
+        "<b>(province)</b> in the priority list and outlined dashed on the maps); a median "
+        f"province holds about {ratio:,.0f} times a district's population, so its rate is an "
+        "average over a large area."
+        if ratio > 1.5
+        else f"{countries} reports only whole provinces ({len(whole)} units)."
+    )
+
+
+def _speed_to_quote(result: MonthResult) -> str:
+    v = result.velocity
+    if v is None or v.by_method is None or not len(v.by_method):
+        return ""
+    b = v.by_method.dropna(subset=["km_per_week", "lower", "upper"])
+    if not len(b):
+        return ""
+    best = (b["upper"] - b["lower"]).idxmin()
+    r = b.loc[best]
+    others = b.drop(index=best)
+    apart = any(o["lower"] > r["upper"] or o["upper"] < r["lower"] for _, o in others.iterrows())
+    text = (
+        f"This month: quote <b>{r['km_per_week']:.1f} km per week</b> ({r['lower']:.1f} to "
+        f"{r['upper']:.1f}, {esc(str(best).replace('_', ' '))})"
+    )
+    if apart:
+        text += (
+            "; the other estimate lies outside this interval, so say the speed is uncertain "
+            "and give both"
+        )
+    return text + "."
 
 
 GLOSSARY = (
