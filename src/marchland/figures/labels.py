@@ -18,6 +18,7 @@ from collections.abc import Mapping, Sequence
 
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.patches import FancyArrow, Rectangle
 from matplotlib.transforms import Bbox
 
 from ._mapkit import _HALO, BaseMap
@@ -82,6 +83,10 @@ def label_units(
         for t in ax.texts
         if t.get_gid() == "country-label" or t.get_text()
     ]
+    # The scale bar and north arrow are rectangles and arrows (units are collections; a
+    # depot's reach circle may be labelled over).
+    furniture = [p for p in ax.patches if isinstance(p, (Rectangle, FancyArrow))]
+    taken += [p.get_window_extent(renderer).padded(2) for p in furniture]
     pts = base.units.geometry.representative_point()
     placed = []
     for uid, text in names.items():
