@@ -274,7 +274,11 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             + depot_sentence(result)
         )
     if result.supply_totals is not None:
-        body += "<h3>Totals per country</h3>" + table_html(
+        body += (
+            '<h3>Totals per country</h3><p class="note">"If it arrives": the sum of the '
+            'districts\' quantities; "expected": each quantity times its probability, summed '
+            "(what to stock when not every district will be reached).</p>"
+        ) + table_html(
             with_units(_by_country_label(result, result.supply_totals), item_units(result)),
             index="country",
         )
