@@ -196,7 +196,9 @@ def test_epi_curve_shades_delay_and_keeps_gaps():
     # those starting 12 and 19 October.
     assert pd.to_datetime(x0, unit="D") == pd.Timestamp("2026-10-12")
     assert pd.to_datetime(x1, unit="D") == pd.Timestamp("2026-10-26")
-    line = fig.axes[1].lines[0]
+    # Deaths share the cases' axis (no second scale to make them look larger than cases).
+    assert len(fig.axes) == 1
+    line = next(ln for ln in ax.lines if ln.get_label().startswith("deaths"))
     assert np.isnan(np.asarray(line.get_ydata(), dtype=float)).sum() == 1
     assert maps.CAUTION_LINE in _texts(fig)
 

@@ -50,8 +50,23 @@ _state: dict[str, int] = {"verbosity": 0}
 
 
 # --- error handling --------------------------------------------------------------------------
+class _Command(click.Command):
+    r"""A click command whose docstring may mark a verbatim block with a line ``\b``.
+
+    click wants the backspace character itself; our docstrings are raw strings (ruff D301), so
+    the two characters ``\`` ``b`` are turned into it here.
+    """
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        if self.help:
+            self.help = re.sub(r"(?m)^(\s*)\\b$", "\\1\b", self.help)
+
+
 class _Group(click.Group):
     """A click group that turns errors into exit codes with one-line messages."""
+
+    command_class = _Command
 
     def main(self, args: Any = None, prog_name: str | None = None, **extra: Any) -> Any:  # noqa: D102
         extra.pop("standalone_mode", None)
@@ -321,6 +336,7 @@ def backtest(ctx: click.Context, config: Path) -> None:
 def _run_and_write(
     ctx: click.Context, cfg: Any, month: str | None, out: Path | None, overwrite: bool, as_of: Any
 ) -> None:
+    _first_line(ctx, month)
     from .pack.bundle import check_destination, write_month
     from .pack.monthly import run_month
 
@@ -342,6 +358,37 @@ def _run_and_write(
     _summary(console, result, dest)
 
 
+def _stderr_is_terminal() -> bool:
+    return sys.stderr.isatty()
+
+
+def _first_line(ctx: click.Context, month: str | None) -> None:
+    """Say at once, on a terminal's stderr, that the run has started and roughly how long it takes.
+
+    The imports and the first step take several seconds before the step display can show
+    anything; without this line a fresh run looks like a hang. Only on a terminal, so that piped
+    stderr keeps its one-line-per-error contract.
+    """
+    if ctx.obj["verbosity"] < 0 or not _stderr_is_terminal():
+        return
+    what = f"month {month}" if month else "the latest month"
+    click.echo(
+        f"marchland: analysing {what} (loading libraries; the demo takes about a minute)...",
+        err=True,
+    )
+
+
+def _slowest(result: Any, dest: Path, n: int = 3) -> list[tuple[str, float]]:
+    """Return the slowest steps of the analysis and of the bundle writing (maps, atlas, ...)."""
+    import contextlib
+    import json
+
+    timings = dict(result.timings)
+    with contextlib.suppress(OSError, ValueError, KeyError, TypeError):
+        timings.update(json.loads((dest / "manifest.json").read_text())["timings_s"])
+    return sorted(timings.items(), key=lambda kv: -float(kv[1]))[:n]
+
+
 def _summary(console: Any, result: Any, dest: Path) -> None:
     from rich.markup import escape
 
@@ -361,10 +408,8 @@ def _summary(console: Any, result: Any, dest: Path) -> None:
     )
     total = sum(result.timings.values())
     console.print(
-        f"  analysis steps took {total:.1f} s; slowest: "
-        + ", ".join(
-            f"{k} {v:.1f} s" for k, v in sorted(result.timings.items(), key=lambda kv: -kv[1])[:3]
-        )
+        f"  analysis steps took {total:.1f} s; slowest steps (writing included): "
+        + ", ".join(f"{k} {float(v):.1f} s" for k, v in _slowest(result, dest))
     )
     for step, reason in result.absent.items():
         console.print(f"  [yellow]not computed[/yellow] {escape(str(step))}: {escape(str(reason))}")

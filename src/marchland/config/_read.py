@@ -22,6 +22,7 @@ from .schema import (
     EXTRA_FEATURES,
     FEATURES,
     LEVELS,
+    PAPER_SIZES,
     SAME_DAY_CONFLICTS,
     SECTIONS,
     SHAPES,
@@ -494,7 +495,8 @@ def _supplies(ctx: _Ctx, raw: Any) -> SuppliesConfig:
 
 
 def _output(ctx: _Ctx, raw: Any) -> OutputConfig:
-    return OutputConfig(**_table(ctx, "output", raw, {"dir": _dir_path}))
+    spec = {"dir": _dir_path, "paper": _one_of(tuple(PAPER_SIZES))}
+    return OutputConfig(**_table(ctx, "output", raw, spec))
 
 
 def from_dict(raw: dict, path: Path | None, base: Path) -> Config:

@@ -265,9 +265,14 @@ class SuppliesConfig:
 
 @dataclass(frozen=True)
 class OutputConfig:
-    """``[output]``: the folder monthly bundles go to (``DIR/YYYY-MM/``)."""
+    """``[output]``: the folder monthly bundles go to (``DIR/YYYY-MM/``), the atlas paper."""
 
     dir: Path = Path("out")
+    paper: str = "a4"  # every atlas page this size, landscape: one of PAPER_SIZES
+
+
+# Landscape page sizes in inches (ISO 216 A4: 297 x 210 mm; US Letter: 11 x 8.5 in).
+PAPER_SIZES = {"a4": (297 / 25.4, 210 / 25.4), "letter": (11.0, 8.5)}
 
 
 @dataclass(frozen=True)

@@ -17,6 +17,8 @@ _EXPORTS = {
     "risk_map": "maps",
     "priority_map": "maps",
     "save_figure": "maps",
+    "label_units": "labels",
+    "outline_units": "labels",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = exports(__name__, _EXPORTS)

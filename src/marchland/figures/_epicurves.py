@@ -129,38 +129,31 @@ def epi_curves(
         if "estimate" in df:
             _nowcast_marks(ax, weeks, df, week_days)
         ax.set_ylim(bottom=0)
-        ax2 = ax.twinx()
-        ax2.plot(
+        # Deaths on the cases' own axis: a second scale drew a handful of deaths above the bars.
+        ax.plot(
             weeks + pd.Timedelta(days=week_days / 2),
             deaths.to_numpy(),
             color=DEATH_LINE,
             linewidth=0.9,
             marker="o",
             markersize=1.6,
-            label="deaths (line, right axis)",
+            label="deaths (line, same scale as cases)",
         )
-        dmax = float(np.nanmax(deaths.to_numpy())) if deaths.notna().any() else 1.0
-        ax2.set_ylim(bottom=0, top=max(1.0, dmax) * 1.15)
+        ax.set_ylim(bottom=0)
         ax.set_xlim(lo, hi)
         ax.set_title(str(name), fontsize=8.5, loc="left", pad=3)
         ax.tick_params(labelsize=6.5)
-        ax2.tick_params(labelsize=6.5, colors=DEATH_LINE)
         if col == 0:
-            ax.set_ylabel("cases per week", fontsize=7)
-        if col == ncols - 1 or i == n - 1:
-            ax2.set_ylabel("deaths per week", fontsize=7, color=DEATH_LINE)
+            ax.set_ylabel("cases and deaths per week", fontsize=7)
         ax.xaxis.set_major_locator(mdates.AutoDateLocator(minticks=3, maxticks=5))
         ax.yaxis.set_major_locator(MaxNLocator(4, integer=True))
-        ax2.yaxis.set_major_locator(MaxNLocator(3, integer=True))
         ax.xaxis.set_major_formatter(mdates.DateFormatter("%b %Y"))
         ax.spines["top"].set_visible(False)
-        ax2.spines["top"].set_visible(False)
         if first:
             h1, l1 = ax.get_legend_handles_labels()
-            h2, l2 = ax2.get_legend_handles_labels()
             fig.legend(
-                h1 + h2,
-                l1 + l2,
+                h1,
+                l1,
                 loc="center left",
                 bbox_to_anchor=(0.01, 1 - 0.62 / height),
                 fontsize=7,

@@ -558,7 +558,7 @@ def priority_map(
     """
     fig, ax = _new_map(
         "Pre-positioning priorities",
-        f"{notes.region}: candidate districts ranked by expected need; depots "
+        f"{notes.region}: candidate districts ranked by probability of a first case; depots "
         "chosen to cover risk-weighted population",
     )
     _fill(ax, base, _priority_colours(rank))

@@ -59,6 +59,39 @@ def _month_label(month: str) -> str:
     return f"{pd.Period(month, freq='M'):%B %Y}"
 
 
+def _marks(fig: Any, base: Any, result: MonthResult, ids: Any, n: int = 8) -> Any:
+    """Name the units that matter on a map and outline the provinces reporting as a whole."""
+    from ..figures.labels import label_units, outline_units
+
+    units = result.units
+    whole = units.index[units["level"] == 1]
+    outline_units(fig, base, whole, label="province reporting as a whole")
+    names = units["name"].astype(str)
+    label_units(fig, base, {u: names[u] for u in list(ids)[:n] if u in names.index})
+    return fig
+
+
+def atlas_page(pdf: Any, fig: Any, paper: str) -> None:
+    """Write ``fig`` as one atlas page of the config's paper size, the figure centred on it.
+
+    The figure keeps its own layout (fonts stay at their point size); the page around it is
+    blank paper. A figure larger than the page is scaled down to fit.
+    """
+    from matplotlib.transforms import Bbox
+
+    from ..config.schema import PAPER_SIZES
+
+    pw, ph = PAPER_SIZES[paper]
+    w, h = fig.get_size_inches()
+    if w > pw or h > ph:
+        k = min(pw / w, ph / h)
+        fig.set_size_inches(w * k, h * k)
+        w, h = w * k, h * k
+    # A bounding box larger than the figure pads it to the page (vector output kept).
+    box = Bbox.from_bounds(-(pw - w) / 2, -(ph - h) / 2, pw, ph)
+    pdf.savefig(fig, bbox_inches=box, pad_inches=0)
+
+
 def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     """Yield ``(name, figure, caption)`` for every figure the result supports, in atlas order.
 
@@ -74,8 +107,14 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         rate = result.rates["month_rate"].where(result.rates["month_weeks_reported"] > 0)
         yield (
             "attack_rate",
-            maps.attack_rate_map(
-                base, rate, notes, bins=bins, period=month, subtitle=_rate_subtitle(result)
+            _marks(
+                maps.attack_rate_map(
+                    base, rate, notes, bins=bins, period=month, subtitle=_rate_subtitle(result)
+                ),
+                base,
+                result,
+                rate.dropna().sort_values(ascending=False).index,
+                n=6,
             ),
             f"Attack rate per 100,000 in {month}, from reported counts ({_coverage(result)}; "
             "the nowcast-adjusted rate is in the rates table). Classes (Fisher-Jenks on the "
@@ -94,17 +133,22 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         fdr = result.config.analysis.fdr
         yield (
             "hotspots",
-            maps.cluster_map(
+            _marks(
+                maps.cluster_map(
+                    base,
+                    hs["label"],
+                    result.cluster_colours,
+                    notes,
+                    legend=result.cluster_legend,
+                    always=result.cluster_significant,
+                    untested=_untested_labels(result),
+                    title=f"Hotspots, {month}",
+                    subtitle=f"{notes.region}: rate-adjusted local Moran's I; coloured where "
+                    f"the false discovery rate q < {fdr:g}",
+                ),
                 base,
-                hs["label"],
-                result.cluster_colours,
-                notes,
-                legend=result.cluster_legend,
-                always=result.cluster_significant,
-                untested=_untested_labels(result),
-                title=f"Hotspots, {month}",
-                subtitle=f"{notes.region}: rate-adjusted local Moran's I; coloured where the "
-                f"false discovery rate q < {fdr:g}",
+                result,
+                hs[hs["label"] == "High-High"].sort_values("q").index,
             ),
             "Clusters of the month's attack rate (empirical Bayes standardised local Moran's I, "
             f"{_draws_text(hs, result.config.analysis.permutations)}, two-sided, "
@@ -113,12 +157,17 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     if result.fronts is not None:
         yield (
             "arrival",
-            maps.arrival_map(
+            _marks(
+                maps.arrival_map(
+                    base,
+                    result.fronts["first_week"],
+                    notes,
+                    fronts=result.front_outlines,
+                    current=result.month,
+                ),
                 base,
-                result.fronts["first_week"],
-                notes,
-                fronts=result.front_outlines,
-                current=result.month,
+                result,
+                _new_this_month(result),
             ),
             "Quarter of the first reported case per unit; lines outline each month's newly "
             "affected area, this month's heavier.",
@@ -131,14 +180,19 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         silent = risk.index[risk["silent"].astype(bool)] if "silent" in risk else []
         yield (
             "border_risk",
-            maps.risk_map(
+            _marks(
+                maps.risk_map(
+                    base,
+                    risk["probability"],
+                    affected,
+                    notes,
+                    silent=silent,
+                    horizon_weeks=result.config.risk.horizon_weeks,
+                    side_note=backtest_note(result),
+                ),
                 base,
-                risk["probability"],
-                affected,
-                notes,
-                silent=silent,
-                horizon_weeks=result.config.risk.horizon_weeks,
-                side_note=backtest_note(result),
+                result,
+                risk.sort_values("rank").index,
             ),
             "Probability of a first case within the horizon for unaffected units within two "
             "graph steps of an affected one; the side panel gives the backtest.",
@@ -147,13 +201,18 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         depots = result.depots
         yield (
             "priorities",
-            maps.priority_map(
+            _marks(
+                maps.priority_map(
+                    base,
+                    result.priorities["rank"],
+                    notes,
+                    depots=depots,
+                    reach_km=result.config.supplies.reach_km,
+                    sites=result.depot_sites,
+                ),
                 base,
-                result.priorities["rank"],
-                notes,
-                depots=depots,
-                reach_km=result.config.supplies.reach_km,
-                sites=result.depot_sites,
+                result,
+                _priority_order(result),
             ),
             "Candidate districts ranked for pre-positioning, depots to open and their reach. "
             "Quantities use example planning values, not guidance.",
@@ -175,6 +234,24 @@ def _draws_text(hs, first: int) -> str:
         return f"{first:,} conditional permutations per unit"
     limit = f" (limit {cap:,})" if cap and cap > used else ""
     return f"{first:,} conditional permutations per unit, up to {used:,}{limit} where needed"
+
+
+def _new_this_month(result: MonthResult) -> pd.Index:
+    """Return the units whose first case fell in the month, earliest first."""
+    first = pd.to_datetime(result.fronts["first_week"])
+    from ..inputs.weeks import week_month
+
+    ok = first.notna()
+    months = pd.Series(pd.NaT, index=first.index, dtype=object)
+    months[ok] = week_month(first[ok]).astype(str)
+    return first[months == result.month].sort_values().index
+
+
+def _priority_order(result: MonthResult) -> list[str]:
+    """Return the first ranks, then the largest expected needs (probability x planning cases)."""
+    p = result.priorities
+    need = (p["probability"] * p["planning_cases"]).sort_values(ascending=False)
+    return list(dict.fromkeys([*p.sort_values("rank").index[:4], *need.index[:4]]))
 
 
 def _untested_labels(result: MonthResult) -> tuple[str, ...]:

@@ -17,6 +17,7 @@ import pandas as pd
 from .. import __version__
 from ..figures.maps import CAUTION_LINE
 from . import _webmap
+from ._briefing import glossary_section, month_definition
 from ._html import _fmt, _num, _section, _tile, esc
 from ._nowcastsection import coverage_note, nowcast_section
 from ._outlook import clusters_section, forecast_section
@@ -63,6 +64,26 @@ th{background:#f0ece1} td.n{text-align:right;font-variant-numeric:tabular-nums}
 footer{margin-top:2.5rem;font-size:.75rem;color:#77736a;border-top:1px solid #d8d2c2;
 padding-top:.5rem}
 @media print{.scroll{max-height:none;overflow:visible} body{background:#fff}}
+"""
+# Printing (or saving as PDF) must give every table whole: no scroll boxes, no clipped columns.
+_PRINT_CSS = """
+details.how{background:#f4f1e8;border:1px solid #e0dacb;padding:.3rem .8rem;margin:.5rem 0;
+font-size:.84rem} details.how summary{font-weight:bold;cursor:pointer}
+details.how ul{margin:.3rem 0;padding-left:1.2rem}
+dl.gloss{display:grid;grid-template-columns:12rem 1fr;gap:.2rem .8rem;font-size:.86rem}
+dl.gloss dt{font-weight:bold} dl.gloss dd{margin:0}
+@media print{
+@page{size:A4 landscape;margin:9mm}
+main{max-width:none;padding:0}
+nav.sub{display:none}
+table{display:table;width:100%;max-width:none;overflow:visible;font-size:6.4pt;
+table-layout:auto;page-break-inside:auto}
+thead{display:table-header-group} tr{break-inside:avoid}
+th,td{padding:1px 2px;overflow-wrap:break-word;white-space:normal;hyphens:none}
+td:first-child{white-space:normal}
+figure{break-inside:avoid} figure img{max-height:175mm;width:auto;max-width:100%;margin:0 auto}
+h2{break-after:avoid} h3{break-after:avoid}
+}
 """
 
 
@@ -127,12 +148,14 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         # The map's one inline script is allowed by its hash; nothing may connect anywhere.
         '<meta http-equiv="Content-Security-Policy" content="default-src \'none\'; '
         f"img-src data:; style-src 'unsafe-inline'; script-src {_webmap.script_hash()}\">",
-        f"<title>{esc(title)}</title><style>{_CSS}{_webmap.style()}</style></head><body><main>",
+        f"<title>{esc(title)}</title><style>{_CSS}{_webmap.style()}{_PRINT_CSS}</style>"
+        "</head><body><main>",
         f'<header class="top"><h1>{esc(title)}</h1>',
         f'<div class="sub">Data as received by {result.as_of:%Y-%m-%d} &middot; analysis '
         f"units: {len(result.units):,} &middot; seed {esc(result.seed)} &middot; made "
         f"{esc(created)} by marchland {esc(__version__)}</div></header>",
         f'<p class="caution">{esc(CAUTION_LINE)}</p>',
+        f'<p class="note">{month_definition(result)}</p>',
         _contents(
             [
                 ("headline", "Headline"),
@@ -148,6 +171,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
                 ("supplies", "Pre-positioning"),
                 ("data", "Data received"),
                 ("cautions", "Cautions"),
+                ("glossary", "Glossary"),
             ]
         ),
         _section("Headline", _headline(result), "headline"),
@@ -163,6 +187,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         _supplies_section(result, figures),
         _quality_section(result),
         _cautions(),
+        glossary_section(),
         f"<footer>marchland {esc(__version__)}. Inputs, their sha256, the config, package "
         "versions and step timings are in manifest.json beside this file; the tables are in "
         "tables/ and the layers in layers.gpkg.</footer>",

@@ -9,6 +9,7 @@ import pandas as pd
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
+from ._briefing import depot_sentence, how_to_read, item_units, priority_block, with_units
 from ._html import (
     CAUTIONS,
     _absent,
@@ -23,7 +24,7 @@ from ._nowcastsection import adjusted_rates_table, coverage_note
 
 
 def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    body = _absent(result, "rates") + coverage_note(result)
+    body = how_to_read("rates", result) + _absent(result, "rates") + coverage_note(result)
     body += _figure(figures, "attack_rate") + _figure(figures, "attack_rate_months")
     body += adjusted_rates_table(result)
     if result.rates_by_area is not None:
@@ -97,7 +98,8 @@ def _epi_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
 
 
 def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    body = _absent(result, "hotspots") + _figure(figures, "hotspots")
+    body = how_to_read("hotspots", result) + _absent(result, "hotspots")
+    body += _figure(figures, "hotspots")
     hs = result.hotspots
     if hs is not None:
         sig = hs[hs["label"].isin(result.cluster_significant)]
@@ -132,7 +134,7 @@ def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
 
 
 def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    body = _absent(result, "spread") + _figure(figures, "arrival")
+    body = how_to_read("spread", result) + _absent(result, "spread") + _figure(figures, "arrival")
     if result.velocity is not None:
         v = result.velocity
         body += "<h3>Speed of spread</h3>" + table_html(
@@ -183,7 +185,7 @@ def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
 
 
 def _risk_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    body = _absent(result, "border risk", "backtest")
+    body = how_to_read("risk", result) + _absent(result, "border risk", "backtest")
     side = "<h3>How far to trust it</h3>"
     bt = result.backtest
     if bt is not None:
@@ -217,10 +219,8 @@ def _risk_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             + (f" ({esc(detail)})" if detail else "")
             + ".</p>"
         )
-    body += (
-        f'<div class="pair"><div>{_figure(figures, "border_risk")}</div>'
-        f'<div class="side">{side}</div></div>'
-    )
+    body += f'{_figure(figures, "border_risk")}<div class="side">{side}</div>'
+
     if result.risk is not None:
         r = _names(result, result.risk)
         cols = {
@@ -261,69 +261,41 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     )
     body += _figure(figures, "priorities")
     if result.priorities is not None:
-        p = result.priorities
-        base_cols = [
-            "rank",
-            "name",
-            "country",
-            "probability",
-            "population",
-            "planning_cases_low",
-            "planning_cases",
-            "planning_cases_high",
-        ]
-        items = [c for c in p.columns if c not in [*base_cols, "cross_border", "silent", "drivers"]]
-        cols = {
-            "rank": "rank",
-            "name": "unit",
-            "country": "country",
-            "probability": "probability",
-            "population": "population",
-            "planning_cases": "planning cases",
-            "planning_cases_low": "low",
-            "planning_cases_high": "high",
-        }
-        cols.update({c: c for c in items})
-        body += (
-            "<h3>Priority list</h3>"
-            + '<div class="scroll">'
-            + table_html(
-                p,
-                cols,
-                index="unit_id",
-                kinds={
-                    "probability": "pct",
-                    "population": "int",
-                    "planning_cases": "int",
-                    "planning_cases_low": "int",
-                    "planning_cases_high": "int",
-                },
-            )
-            + "</div>"
-        )
+        body += "<h3>Priority list</h3>" + priority_block(result)
     if result.depots is not None:
         d = pd.DataFrame(result.depots.drop(columns="geometry"))
-        body += "<h3>Depots</h3>" + table_html(
-            d,
-            {
-                "name": "depot",
-                "existing": "existing",
-                "covered_units": "units covered",
-                "covered_population": "population covered",
-                "covered_weight": "risk-weighted population",
-            },
-            index="site",
-            kinds={"covered_population": "int", "covered_weight": "int"},
+        body += (
+            "<h3>Depots</h3>"
+            + table_html(
+                d,
+                {
+                    "name": "depot",
+                    "existing": "existing",
+                    "covered_units": "units covered",
+                    "covered_population": "population covered",
+                    "covered_weight": "risk-weighted population",
+                },
+                index="site",
+                kinds={"covered_population": "int", "covered_weight": "int"},
+            )
+            + depot_sentence(result)
         )
     if result.supply_totals is not None:
-        body += "<h3>Totals per country</h3>" + table_html(
-            _by_country_label(result, result.supply_totals), index="country"
+        body += (
+            '<h3>Totals per country</h3><p class="note">"If it arrives": the sum of the '
+            'districts\' quantities; "expected": each quantity times its probability, summed '
+            "(what to stock when not every district will be reached).</p>"
+        ) + table_html(
+            with_units(_by_country_label(result, result.supply_totals), item_units(result)),
+            index="country",
         )
     if result.supply_totals_by_depot is not None:
         body += (
             "<h3>Totals per depot catchment</h3><p>Each candidate district counted at its nearest "
             "open depot, whether or not it lies within reach.</p>"
-            + table_html(result.supply_totals_by_depot, index="depot")
+            + table_html(
+                with_units(result.supply_totals_by_depot, item_units(result)), index="depot"
+            )
         )
     return _section("Pre-positioning", body, "supplies")
 

@@ -438,7 +438,7 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
     from matplotlib.backends.backend_pdf import PdfPages
 
     from ..figures.maps import save_figure
-    from ._figures import cover_page, draw_figures
+    from ._figures import atlas_page, cover_page, draw_figures
 
     mdir = root / "maps"
     mdir.mkdir()
@@ -452,10 +452,12 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
         },
     ) as pdf:
         entries = list(draw_figures(result))
-        pdf.savefig(cover_page(result, [caption for _, _, caption in entries]))
+        paper = getattr(result.config.output, "paper", "a4")
+        atlas_page(pdf, cover_page(result, [caption for _, _, caption in entries]), paper)
         for name, fig, caption in entries:
             path = mdir / f"{name}.png"
-            save_figure(fig, path, pdf=pdf)
+            save_figure(fig, path)
+            atlas_page(pdf, fig, paper)
             figures[name] = {"path": path, "caption": caption}
     return figures
 

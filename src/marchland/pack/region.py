@@ -11,7 +11,7 @@ import os
 import warnings
 from dataclasses import dataclass
 from functools import cached_property
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
@@ -73,6 +73,119 @@ class Region:
             min_shared_m=g.min_shared_m,
             parents=self.all_units["parent_id"],
         )
+
+    @cached_property
+    def _risk_covariates(self) -> pd.DataFrame | None:
+        from ._steps import risk_covariates
+
+        return risk_covariates(self.config, self)
+
+    def as_of(self, month: str | pd.Period) -> pd.Timestamp:
+        """Return the date the monthly run reads a month's data as received by.
+
+        The month's last day plus the config's ``region.as_of_lag_days`` (what ``marchland
+        run`` uses without ``--as-of``).
+
+        Parameters
+        ----------
+        month : str or pandas.Period
+            ``YYYY-MM``.
+
+        Returns
+        -------
+        pandas.Timestamp
+
+        Examples
+        --------
+        >>> import warnings
+        >>> from marchland.demo import scenario_path
+        >>> with warnings.catch_warnings():
+        ...     warnings.simplefilter("ignore")
+        ...     region = open_region(scenario_path())
+        >>> region.as_of("2026-10")
+        Timestamp('2026-11-03 00:00:00')
+        """
+        from .monthly import default_as_of
+
+        return default_as_of(self.config, month)
+
+    def settings(self, function: str) -> dict[str, Any]:
+        """Return the config's keyword settings for an API function, as the monthly run uses them.
+
+        Spread them into the call (``ml.hotspots(cases, pop, region.graph,
+        **region.settings("hotspots"))``) and a notebook gets the report's numbers exactly:
+        same permutations, seed, false discovery rate, graph weighting, risk options and
+        covariates. The config is the one source of these settings.
+
+        Parameters
+        ----------
+        function : str
+            One of :data:`SETTINGS_FOR`.
+
+        Returns
+        -------
+        dict
+            Keyword arguments (a new dict each call).
+
+        Raises
+        ------
+        ValueError
+            An unknown function name (the message lists the known ones).
+
+        Examples
+        --------
+        >>> import warnings
+        >>> from marchland.demo import scenario_path
+        >>> with warnings.catch_warnings():
+        ...     warnings.simplefilter("ignore")
+        ...     region = open_region(scenario_path())
+        >>> sorted(region.settings("hotspots"))
+        ['fdr', 'permutations', 'seed', 'weighting']
+        """
+        from ._steps import risk_options
+
+        cfg = self.config
+        a = cfg.analysis
+        seed = cfg.region.seed
+        if function not in SETTINGS_FOR:
+            raise ValueError(
+                f"'function' needs to be one of {sorted(SETTINGS_FOR)}; {function!r} was given "
+                "instead."
+            )
+        if function in ("hotspots", "global_moran_rate", "local_moran"):
+            return {
+                "permutations": a.permutations,
+                "seed": seed,
+                "fdr": a.fdr,
+                "weighting": cfg.graph.weighting,
+            }
+        if function == "getis_ord":
+            return {"permutations": a.permutations, "seed": seed, "fdr": a.fdr}
+        if function == "window_counts":
+            return {"windows_weeks": tuple(a.windows_weeks), "units": self.units.index}
+        if function == "spread_velocity":
+            return {"seed": seed}
+        if function == "border_risk":
+            return {
+                "silent_weeks": cfg.risk.silent_weeks,
+                "covariates": self._risk_covariates,
+                **risk_options(cfg.risk),
+            }
+        # choose_depots
+        return {"k": cfg.supplies.k, "reach_km": cfg.supplies.reach_km, "units": self.units}
+
+
+# The API functions whose settings come from the config (Region.settings).
+SETTINGS_FOR = (
+    "border_risk",
+    "choose_depots",
+    "getis_ord",
+    "global_moran_rate",
+    "hotspots",
+    "local_moran",
+    "spread_velocity",
+    "window_counts",
+)
 
 
 def _population(cfg: Config, units: gpd.GeoDataFrame) -> pd.Series:
