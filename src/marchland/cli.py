@@ -107,6 +107,42 @@ _overwrite_opt = click.option(
     help="Replace an existing bundle for the month (the old one stays until the new one is "
     "complete).",
 )
+_scheduler_opt = click.option(
+    "--scheduler",
+    metavar="ADDRESS",
+    default=None,
+    help="Run the parallel steps on this running Dask scheduler, e.g. tcp://host:8786 "
+    "(overrides [compute] scheduler).",
+)
+_workers_opt = click.option(
+    "--workers",
+    type=click.IntRange(min=1),
+    default=None,
+    help="Local worker processes when no scheduler is used (overrides [compute] workers; "
+    "1: none).",
+)
+
+
+def _with_compute(cfg: Any, scheduler: str | None, workers: int | None) -> Any:
+    """The config with the command line's compute settings on top of its [compute] table."""
+    if scheduler is None and workers is None:
+        return cfg
+    import dataclasses
+
+    from .compute import SCHEDULER_PATTERN
+
+    if scheduler is not None and not SCHEDULER_PATTERN.match(scheduler):
+        raise click.BadParameter(
+            f"needs a Dask scheduler address such as tcp://host:8786; {scheduler!r} was given",
+            param_hint="--scheduler",
+        )
+    c = cfg.compute
+    c = dataclasses.replace(
+        c,
+        scheduler=scheduler if scheduler is not None else c.scheduler,
+        workers=workers if workers is not None else c.workers,
+    )
+    return dataclasses.replace(cfg, compute=c)
 
 
 def _month(ctx: click.Context, param: click.Parameter, value: str | None) -> str | None:
@@ -204,9 +240,18 @@ def check(ctx: click.Context, config: Path) -> None:
     help="Use the data as received by this date. Default: end of the month plus the config's "
     "as_of_lag_days.",
 )
+@_scheduler_opt
+@_workers_opt
 @click.pass_context
 def run(
-    ctx: click.Context, config: Path, month: str, out: Path | None, overwrite: bool, as_of: Any
+    ctx: click.Context,
+    config: Path,
+    month: str,
+    out: Path | None,
+    overwrite: bool,
+    as_of: Any,
+    scheduler: str | None,
+    workers: int | None,
 ) -> None:
     r"""Run rates, hotspots, spread, border risk and supplies for one month of CONFIG.
 
@@ -216,16 +261,25 @@ def run(
 
     \b
     $ marchland run demo_data/scenario.toml --month 2026-10 --out out
+    $ marchland run demo_data/scenario.toml --month 2026-10 --scheduler tcp://10.0.0.5:8786
     """
-    cfg = _load(config)
+    cfg = _with_compute(_load(config), scheduler, workers)
     _run_and_write(ctx, cfg, month, out, overwrite, as_of)
 
 
 @cli.command(short_help="Run the bundled fictional scenario for its latest month.")
 @_out_opt
 @_overwrite_opt
+@_scheduler_opt
+@_workers_opt
 @click.pass_context
-def demo(ctx: click.Context, out: Path | None, overwrite: bool) -> None:
+def demo(
+    ctx: click.Context,
+    out: Path | None,
+    overwrite: bool,
+    scheduler: str | None,
+    workers: int | None,
+) -> None:
     r"""Run the monthly analysis on the bundled fictional Senn basin scenario.
 
     The month is the one of the latest reported week (2026-10 in the shipped scenario).
@@ -235,14 +289,18 @@ def demo(ctx: click.Context, out: Path | None, overwrite: bool) -> None:
     """
     from .demo import scenario_path
 
-    cfg = _load(scenario_path())
+    cfg = _with_compute(_load(scenario_path()), scheduler, workers)
     _run_and_write(ctx, cfg, None, out if out is not None else Path("out"), overwrite, None)
 
 
 @cli.command(short_help="How well the border-risk score would have done in past weeks.")
 @_config_arg
+@_scheduler_opt
+@_workers_opt
 @click.pass_context
-def backtest(ctx: click.Context, config: Path) -> None:
+def backtest(
+    ctx: click.Context, config: Path, scheduler: str | None, workers: int | None
+) -> None:
     r"""Rolling-origin backtest of the border-risk score of CONFIG against simple baselines.
 
     Prints AUC, Brier score and hits in the top k for the score and for two baselines
@@ -254,7 +312,7 @@ def backtest(ctx: click.Context, config: Path) -> None:
     from .pack.monthly import backtest_table
 
     console = _console(ctx)
-    cfg = _load(config)
+    cfg = _with_compute(_load(config), scheduler, workers)
     with _spinner(console, "backtest: fitting and scoring past origins"):
         summary, by_country = backtest_table(cfg)
     k = cfg.risk.top_k

@@ -199,7 +199,9 @@ def _write_all(result: MonthResult, root: Path) -> None:
     timed("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg"))
     figures = timed("bundle: maps", lambda: _write_figures(result, root))
     timed("bundle: report", lambda: _write_report(result, root, figures, tables))
-    _write_manifest(result, root, timings)
+    # The manifest times itself up to its own writing (hashing every file is most of it).
+    t0 = time.perf_counter()
+    _write_manifest(result, root, timings, started=t0)
 
 
 def _flat(df: pd.DataFrame) -> pd.DataFrame:
@@ -352,11 +354,16 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
             "CreationDate": None,
         },
     ) as pdf:
+        # The figures share the base map's Paths, so holding them all until the cover page
+        # (which lists every caption) is cheap; each is emptied once saved, so only one
+        # rendering's buffers are alive at a time.
         entries = list(draw_figures(result))
         pdf.savefig(cover_page(result, [caption for _, _, caption in entries]))
-        for name, fig, caption in entries:
+        for i, (name, fig, caption) in enumerate(entries):
             path = mdir / f"{name}.png"
             save_figure(fig, path, pdf=pdf)
+            fig.clear()
+            entries[i] = (name, None, caption)
             figures[name] = {"path": path, "caption": caption}
     return figures
 
@@ -439,7 +446,13 @@ def _versions() -> dict[str, str]:
     return out
 
 
-def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str, float]) -> None:
+def _write_manifest(
+    result: MonthResult,
+    root: Path,
+    bundle_timings: Mapping[str, float],
+    *,
+    started: float | None = None,
+) -> None:
     cfg = result.config
     base = cfg.base_dir
     inputs = [
@@ -467,7 +480,15 @@ def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str
         "inputs": inputs,
         "versions": _versions(),
         "accounting": _jsonable(result.accounting),
-        "timings_s": {**result.timings, **bundle_timings},
+        "timings_s": {
+            **result.timings,
+            **bundle_timings,
+            **(
+                {}
+                if started is None
+                else {"bundle: manifest": round(time.perf_counter() - started, 3)}
+            ),
+        },
         "steps_not_run": dict(result.absent),
         "warnings": list(result.warnings),
         "files": files,
