@@ -118,13 +118,12 @@ _workers_opt = click.option(
     "--workers",
     type=click.IntRange(min=1),
     default=None,
-    help="Local worker processes when no scheduler is used (overrides [compute] workers; "
-    "1: none).",
+    help="Local worker processes when no scheduler is used (overrides [compute] workers; 1: none).",
 )
 
 
 def _with_compute(cfg: Any, scheduler: str | None, workers: int | None) -> Any:
-    """The config with the command line's compute settings on top of its [compute] table."""
+    """Return the config with the command line's compute settings over its [compute] table."""
     if scheduler is None and workers is None:
         return cfg
     import dataclasses
@@ -298,9 +297,7 @@ def demo(
 @_scheduler_opt
 @_workers_opt
 @click.pass_context
-def backtest(
-    ctx: click.Context, config: Path, scheduler: str | None, workers: int | None
-) -> None:
+def backtest(ctx: click.Context, config: Path, scheduler: str | None, workers: int | None) -> None:
     r"""Rolling-origin backtest of the border-risk score of CONFIG against simple baselines.
 
     Prints AUC, Brier score and hits in the top k for the score and for two baselines

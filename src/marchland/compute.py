@@ -33,8 +33,9 @@ from .errors import InputError
 
 __all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor"]
 
-#: Accepted scheduler addresses: a Dask comm protocol, a host and an optional port.
-SCHEDULER_PATTERN = re.compile(r"^(tcp|tls|inproc|ucx|ws|wss)://[^\s/:]+(:\d{1,5})?/?$")
+#: Accepted scheduler addresses: a Dask network protocol, a host and an optional port (or an
+#: in-process ``inproc://`` address, as a ``LocalCluster(processes=False)`` has).
+SCHEDULER_PATTERN = re.compile(r"^((tcp|tls|ucx|ws|wss)://[^\s/:]+(:\d{1,5})?/?|inproc://\S+)$")
 
 
 def default_workers() -> int:

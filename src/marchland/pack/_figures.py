@@ -327,8 +327,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
                 ncols=3,
                 week_days=week_days,
             ),
-            f"Weekly reported cases and deaths per province of {label(country)}{extra}; "
-            f"{shaded}.",
+            f"Weekly reported cases and deaths per province of {label(country)}{extra}; {shaded}.",
         )
 
 
@@ -338,7 +337,7 @@ MAX_PROVINCE_PANELS = 12
 
 
 def _most_cases(ids: list[str], per_prov: dict[str, pd.DataFrame], k: int) -> list[str]:
-    """The ``k`` provinces with the most cases (ties by id), in id order."""
+    """Return the ``k`` provinces with the most cases (ties by id), in id order."""
     if len(ids) <= k:
         return ids
     total = pd.Series({p: float(np.nansum(per_prov[p]["cases"].to_numpy())) for p in ids})

@@ -381,6 +381,7 @@ def run_month(
         as_of_ts = pd.Timestamp(as_of) if as_of is not None else default_as_of(cfg, period)
         fields: dict[str, Any] = {}
         fields.update(run("graph", lambda: _graph_fields(region)))
+
         # The as-of views and the risk covariates (zonal means of rasters) are a step of their
         # own, so the manifest's step times add up to the run.
         def set_up() -> _Context:
