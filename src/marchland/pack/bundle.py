@@ -4,6 +4,7 @@
 
     layers.gpkg      one layer per result: units rates hotspots spread fronts risk priorities
                      depots edges (those that were computed)
+    layers/*.parquet the same layers as GeoParquet, one file each
     tables/*.csv     every table of the run, sorted by unit id (or area), same bytes for the
                      same inputs and seed
     maps/*.png       the maps and epi curves at 200 dpi
@@ -335,6 +336,11 @@ def _write_layers(result: MonthResult, path: Path) -> None:
         attrs = attrs if isinstance(attrs.index, pd.RangeIndex) else attrs.reset_index()
         gdf = gpd.GeoDataFrame(attrs, geometry=geo.to_numpy(), crs=layer.crs)
         gdf.to_file(path, layer=name, driver="GPKG", engine="pyogrio")
+        # The same layer as GeoParquet (one file per layer): what columnar tools and cloud
+        # stores read quickest.
+        pq = path.parent / "layers"
+        pq.mkdir(exist_ok=True)
+        gdf.to_parquet(pq / f"{name}.parquet", index=False)
 
 
 def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:

@@ -40,6 +40,7 @@ Progress = Callable[[str, str, float | None], None]
 STEPS = (
     "read inputs",
     "graph",
+    "set-up",
     "rates",
     "hotspots",
     "spread",
