@@ -200,9 +200,7 @@ def _write_all(result: MonthResult, root: Path) -> None:
     timed("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg"))
     figures = timed("bundle: maps", lambda: _write_figures(result, root))
     timed("bundle: report", lambda: _write_report(result, root, figures, tables))
-    # The manifest times itself up to its own writing (hashing every file is most of it).
-    t0 = time.perf_counter()
-    _write_manifest(result, root, timings, started=t0)
+    _write_manifest(result, root, timings)
 
 
 def _flat(df: pd.DataFrame) -> pd.DataFrame:
@@ -452,13 +450,9 @@ def _versions() -> dict[str, str]:
     return out
 
 
-def _write_manifest(
-    result: MonthResult,
-    root: Path,
-    bundle_timings: Mapping[str, float],
-    *,
-    started: float | None = None,
-) -> None:
+def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str, float]) -> None:
+    # The manifest times itself up to its own writing (hashing every file is most of it).
+    started = time.perf_counter()
     cfg = result.config
     base = cfg.base_dir
     inputs = [
@@ -489,11 +483,7 @@ def _write_manifest(
         "timings_s": {
             **result.timings,
             **bundle_timings,
-            **(
-                {}
-                if started is None
-                else {"bundle: manifest": round(time.perf_counter() - started, 3)}
-            ),
+            "bundle: manifest": round(time.perf_counter() - started, 3),
         },
         "steps_not_run": dict(result.absent),
         "warnings": list(result.warnings),
