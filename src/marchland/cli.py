@@ -342,7 +342,7 @@ def _run_and_write(
         result = run_month(cfg, month, as_of=as_of, progress=steps, on_month=refuse_early)
         steps("write bundle", "start", None)
         t0 = time.perf_counter()
-        dest = write_month(result, out_dir, overwrite=overwrite)
+        dest = write_month(result, out_dir, overwrite=overwrite, progress=steps.count)
         steps("write bundle", "done", time.perf_counter() - t0)
     _summary(console, result, dest)
 
@@ -412,6 +412,8 @@ class _StepDisplay:
     def __init__(self, console: Any, cfg: Any = None) -> None:
         self.console = console
         self._status = None
+        self._bar: Any = None
+        self._task: Any = None
         a = getattr(cfg, "analysis", None)
         perms = getattr(a, "permutations", None)
         # What each long step is busy with, so a quiet minute does not look like a hang.
@@ -430,6 +432,33 @@ class _StepDisplay:
         if self._status is not None:
             self._status.stop()
             self._status = None
+        if self._bar is not None:
+            self._bar.stop()
+            self._bar = None
+
+    def count(self, task: str, done: int, total: int) -> None:
+        """Show ``done`` of ``total`` on a rich progress bar (terminal only)."""
+        if not self.console.is_terminal:
+            return
+        if self._bar is None:
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
+
+            if self._status is not None:  # one live display at a time
+                self._status.stop()
+                self._status = None
+            self._bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                console=self.console,
+                transient=True,
+            )
+            self._bar.start()
+            self._task = self._bar.add_task(task, total=total)
+        self._bar.update(self._task, completed=done, total=total, description=task)
+        if done >= total:
+            self._bar.stop()
+            self._bar = None
 
     def __call__(self, step: str, status: str, seconds: float | None) -> None:
         if status == "start":

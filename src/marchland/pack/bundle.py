@@ -104,7 +104,11 @@ def check_destination(out_dir: str | os.PathLike[str], month: str, *, overwrite:
 
 
 def write_month(
-    result: MonthResult, out_dir: str | os.PathLike[str], *, overwrite: bool = False
+    result: MonthResult,
+    out_dir: str | os.PathLike[str],
+    *,
+    overwrite: bool = False,
+    progress: Callable[[str, int, int], None] | None = None,
 ) -> Path:
     """Write the month's bundle atomically and return its folder.
 
@@ -116,6 +120,9 @@ def write_month(
         The bundle goes to ``out_dir / result.month``; the folder is made if missing.
     overwrite : bool
         Replace an existing bundle of the same month (only once the new one is complete).
+    progress : callable, optional
+        Called as ``progress(task, done, total)`` while the figures are drawn (the long part),
+        e.g. to show a progress bar.
 
     Returns
     -------
@@ -144,7 +151,7 @@ def write_month(
     _remove_stale(out, result.month)
     tmp = Path(tempfile.mkdtemp(prefix=f".{result.month}{_PARTIAL}{os.getpid()}-", dir=out))
     try:
-        _write_all(result, tmp)
+        _write_all(result, tmp, progress)
         os.chmod(tmp, 0o755)  # mkdtemp makes it private; a bundle is meant to be shared
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
@@ -187,7 +194,9 @@ def _alive(pid: int) -> bool:
 
 
 # --- the writing, step by step ----------------------------------------------------------------
-def _write_all(result: MonthResult, root: Path) -> None:
+def _write_all(
+    result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None = None
+) -> None:
     timings: dict[str, float] = {}
 
     def timed(name: str, fn: Callable[[], Any]) -> Any:
@@ -198,7 +207,8 @@ def _write_all(result: MonthResult, root: Path) -> None:
 
     tables = timed("bundle: tables", lambda: _write_tables(result, root))
     timed("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg"))
-    figures = timed("bundle: maps", lambda: _write_figures(result, root))
+    kw = {} if progress is None else {"progress": progress}
+    figures = timed("bundle: maps", lambda: _write_figures(result, root, **kw))
     timed("bundle: report", lambda: _write_report(result, root, figures, tables))
     _write_manifest(result, root, timings)
 
@@ -341,7 +351,9 @@ def _write_layers(result: MonthResult, path: Path) -> None:
         gdf.to_parquet(pq / f"{name}.parquet", index=False)
 
 
-def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:
+def _write_figures(
+    result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None = None
+) -> dict[str, dict[str, Any]]:
     from matplotlib.backends.backend_pdf import PdfPages
 
     from ..figures.maps import save_figure
@@ -369,6 +381,8 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
             fig.clear()
             entries[i] = (name, None, caption)
             figures[name] = {"path": path, "caption": caption}
+            if progress is not None:
+                progress("maps and atlas pages", i + 1, len(entries))
     return figures
 
 
