@@ -15,7 +15,9 @@ import hashlib
 import json
 import os
 import re
+import time
 
+import geopandas as gpd
 import pandas as pd
 import pyogrio
 import pytest
@@ -119,6 +121,24 @@ def test_bundle_has_every_part(written, result):
     assert risk["unit_id"].tolist() == result.risk.index.tolist()  # in rank order
     edges = pyogrio.read_dataframe(written / "layers.gpkg", layer="edges")
     assert "index" not in edges.columns and len(edges) > 0
+    # Every GeoPackage layer also as GeoParquet, with the same rows, columns and geometry.
+    assert {p.stem for p in (written / "layers").glob("*.parquet")} == layers
+    for name in ("rates", "risk", "edges"):
+        gpkg = pyogrio.read_dataframe(written / "layers.gpkg", layer=name)
+        pq = gpd.read_parquet(written / "layers" / f"{name}.parquet")
+        assert list(pq.columns) == list(gpkg.columns) and pq.crs == gpkg.crs
+        assert pq.geometry.geom_equals_exact(gpkg.geometry, tolerance=1e-6).all()
+
+
+def test_step_timings_add_up_to_the_run(world, tmp_path):
+    # Every stretch of run_month + write_month is inside one timed step: what is left over is
+    # bookkeeping between steps (a loose 25% bound: a shared machine stalls at random).
+    t0 = time.perf_counter()
+    res = _run(world)
+    dest = bundle.write_month(res, tmp_path)
+    wall = time.perf_counter() - t0
+    total = sum(json.loads((dest / "manifest.json").read_text())["timings_s"].values())
+    assert 0.75 * wall <= total <= wall
 
 
 def test_rejects_csv_holds_every_reject(written, result):
@@ -138,7 +158,7 @@ def test_manifest_records_inputs_versions_timings(written, result):
         assert item["sha256"] == hashlib.sha256(path.read_bytes()).hexdigest()
     for step in monthly.STEPS:
         assert step in m["timings_s"], step
-    assert {"bundle: maps", "bundle: report"} <= set(m["timings_s"])
+    assert {"bundle: maps", "bundle: report", "bundle: manifest"} <= set(m["timings_s"])
     assert {"numpy", "pandas", "geopandas", "matplotlib", "python"} <= set(m["versions"])
     assert m["config"]["settings"]["analysis"]["permutations"] == 99
     assert m["accounting"][0]["rows_in"] == m["accounting"][0]["counted"] + 2

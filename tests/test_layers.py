@@ -42,7 +42,7 @@ def _write_config(path: Path, root: str) -> Path:
 def test_every_stage_is_a_layer():
     layers = {name for c in _contracts()["contracts"] for name in c.get("layers", [])}
     stages = {f"marchland.{p.name}" for p in SOURCE.iterdir() if (p / "__init__.py").exists()}
-    stages |= {"marchland.errors", "marchland.cli"}
+    stages |= {"marchland.errors", "marchland.compute", "marchland.cli"}
     assert stages == layers
 
 

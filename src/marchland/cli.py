@@ -130,6 +130,41 @@ _overwrite_opt = click.option(
     help="Replace an existing bundle for the month (the old one stays until the new one is "
     "complete).",
 )
+_scheduler_opt = click.option(
+    "--scheduler",
+    metavar="ADDRESS",
+    default=None,
+    help="Run the parallel steps on this running Dask scheduler, e.g. tcp://host:8786 "
+    "(overrides [compute] scheduler).",
+)
+_workers_opt = click.option(
+    "--workers",
+    type=click.IntRange(min=1),
+    default=None,
+    help="Local worker processes when no scheduler is used (overrides [compute] workers; 1: none).",
+)
+
+
+def _with_compute(cfg: Any, scheduler: str | None, workers: int | None) -> Any:
+    """Return the config with the command line's compute settings over its [compute] table."""
+    if scheduler is None and workers is None:
+        return cfg
+    import dataclasses
+
+    from .compute import SCHEDULER_PATTERN
+
+    if scheduler is not None and not SCHEDULER_PATTERN.match(scheduler):
+        raise click.BadParameter(
+            f"needs a Dask scheduler address such as tcp://host:8786; {scheduler!r} was given",
+            param_hint="--scheduler",
+        )
+    c = cfg.compute
+    c = dataclasses.replace(
+        c,
+        scheduler=scheduler if scheduler is not None else c.scheduler,
+        workers=workers if workers is not None else c.workers,
+    )
+    return dataclasses.replace(cfg, compute=c)
 
 
 def _month(ctx: click.Context, param: click.Parameter, value: str | None) -> str | None:
@@ -239,6 +274,8 @@ def check(ctx: click.Context, config: Path) -> None:
     help="Use the data as received by this date. Default: end of the month plus the config's "
     "as_of_lag_days.",
 )
+@_scheduler_opt
+@_workers_opt
 @click.pass_context
 def run(
     ctx: click.Context,
@@ -248,6 +285,8 @@ def run(
     out: Path | None,
     overwrite: bool,
     as_of: Any,
+    scheduler: str | None,
+    workers: int | None,
 ) -> None:
     r"""Run rates, hotspots, spread, border risk and supplies for one month of CONFIG.
 
@@ -258,12 +297,14 @@ def run(
     \b
     $ marchland run demo_data/scenario.toml --month 2026-10 --out out
     $ marchland run demo_data/scenario.toml --week 2026-W42 --out out
+
+    $ marchland run demo_data/scenario.toml --month 2026-10 --scheduler tcp://10.0.0.5:8786
     """
     if (month is None) == (week is None):
         raise click.UsageError("give exactly one of --month YYYY-MM or --week YYYY-Www.")
     if week is not None and as_of is not None:
         raise click.UsageError("--as-of applies to --month only; a week is read as of its end.")
-    cfg = _load(config)
+    cfg = _with_compute(_load(config), scheduler, workers)
     if week is not None:
         _week_and_write(ctx, cfg, week, out, overwrite)
         return
@@ -289,8 +330,16 @@ def _week_and_write(ctx: click.Context, cfg: Any, week: str, out: Path | None, o
 @cli.command(short_help="Run the bundled fictional scenario for its latest month.")
 @_out_opt
 @_overwrite_opt
+@_scheduler_opt
+@_workers_opt
 @click.pass_context
-def demo(ctx: click.Context, out: Path | None, overwrite: bool) -> None:
+def demo(
+    ctx: click.Context,
+    out: Path | None,
+    overwrite: bool,
+    scheduler: str | None,
+    workers: int | None,
+) -> None:
     r"""Run the monthly analysis on the bundled fictional Senn basin scenario.
 
     The month is the one of the latest reported week (2026-10 in the shipped scenario).
@@ -300,14 +349,16 @@ def demo(ctx: click.Context, out: Path | None, overwrite: bool) -> None:
     """
     from .demo import scenario_path
 
-    cfg = _load(scenario_path())
+    cfg = _with_compute(_load(scenario_path()), scheduler, workers)
     _run_and_write(ctx, cfg, None, out if out is not None else Path("out"), overwrite, None)
 
 
 @cli.command(short_help="How well the border-risk score would have done in past weeks.")
 @_config_arg
+@_scheduler_opt
+@_workers_opt
 @click.pass_context
-def backtest(ctx: click.Context, config: Path) -> None:
+def backtest(ctx: click.Context, config: Path, scheduler: str | None, workers: int | None) -> None:
     r"""Rolling-origin backtest of the border-risk score of CONFIG against simple baselines.
 
     Prints AUC, Brier score and hits in the top k for the score and for two baselines
@@ -319,7 +370,7 @@ def backtest(ctx: click.Context, config: Path) -> None:
     from .pack.monthly import backtest_table
 
     console = _console(ctx)
-    cfg = _load(config)
+    cfg = _with_compute(_load(config), scheduler, workers)
     with _spinner(console, "backtest: fitting and scoring past origins"):
         summary, by_country = backtest_table(cfg)
     k = cfg.risk.top_k
@@ -353,7 +404,7 @@ def _run_and_write(
         result = run_month(cfg, month, as_of=as_of, progress=steps, on_month=refuse_early)
         steps("write bundle", "start", None)
         t0 = time.perf_counter()
-        dest = write_month(result, out_dir, overwrite=overwrite)
+        dest = write_month(result, out_dir, overwrite=overwrite, progress=steps.count)
         steps("write bundle", "done", time.perf_counter() - t0)
     _summary(console, result, dest)
 
@@ -457,6 +508,8 @@ class _StepDisplay:
     def __init__(self, console: Any, cfg: Any = None) -> None:
         self.console = console
         self._status = None
+        self._bar: Any = None
+        self._task: Any = None
         a = getattr(cfg, "analysis", None)
         perms = getattr(a, "permutations", None)
         # What each long step is busy with, so a quiet minute does not look like a hang.
@@ -475,6 +528,33 @@ class _StepDisplay:
         if self._status is not None:
             self._status.stop()
             self._status = None
+        if self._bar is not None:
+            self._bar.stop()
+            self._bar = None
+
+    def count(self, task: str, done: int, total: int) -> None:
+        """Show ``done`` of ``total`` on a rich progress bar (terminal only)."""
+        if not self.console.is_terminal:
+            return
+        if self._bar is None:
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
+
+            if self._status is not None:  # one live display at a time
+                self._status.stop()
+                self._status = None
+            self._bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                console=self.console,
+                transient=True,
+            )
+            self._bar.start()
+            self._task = self._bar.add_task(task, total=total)
+        self._bar.update(self._task, completed=done, total=total, description=task)
+        if done >= total:
+            self._bar.stop()
+            self._bar = None
 
     def __call__(self, step: str, status: str, seconds: float | None) -> None:
         if status == "start":

@@ -26,6 +26,7 @@ _EXPORTS = {
     "PlanningRates": "schema",
     "SuppliesConfig": "schema",
     "OutputConfig": "schema",
+    "ComputeConfig": "schema",
 }
 __all__ = list(_EXPORTS)
 __getattr__, __dir__ = exports(__name__, _EXPORTS)

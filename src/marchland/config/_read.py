@@ -33,6 +33,7 @@ from .schema import (
     AnalysisConfig,
     BoundarySource,
     ChecksConfig,
+    ComputeConfig,
     Config,
     GraphConfig,
     MatchingConfig,
@@ -499,6 +500,21 @@ def _output(ctx: _Ctx, raw: Any) -> OutputConfig:
     return OutputConfig(**_table(ctx, "output", raw, spec))
 
 
+def _scheduler(ctx: _Ctx, key: str, v: Any) -> str:
+    # The pattern lives with the executor (marchland.compute, below config in the layering).
+    from ..compute import SCHEDULER_PATTERN
+
+    s = _str(ctx, key, v)
+    if not SCHEDULER_PATTERN.match(s):
+        raise ctx.error(key, "needs a Dask scheduler address such as 'tcp://host:8786'.", value=v)
+    return s
+
+
+def _compute(ctx: _Ctx, raw: Any) -> ComputeConfig:
+    spec = {"scheduler": _scheduler, "workers": _pos_int}
+    return ComputeConfig(**_table(ctx, "compute", raw, spec))
+
+
 def from_dict(raw: dict, path: Path | None, base: Path) -> Config:
     ctx = _Ctx(path, base)
     unknown = [k for k in raw if k not in SECTIONS]
@@ -544,4 +560,5 @@ def from_dict(raw: dict, path: Path | None, base: Path) -> Config:
         risk=_risk(ctx, raw.get("risk")),
         supplies=_supplies(ctx, raw.get("supplies")),
         output=_output(ctx, raw.get("output", {"dir": "out"})),
+        compute=_compute(ctx, raw.get("compute")),
     )

@@ -36,6 +36,7 @@ SECTIONS = (
     "risk",
     "supplies",
     "output",
+    "compute",
 )
 
 
@@ -276,6 +277,18 @@ PAPER_SIZES = {"a4": (297 / 25.4, 210 / 25.4), "letter": (11.0, 8.5)}
 
 
 @dataclass(frozen=True)
+class ComputeConfig:
+    """``[compute]``: where parallel steps run (see :mod:`marchland.compute`).
+
+    ``scheduler`` is the address of a running Dask scheduler (``tcp://host:8786``); ``None``
+    runs on this machine with ``workers`` processes (``None``: one per CPU this process may use).
+    """
+
+    scheduler: str | None = None
+    workers: int | None = None
+
+
+@dataclass(frozen=True)
 class Config:
     """A whole validated configuration; ``path`` is the TOML file it came from."""
 
@@ -291,6 +304,7 @@ class Config:
     risk: RiskConfig
     supplies: SuppliesConfig
     output: OutputConfig
+    compute: ComputeConfig = field(default_factory=ComputeConfig)
 
     @property
     def base_dir(self) -> Path:

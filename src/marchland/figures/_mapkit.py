@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 import textwrap
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import geopandas as gpd
 import matplotlib.colors as mcolors
@@ -19,10 +19,12 @@ import numpy as np
 import pandas as pd
 import shapely
 from matplotlib.axes import Axes
+from matplotlib.collections import PatchCollection
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import FancyArrow, Patch, Rectangle
+from matplotlib.path import Path as MplPath
 from matplotlib.text import Text
 
 CAUTION_LINE = (
@@ -58,6 +60,7 @@ DEATH_LINE = "#2a2118"
 DELAY_SHADE = "#d9d2c3"
 
 DPI = 200
+_LEGIBLE_PT = 4.0  # median unit extent on the page (points, ~1.4 mm) below which no district edge
 _MAP_SIZE = (8.6, 7.0)  # inches: A4-ish landscape for the atlas
 _MAP_AX = (0.02, 0.13, 0.68, 0.76)  # left, bottom, width, height of the map frame
 _LEGEND_X = 0.72
@@ -98,6 +101,49 @@ class BaseMap:
     units: gpd.GeoDataFrame
     countries: gpd.GeoDataFrame
     bounds: tuple[float, float, float, float]
+    # One matplotlib Path per unit (in ``units`` order), built once and shared by every map:
+    # each map only recolours them (see _fill). Empty: built on the fly from ``units``.
+    paths: tuple = field(default=(), repr=False, compare=False)
+    # Median extent of a unit in CRS units, to decide where district borders are legible.
+    unit_size: float = field(default=math.inf, repr=False, compare=False)
+
+
+def _unit_paths(geoms: gpd.GeoSeries) -> tuple[MplPath, ...]:
+    """One compound matplotlib Path per (multi)polygon, from shapely's ragged coordinates.
+
+    Exteriors are oriented counter-clockwise and holes clockwise, so holes stay open under
+    either fill rule (Agg and PDF differ).
+    """
+    arr = shapely.orient_polygons(np.asarray(geoms.to_numpy()), exterior_cw=False)
+    if not len(arr):
+        return ()
+    kind, coords, offsets = shapely.to_ragged_array(arr)
+    if kind == shapely.GeometryType.POLYGON:
+        rings, ring_of_geom = offsets  # each unit: one polygon, these rings
+    else:
+        rings, polys, geoms = offsets
+        ring_of_geom = polys[geoms]  # each unit: its polygons' rings
+    codes = np.full(len(coords), MplPath.LINETO, dtype=MplPath.code_type)
+    codes[rings[:-1]] = MplPath.MOVETO
+    codes[rings[1:] - 1] = MplPath.CLOSEPOLY
+    first = rings[ring_of_geom[:-1]]
+    last = rings[ring_of_geom[1:]]
+    return tuple(
+        MplPath(coords[a:b], codes[a:b], readonly=True)
+        for a, b in zip(first.tolist(), last.tolist(), strict=True)
+    )
+
+
+class _UnitPolygons(PatchCollection):
+    """A PatchCollection over ready-made Paths (no Patch object per unit)."""
+
+    def __init__(self, paths: Sequence[MplPath], **kwargs) -> None:
+        super().__init__([], **kwargs)
+        self._paths = list(paths)
+
+    def set_paths(self, patches) -> None:  # noqa: D102
+        self._paths = [p if isinstance(p, MplPath) else p.get_path() for p in patches]
+        self.stale = True
 
 
 def _fmt_num(x: float) -> str:
@@ -165,26 +211,42 @@ def _fill(
     default: str = OTHER_COLOUR,
     compact: bool = False,
 ) -> None:
-    """Fill units with per-unit colours, then district edges, then country borders on top."""
+    """Fill units with per-unit colours, then district edges, then country borders on top.
+
+    The unit polygons are one collection over the base map's shared Paths, rasterised in vector
+    output (a PDF page of 10,000 polygons is slow to write and to open); borders, text and
+    symbols stay vector. District borders are left out where units are under ~1.5 mm on the
+    page: there they would only grey the fills.
+    """
     g = base.units.geometry
+    paths = base.paths or _unit_paths(g)
     col = colours.reindex(base.units.index).fillna(default)
-    g.plot(
-        ax=ax,
-        color=col.to_list(),
-        edgecolor=DISTRICT_EDGE["color"],
-        linewidth=DISTRICT_EDGE["linewidth"],
-        zorder=1,
+    size_pt = base.unit_size / _data_per_point(ax, base)
+    edge = DISTRICT_EDGE["linewidth"] if size_pt >= _LEGIBLE_PT else 0.0
+    ax.add_collection(
+        _UnitPolygons(
+            paths,
+            facecolors=col.to_list(),
+            edgecolors=DISTRICT_EDGE["color"],
+            linewidths=edge,
+            zorder=1,
+            rasterized=True,
+        ),
+        autolim=False,
     )
     if hatch_ids is not None and len(hatch_ids):
-        sub = g[g.index.isin(hatch_ids)]
-        if len(sub):
-            sub.plot(
-                ax=ax,
-                facecolor="none",
-                edgecolor="#9a968c",
-                hatch=hatch,
-                linewidth=0,
-                zorder=2,
+        pos = np.flatnonzero(g.index.isin(hatch_ids))
+        if len(pos):
+            ax.add_collection(
+                _UnitPolygons(
+                    [paths[i] for i in pos],
+                    facecolors="none",
+                    edgecolors="#9a968c",
+                    hatch=hatch,
+                    linewidths=0,
+                    zorder=2,
+                ),
+                autolim=False,
             )
     base.countries.boundary.plot(ax=ax, zorder=5, **COUNTRY_EDGE)
     small = base.units.index[base.units["small"].to_numpy()] if "small" in base.units else []

@@ -11,7 +11,9 @@ wine for rates, sea-green for risk, night-to-straw for arrival); the cluster pal
 by the caller (``hotspots.CLUSTER_COLOURS``).
 
 Drawing is kept quick: :func:`base_map` simplifies the geometry once (to about a tenth of a
-millimetre at print size) and dissolves the country outlines once; every map reuses it.
+millimetre at print size, each country as one coverage so shared borders stay shared),
+dissolves the country outlines once and builds one matplotlib Path per unit once; every map
+reuses them and only sets the colours.
 
 This module is the public front: signatures, documentation and argument checks. The work
 lies beside it: ``_mapkit`` (palettes, notes, furniture), ``_mapclass`` (classing and
@@ -19,11 +21,13 @@ legend wording), ``_maplayers`` (rate panels, fronts, silent outlines, depots) a
 ``_epicurves``.
 """
 
+import math
 from collections.abc import Mapping, Sequence
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
+import shapely
 from matplotlib.figure import Figure
 
 from ._epicurves import epi_curves
@@ -75,6 +79,7 @@ from ._mapkit import (
     _new_map,
     _no_math,
     _side_text,
+    _unit_paths,
 )
 from ._maplayers import _draw_depots, _draw_fronts, _draw_silent, _rate_panels
 
@@ -157,17 +162,21 @@ def base_map(
     minx, miny, maxx, maxy = units.total_bounds
     side = max(maxx - minx, maxy - miny)
     tol = side / 2000 if simplify_m is None else simplify_m
-    geom = units.geometry.simplify(tol, preserve_topology=True) if tol > 0 else units.geometry
-    # Units under ~3 mm across on the printed map (an island) also get a dot (see _fill).
+    geom = _simplify_coverage(units, tol) if tol > 0 else units.geometry
     ext = units.geometry.bounds
-    small = np.maximum(ext["maxx"] - ext["minx"], ext["maxy"] - ext["miny"]) < side / 50
+    extent = np.maximum(ext["maxx"] - ext["minx"], ext["maxy"] - ext["miny"]).to_numpy()
+    typical = float(np.median(extent)) if len(extent) else math.inf
+    # Units under ~3 mm across on the printed map (an island) also get a dot (see _fill), when
+    # they are also much smaller than a typical unit: with thousands of districts every unit is
+    # that small and a dot on each would hide the map.
+    small = extent < min(side / 50, 0.3 * typical)
     simple = gpd.GeoDataFrame(
-        {"country": units["country"].to_numpy(), "small": small.to_numpy()},
+        {"country": units["country"].to_numpy(), "small": small},
         index=units.index,
         geometry=geom.to_numpy(),
         crs=units.crs,
     )
-    countries = simple.dissolve("country")[["geometry"]]
+    countries = _dissolve_countries(simple)
     names = dict(country_names or {})
     pad = side * 0.03
     frame = (minx - pad, miny - pad, maxx + pad, maxy + pad)
@@ -177,7 +186,41 @@ def base_map(
         label_x=spot.x.to_numpy(),
         label_y=spot.y.to_numpy(),
     )
-    return BaseMap(simple, countries, frame)
+    return BaseMap(simple, countries, frame, paths=_unit_paths(simple.geometry), unit_size=typical)
+
+
+def _simplify_coverage(units: gpd.GeoDataFrame, tol: float) -> gpd.GeoSeries:
+    """Simplify each country's units as one coverage, so neighbours keep one shared edge.
+
+    Simplifying units one by one moves a shared edge differently on each side: slivers open
+    between districts and the dissolved country keeps them as short heavy stubs inside it.
+    ``shapely.coverage_simplify`` (GEOS coverage simplifier) simplifies every shared edge once.
+    Countries come from different boundary files whose common border need not match, so each
+    country is one coverage; a country whose units are not a valid coverage (overlaps) falls
+    back to simplifying unit by unit.
+    """
+    geom = units.geometry.to_numpy().copy()
+    for idx in units.groupby("country", sort=False).indices.values():
+        part = geom[idx]
+        try:
+            out = shapely.coverage_simplify(part, tol)
+        except shapely.errors.GEOSException:
+            out = None
+        if out is None or not shapely.is_valid(out).all() or shapely.is_empty(out).any():
+            out = shapely.simplify(part, tol, preserve_topology=True)
+        geom[idx] = out
+    return gpd.GeoSeries(geom, index=units.index, crs=units.crs)
+
+
+def _dissolve_countries(simple: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
+    """One outline per country: a coverage union (edge-matching, fast), else a full union."""
+    try:
+        out = simple.dissolve("country", method="coverage")[["geometry"]]
+        if shapely.is_valid(out.geometry.to_numpy()).all():
+            return out
+    except shapely.errors.GEOSException:
+        pass
+    return simple.dissolve("country")[["geometry"]]
 
 
 # --- class schemes ----------------------------------------------------------------------------

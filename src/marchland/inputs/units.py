@@ -54,9 +54,17 @@ def _read(src: Source, layer: str | None, label: str) -> gpd.GeoDataFrame:
     if not path.exists():
         raise InputError("boundary file not found", file=label)
     try:
+        if path.suffix.lower() in (".parquet", ".geoparquet"):
+            if layer:
+                raise InputError("a GeoParquet file holds one layer; leave 'layer' out", file=label)
+            # GeoParquet through pyarrow: columnar, several times quicker than a GeoPackage
+            # for tens of thousands of polygons.
+            return gpd.read_parquet(path)
         kw = {"layer": layer} if layer else {}
         return gpd.read_file(path, engine="pyogrio", **kw)
-    except Exception as exc:  # pyogrio raises several types for unreadable files
+    except InputError:
+        raise
+    except Exception as exc:  # pyogrio and pyarrow raise several types for unreadable files
         raise InputError(f"cannot read the boundary file: {exc}", file=label) from None
 
 
@@ -231,8 +239,8 @@ def read_units(
     Parameters
     ----------
     sources : path, GeoDataFrame, or a list of them
-        GeoPackage, GeoJSON or Shapefile paths (read with pyogrio) or GeoDataFrames. Every
-        source needs a CRS.
+        GeoPackage, GeoJSON or Shapefile paths (read with pyogrio), GeoParquet paths
+        (``.parquet``, read with pyarrow) or GeoDataFrames. Every source needs a CRS.
     id, name : str or list of str
         Columns with the unit id (unique across all sources) and the unit's name; one value
         for all sources or one per source.

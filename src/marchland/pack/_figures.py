@@ -449,7 +449,15 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
         ids = sorted(p for p in per_prov if country_of_prov.get(p) == country)
         if not ids:
             continue
+        n_all = len(ids)
+        ids = _most_cases(ids, per_prov, MAX_PROVINCE_PANELS)
         panels = {f"{names.get(p, p)} ({p})": per_prov[p] for p in ids}
+        extra = (
+            f", the {len(ids)} of its {n_all} provinces with the most reported cases (every "
+            "unit's weekly counts are in tables/weekly.csv)"
+            if len(ids) < n_all
+            else ""
+        )
         yield (
             f"epi_provinces_{country}",
             maps.epi_curves(
@@ -461,5 +469,19 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
                 ncols=3,
                 week_days=week_days,
             ),
-            f"Weekly reported cases and deaths per province of {label(country)}; {shaded}",
+            f"Weekly reported cases and deaths per province of {label(country)}{extra}; {shaded}",
         )
+
+
+#: Panels in one country's province epi-curve figure: each panel is an axes with its own
+#: ticks and labels, the costliest thing to draw, and past a dozen they are too small to read.
+MAX_PROVINCE_PANELS = 12
+
+
+def _most_cases(ids: list[str], per_prov: dict[str, pd.DataFrame], k: int) -> list[str]:
+    """Return the ``k`` provinces with the most cases (ties by id), in id order."""
+    if len(ids) <= k:
+        return ids
+    total = pd.Series({p: float(np.nansum(per_prov[p]["cases"].to_numpy())) for p in ids})
+    top = total.sort_index().sort_values(ascending=False, kind="stable").index[:k]
+    return sorted(top)

@@ -35,6 +35,18 @@ def _need(module: str, *names: str) -> Any:
     return mod
 
 
+def _local_jobs(cfg: Config) -> int:
+    """Worker processes for steps that parallelise with joblib inside their own stage.
+
+    The risk backtest fans out over origins with joblib's local processes; on a Dask cluster
+    (``[compute] scheduler``) it runs in one process here until it takes an executor.
+    """
+    from ..compute import get_executor
+
+    ex = get_executor(getattr(cfg, "compute", None))
+    return ex.workers if ex.backend == "processes" else 1
+
+
 class _Context:
     """The inputs every step shares; one method per step, each returning result fields."""
 
@@ -253,7 +265,7 @@ class _Context:
             self.graph,
             as_of=self.as_of,
             top_k=c.top_k,
-            n_jobs=1,
+            n_jobs=_local_jobs(self.cfg),
             covariates=self.covariates,
             **risk_options(c),
         )

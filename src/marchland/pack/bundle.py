@@ -4,6 +4,7 @@
 
     layers.gpkg      one layer per result: units rates hotspots spread fronts risk priorities
                      depots edges (those that were computed)
+    layers/*.parquet the same layers as GeoParquet, one file each
     tables/*.csv     every table of the run, sorted by unit id (or area), same bytes for the
                      same inputs and seed
     maps/*.png       the maps and epi curves at 200 dpi
@@ -147,7 +148,11 @@ def _check_writable(out: Path, dest: Path) -> None:
 
 
 def write_month(
-    result: MonthResult, out_dir: str | os.PathLike[str], *, overwrite: bool = False
+    result: MonthResult,
+    out_dir: str | os.PathLike[str],
+    *,
+    overwrite: bool = False,
+    progress: Callable[[str, int, int], None] | None = None,
 ) -> Path:
     """Write the month's bundle atomically and return its folder.
 
@@ -159,6 +164,9 @@ def write_month(
         The bundle goes to ``out_dir / result.month``; the folder is made if missing.
     overwrite : bool
         Replace an existing bundle of the same month (only once the new one is complete).
+    progress : callable, optional
+        Called as ``progress(task, done, total)`` while the figures are drawn (the long part),
+        e.g. to show a progress bar.
 
     Returns
     -------
@@ -187,7 +195,7 @@ def write_month(
     _remove_stale(out, result.month)
     tmp = Path(tempfile.mkdtemp(prefix=f".{result.month}{_PARTIAL}{os.getpid()}-", dir=out))
     try:
-        _write_all(result, tmp)
+        _write_all(result, tmp, progress)
         os.chmod(tmp, 0o755)  # mkdtemp makes it private; a bundle is meant to be shared
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
@@ -230,7 +238,9 @@ def _alive(pid: int) -> bool:
 
 
 # --- the writing, step by step ----------------------------------------------------------------
-def _write_all(result: MonthResult, root: Path) -> None:
+def _write_all(
+    result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None = None
+) -> None:
     timings: dict[str, float] = {}
 
     def timed(name: str, fn: Callable[[], Any]) -> Any:
@@ -241,7 +251,8 @@ def _write_all(result: MonthResult, root: Path) -> None:
 
     tables = timed("bundle: tables", lambda: _write_tables(result, root))
     timed("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg"))
-    figures = timed("bundle: maps", lambda: _write_figures(result, root))
+    kw = {} if progress is None else {"progress": progress}
+    figures = timed("bundle: maps", lambda: _write_figures(result, root, **kw))
     timed("bundle: report", lambda: _write_report(result, root, figures, tables))
     _write_manifest(result, root, timings)
 
@@ -432,9 +443,16 @@ def _write_layers(result: MonthResult, path: Path) -> None:
         attrs = attrs if isinstance(attrs.index, pd.RangeIndex) else attrs.reset_index()
         gdf = gpd.GeoDataFrame(attrs, geometry=geo.to_numpy(), crs=layer.crs)
         gdf.to_file(path, layer=name, driver="GPKG", engine="pyogrio")
+        # The same layer as GeoParquet (one file per layer): what columnar tools and cloud
+        # stores read quickest.
+        pq = path.parent / "layers"
+        pq.mkdir(exist_ok=True)
+        gdf.to_parquet(pq / f"{name}.parquet", index=False)
 
 
-def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:
+def _write_figures(
+    result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None = None
+) -> dict[str, dict[str, Any]]:
     from matplotlib.backends.backend_pdf import PdfPages
 
     from ..figures.maps import save_figure
@@ -451,14 +469,22 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
             "CreationDate": None,
         },
     ) as pdf:
+        # The figures share the base map's Paths, so holding them all until the cover page
+        # (which lists every caption) is cheap; each is emptied once saved, so only one
+        # rendering's buffers are alive at a time.
         entries = list(draw_figures(result))
         paper = getattr(result.config.output, "paper", "a4")
         atlas_page(pdf, cover_page(result, [caption for _, _, caption in entries]), paper)
-        for name, fig, caption in entries:
+        for i, (name, fig, caption) in enumerate(entries):
             path = mdir / f"{name}.png"
             save_figure(fig, path)
             atlas_page(pdf, fig, paper)
+            # Closed as it is drawn, so the peak memory is one figure's.
+            fig.clear()
+            entries[i] = (name, None, caption)
             figures[name] = {"path": path, "caption": caption}
+            if progress is not None:
+                progress("maps and atlas pages", i + 1, len(entries))
     return figures
 
 
@@ -541,6 +567,8 @@ def _versions() -> dict[str, str]:
 
 
 def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str, float]) -> None:
+    # The manifest times itself up to its own writing (hashing every file is most of it).
+    started = time.perf_counter()
     cfg = result.config
     base = cfg.base_dir
     inputs = [
@@ -568,7 +596,11 @@ def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str
         "inputs": inputs,
         "versions": _versions(),
         "accounting": _jsonable(result.accounting),
-        "timings_s": {**result.timings, **bundle_timings},
+        "timings_s": {
+            **result.timings,
+            **bundle_timings,
+            "bundle: manifest": round(time.perf_counter() - started, 3),
+        },
         "steps_not_run": dict(result.absent),
         "warnings": list(result.warnings),
         "files": files,

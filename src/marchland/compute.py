@@ -1,0 +1,198 @@
+"""Where parallel work runs: this process, local worker processes, or an existing Dask cluster.
+
+One small front for every step that fans work out: :class:`Executor` has a ``map`` (ordered
+results, like the built-in) and a ``map_seeded`` that hands each task its own seed, spawned from
+one ``numpy.random.SeedSequence`` by task position. A seeded result therefore depends on the seed
+and the task list only, never on the backend or the number of workers.
+
+Backends, by the settings of ``[compute]`` in the config (or ``--scheduler``/``--workers`` on
+the command line):
+
+- nothing set, or ``workers = 1``: the tasks run one after the other in this process;
+- ``workers = N``: N local worker processes (joblib's loky backend, which ships functions with
+  cloudpickle and reuses its workers between calls);
+- ``scheduler = "tcp://host:8786"``: an existing Dask cluster, through ``distributed.Client``.
+  We start no scheduler of our own; start one with Dask's own tools.
+
+This module sits low in the layering (it imports only :mod:`marchland.errors`) and imports
+joblib and distributed only when a parallel map is asked for, so ``marchland check`` and
+``--help`` stay quick.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor"]
+
+#: Accepted scheduler addresses: a Dask network protocol, a host and an optional port (or an
+#: in-process ``inproc://`` address, as a ``LocalCluster(processes=False)`` has).
+SCHEDULER_PATTERN = re.compile(r"^((tcp|tls|ucx|ws|wss)://[^\s/:]+(:\d{1,5})?/?|inproc://\S+)$")
+
+
+def default_workers() -> int:
+    """Return the worker processes used when none is set: the CPUs this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover  (not on Linux)
+        return max(1, os.cpu_count() or 1)
+
+
+@dataclass
+class Executor:
+    """A ``map`` over tasks on one backend; use as a context manager to release workers.
+
+    Parameters
+    ----------
+    scheduler : str, optional
+        Address of a running Dask scheduler (``tcp://host:8786``). When given, ``workers`` is
+        ignored: the cluster decides.
+    workers : int, default 1
+        Local worker processes when no scheduler is given; 1 runs in this process.
+
+    Examples
+    --------
+    >>> with Executor(workers=1) as ex:
+    ...     ex.map(abs, [-1, 2, -3])
+    [1, 2, 3]
+    >>> def draw(n, seed):
+    ...     return float(np.random.default_rng(seed).random())
+    >>> with Executor() as ex:
+    ...     a = ex.map_seeded(draw, [1, 2, 3], seed=7)
+    >>> a == Executor().map_seeded(draw, [1, 2, 3], seed=7)
+    True
+    """
+
+    scheduler: str | None = None
+    workers: int = 1
+    _client: Any = field(default=None, init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        if self.scheduler is not None and not SCHEDULER_PATTERN.match(str(self.scheduler)):
+            raise InputError(
+                "needs a Dask scheduler address such as 'tcp://host:8786'",
+                column="compute.scheduler",
+                value=self.scheduler,
+            )
+        if (
+            isinstance(self.workers, bool)
+            or not isinstance(self.workers, (int, np.integer))
+            or self.workers < 1
+        ):
+            raise InputError(
+                "needs a whole number >= 1", column="compute.workers", value=self.workers
+            )
+
+    @property
+    def backend(self) -> str:
+        """``"dask"``, ``"processes"`` or ``"serial"``."""
+        if self.scheduler is not None:
+            return "dask"
+        return "processes" if self.workers > 1 else "serial"
+
+    @property
+    def parallelism(self) -> int:
+        """Tasks that can run at once (Dask: the cluster's worker threads)."""
+        if self.scheduler is None:
+            return self.workers
+        threads = self._connect().nthreads()
+        return max(1, sum(threads.values()))
+
+    def _connect(self) -> Any:
+        if self._client is None:
+            from distributed import Client
+
+            try:
+                self._client = Client(self.scheduler, timeout="10s", set_as_default=False)
+            except OSError as exc:
+                raise InputError(
+                    f"cannot reach the Dask scheduler ({exc}); start it first or leave "
+                    "[compute] scheduler unset to run on this machine",
+                    column="compute.scheduler",
+                    value=self.scheduler,
+                ) from None
+        return self._client
+
+    def map(self, fn: Callable[..., Any], items: Iterable[Any], *args: Any) -> list[Any]:
+        """Return ``[fn(item, *args) for item in items]``, the tasks spread over the backend.
+
+        ``fn`` and the items must pickle (a module-level function, plain data) unless the
+        backend is serial. Results come back in the order of ``items``.
+        """
+        items = list(items)
+        if self.backend == "serial" or len(items) < 2:
+            return [fn(item, *args) for item in items]
+        if self.backend == "processes":
+            from joblib import Parallel, delayed
+
+            k = min(self.workers, len(items))
+            return list(Parallel(n_jobs=k, backend="loky")(delayed(fn)(i, *args) for i in items))
+        client = self._connect()
+        shared = [client.scatter(a, broadcast=True) for a in args]
+        futures = client.map(fn, items, *[[s] * len(items) for s in shared], pure=False)
+        return client.gather(futures)
+
+    def map_seeded(
+        self, fn: Callable[..., Any], items: Iterable[Any], *args: Any, seed: int | None
+    ) -> list[Any]:
+        """Like :meth:`map`, calling ``fn(item, *args, task_seed)`` with a seed per task.
+
+        Task seeds are ``SeedSequence(seed).spawn(n)`` in task order: the same ``seed`` and
+        items give the same results on every backend and any number of workers.
+        """
+        items = list(items)
+        seeds = np.random.SeedSequence(seed).spawn(len(items))
+        return self.map(_seeded_call, list(zip(items, seeds, strict=True)), fn, *args)
+
+    def close(self) -> None:
+        """Disconnect from the Dask cluster (local workers are managed by joblib)."""
+        if self._client is not None:
+            self._client.close()
+            self._client = None
+
+    def __enter__(self) -> Executor:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+def _seeded_call(pair: tuple[Any, np.random.SeedSequence], fn: Callable[..., Any], *args: Any):
+    item, seed = pair
+    return fn(item, *args, seed)
+
+
+def get_executor(
+    compute: Any = None, *, scheduler: str | None = None, workers: int | None = None
+) -> Executor:
+    """Build the executor for a run from a ``[compute]`` config part and command-line overrides.
+
+    Parameters
+    ----------
+    compute : object, optional
+        Anything with ``scheduler`` and ``workers`` attributes (``Config.compute``).
+    scheduler, workers : optional
+        Command-line values; they win over the config's.
+
+    Returns
+    -------
+    Executor
+
+    Examples
+    --------
+    >>> get_executor(workers=2).backend
+    'processes'
+    >>> get_executor(scheduler="tcp://10.0.0.5:8786").backend
+    'dask'
+    """
+    sched = scheduler if scheduler is not None else getattr(compute, "scheduler", None)
+    n = workers if workers is not None else getattr(compute, "workers", None)
+    return Executor(scheduler=sched or None, workers=default_workers() if n is None else int(n))
