@@ -52,7 +52,7 @@ def written(result, tmp_path_factory):
 @pytest.fixture
 def no_figures(monkeypatch):
     """Atomicity tests need the writing steps, not the drawing: skip the maps for speed."""
-    monkeypatch.setattr(bundle, "_write_figures", lambda result, root: {})
+    monkeypatch.setattr(bundle, "_write_figures", lambda result, root, **kw: {})
 
 
 def _snapshot(folder):

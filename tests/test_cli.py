@@ -36,7 +36,7 @@ def world(tmp_path_factory):
 def grid(monkeypatch):
     """Read the grid world's region from the grid itself (the file readers are tested apart)."""
     monkeypatch.setattr(monthly, "_open_region", fake_region)
-    monkeypatch.setattr("marchland.pack.bundle._write_figures", lambda result, root: {})
+    monkeypatch.setattr("marchland.pack.bundle._write_figures", lambda result, root, **kw: {})
 
 
 def test_help_is_quick_and_carries_the_cautions(runner):
@@ -210,7 +210,7 @@ def test_check_exits_2_when_a_source_cannot_be_used(runner, world, tmp_path):
 
 
 def test_run_reads_the_real_files(runner, world, tmp_path, monkeypatch):
-    monkeypatch.setattr("marchland.pack.bundle._write_figures", lambda result, root: {})
+    monkeypatch.setattr("marchland.pack.bundle._write_figures", lambda result, root, **kw: {})
     res = runner.invoke(cli.cli, ["run", str(world), "--month", "2026-10", "--out", str(tmp_path)])
     assert res.exit_code == 0, res.stderr
     import json
