@@ -185,8 +185,8 @@ def test_step_and_gather_paths_agree():
     obs = z * (w @ z)
     table = _permute.permutation_table(len(z), 4, 199, np.random.default_rng(0))
     stat = lambda u, lag: z[u][None, :] * lag  # noqa: E731
-    a = _permute.conditional_permutation(z, w, obs, table, stat, method="gather")
-    b = _permute.conditional_permutation(z, w, obs, table, stat, method="step")
+    a = _permute.tail_counts(z, w, obs, table, stat, method="gather")
+    b = _permute.tail_counts(z, w, obs, table, stat, method="step")
     for x, y in zip(a, b, strict=True):
         np.testing.assert_allclose(x, y, rtol=1e-9)
 

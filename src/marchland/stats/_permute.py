@@ -220,24 +220,6 @@ def _step_lags(values, weights, units, ids):
     return sums * weights.data[weights.indptr[units]][None, :]
 
 
-def conditional_permutation(
-    values: np.ndarray,
-    weights: sparse.csr_matrix,
-    observed: np.ndarray,
-    table: np.ndarray,
-    statistic: Callable[[np.ndarray, np.ndarray], np.ndarray],
-    *,
-    rows: np.ndarray | None = None,
-    method: str = "auto",
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Permutation counts for a local statistic that is a function of the spatial lag.
-
-    The one-sided counts and moments of :func:`tail_counts` (see there), without the
-    two-sided count.
-    """
-    return tail_counts(values, weights, observed, table, statistic, rows=rows, method=method)[:4]
-
-
 def tail_counts(
     values: np.ndarray,
     weights: sparse.csr_matrix,
