@@ -127,14 +127,21 @@ def _choice(rec: Mapping, column: str, allowed: tuple, *, file: str | None, row:
     return value
 
 
-def _check_items(frame: pd.DataFrame, *, file: str | None) -> pd.DataFrame:
-    missing = [c for c in ITEM_COLUMNS if c not in frame.columns]
+def _require_columns(
+    frame: pd.DataFrame, columns: tuple[str, ...], what: str, *, file: str | None
+) -> None:
+    """Refuse a table that lacks any of ``columns`` (``what``: "the depot sites table", ...)."""
+    missing = [c for c in columns if c not in frame.columns]
     if missing:
         raise InputError(
-            f"the supply items table needs columns {list(ITEM_COLUMNS)}; missing {missing}",
+            f"{what} needs columns {list(columns)}; missing {missing}",
             file=file,
             column=missing[0],
         )
+
+
+def _check_items(frame: pd.DataFrame, *, file: str | None) -> pd.DataFrame:
+    _require_columns(frame, ITEM_COLUMNS, "the supply items table", file=file)
     if len(frame) == 0:
         raise InputError("the supply items table has no rows", file=file)
     out = frame.reset_index(drop=True).copy()
@@ -168,13 +175,7 @@ def _check_items(frame: pd.DataFrame, *, file: str | None) -> pd.DataFrame:
 
 def _depots_from_frame(frame: pd.DataFrame, crs: Any, *, file: str | None) -> gpd.GeoDataFrame:
     """Check a site table with lon/lat (WGS84) and make points in ``crs``."""
-    missing = [c for c in DEPOT_COLUMNS if c not in frame.columns]
-    if missing:
-        raise InputError(
-            f"the depot sites table needs columns {list(DEPOT_COLUMNS)}; missing {missing}",
-            file=file,
-            column=missing[0],
-        )
+    _require_columns(frame, DEPOT_COLUMNS, "the depot sites table", file=file)
     n = len(frame)
     rows = np.arange(1, n + 1)
     site = frame["site"].astype(str).str.strip()
