@@ -100,6 +100,21 @@ def _known_panel(
     return static, date, panel, week
 
 
+def _fit_known(known, horizon_weeks, min_events, penalty, min_cases) -> RiskModel:
+    """Fit the model on what :func:`_known_panel` built (fit_risk_model, border_risk)."""
+    static, date, panel, week = known
+    return _fit(
+        panel,
+        static.features,
+        as_of=date,
+        week=week,
+        horizon_weeks=horizon_weeks,
+        min_events=min_events,
+        penalty=penalty,
+        min_cases=min_cases,
+    )
+
+
 def fit_risk_model(
     counts: pd.DataFrame,
     units: gpd.GeoDataFrame,
@@ -170,19 +185,10 @@ def fit_risk_model(
     ('prior', True)
     """
     _check_options(horizon_weeks, recent_weeks, min_events, penalty)
-    static, date, panel, week = _known_panel(
+    known = _known_panel(
         counts, units, graph, as_of, covariates, recent_weeks, reintroduction_weeks, min_cases
     )
-    return _fit(
-        panel,
-        static.features,
-        as_of=date,
-        week=week,
-        horizon_weeks=horizon_weeks,
-        min_events=min_events,
-        penalty=penalty,
-        min_cases=min_cases,
-    )
+    return _fit_known(known, horizon_weeks, min_events, penalty, min_cases)
 
 
 def border_risk(
@@ -245,20 +251,12 @@ min_events, penalty, min_cases, covariates
     True
     """
     _check_options(horizon_weeks, recent_weeks, min_events, penalty, silent_weeks)
-    static, date, panel, week = _known_panel(
+    known = _known_panel(
         counts, units, graph, as_of, covariates, recent_weeks, reintroduction_weeks, min_cases
     )
+    static, _, panel, _ = known
     if model is None:
-        model = _fit(
-            panel,
-            static.features,
-            as_of=date,
-            week=week,
-            horizon_weeks=horizon_weeks,
-            min_events=min_events,
-            penalty=penalty,
-            min_cases=min_cases,
-        )
+        model = _fit_known(known, horizon_weeks, min_events, penalty, min_cases)
     elif tuple(model.features) != static.features:
         raise InputError(
             f"the model's features {list(model.features)} differ from these inputs' "
