@@ -55,6 +55,12 @@ def _write_csv(path: Path, header: list[str], rows: list[list]) -> None:
         w.writerows(rows)
 
 
+def _write_report(folder: Path, dirt, name: str, header: list[str], rows: list[list], tags):
+    """Write one report file to ``folder`` and list its tagged rows as ``reports/<name>``."""
+    _record(dirt, f"reports/{name}", rows, tags)
+    _write_csv(folder / name, header, rows)
+
+
 def reported_counts(sc, rng):
     """Under-reported cases and deaths per district and week (binomial thinning)."""
     d = sc.districts
@@ -165,8 +171,7 @@ def write_tvr(sc, cases, deaths, folder: Path, rng, dirt, *, country: str = "TVR
                 ]
             )
             tags[id(rows[-1])] = ("week_start", "future-week")
-        _record(dirt, f"reports/{country.lower()}_weekly_{m}.csv", rows, tags)
-        _write_csv(folder / f"{country.lower()}_weekly_{m}.csv", header, rows)
+        _write_report(folder, dirt, f"{country.lower()}_weekly_{m}.csv", header, rows, tags)
     return {"first_case_correction": (code, weeks[t0].strftime("%Y-%m-%d"))}
 
 
@@ -341,12 +346,8 @@ def write_mrw(sc, cases, deaths, folder: Path, rng, dirt, aliases) -> None:
     k = len(rows) * 3 // 4
     rows.insert(k, [""] * 6)
     tags[id(rows[k])] = ("", "blank")
-    _record(dirt, "reports/mrw_linelist.csv", rows, tags)
-    _write_csv(
-        folder / "mrw_linelist.csv",
-        ["case_no", "onset_date", "report_date", "district_name", "age_group", "outcome"],
-        rows,
-    )
+    header = ["case_no", "onset_date", "report_date", "district_name", "age_group", "outcome"]
+    _write_report(folder, dirt, "mrw_linelist.csv", header, rows, tags)
 
 
 def mmwr_week(sunday: pd.Timestamp) -> tuple[int, int]:
@@ -442,10 +443,6 @@ def write_qln(sc, cases, deaths, folder: Path, rng, dirt, aliases) -> list:
     )
     rows[k][3] = f"{rows[k][3]}a"  # a typing slip that is not a number
     tags[id(rows[k])] = ("New cases", "unparseable")
-    _record(dirt, "reports/qln_weekly.csv", rows, tags)
-    _write_csv(
-        folder / "qln_weekly.csv",
-        ["Region", "Yr", "Wk", "New cases", "New deaths", "Reported on"],
-        rows,
-    )
+    header = ["Region", "Yr", "Wk", "New cases", "New deaths", "Reported on"]
+    _write_report(folder, dirt, "qln_weekly.csv", header, rows, tags)
     return [pd.Timestamp(g) for g in gap]
