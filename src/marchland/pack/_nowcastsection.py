@@ -33,17 +33,22 @@ def coverage_note(result: MonthResult) -> str:
     )
 
 
+def _area_names(rows: pd.DataFrame, result: MonthResult) -> list[str]:
+    """Name of each region/country row: "whole region" or the country as the config labels it."""
+    label = result.config.country_label
+    return [
+        "whole region" if lv == "region" else label(g)
+        for lv, g in zip(rows["level"], rows["group"], strict=True)
+    ]
+
+
 def adjusted_rates_table(result: MonthResult) -> str:
     """Region and country month rates, as reported and nowcast-adjusted, side by side."""
     a = result.month_adjusted_by_area
     if a is None:
         return ""
     part = a[a["level"].isin(["region", "country"])].copy()
-    label = result.config.country_label
-    part["area"] = [
-        "whole region" if lv == "region" else label(g)
-        for lv, g in zip(part["level"], part["group"], strict=True)
-    ]
+    part["area"] = _area_names(part, result)
     cols = {
         "area": "area",
         "reported_cases": "cases reported",
@@ -69,11 +74,7 @@ def nowcast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         recent = nc[nc["level"].isin(["region", "country"])]
         last = sorted(recent["week"].unique())[-4:]
         recent = recent[recent["week"].isin(last)].copy()
-        label = result.config.country_label
-        recent["area"] = [
-            "whole region" if lv == "region" else label(g)
-            for lv, g in zip(recent["level"], recent["group"], strict=True)
-        ]
+        recent["area"] = _area_names(recent, result)
         recent["week"] = pd.to_datetime(recent["week"]).dt.strftime("%Y-%m-%d")
         recent["interval"] = [
             "-" if lo != lo or hi != hi else f"{lo:,.0f} to {hi:,.0f}"
