@@ -58,8 +58,8 @@ def month_end(weeks: pd.DatetimeIndex) -> np.ndarray:
     return np.asarray(weeks.month != nxt.month)
 
 
-def _split(C, age, offset, window, me):
-    """Per-stratum cumulative factors: (G, D+1) for other weeks and for month-end weeks."""
+def _sets(C, age, offset, window, me):
+    """Cumulative factors (G, D+1) as known ``offset`` weeks earlier: single, other, month-end."""
     n_d = C.shape[2] - 1
     pooled = factors(C, age, offset, window)
     other = factors(C, age, offset, window, weeks=~me)
@@ -72,12 +72,7 @@ def _split(C, age, offset, window, me):
     n_end = (((a[:, None] >= d + 1) & (a[:, None] <= d + span)) & me[:, None]).sum(axis=0)
     other = np.where(n_other > 0, other, pooled)
     end = np.where(n_end > 0, end, pooled)
-    return to_final(other), to_final(end)
-
-
-def weekly(F_other: np.ndarray, F_end: np.ndarray, me: np.ndarray) -> np.ndarray:
-    """Cumulative factors per week (G, T, D+1) from the two strata's."""
-    return np.where(me[None, :, None], F_end[:, None, :], F_other[:, None, :])
+    return to_final(pooled), to_final(other), to_final(end)
 
 
 def _past_error(C, age, F_of, n_past):
@@ -99,31 +94,19 @@ def _past_error(C, age, F_of, n_past):
 def choose(C, age, window, n_past, me):
     """Each group's pattern as a function of the offset, and which groups use the split.
 
-    Returns ``F_of(m)`` giving (G, T, D+1) factors as known ``m`` weeks before the as-of date,
-    and ``split`` (G,) True where the month-end split had the smaller past error.
+    Returns ``F_of(m)``: the factors known ``m`` weeks before the as-of date as a tuple
+    ``(F_other, F_end, me)`` that :func:`point` reads per week (m = 0 is the as-of date), and
+    ``split`` (G,) True where the month-end split is used.
     """
-
-    def single(m):
-        F = to_final(factors(C, age, m, window))
-        return weekly(F, F, me)
-
-    def two(m):
-        return weekly(*_split(C, age, m, window, me), me)
-
-    err_two, err_one = _past_error(C, age, two, n_past), _past_error(C, age, single, n_past)
+    # Factor sets per offset are small (G x D+1): kept, not recomputed for the calibration.
+    sets = [_sets(C, age, m, window, me) for m in range(n_past + 1)]
+    err_one = _past_error(C, age, lambda m: sets[m][0], n_past)
+    err_two = _past_error(C, age, lambda m: (sets[m][1], sets[m][2], me), n_past)
     split = (err_two <= SPLIT_GAIN * err_one) & (err_one > 0)
+    s = split[:, None]
 
     def F_of(m):
-        if not split.any():
-            return single(m)
-        return np.where(split[:, None, None], two(m), single(m))
+        one, other, end = sets[m]
+        return np.where(s, other, one), np.where(s, end, one), me
 
     return F_of, split
-
-
-def pattern_pair(C, age, window, me, split):
-    """Factors (G, D+1) for other and month-end weeks on the as-of date (equal if not split)."""
-    F = to_final(factors(C, age, 0, window))
-    F_other, F_end = _split(C, age, 0, window, me)
-    s = split[:, None]
-    return np.where(s, F_other, F), np.where(s, F_end, F)

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataWarning
-from ._calendar import MONTH_END_SPAN, choose, month_end, pattern_pair, weekly
+from ._calendar import MONTH_END_SPAN, choose, month_end
 from ._groups import country_of, group_of
 from ._pattern import calibrate, nb_bounds, point
 from ._triangle import Cells, group_sums, unit_cells
@@ -43,8 +43,8 @@ class Estimate:
 
 def _pattern(C, age, n_d, window, n_past, method, me):
     """Factors for other and month-end weeks (see ``_calendar``) and the NB sizes (G, D)."""
-    F_of, split = choose(C, age, window, n_past, me)
-    F_other, F_end = pattern_pair(C, age, window, me, split)
+    F_of, _ = choose(C, age, window, n_past, me)
+    F_other, F_end, _ = F_of(0)
     if method == "negbin":
         phi, _ = calibrate(C, age, window, n_past, F_of=F_of)
     else:
@@ -120,7 +120,7 @@ def estimate(
             Fo, Fe, phio = _pattern(Cg[own], ag, n_d, window, n_past, method, me)
             F_other[own], F_end[own], phi[own] = Fo, Fe, phio
         pattern = np.where(own, groups, pattern)
-    p = point(S["C"], age, weekly(F_other, F_end, me_all), 0)
+    p = point(S["C"], age, (F_other, F_end, me_all), 0)
     first = np.full(len(groups), len(cells.weeks))
     np.minimum.at(first, gi[cells.pair_unit], cells.pair_week)
     phi_t = phi[:, np.clip(age, 0, n_d - 1)]

@@ -49,14 +49,19 @@ def to_final(f: np.ndarray) -> np.ndarray:
 def point(C: np.ndarray, age: np.ndarray, F: np.ndarray, offset: int) -> dict[str, np.ndarray]:
     """Give the reported value and chain-ladder estimate of weeks younger than D at the offset.
 
-    ``F`` is (G, D+1), one pattern for every week, or (G, T, D+1), a pattern per week.
+    ``F`` is (G, D+1), one pattern for every week, or a tuple ``(F_other, F_end, end)`` of two
+    such patterns and a (T,) mask of the weeks that take ``F_end`` (see ``_calendar``).
     """
     n_d = C.shape[2] - 1
     a = age - offset
     live = (a >= 0) & (a < n_d)
     k = np.clip(a, 0, n_d)
     R = np.take_along_axis(C, np.broadcast_to(k[None, :, None], (C.shape[0], len(k), 1)), 2)[..., 0]
-    Fk = F[:, k] if F.ndim == 2 else F[:, np.arange(len(k)), k]
+    if isinstance(F, tuple):
+        F_other, F_end, end = F
+        Fk = np.where(end[None, :], F_end[:, k], F_other[:, k])
+    else:
+        Fk = F[:, k]
     with np.errstate(invalid="ignore"):
         N = np.where(np.isinf(Fk), np.nan, R * Fk)
     return {"live": live, "k": k, "R": R, "N": N}
