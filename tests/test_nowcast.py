@@ -137,10 +137,65 @@ def test_demo_coverage_and_error(region):
         warnings.simplefilter("ignore", DataWarning)  # countries that start later, early on
         r = _score(region.counts, dates)
     assert 0.85 <= r["covered"].mean() <= 0.95
-    # The line-list country has real delays; its last two weeks gain at least 40%. (Tavrenne's
-    # late rows bunch at month ends, which a week-by-week delay pattern cannot see.)
+    # The line-list country has real delays; its last two weeks gain at least 40%.
     o, a = _mae(r[r["country"] == "MRW"])
     assert o <= 0.6 * a
+    # Tavrenne's late rows bunch in the week holding a month's last day: with the month-end
+    # split its error went from 30% above the counts as arrived to 6% above, the region's from
+    # -12% to -27% (benchmarks/bench_nowcast_demo.py). What is left is *which* districts are
+    # late (two large ones in one month), which a country triangle cannot know; the month
+    # pack's gap-aware estimate (fill_gaps) does, see the benchmark.
+    o, a = _mae(r[r["country"] == "TVR"])
+    assert o <= 1.15 * a
+    o, a = _mae(r)
+    assert o <= 0.8 * a
+
+
+def simulate_month_end(seed: int = 0, n_units: int = 10, n_weeks: int = 70) -> pd.DataFrame:
+    """Monthly files: a third of the week holding a month's last day comes 2 weeks late."""
+    rng = np.random.default_rng(seed)
+    weeks = pd.date_range("2025-01-06", periods=n_weeks, freq="7D")
+    end = np.asarray(weeks.month != (weeks + pd.Timedelta(days=7)).month)
+    final = rng.negative_binomial(5, 5 / (5 + 20.0), (n_units, n_weeks))
+    late = rng.binomial(final, np.where(end, 1 / 3, 0.02)[None, :])
+    u, t = np.meshgrid(np.arange(n_units), np.arange(n_weeks), indexing="ij")
+    ids = np.array([f"TVR-01-{k + 1:02d}" for k in range(n_units)])
+    first = pd.DataFrame(
+        {"unit_id": ids[u.ravel()], "week": weeks[t.ravel()], "cases": (final - late).ravel()}
+    )
+    first["received"] = first["week"] + pd.Timedelta(days=8)
+    second = first.assign(cases=final.ravel(), received=first["week"] + pd.Timedelta(days=22))
+    out = pd.concat([first, second[late.ravel() > 0]], ignore_index=True)
+    out["cases"] = out["cases"].astype("Int64")
+    return out
+
+
+def test_month_end_weeks_get_their_own_pattern(monkeypatch):
+    # A delay pattern that depends on the week's place in the month: one pattern for all weeks
+    # spreads the month-end lag over every week; the split (pattern per stratum, kept because
+    # its past nowcasts erred less) puts it where it belongs.
+    c = simulate_month_end()
+    final = as_of(c).groupby("week")["cases"].sum().astype(float)
+    dates = [pd.Timestamp(w) + pd.Timedelta(days=9) for w in final.index[34:58]]
+
+    def errors():
+        rows = []
+        for a in dates:  # a loop over as-of dates of the evaluation
+            nc = nowcast(c, as_of=a, seed=1)
+            rows.append(nc[nc["delay_weeks"] < 2])
+        r = pd.concat(rows)
+        truth = final.reindex(r["week"]).to_numpy()
+        cover = ((truth >= r["lower"]) & (truth <= r["upper"])).mean()
+        return (r["nowcast"] - truth).abs().mean(), (r["reported"] - truth).abs().mean(), cover
+
+    split, arrived, cover = errors()
+    monkeypatch.setattr("marchland.delays._calendar.SPLIT_GAIN", 0.0)  # never split
+    single, _, _ = errors()
+    # Measured (seed 0, 24 as-of dates): split 2.4, single pattern 24.8 (worse than the 18.1
+    # of the counts as arrived), 90% coverage 98% (most weeks have nothing still to come).
+    assert split <= 0.6 * arrived
+    assert split <= 0.6 * single
+    assert cover >= 0.85
 
 
 @pytest.mark.parametrize("by", ["region", "country", "province", "unit"])

@@ -105,3 +105,21 @@ def test_completeness_as_of_a_past_date(region):
     # The region's own (latest) view knows later reports; the past run must not show them.
     assert (region.completeness_by_country["last_received"] > as_of).any()
     assert (got["completeness"]["last_week"].dropna() < pd.Timestamp("2026-05-01")).all()
+
+
+def test_month_note_counts_only_weeks_that_can_still_move(region):
+    out = _run(_known(region.counts, AS_OF), region.units)
+    cov, t = out["month_coverage"], out["nowcast"]
+    reg = t[(t["level"] == "region") & t["in_month"]].sort_values("week")
+    to_come = (reg["estimate"] - reg["reported"]) / reg["estimate"]
+    young = reg["status"].ne("reported")
+    # Every young October week is still an estimate, but only those with 2% or more of the
+    # count still to come are said to be arriving (the rule in pack._recent.STILL_TO_COME).
+    assert young.sum() >= 4
+    assert cov["weeks_estimated"] == int((young & (to_come >= 0.02)).sum())
+    assert 1 <= cov["weeks_estimated"] < young.sum()
+    # On the demo only the last week (the late rows of the month's file) is still arriving.
+    assert bool((young & (to_come >= 0.02)).iloc[-1])
+    assert cov["note"] == (
+        "all 5 weeks in; the last week still arriving (2% or more of the count still to come)"
+    )

@@ -9,8 +9,9 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataWarning
+from ._calendar import MONTH_END_SPAN, choose, month_end
 from ._groups import country_of, group_of
-from ._pattern import calibrate, factors, nb_bounds, point, to_final
+from ._pattern import calibrate, nb_bounds, point
 from ._triangle import Cells, group_sums, unit_cells
 
 # A province or unit uses its own delay pattern only with this many cases in the weeks the
@@ -40,14 +41,15 @@ class Estimate:
     unit_group: np.ndarray  # (U,) group position of each unit in cells.units
 
 
-def _pattern(C, age, n_d, window, n_past, method):
-    f = factors(C, age, 0, window)
-    F = to_final(f)
+def _pattern(C, age, n_d, window, n_past, method, me):
+    """Factors for other and month-end weeks (see ``_calendar``) and the NB sizes (G, D)."""
+    F_of, _ = choose(C, age, window, n_past, me)
+    F_other, F_end, _ = F_of(0)
     if method == "negbin":
-        phi, _ = calibrate(C, age, window, n_past)
+        phi, _ = calibrate(C, age, window, n_past, F_of=F_of)
     else:
         phi = np.full((C.shape[0], n_d), np.nan)
-    return F, phi
+    return F_other, F_end, phi
 
 
 def _trim(C: np.ndarray, age: np.ndarray, keep: int) -> tuple[np.ndarray, np.ndarray]:
@@ -79,13 +81,15 @@ def estimate(
     g_country[gi] = unit_country
     S = group_sums(cells, gi, len(groups))
     age = cells.age
-    keep = n_d + window + n_past + 1
+    keep = n_d + MONTH_END_SPAN * window + n_past + 1
     Cg, ag = _trim(S["C"], age, keep)
+    me_all = month_end(cells.weeks)
+    me = me_all[age < keep]
 
     # Countries: the pattern every group falls back on.
     Sc = S if by in ("country", "region") else group_sums(cells, ci, len(countries))
     Cc, _ = _trim(Sc["C"], age, keep)
-    Fc, phic = _pattern(Cc, ag, n_d, window, n_past, method)
+    Foc, Fec, phic = _pattern(Cc, ag, n_d, window, n_past, method, me)
     # Countries without a usable history: no week that reached the last delay (fewer than
     # max_delay + 1 weeks of data), or every revision received on one day (no delays to learn).
     pair = pd.DataFrame({"c": ci[cells.row_unit], "r": cells.row_received})
@@ -105,7 +109,7 @@ def estimate(
             stacklevel=4,
         )
     cidx = np.searchsorted(countries, g_country.astype(str))
-    F = Fc[cidx].copy()
+    F_other, F_end = Foc[cidx].copy(), Fec[cidx].copy()
     phi = phic[cidx].copy()
     pattern = countries[cidx].astype(object)
     if by in ("province", "unit"):
@@ -113,10 +117,10 @@ def estimate(
         volume = np.nansum(np.where(use.T, Cg[:, :, n_d], 0), axis=1)
         own = volume >= MIN_OWN_CASES
         if own.any():  # only groups with enough data of their own get a pattern fitted
-            Fo, phio = _pattern(Cg[own], ag, n_d, window, n_past, method)
-            F[own], phi[own] = Fo, phio
+            Fo, Fe, phio = _pattern(Cg[own], ag, n_d, window, n_past, method, me)
+            F_other[own], F_end[own], phi[own] = Fo, Fe, phio
         pattern = np.where(own, groups, pattern)
-    p = point(S["C"], age, F, 0)
+    p = point(S["C"], age, (F_other, F_end, me_all), 0)
     first = np.full(len(groups), len(cells.weeks))
     np.minimum.at(first, gi[cells.pair_unit], cells.pair_week)
     phi_t = phi[:, np.clip(age, 0, n_d - 1)]

@@ -15,17 +15,21 @@ PHI_GRID = np.logspace(-1, 4, 41)
 MIN_POINTS = 4  # fewer past errors than this at a delay: use the group's pooled estimate
 
 
-def factors(C: np.ndarray, age: np.ndarray, offset: int, window: int) -> np.ndarray:
+def factors(
+    C: np.ndarray, age: np.ndarray, offset: int, window: int, weeks: np.ndarray | None = None
+) -> np.ndarray:
     """Volume-weighted development factors (Mack 1993) as known ``offset`` weeks earlier.
 
     ``f[g, d]`` = sum C[d+1] / sum C[d] over the ``window`` most recent weeks that had both
-    delays by then. 0/0 gives 1 (nothing ever reported: nothing to grow); x/0 gives inf
-    (the pattern cannot be estimated from delay d).
+    delays by then (only the weeks where ``weeks`` is True, if given). 0/0 gives 1 (nothing
+    ever reported: nothing to grow); x/0 gives inf (the pattern cannot be estimated from d).
     """
     n_d = C.shape[2] - 1
     a = age - offset
     d = np.arange(n_d)
     use = (a[:, None] >= d + 1) & (a[:, None] <= d + window)  # (T, D)
+    if weeks is not None:
+        use &= weeks[:, None]
     filled = np.nan_to_num(C)
     num = np.einsum("gtd,td->gd", filled[:, :, 1:], use)
     den = np.einsum("gtd,td->gd", filled[:, :, :-1], use)
@@ -43,13 +47,21 @@ def to_final(f: np.ndarray) -> np.ndarray:
 
 
 def point(C: np.ndarray, age: np.ndarray, F: np.ndarray, offset: int) -> dict[str, np.ndarray]:
-    """Give the reported value and chain-ladder estimate of weeks younger than D at the offset."""
+    """Give the reported value and chain-ladder estimate of weeks younger than D at the offset.
+
+    ``F`` is (G, D+1), one pattern for every week, or a tuple ``(F_other, F_end, end)`` of two
+    such patterns and a (T,) mask of the weeks that take ``F_end`` (see ``_calendar``).
+    """
     n_d = C.shape[2] - 1
     a = age - offset
     live = (a >= 0) & (a < n_d)
     k = np.clip(a, 0, n_d)
     R = np.take_along_axis(C, np.broadcast_to(k[None, :, None], (C.shape[0], len(k), 1)), 2)[..., 0]
-    Fk = F[:, k]
+    if isinstance(F, tuple):
+        F_other, F_end, end = F
+        Fk = np.where(end[None, :], F_end[:, k], F_other[:, k])
+    else:
+        Fk = F[:, k]
     with np.errstate(invalid="ignore"):
         N = np.where(np.isinf(Fk), np.nan, R * Fk)
     return {"live": live, "k": k, "R": R, "N": N}

@@ -103,6 +103,11 @@ def nowcast(
     Each group's delay pattern comes from its reporting triangle (see ``reporting_triangle``
     for the delay convention): volume-weighted development factors over the ``window_weeks``
     most recent weeks (chain-ladder, Mack 1993), multiplied out to delay ``max_delay_weeks``.
+    Where reports come in monthly batches, the week holding a month's last day is often late
+    as a whole: a group then gets one set of factors for those weeks (from the last
+    ``2 window_weeks`` weeks) and one for the others, but only if that split cut the error of
+    its own nowcasts on the previous ``2 max_delay_weeks + 4`` as-of dates by 15% or more
+    (homogeneous triangles, Friedland 2010; choice on past performance, see ``_calendar``).
     With ``method="negbin"`` the part still to come is negative binomial around that estimate;
     its size per delay is fitted to the errors this same nowcast would have made at each of the
     previous ``2 max_delay_weeks + 4`` weekly as-of dates, judged against what became known
@@ -162,6 +167,8 @@ def nowcast(
     ----------
     Mack, T. (1993). Distribution-free calculation of the standard error of chain ladder
     reserve estimates. ASTIN Bulletin 23(2), 213-225.
+    Friedland, J. (2010). Estimating Unpaid Claims Using Basic Techniques. Casualty Actuarial
+    Society.
     Wolffram, D. et al. (2023). Collaborative nowcasting of COVID-19 hospitalization incidences
     in Germany. PLoS Computational Biology 19(8), e1011394.
 

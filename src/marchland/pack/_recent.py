@@ -36,6 +36,25 @@ NOWCAST_COLUMNS = (
     "units_unknown",
     "status",
 )
+# A week counts as still arriving while the estimated part still to come is at least this share
+# of its estimate (or the estimate is missing); below it the week is taken as complete. A 2%
+# change moves neither a rate's rounding nor the epicurve visibly (common practice).
+STILL_TO_COME = 0.02
+
+
+def arriving(table: pd.DataFrame) -> pd.Series:
+    """Mark the weeks still arriving: not final and 2% or more of the estimate still to come.
+
+    Examples
+    --------
+    >>> t = pd.DataFrame({"status": ["estimated", "estimated", "reported"],
+    ...                   "reported": [99.5, 90.0, 10.0], "estimate": [100.0, 100.0, 10.0]})
+    >>> arriving(t).tolist()
+    [False, True, False]
+    """
+    est, rep = table["estimate"], table["reported"].fillna(0)
+    to_come = est.isna() | (((est - rep).abs() >= STILL_TO_COME * est.abs()) & (est != rep))
+    return table["status"].ne("reported") & to_come
 
 
 def _band(nc: pd.DataFrame, key: str) -> pd.DataFrame:
@@ -63,6 +82,7 @@ def recent_weeks(
     conf: float = 0.9,
     seed: int | None = None,
     province: pd.Series | None = None,
+    levels: tuple[str, ...] = LEVELS,
 ) -> dict[str, Any]:
     """Nowcast table, month rates as reported and nowcast-adjusted, and the month's coverage.
 
@@ -78,6 +98,9 @@ def recent_weeks(
         As :func:`marchland.delays.nowcast`.
     province : pandas.Series, optional
         Unit -> province id (default: the parent of level-2 units, else the unit).
+    levels : tuple of str
+        Levels of the nowcast table, a subset of ``LEVELS`` (all by default; the month note
+        needs "region").
 
     Returns
     -------
@@ -97,7 +120,10 @@ def recent_weeks(
     units["level"] = 2
     panel = fill_gaps(counts, units, as_of=as_of, max_delay_weeks=max_delay_weeks)
     frames = []
-    for level in LEVELS:
+    bad = [lv for lv in levels if lv not in LEVELS]
+    if bad:
+        raise ValueError(f"'levels' must be drawn from {LEVELS}; got {bad}.")
+    for level in levels:
         agg = aggregate_panel(panel, units, by=level).rename(columns={level: "group"})
         nc = nowcast(
             counts,
@@ -150,7 +176,7 @@ def recent_weeks(
         {
             "reported_cases": ga["reported"].sum(),
             "adjusted_cases": ga["estimate"].sum(min_count=1),
-            "weeks_estimated": ga["status"].agg(lambda s: int(s.ne("reported").sum())),
+            "weeks_estimated": arriving(mt).groupby([mt["level"], mt["group"]], sort=False).sum(),
             "incomplete": ga["status"].agg(lambda s: bool(s.eq("incomplete").any())),
         }
     )
@@ -173,14 +199,23 @@ def recent_weeks(
 
 
 def month_coverage(period: pd.Period, as_of: pd.Timestamp, table: pd.DataFrame) -> dict[str, Any]:
-    """How much of the month is in on ``as_of``: weeks ended, weeks still estimated, a note.
+    """How much of the month is in on ``as_of``: weeks ended, weeks still arriving, a note.
+
+    ``weeks_estimated`` counts the region's weeks still arriving (see :func:`arriving`: 2% or
+    more of the week's estimate still to come); a young week whose expected change is smaller
+    counts as complete, so the note says which weeks can still move.
 
     Examples
     --------
     >>> t = pd.DataFrame({"level": "region", "week": pd.to_datetime(["2026-10-05"]),
-    ...                   "status": ["estimated"]})
+    ...                   "status": ["estimated"], "reported": [50.0], "estimate": [60.0]})
     >>> month_coverage(pd.Period("2026-10", "M"), pd.Timestamp("2026-10-15"), t)["note"]
     'weeks 1-2 of 5 in'
+    >>> w = pd.date_range("2026-09-28", periods=5, freq="7D")
+    >>> t = pd.DataFrame({"level": "region", "week": w, "status": "estimated",
+    ...                   "reported": [100.0, 100, 100, 99, 80], "estimate": 100.0})
+    >>> month_coverage(pd.Period("2026-10", "M"), pd.Timestamp("2026-11-04"), t)["note"]
+    'all 5 weeks in; the last week still arriving (2% or more of the count still to come)'
     """
     first_day = 0
     if len(table):
@@ -188,12 +223,17 @@ def month_coverage(period: pd.Period, as_of: pd.Timestamp, table: pd.DataFrame) 
     weeks = month_weeks(period, first_day)
     ended = weeks[(weeks + pd.Timedelta(days=6)) <= as_of.normalize()]
     reg = table[table["level"].eq("region") & table["week"].isin(weeks)]
-    n_est = int(reg["status"].ne("reported").sum())
+    late = arriving(reg).to_numpy()[np.argsort(reg["week"].to_numpy())]
+    n_est = int(late.sum())
     n, k = len(weeks), len(ended)
+    rule = f"{STILL_TO_COME:.0%} or more of the count still to come"
     if k < n:
         note = f"weeks 1-{k} of {n} in" if k else f"no week of {n} ended yet"
     elif n_est:
-        note = f"all {n} weeks in; the last {n_est} still arriving"
+        # Say "the last" only when the weeks still arriving are the month's last ones.
+        tail = bool(late[len(late) - n_est :].all())
+        which = ("the last week" if n_est == 1 else f"the last {n_est}") if tail else f"{n_est}"
+        note = f"all {n} weeks in; {which} still arriving ({rule})"
     else:
-        note = f"all {n} weeks in and complete"
+        note = f"all {n} weeks in and complete (under {STILL_TO_COME:.0%} still to come in each)"
     return {"weeks": n, "weeks_in": k, "weeks_estimated": n_est, "partial": k < n, "note": note}
