@@ -70,6 +70,7 @@ import shapely
 from libpysal.graph import Graph
 
 from ..errors import DataWarning, InputError
+from ._leftout import left_out_table
 from .border import RULES, BorderGraph
 
 LINK_COLUMNS = ("from_id", "to_id", "kind", "name")
@@ -134,28 +135,8 @@ def build_border_graph(
         edges=edges,
         ids=pd.Index(ids, name="unit_id"),
         countries=pd.Series(country, index=pd.Index(ids, name="unit_id"), name="country"),
-        left_out=_left_out_table(left, pairs, ids, country),
+        left_out=left_out_table(left, pairs, ids, country),
     )
-
-
-def _left_out_table(left: pd.DataFrame, pairs: pd.DataFrame, ids, country) -> pd.DataFrame:
-    """Pairs within the tolerance the rule left out, minus those a link joined after all."""
-    n = len(ids)
-    joined = pairs["i"].to_numpy() * n + pairs["j"].to_numpy()
-    left = left[~np.isin(left["i"].to_numpy() * n + left["j"].to_numpy(), joined)]
-    i, j = left["i"].to_numpy(), left["j"].to_numpy()
-    out = pd.DataFrame(
-        {
-            "unit_a": ids[i],
-            "unit_b": ids[j],
-            "country_a": country[i],
-            "country_b": country[j],
-            "gap_m": left["gap_m"].to_numpy(dtype=float),
-            "near_shared_m": left["near_shared_m"].to_numpy(dtype=float),
-            "reason": left["reason"].astype(str).to_numpy(),
-        },
-    )
-    return out.sort_values(["gap_m", "unit_a", "unit_b"], ignore_index=True)
 
 
 # --- input checks ------------------------------------------------------------------------------
