@@ -409,9 +409,11 @@ def _tolerant_pairs(
     # queen at zero tolerance (files declared to match exactly, so plain queen as libpysal).
     # (Units that overlap may have outlines running together along the data's edge: that is
     # not contact along a line, so their near-shared length decides.)
-    touch_line = (exact > 0) & shapely.touches(gi, gj)
+    touches = shapely.touches(gi, gj)
+    touch_line = (exact > 0) & touches
     bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m)
-    point = (gap == 0) & (not rook) & (tolerance == 0)
+    # At zero tolerance: a point contact under queen, and units that overlap under either rule.
+    point = (gap == 0) & (tolerance == 0) & (~touches | (not rook))
     joined = touch_line | bridged | point
     _warn_overlaps(gi[joined], gj[joined], i[joined], j[joined])
     kind = np.where(touch_line | (point & ~bridged), "shared-boundary", "gap-bridged")
