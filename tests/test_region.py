@@ -218,3 +218,35 @@ def test_check_opens_the_risk_covariates_as_the_run_will(tmp_path):
     assert "access.csv" in row["message"] and "row 2" in row["message"]
     assert "NOWHERE-99" in row["message"]
     assert not report.ok
+
+
+def test_check_lists_border_pairs_the_graph_left_out(report: CheckReport) -> None:
+    import dataclasses
+
+    from marchland.graph.border import LEFT_OUT_COLUMNS
+    from marchland.pack._sections import left_out_block
+
+    # The demo: every pair within the tolerance is a neighbour, and check says so.
+    graph_row = report.sources.loc["graph"]
+    assert graph_row["status"] == "ok"
+    assert "0 pairs within 300 m left out" in graph_row["message"]
+    assert list(report.border_left_out.columns) == list(LEFT_OUT_COLUMNS)
+    assert len(report.border_left_out) == 0
+    assert "None: every pair" in left_out_block(report.border_left_out)
+    # Demanding 100 km of facing border leaves every gap-bridged pair out: each is listed
+    # (pairs that truly share a line would still be joined), with the advice to add links.
+    cfg = load_config(SCENARIO)
+    strict = dataclasses.replace(cfg, graph=dataclasses.replace(cfg.graph, min_shared_m=1e5))
+    rep = check(strict)
+    left = rep.border_left_out
+    assert len(left) > 0
+    assert (left["country_a"] != left["country_b"]).all()
+    assert (left["reason"] == "short").all()
+    assert (left["gap_m"] <= cfg.graph.tolerance_m + 1e-6).all()
+    text = rep.to_text()
+    assert f"Border pairs left out ({len(left)})" in text
+    assert "add it to the links table" in text
+    html = left_out_block(left)
+    assert f"Border pairs left out ({len(left)})" in html
+    assert "add it as a row of the links table" in html
+    assert str(left["unit_a"].iloc[0]) in html

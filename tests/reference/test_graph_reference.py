@@ -281,3 +281,131 @@ def test_demo_mixed_levels_and_links_at_analysis_level():
     assert edge_set(e["focal"], e["neighbor"]) == expected
     for _, row in links.iterrows():
         assert frozenset((lift.loc[row["from_id"]], lift.loc[row["to_id"]])) in bg_edges(bg)
+
+
+# --- cross-file neighbours that share a short border (issue: real neighbours dropped) -----------
+def three_countries(seed, n=300, size=30_000.0):
+    """A Voronoi tessellation (shapely/GEOS) split into three countries by 120-degree sectors
+    around its centre, each country its own file."""
+    rng = np.random.default_rng(seed)
+    frame = shapely.box(0, 0, size, size)
+    pts = shapely.multipoints(rng.uniform(0, size, (n, 2)))
+    cells = shapely.intersection(
+        shapely.get_parts(shapely.voronoi_polygons(pts, extend_to=frame)), frame
+    )
+    c = shapely.get_coordinates(shapely.centroid(cells)) - size / 2
+    sector = (np.degrees(np.arctan2(c[:, 1], c[:, 0])) % 360 // 120).astype(int)
+    code = np.array(["AAA", "BBB", "CCC"])[sector]
+    return gpd.GeoDataFrame(
+        {"country": code, "source": [f"{k}.gpkg" for k in code]},
+        geometry=cells,
+        index=pd.Index([f"V{k:03d}" for k in range(len(cells))], name="unit_id"),
+        crs=CRS,
+    )
+
+
+def pulled_apart(layer, gap):
+    """Each country moved away from the centre along its sector's bisector, so that across each
+    (straight) sector border the two files are ``gap`` metres apart, normal to it."""
+    geoms = layer.geometry.to_numpy().copy()
+    step = gap / np.sqrt(3)  # two moves 120 degrees apart: their difference is sqrt(3) * step
+    for code, deg in (("AAA", 60), ("BBB", 180), ("CCC", 300)):
+        sel = (layer["country"] == code).to_numpy()
+        move = step * np.array([np.cos(np.radians(deg)), np.sin(np.radians(deg))])
+        geoms[sel] = shapely.transform(geoms[sel], lambda xy, move=move: xy + move)
+    return layer.set_geometry(gpd.GeoSeries(geoms, index=layer.index, crs=CRS))
+
+
+def cross_rook_lengths(layer):
+    """libpysal rook contiguity with shared-perimeter weights, cross-country pairs only."""
+    r = Graph.build_contiguity(layer, rook=True, by_perimeter=True).adjacency.reset_index()
+    c = layer["country"]
+    r = r[c.loc[r["focal"]].to_numpy() != c.loc[r["neighbor"]].to_numpy()]
+    return {
+        frozenset(p): w
+        for p, w in zip(zip(r["focal"], r["neighbor"], strict=True), r["weight"], strict=True)
+    }
+
+
+def joined_within(bg, layer, tol):
+    e = bg.edges[bg.edges["kind"] != "link"]
+    geo = layer.geometry
+    d = shapely.distance(geo.loc[e["focal"]].to_numpy(), geo.loc[e["neighbor"]].to_numpy())
+    return bool((d <= tol + 1e-6).all())
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_three_countries_pulled_apart_keep_every_border_neighbour(seed):
+    layer = three_countries(seed)
+    truth = cross_rook_lengths(layer)  # libpysal Graph.build_contiguity on the whole layer
+    # The check means something: some true borders are far shorter than the tolerance.
+    assert min(truth.values()) < 50
+    moved = pulled_apart(layer, 60.0)
+    bg = border_graph(moved, tolerance=150)
+    e = bg.edges[bg.edges["cross_border"]]
+    # Every true cross-border pair found, nothing else joined across a border (no pair here
+    # meets at a point only: Voronoi junctions join three cells).
+    assert edge_set(e["focal"], e["neighbor"]) == set(truth)
+    assert joined_within(bg, moved, 150)
+    assert set(e["kind"]) == {"gap-bridged"}
+    # Pairs within the tolerance that were left out are listed, and none is a true neighbour.
+    lo = edge_set(bg.left_out["unit_a"], bg.left_out["unit_b"])
+    assert not lo & set(truth)
+    assert (bg.left_out["gap_m"] <= 150 + 1e-6).all()
+    # Within each file: libpysal queen, unchanged.
+    within = bg.edges[~bg.edges["cross_border"]]
+    ref = set()
+    for _, part in layer.groupby("country"):
+        ref |= libpysal_edges(part, rook=False)
+    assert edge_set(within["focal"], within["neighbor"]) == ref
+
+
+def virginia():
+    """libpysal.examples 'virginia': counties and independent cities in UTM 17N metres
+    (vautm17n.shp) with the rook and queen contiguity files shipped beside them."""
+    shp = Path(libpysal.examples.get_path("vautm17n.shp"))
+    va = gpd.read_file(shp)
+    va.index = pd.Index(va["POLY_ID"].astype(int), name="unit_id")
+
+    def gal(name, key):
+        # GAL: a header ending in n (the rook file: "0 136 virginia POLY_ID", ids POLY_ID; the
+        # queen file: "136", ids FIPS), then per unit a line "id k" and a line of k neighbours.
+        lines = (shp.parent / name).read_text().splitlines()
+        head = lines[0].split()
+        n = int(head[1] if len(head) > 1 else head[0])
+        heads = [ln.split() for ln in lines[1 : 1 + 2 * n : 2]]
+        nbrs = [ln.split() for ln in lines[2 : 2 + 2 * n : 2]]
+        return {
+            frozenset((key[h[0]], key[b])) for h, nb in zip(heads, nbrs, strict=True) for b in nb
+        }
+
+    by_poly = {str(k): int(k) for k in va.index}
+    by_fips = dict(zip(va["FIPS"].astype(int).astype(str), va.index.astype(int), strict=True))
+    return va, gal("virginia_rook.gal", by_poly), gal("virginia_queen.gal", by_fips)
+
+
+@pytest.mark.parametrize("move", [(60.0, 0.0), (0.0, 60.0), (-42.0, 42.0)])
+@pytest.mark.parametrize("split", ["east-west", "random"])
+def test_virginia_split_into_two_files_keeps_every_rook_neighbour(split, move):
+    va, rook, queen = virginia()
+    if split == "east-west":
+        x = shapely.get_coordinates(va.geometry.centroid)[:, 0]
+        b = x > np.median(x)
+    else:  # scattered: half the counties, chosen at random, in the second file
+        b = np.random.default_rng(4).random(len(va)) < 0.5
+    geoms = va.geometry.to_numpy().copy()
+    geoms[b] = shapely.transform(geoms[b], lambda xy: xy + np.asarray(move))  # known 60 m move
+    layer = va.assign(country=np.where(b, "BBB", "AAA"), source=np.where(b, "b", "a"))
+    layer = layer.set_geometry(gpd.GeoSeries(geoms, index=va.index, crs=va.crs))
+    bg = border_graph(layer, tolerance=150)
+    side = pd.Series(b, index=va.index)
+    cross_rook = {p for p in rook if side.loc[list(p)].nunique() == 2}
+    e = bg.edges[bg.edges["cross_border"]]
+    found = edge_set(e["focal"], e["neighbor"])
+    assert cross_rook <= found  # virginia_rook.gal: every rook pair across the files kept
+    # Anything more is a queen pair of the shipped file (a point contact that the move turned
+    # into a short facing stretch: the slide case of the module docs), within the tolerance.
+    assert found - cross_rook <= queen - rook
+    assert joined_within(bg, layer, 150)
+    if split == "east-west":
+        assert found == cross_rook

@@ -159,10 +159,10 @@ class ChecksConfig:
 
 @dataclass(frozen=True)
 class GraphConfig:
-    """``[graph]``: gap tolerance, corner rule, extra links, edge weighting."""
+    """``[graph]``: gap tolerance, corner rule (``min_shared_m``, 0: any), links, weighting."""
 
     tolerance_m: float = 300.0
-    min_shared_m: float = 500.0
+    min_shared_m: float = 0.0
     links: Path | None = None
     weighting: str = "shared"
 

@@ -5,9 +5,12 @@ Two rules, because two kinds of seams occur in the inputs:
 * **Within one boundary file** the topology is the file producer's own, so neighbours are found
   exactly: libpysal's ``Graph.build_contiguity`` (queen, or rook with ``rule="rook"``).
 * **Between files, or between countries**, outlines digitised by different producers neither
-  meet nor stop overlapping exactly. Two such units are neighbours when their boundaries come
-  within ``tolerance`` metres *along at least* ``min_shared_m`` metres (the corner rule), found by
-  an STRtree query and shapely 2 array functions over the candidate pairs only.
+  meet nor stop overlapping exactly. Candidate pairs come within ``tolerance`` metres (an
+  STRtree query and shapely 2 array functions over the candidate pairs only). A pair whose
+  boundaries truly touch along a line (an exactly shared segment of positive length) is always
+  joined, as within a file. Any other pair is joined when its near-shared length (below) is
+  positive and at least ``min_shared_m`` (the corner rule; default 0: any positive length).
+  Pairs within the tolerance that the rule leaves out are listed in ``BorderGraph.left_out``.
 
 The near-shared length of a pair (the corner rule)
 --------------------------------------------------
@@ -37,14 +40,23 @@ junctions (benchmarks/bench_graph.py, 10,000 units) +13 m mean, 89 m standard de
 pair meeting at a point above 91 m.
 
 ``shared_m`` of a cross-file pair is the larger of the exactly shared length (boundary
-intersection) and this estimate; the pair is joined when ``shared_m >= min_shared_m``. The
-default ``min_shared_m`` is ``2 * tolerance`` (the demo configures 500 m at 300 m): outlines that
-slide along each other by less than the tolerance near a junction score up to about one
-tolerance, and twice that leaves a margin. ``kind`` is "shared-boundary" when the pair would be
-joined without the tolerance (its exactly shared length alone passes the rule) and
-"gap-bridged" when the tolerance was needed; ``gap_m`` is 0 for outlines that overlap. With
-``min_shared_m=0`` any pair within the tolerance is joined (queen) or any pair with a positive
-near-shared length (rook).
+intersection) and this estimate. ``kind`` is "shared-boundary" when the boundaries truly share
+a line and "gap-bridged" when the tolerance was needed; ``gap_m`` is 0 for outlines that
+overlap.
+
+Why the default needs only a positive near-shared length: a file pulled away from its
+neighbour across the border (normal to it) keeps the junctions of both files facing each
+other, so a pair meeting at a corner scores 0 (the flat caps stop at the junction) and a true
+pair scores its full shared length, however short. On a three-country Voronoi tessellation
+pulled apart by 60 m (tests/reference/test_graph_reference.py) the smallest true pair scores
+1 m and no other pair scores above 0. What the rule cannot tell apart is a file *sliding along*
+the border by ``s``: a true pair sharing ``L < s`` metres then faces less of its partner than
+the next pair does. Such pairs are never dropped silently: the one left out is listed with its
+gap and score. A positive ``min_shared_m`` demands that length for gap-bridged pairs (corner
+pairs of slid files then stay out, short true pairs are listed instead); true line contact is
+joined whatever ``min_shared_m`` is. At zero tolerance under queen a point contact also joins
+(the files are declared to match exactly: plain queen, as libpysal's); with a positive
+tolerance a point contact between files is no evidence of a border and is listed.
 """
 
 from __future__ import annotations
@@ -58,9 +70,13 @@ import shapely
 from libpysal.graph import Graph
 
 from ..errors import DataWarning, InputError
+from ._leftout import left_out_table
 from .border import RULES, BorderGraph
 
 LINK_COLUMNS = ("from_id", "to_id", "kind", "name")
+# Near-shared lengths at or below this (metres) are numerical noise of a point contact: the
+# buffers' flat caps pass exactly through the other outline's end there.
+_MIN_NEAR_M = 1e-3
 _HASH_MULTIPLIERS = tuple(
     np.uint64(m)
     for m in (0x9E3779B97F4A7C15, 0xC2B2AE3D27D4EB4F, 0x165667B19E3779F9, 0x27D4EB2F165667C5)
@@ -82,7 +98,7 @@ def build_border_graph(
         raise ValueError(f"'rule' needs to be one of {RULES}. {rule!r} was given instead.")
     tolerance = _metres(tolerance, "the gap tolerance", "tolerance")
     if min_shared_m is None:
-        min_shared_m = 2.0 * tolerance
+        min_shared_m = 0.0
     min_shared_m = _metres(min_shared_m, "the minimum near-shared length", "min_shared_m")
 
     ids, geoms, country, group, source = _check_units(units, tolerance)
@@ -100,7 +116,9 @@ def build_border_graph(
 
     # 2. tolerant contiguity between different files or countries
     known = ei.astype(np.int64) * n + ej
-    tol = _tolerant_pairs(geoms, group, known, tolerance, min_shared_m, rule == "rook", segments)
+    tol, left = _tolerant_pairs(
+        geoms, group, known, tolerance, min_shared_m, rule == "rook", segments
+    )
 
     pairs = pd.concat([exact, tol], ignore_index=True)
     pairs["link_kind"] = pd.Series(pd.NA, index=pairs.index, dtype="string")
@@ -117,6 +135,7 @@ def build_border_graph(
         edges=edges,
         ids=pd.Index(ids, name="unit_id"),
         countries=pd.Series(country, index=pd.Index(ids, name="unit_id"), name="country"),
+        left_out=left_out_table(left, pairs, ids, country),
     )
 
 
@@ -319,8 +338,18 @@ def _tolerant_pairs(
             for c, t in zip(cols, ["int64", "int64", "float", "float", "object"], strict=True)
         }
     )
+    left_empty = pd.DataFrame(
+        {
+            c: pd.Series(dtype=t)
+            for c, t in zip(
+                ["i", "j", "near_shared_m", "gap_m", "reason"],
+                ["int64", "int64", "float", "float", "object"],
+                strict=True,
+            )
+        }
+    )
     if group.max(initial=0) == 0:
-        return empty
+        return empty, left_empty
     # Only units on their file's outline can come near another file's units: the others are
     # surrounded by their own file. (In a file without shared vertices nothing matches, so
     # every unit counts as on the outline.)
@@ -344,14 +373,14 @@ def _tolerant_pairs(
     near = shapely.dwithin(gi, gj, tolerance) if tolerance > 0 else shapely.intersects(gi, gj)
     i, j, gi, gj = i[near], j[near], gi[near], gj[near]
     if len(i) == 0:
-        return empty
+        return empty, left_empty
     gap = shapely.distance(gi, gj)
-    bi, bj = shapely.boundary(gi), shapely.boundary(gj)
-    exact = shapely.length(shapely.intersection(bi, bj))
+    # Near-shared and truly shared lengths are measured on the units' outline parts (segments
+    # not shared inside their own file): boundaries turning away into a file do not count, nor
+    # does a file's inner edge that an overlapping file's inner edge happens to lie along.
+    outline = segments.outlines(np.concatenate([i, j]))
+    exact = shapely.length(shapely.intersection(outline[i], outline[j]))
     if tolerance > 0:
-        # Near-shared length is measured on the units' outline parts (segments not shared
-        # inside their own file), so boundaries turning away into a file do not count.
-        outline = segments.outlines(np.concatenate([i, j]))
         # Clip each outline to the other's box grown by the tolerance: only that part can be
         # near, and buffering a whole long district outline is the costly step.
         ci = shapely.intersection(outline[i], grown(j))
@@ -375,18 +404,20 @@ def _tolerant_pairs(
     else:
         estimate = np.zeros(len(i))
     shared = np.maximum(exact, estimate)
-    if min_shared_m > 0:
-        joined = shared >= min_shared_m
-        exact_ok = exact >= min_shared_m
-    elif rook:
-        joined = shared > 0
-        exact_ok = exact > 0
-    else:
-        joined = np.ones(len(i), dtype=bool)
-        exact_ok = gap == 0
+    # True contact along a line always joins (as within a file). A gap-bridged pair needs a
+    # positive near-shared length of at least min_shared_m; a point contact joins only under
+    # queen at zero tolerance (files declared to match exactly, so plain queen as libpysal).
+    # (Units that overlap may have outlines running together along the data's edge: that is
+    # not contact along a line, so their near-shared length decides.)
+    touches = shapely.touches(gi, gj)
+    touch_line = (exact > 0) & touches
+    bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m)
+    # At zero tolerance: a point contact under queen, and units that overlap under either rule.
+    point = (gap == 0) & (tolerance == 0) & (~touches | (not rook))
+    joined = touch_line | bridged | point
     _warn_overlaps(gi[joined], gj[joined], i[joined], j[joined])
-    kind = np.where(exact_ok, "shared-boundary", "gap-bridged")
-    return pd.DataFrame(
+    kind = np.where(touch_line | (point & ~bridged), "shared-boundary", "gap-bridged")
+    out = pd.DataFrame(
         {
             "i": i[joined],
             "j": j[joined],
@@ -395,6 +426,18 @@ def _tolerant_pairs(
             "kind": kind[joined],
         }
     )
+    left = ~joined
+    reason = np.where(estimate[left] > _MIN_NEAR_M, "short", "corner")
+    left_out = pd.DataFrame(
+        {
+            "i": i[left],
+            "j": j[left],
+            "near_shared_m": estimate[left],
+            "gap_m": gap[left],
+            "reason": reason,
+        }
+    )
+    return out, left_out
 
 
 def _warn_overlaps(gi, gj, i, j) -> None:

@@ -25,6 +25,15 @@ EDGE_COLUMNS = ("focal", "neighbor", "shared_m", "gap_m", "cross_border", "kind"
 EDGE_KINDS = ("shared-boundary", "gap-bridged", "link")
 WEIGHTINGS = ("binary", "shared")
 RULES = ("queen", "rook")
+LEFT_OUT_COLUMNS = (
+    "unit_a",
+    "unit_b",
+    "country_a",
+    "country_b",
+    "gap_m",
+    "near_shared_m",
+    "reason",
+)
 
 
 @dataclass(frozen=True, eq=False)
@@ -41,6 +50,13 @@ class BorderGraph:
         Every analysis-unit id, islands included, in the order the graph uses.
     countries : pandas.Series, optional
         Country code per unit id; lets :meth:`higher_order` mark cross-border pairs exactly.
+    left_out : pandas.DataFrame, optional
+        Pairs of units of different files or countries that come within the gap tolerance but
+        that the corner rule did not join (``border_graph`` fills it; ``LEFT_OUT_COLUMNS``):
+        ``unit_a unit_b country_a country_b gap_m near_shared_m reason``, one row per pair,
+        closest first. ``reason`` is "corner" (they come close only at a point) or "short"
+        (near-shared length below ``min_shared_m``). A person who knows the pair really borders
+        adds it to the links table.
 
     Notes
     -----
@@ -52,6 +68,7 @@ class BorderGraph:
     edges: pd.DataFrame
     ids: pd.Index
     countries: pd.Series | None = None
+    left_out: pd.DataFrame | None = None
 
     def __post_init__(self) -> None:
         missing = [c for c in EDGE_COLUMNS if c not in self.edges.columns]
@@ -85,6 +102,13 @@ class BorderGraph:
         if self.countries is not None:
             c = pd.Series(self.countries).reindex(ids).rename("country")
             object.__setattr__(self, "countries", c)
+        left = self.left_out
+        if left is None:
+            left = pd.DataFrame({c: pd.Series(dtype=object) for c in LEFT_OUT_COLUMNS})
+        missing = [c for c in LEFT_OUT_COLUMNS if c not in left.columns]
+        if missing:
+            raise ValueError(f"left_out needs columns {list(LEFT_OUT_COLUMNS)}; missing {missing}")
+        object.__setattr__(self, "left_out", left.reset_index(drop=True).copy())
         object.__setattr__(self, "_weights_cache", {})
 
     # --- constructors -------------------------------------------------------------------
@@ -332,7 +356,9 @@ class BorderGraph:
         e = self.edges
         e = e[e["focal"].isin(keep) & e["neighbor"].isin(keep)]
         c = None if self.countries is None else self.countries
-        return BorderGraph(edges=e, ids=self.ids[self.ids.isin(keep)], countries=c)
+        lo = self.left_out
+        lo = lo[lo["unit_a"].isin(keep) & lo["unit_b"].isin(keep)]
+        return BorderGraph(edges=e, ids=self.ids[self.ids.isin(keep)], countries=c, left_out=lo)
 
 
 def _limited_distances(a: sparse.csr_matrix, k: int) -> sparse.coo_matrix:

@@ -28,9 +28,11 @@ def border_graph(
 
     Within one boundary file (column ``source``) units are neighbours by exact contiguity
     (libpysal ``Graph.build_contiguity``). Units of different files or different countries are
-    neighbours when their boundaries come within ``tolerance`` metres along at least
-    ``min_shared_m`` metres (the corner rule, stated in :mod:`marchland.graph._contiguity`).
-    Rows of ``links`` add further neighbours (ferries, bridges, road crossings).
+    neighbours when their boundaries truly share a line, or come within ``tolerance`` metres
+    along a positive length of at least ``min_shared_m`` metres (the corner rule, stated in
+    :mod:`marchland.graph._contiguity`). Pairs within the tolerance that the rule leaves out are
+    listed in ``.left_out`` for a person to confirm. Rows of ``links`` add further neighbours
+    (ferries, bridges, road crossings).
 
     Parameters
     ----------
@@ -47,7 +49,8 @@ def border_graph(
         Within a file, whether a single shared point makes neighbours (queen) or a shared
         edge is needed (rook).
     min_shared_m : float, optional
-        Near-shared boundary length needed between files (default ``2 * tolerance``).
+        Near-shared boundary length a gap-bridged pair needs (default 0: any positive length).
+        Never applies to pairs that truly share a line: they are always neighbours.
     strict : bool
         Use libpysal's geometric (slower) contiguity within files, for files whose
         neighbouring polygons do not share vertices.
@@ -61,6 +64,7 @@ def border_graph(
     BorderGraph
         ``.edges`` has ``focal neighbor shared_m gap_m cross_border kind`` and ``link_kind``,
         ``link_name`` (the link table's own kind and name, ``<NA>`` for boundary edges).
+        ``.left_out`` lists the pairs within the tolerance that were not joined.
 
     References
     ----------
@@ -85,10 +89,14 @@ def border_graph(
     2    A2       A1    0.0  shared-boundary
     3    A2       B2  100.0      gap-bridged
 
-    A1 and B2 come within 100 m only at a corner, so they are not joined:
+    A1 and B2 come within 100 m only at a corner, so they are not joined but listed:
 
     >>> ("A1", "B2") in set(zip(bg.edges["focal"], bg.edges["neighbor"]))
     False
+    >>> bg.left_out[["unit_a", "unit_b", "gap_m", "reason"]]
+      unit_a unit_b  gap_m  reason
+    0     A1     B2  100.0  corner
+    1     A2     B1  100.0  corner
     """
     return build_border_graph(
         units,

@@ -377,6 +377,7 @@ def _quality_section(result: MonthResult) -> str:
             + '</div><p class="note">Every unit\'s completeness is in '
             "tables/completeness.csv.</p>"
         )
+    body += left_out_block(getattr(result.graph, "left_out", None))
     if result.absent:
         body += (
             "<h3>Steps not computed</h3><ul>"
@@ -390,6 +391,40 @@ def _quality_section(result: MonthResult) -> str:
             + "</ul>"
         )
     return _section("Data received", body, "data")
+
+
+LEFT_OUT_ADVICE = (
+    "These pairs of units from different boundary files or countries come within the gap "
+    "tolerance but were not made neighbours: they come close only at a corner, or face each "
+    "other along less than the configured minimum. If a pair really borders (or people cross "
+    "between them), add it as a row of the links table ([graph] links) and run again."
+)
+
+
+def left_out_block(left: pd.DataFrame | None) -> str:
+    """Render the data section's list of near pairs the graph left out, and what to do."""
+    if left is None:
+        return ""
+    if not len(left):
+        return (
+            '<h3>Border pairs left out</h3><p class="note">None: every pair of units from '
+            "different files within the gap tolerance is a neighbour.</p>"
+        )
+    cols = {
+        "unit_a": "unit",
+        "country_a": "country",
+        "unit_b": "unit",
+        "country_b": "country",
+        "gap_m": "gap (m)",
+        "near_shared_m": "facing length (m)",
+        "reason": "why left out",
+    }
+    return (
+        f'<h3>Border pairs left out ({len(left)})</h3><p class="note">{esc(LEFT_OUT_ADVICE)}</p>'
+        + '<div class="scroll">'
+        + table_html(left.round({"gap_m": 0, "near_shared_m": 0}), cols)
+        + "</div>"
+    )
 
 
 def _cautions() -> str:

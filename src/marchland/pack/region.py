@@ -299,6 +299,10 @@ class CheckReport:
         repaired, units only partly covered by the population raster).
     ok : bool
         False if any source could not be read at all.
+    border_left_out : pandas.DataFrame or None
+        Pairs of analysis units from different boundary files or countries that come within
+        the gap tolerance but that the border graph did not join (``BorderGraph.left_out``);
+        None when the graph could not be built. Add a real one to the links table.
     """
 
     sources: pd.DataFrame
@@ -309,6 +313,7 @@ class CheckReport:
     rejects: pd.DataFrame
     notes: tuple[str, ...]
     ok: bool
+    border_left_out: pd.DataFrame | None = None
 
     def to_text(self) -> str:
         """Summarise the check as plain text for the terminal, one block per kind of input."""
@@ -370,6 +375,19 @@ class CheckReport:
                     f"  {c}: {k['share']:.0%} of {int(k['expected_weeks'])} unit-weeks; "
                     f"{int(k['gap_weeks'])} weeks with no report; last received {last}"
                 )
+        left = self.border_left_out
+        if left is not None and len(left):
+            lines.append(
+                f"Border pairs left out ({len(left)}): within the gap tolerance but not made "
+                "neighbours. If a pair really borders, add it to the links table ([graph] links):"
+            )
+            for r in left.head(_SHOW_REJECTS).itertuples():  # at most _SHOW_REJECTS lines
+                lines.append(
+                    f"  {r.unit_a} ({r.country_a}) - {r.unit_b} ({r.country_b}): gap "
+                    f"{r.gap_m:.0f} m, facing {r.near_shared_m:.0f} m ({r.reason})"
+                )
+            if len(left) > _SHOW_REJECTS:
+                lines.append(f"  ... and {len(left) - _SHOW_REJECTS} more")
         lines.append(
             "All sources read." if self.ok else "Some sources could not be read (see ERR above)."
         )
@@ -530,6 +548,17 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
                 .sum(min_count=1),
             }
         )
+    left_out = None
+    if units is not None:
+        from ._checkgraph import border_left_out
+
+        left_out = border_left_out(cfg, units, counts, rows, notes)
+        sources = pd.concat(
+            [sources, pd.DataFrame.from_dict({"graph": rows["graph"]}, orient="index")]
+        ).reindex(columns=_SOURCE_COLUMNS)
+        sources.index.name = "source"
+        for c in ["rows_in", "used", "rejected", "fuzzy_matches", "weeks", *REASONS]:
+            sources[c] = sources[c].fillna(0).astype(int)
     ok = bool((sources["status"] == "ok").all()) and units is not None
     return CheckReport(
         sources=sources,
@@ -540,6 +569,7 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
         rejects=rejects,
         notes=tuple(notes),
         ok=ok,
+        border_left_out=left_out,
     )
 
 
