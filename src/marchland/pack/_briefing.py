@@ -293,6 +293,9 @@ def priority_block(result: MonthResult) -> str:
     return body
 
 
+AFFECTED_ROWS = 30  # districts with cases shown in the report, largest upper total first
+
+
 def affected_block(result: MonthResult) -> str:
     """Render supply quantities for districts with cases, sized from the forecast."""
     a = result.supplies_affected
@@ -312,8 +315,9 @@ def affected_block(result: MonthResult) -> str:
         f"{q:.0%} of the simulated futures stay at or below (the config's forecast_quantile).</li>"
         "<li><b>Item columns</b> (unit in brackets) = the upper total x quantity per case x "
         "(1 + buffer), rounded up; severe-case items count only the severe share. This is what "
-        f"the district would use over {weeks} weeks if cases run high, on top of stock it holds "
-        "now; it is not a stock target.</li>"
+        f"the district would use over {weeks} weeks if cases run high: compare it with the stock "
+        "it holds. Upper totals are per district; summed over districts they overstate a "
+        "regional upper total (not every district runs high at once).</li>"
         "<li>The forecast assumes no change in response: vaccination, water and sanitation "
         "work or changes in reporting are not foreseen, and the weeks it starts from are "
         "nowcast estimates. A district whose forecast start is unknown shows no quantity.</li></ul>"
@@ -326,12 +330,21 @@ def affected_block(result: MonthResult) -> str:
         "forecast_cases_upper": f"upper ({q:.0%})",
     }
     cols.update({i: f"{i} ({_plural(u)})" for i, u in units.items() if i in p.columns})
-    return body + table_html(
-        p,
-        cols,
-        index="unit_id",
-        kinds={"population": "int", "forecast_cases": "int", "forecast_cases_upper": "int"},
-        empty="No district with cases has a forecast.",
+    return (
+        body
+        + table_html(
+            p,
+            cols,
+            index="unit_id",
+            kinds={"population": "int", "forecast_cases": "int", "forecast_cases_upper": "int"},
+            limit=AFFECTED_ROWS,
+            empty="No district with cases has a forecast.",
+        )
+        + (
+            f'<p class="note">All {len(p)} districts: tables/supplies_affected.csv.</p>'
+            if len(p) > AFFECTED_ROWS
+            else ""
+        )
     )
 
 
