@@ -4,6 +4,8 @@ $ python benchmarks/bench_forecast.py [--big] [--backtest]
 - demo: fit + 1,000 paths of 4 weeks (target < 10 s)
 - --big: 10,000 lattice units x 156 weeks (target < 2 min)
 - --backtest: demo and simulated rolling-origin scores per horizon against the baselines
+- --month-backtest: the month's lean backtest (13 origins, 200 paths) for 2026-10, in this
+  process and on 2 local worker processes (same table both ways; prints both times)
 """
 
 import sys
@@ -59,3 +61,24 @@ if "--backtest" in sys.argv:
         lambda: backtest_forecast(s.counts, s.units, s.graph, window_weeks=12, n_paths=300),
     )
     print(bt[bt["country"] == "all"].round(3).to_string())
+
+if "--month-backtest" in sys.argv:
+    from marchland.compute import Executor
+    from marchland.pack._outlooksteps import BACKTEST_PATHS
+    from marchland.pack.monthly import default_as_of
+
+    as_of = default_as_of(r.config, "2026-10")
+    c = r.counts[r.counts["received"] <= as_of].reset_index(drop=True)
+    weeks = pd.DatetimeIndex(sorted(c["week"].unique()))
+    cand = pd.date_range(end=weeks.max() - pd.Timedelta(weeks=4), periods=13, freq="14D")
+    origins = cand + pd.Timedelta(days=7 + r.config.region.as_of_lag_days)
+    kw = dict(origins=origins, n_paths=BACKTEST_PATHS, seed=r.config.region.seed)
+    one = timed("month backtest, 1 process", lambda: backtest_forecast(c, r.units, r.graph, **kw))
+    with Executor(workers=2) as ex:
+        ex.map(abs, [-1, -2])  # start the workers first
+        two = timed(
+            "month backtest, 2 workers",
+            lambda: backtest_forecast(c, r.units, r.graph, executor=ex, **kw),
+        )
+    pd.testing.assert_frame_equal(one, two)
+    print(one[one["country"] == "all"].round(3).to_string())

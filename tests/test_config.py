@@ -123,6 +123,9 @@ dir = "../o"
         ("[supplies]\nreach_km=0\n", "supplies.reach_km"),
         ("[supplies]\nreach_km=inf\n", "supplies.reach_km"),
         ("[supplies]\nk=-1\n", "supplies.k"),
+        ("[supplies]\nforecast_quantile=0.3\n", "supplies.forecast_quantile"),
+        ("[supplies]\nforecast_quantile=1\n", "supplies.forecast_quantile"),
+        ("[supplies]\nforecast_quantile='high'\n", "supplies.forecast_quantile"),
         ("[risk]\nrecent_weeks=0\n", "risk.recent_weeks"),
         ("[risk]\nreintroduction_weeks=-2\n", "risk.reintroduction_weeks"),
         ("[risk]\nreintroduction_weeks=2.5\n", "risk.reintroduction_weeks"),
@@ -225,6 +228,15 @@ def test_severe_share_has_one_default(folder: Path) -> None:
 
     assert plan.DEFAULT_SEVERE_SHARE is schema.DEFAULT_SEVERE_SHARE
     assert load_config(write(folder, MINIMAL)).supplies.severe_share == schema.DEFAULT_SEVERE_SHARE
+
+
+def test_forecast_quantile_default_and_value(folder: Path) -> None:
+    from marchland.config import schema
+
+    assert load_config(write(folder, MINIMAL)).supplies.forecast_quantile == 0.9
+    assert schema.DEFAULT_FORECAST_QUANTILE == 0.9
+    cfg = load_config(write(folder, MINIMAL + "[supplies]\nforecast_quantile=0.75\n"))
+    assert cfg.supplies.forecast_quantile == 0.75
 
 
 COVARIATE = '[[risk.covariates]]\nname = "flood"\nraster = "flood.tif"\n'

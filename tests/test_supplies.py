@@ -29,8 +29,10 @@ from shapely.geometry import box
 from marchland.errors import InputError
 from marchland.supplies import (
     SupplyPlan,
+    affected_quantities,
     assign_depots,
     choose_depots,
+    forecast_case_totals,
     prioritise,
     reach_areas,
     read_depots,
@@ -104,6 +106,81 @@ def test_quantities_by_hand():
     assert brin["iv_fluid"] == 66
     # aqua_tabs: 37.035 x 30 = 1111.05 -> 1112
     assert brin["aqua_tabs"] == 1112
+
+
+# --- districts with cases: quantities from the forecast --------------------------------------
+def _fake_forecast(seed: int = 3, known=(True, True, True, False)):
+    import types
+
+    rng = np.random.default_rng(seed)
+    paths = rng.negative_binomial(2, 0.1, size=(4, 4, 500)).astype(np.int32)  # week, unit, path
+    units = pd.DataFrame({"start_known": list(known)}, index=_units().index)
+    weeks = pd.date_range("2026-10-05", periods=4, freq="7D")
+    return types.SimpleNamespace(paths=paths, units=units, weeks=weeks)
+
+
+@pytest.mark.parametrize("q", [0.5, 0.9, 0.975])
+def test_affected_quantities_are_per_case_amounts_times_quantile_of_summed_paths(q):
+    fc = _fake_forecast()
+    ft = forecast_case_totals(fc, quantile=q)
+    out = affected_quantities(ft, _units(), plan=_plan())
+    # By hand: per unit, sum each path over the 4 weeks, then numpy's inverted-cdf quantile
+    # (an order statistic of the sums, so a whole number: the products below are exact).
+    sums = fc.paths.sum(axis=0)
+    for k, uid in enumerate(_units().index[:3]):
+        upper = float(np.sort(sums[k])[int(np.ceil(q * sums.shape[1])) - 1])
+        assert ft.loc[uid, "upper"] == upper
+        assert out.loc[uid, "forecast_cases_upper"] == upper
+        assert out.loc[uid, "forecast_cases"] == pytest.approx(sums[k].mean())
+        assert out.loc[uid, "ors"] == np.ceil(round(upper * 10 * 1.2, 9))
+        assert out.loc[uid, "iv_fluid"] == np.ceil(round(upper * 0.2 * 8 * 1.1, 9))
+        assert out.loc[uid, "aqua_tabs"] == upper * 30
+    # A unit whose start was unknown gets no quantity, and the table runs largest first.
+    assert out.loc["OSK-02-02", ["ors", "iv_fluid"]].isna().all()
+    assert list(out["forecast_cases_upper"].dropna()) == sorted(
+        out["forecast_cases_upper"].dropna(), reverse=True
+    )
+    assert out.attrs["quantile"] == q and out.attrs["weeks"] == 4
+
+
+def test_affected_quantities_from_a_real_forecast():
+    # The functions read a projections.Forecast as it is (paths, units, weeks).
+    import warnings
+
+    from marchland.errors import DataWarning
+    from marchland.projections import forecast
+    from marchland.projections._synthetic import simulate_outbreak
+
+    sim = simulate_outbreak(3, 14, seed=2)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataWarning)
+        fc = forecast(
+            sim.counts,
+            sim.units,
+            sim.graph,
+            as_of=sim.panel.columns[-1] + pd.Timedelta(days=9),
+            seed=1,
+            n_paths=300,
+        )
+    units = sim.units.assign(name=sim.units.index)
+    out = affected_quantities(forecast_case_totals(fc, quantile=0.9), units, plan=_plan())
+    totals = fc.paths.sum(axis=0)
+    upper = np.quantile(totals, 0.9, axis=1, method="inverted_cdf")
+    expect = pd.Series(upper * 30.0, index=fc.units.index)
+    np.testing.assert_array_equal(out["aqua_tabs"].astype(float), expect.reindex(out.index))
+    assert len(out) == len(units)
+
+
+def test_affected_bad_input():
+    fc = _fake_forecast()
+    for q in (0.2, 1.0):
+        with pytest.raises(ValueError, match="'quantile' needs to be at least 0.5"):
+            forecast_case_totals(fc, quantile=q)
+    ft = forecast_case_totals(fc)
+    with pytest.raises(InputError, match="not in the units table"):
+        affected_quantities(ft.rename(index={"TVR-01-01": "ZZZ"}), _units(), plan=_plan())
+    with pytest.raises(InputError, match="'upper'"):
+        affected_quantities(ft.drop(columns="upper"), _units(), plan=_plan())
 
 
 def test_severe_share_changes_only_severe_items():

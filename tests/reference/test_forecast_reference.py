@@ -3,8 +3,9 @@
 - the model's log-likelihood equals scipy.stats.nbinom.logpmf summed by hand, with the means
   (power-law weights included) rebuilt independently from scipy's shortest paths;
 - with no autoregressive and no neighbourhood part the fit is statsmodels' NB2 regression;
-- scoringrules' sample CRPS of a large negative binomial sample matches the closed-form CRPS
-  of that distribution (numeric sum), as our backtest uses it;
+- our sample CRPS equals scoringrules' ``crps_ensemble`` (ties, zeros, small and large
+  ensembles), and on a large negative binomial sample matches the closed-form CRPS of that
+  distribution (numeric sum);
 - randomised PIT of forecasts of data drawn from the model itself is uniform.
 """
 
@@ -89,6 +90,19 @@ def test_sample_crps_matches_closed_form_negative_binomial():
     exact = np.array([np.sum((cdf - (y <= k)) ** 2) for y in ys])
     draws = stats.nbinom.rvs(psi, psi / (psi + mu), size=(len(ys), 40_000), random_state=rng)
     np.testing.assert_allclose(crps(ys, draws), exact, rtol=0.02)
+
+
+def test_sample_crps_equals_scoringrules():
+    # scoringrules.crps_ensemble (default estimator) on count ensembles with ties and zeros;
+    # imported here only: importing it compiles numba kernels (slow), which is why we do not.
+    import scoringrules as sr
+
+    rng = np.random.default_rng(4)
+    for m in (1, 2, 7, 200):
+        draws = rng.negative_binomial(1.5, 0.2, size=(300, m)).astype(float)
+        ys = np.concatenate([[0.0, draws[1, 0]], rng.poisson(5, size=298).astype(float)])
+        ref = sr.crps_ensemble(ys, draws, backend="numpy")
+        np.testing.assert_allclose(crps(ys, draws), ref, rtol=1e-12, atol=1e-12)
 
 
 def test_pit_is_uniform_for_data_from_the_model():

@@ -127,6 +127,15 @@ def _share(ctx: _Ctx, key: str, v: Any) -> float:
     return v
 
 
+def _upper_quantile(ctx: _Ctx, key: str, v: Any) -> float:
+    v = _float(ctx, key, v)
+    if not 0.5 <= v < 1:
+        raise ctx.error(
+            key, f"needs to be an upper quantile, at least 0.5 and below 1. {v!r} was given."
+        )
+    return v
+
+
 def _score(ctx: _Ctx, key: str, v: Any) -> float:
     v = _float(ctx, key, v)
     if not 0 <= v <= 100:
@@ -480,6 +489,7 @@ def _supplies(ctx: _Ctx, raw: Any) -> SuppliesConfig:
         "reach_km": _pos_float,
         "planning_attack_rate": rates,
         "severe_share": _share,
+        "forecast_quantile": _upper_quantile,
     }
     d = _table(ctx, "supplies", raw, spec)
     r = d.pop("planning_attack_rate", {})

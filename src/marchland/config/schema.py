@@ -237,6 +237,10 @@ FEATURES = (
 EXTRA_FEATURES = ("affected_neighbours",)
 
 DEFAULT_SEVERE_SHARE = 0.2
+#: Quantile of the 4-week forecast case total that supply quantities for affected districts are
+#: sized to: 0.9 plans for a load exceeded in about 1 of 10 simulated futures (a planning
+#: choice, common practice for an upper planning figure; set your own).
+DEFAULT_FORECAST_QUANTILE = 0.9
 
 
 @dataclass(frozen=True)
@@ -253,7 +257,8 @@ class SuppliesConfig:
     """``[supplies]``: item table, depot candidates, number of depots, reach, planning rates.
 
     ``severe_share`` is the share of cases planned as severe (may also be given inside
-    ``planning_attack_rate``).
+    ``planning_attack_rate``). ``forecast_quantile`` is the quantile of the forecast 4-week
+    case total that quantities for districts already affected are sized to (0.5 to below 1).
     """
 
     items: Path | None = None
@@ -262,6 +267,7 @@ class SuppliesConfig:
     reach_km: float = 120.0
     planning_attack_rate: PlanningRates = field(default_factory=PlanningRates)
     severe_share: float = DEFAULT_SEVERE_SHARE
+    forecast_quantile: float = DEFAULT_FORECAST_QUANTILE
 
 
 @dataclass(frozen=True)

@@ -293,6 +293,61 @@ def priority_block(result: MonthResult) -> str:
     return body
 
 
+AFFECTED_ROWS = 30  # districts with cases shown in the report, largest upper total first
+
+
+def affected_block(result: MonthResult) -> str:
+    """Render supply quantities for districts with cases, sized from the forecast."""
+    a = result.supplies_affected
+    if a is None:
+        return ""
+    q = a.attrs.get("quantile") or result.config.supplies.forecast_quantile
+    weeks = a.attrs.get("weeks") or 4
+    units = item_units(result)
+    p = a.copy()
+    level = result.units["level"].reindex(p.index) if "level" in result.units else None
+    if level is not None:
+        p["name"] = p["name"].where(level != 1, p["name"].astype(str) + " (province)")
+    body = (
+        '<ul class="note"><li>For the districts that have reported cases (the priority list '
+        "covers those that have not yet). <b>Forecast cases</b>: the mean of the forecast "
+        f"case total over the next {weeks} weeks; <b>upper</b>: the total that "
+        f"{q:.0%} of the simulated futures stay at or below (the config's forecast_quantile).</li>"
+        "<li><b>Item columns</b> (unit in brackets) = the upper total x quantity per case x "
+        "(1 + buffer), rounded up; severe-case items count only the severe share. This is what "
+        f"the district would use over {weeks} weeks if cases run high: compare it with the stock "
+        "it holds. Upper totals are per district; summed over districts they overstate a "
+        "regional upper total (not every district runs high at once).</li>"
+        "<li>The forecast assumes no change in response: vaccination, water and sanitation "
+        "work or changes in reporting are not foreseen, and the weeks it starts from are "
+        "nowcast estimates. A district whose forecast start is unknown shows no quantity.</li></ul>"
+    )
+    cols = {
+        "name": "unit",
+        "country": "country",
+        "population": "population",
+        "forecast_cases": f"forecast cases ({weeks} weeks)",
+        "forecast_cases_upper": f"upper ({q:.0%})",
+    }
+    cols.update({i: f"{i} ({_plural(u)})" for i, u in units.items() if i in p.columns})
+    return (
+        body
+        + table_html(
+            p,
+            cols,
+            index="unit_id",
+            kinds={"population": "int", "forecast_cases": "int", "forecast_cases_upper": "int"},
+            limit=AFFECTED_ROWS,
+            empty="No district with cases has a forecast.",
+        )
+        + (
+            f'<p class="note">All {len(p)} districts: tables/supplies_affected.csv.</p>'
+            if len(p) > AFFECTED_ROWS
+            else ""
+        )
+    )
+
+
 def _pct(plan: Any, key: str) -> str:
     value = plan.get(key) if isinstance(plan, dict) else getattr(plan, key, None)
     return "&ndash;" if value is None else f"{float(value):.1%}"

@@ -111,6 +111,11 @@ def backtest_summary(ctx: Any, pj: Any) -> pd.DataFrame:
     cand = pd.date_range(end=last, periods=BACKTEST_SPAN_WEEKS // BACKTEST_STEP_WEEKS, freq="14D")
     cand = cand[cand >= start]
     lag = pd.Timedelta(days=7 + ctx.cfg.region.as_of_lag_days)
+    # The origins run one after the other here: 13 origins take ~8 s in one process, and two
+    # local worker processes were slower on the shared 2-core machine (worker start-up and
+    # import of the stage outweigh ~0.5 s per origin; benchmarks/bench_forecast.py). The
+    # backtest takes an executor (one seed per origin, same table for any worker count) for
+    # the full backtest or a Dask cluster.
     bt = pj.backtest_forecast(
         ctx.counts,
         ctx.units,

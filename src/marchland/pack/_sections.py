@@ -9,7 +9,14 @@ import pandas as pd
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
-from ._briefing import depot_sentence, how_to_read, item_units, priority_block, with_units
+from ._briefing import (
+    affected_block,
+    depot_sentence,
+    how_to_read,
+    item_units,
+    priority_block,
+    with_units,
+)
 from ._html import (
     CAUTIONS,
     _absent,
@@ -262,6 +269,8 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body += _figure(figures, "priorities")
     if result.priorities is not None:
         body += "<h3>Priority list</h3>" + priority_block(result)
+    if result.supplies_affected is not None:
+        body += "<h3>Districts with cases: the next four weeks</h3>" + affected_block(result)
     if result.depots is not None:
         d = pd.DataFrame(result.depots.drop(columns="geometry"))
         body += (

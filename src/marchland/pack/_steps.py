@@ -272,11 +272,13 @@ class _Context:
         return {"backtest": bt.summary, "backtest_by_country": bt.by_country}
 
     # -- supplies --------------------------------------------------------------------------
-    def supplies(self, risk: pd.DataFrame) -> dict[str, Any]:
+    def supplies(self, risk: pd.DataFrame, forecast: Any = None) -> dict[str, Any]:
         sp = _need(
             "supplies",
             "SupplyPlan",
             "prioritise",
+            "forecast_case_totals",
+            "affected_quantities",
             "read_depots",
             "choose_depots",
             "assign_depots",
@@ -292,6 +294,16 @@ class _Context:
             "supply_note": plan.note,
             "supply_totals": sp.totals(prio, plan=plan),
         }
+        if forecast is not None:
+            # Districts with a case to date that are not border-risk candidates: sized from the
+            # forecast's upper 4-week total instead of a planning attack rate.
+            ft = sp.forecast_case_totals(forecast, quantile=c.forecast_quantile)
+            cases = self.counts.groupby("unit_id")["cases"].sum(min_count=1)
+            hit = cases.index[cases.fillna(0).to_numpy() > 0]
+            affected = ft.index.intersection(hit).difference(risk.index)
+            out["supplies_affected"] = sp.affected_quantities(
+                ft.loc[affected], self.units, plan=plan
+            )
         if c.depots is not None and len(prio):
             sites = sp.read_depots(c.depots, self.units.crs)
             depots = sp.choose_depots(prio, sites, k=c.k, reach_km=c.reach_km, units=self.units)

@@ -347,6 +347,7 @@ def _tables(result: MonthResult) -> dict[str, pd.DataFrame | None]:
         "forecast_backtest": result.forecast_backtest,
         "supply_totals": result.supply_totals,
         "supply_totals_by_depot": result.supply_totals_by_depot,
+        "supplies_affected": result.supplies_affected,
         "depots": None
         if result.depots is None
         else pd.DataFrame(result.depots.drop(columns="geometry")),

@@ -113,6 +113,10 @@ class MonthResult:
     priorities, depots, depot_sites, depot_assignment, supply_totals, supply_totals_by_depot
         From :mod:`marchland.supplies.plan`; the totals are per country and per depot catchment
         (each candidate in the catchment of its nearest open depot).
+    supplies_affected : pandas.DataFrame
+        Districts with cases to date (not border-risk candidates): supply quantities sized to
+        the config's upper quantile of the forecast 4-week case total
+        (:func:`marchland.supplies.plan.affected_quantities`); None without a forecast.
     timings : dict
         Seconds per step.
     warnings : tuple of str
@@ -160,6 +164,7 @@ class MonthResult:
     depot_assignment: pd.DataFrame | None = None
     supply_totals: pd.DataFrame | None = None
     supply_totals_by_depot: pd.DataFrame | None = None
+    supplies_affected: pd.DataFrame | None = None
     clusters: pd.DataFrame | None = None
     forecast: Any = None
     forecast_areas: pd.DataFrame | None = None
@@ -434,7 +439,12 @@ def run_month(
         fields.update(run("clusters", lambda: _outlook.clusters_step(ctx)) or {})
         fields.update(run("forecast", lambda: _outlook.forecast_step(ctx)) or {})
         fields.update(
-            run("supplies", lambda: ctx.supplies(fields.get("risk")), needs=("border risk",)) or {}
+            run(
+                "supplies",
+                lambda: ctx.supplies(fields.get("risk"), fields.get("forecast")),
+                needs=("border risk",),
+            )
+            or {}
         )
     messages = []
     for w in caught:

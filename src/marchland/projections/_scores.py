@@ -1,8 +1,13 @@
 """Proper scores for count forecasts, and the negative binomial noise of the naive baselines.
 
-CRPS (scoringrules, from samples), log score, randomised PIT and interval coverage.
+CRPS (from samples), log score, randomised PIT and interval coverage.
 
-The CRPS is scoringrules' ``crps_ensemble``; the log score and the PIT use the exact predictive
+The CRPS is the quantile-decomposition form of the sample CRPS, the estimator that
+scoringrules' ``crps_ensemble`` uses by default. It is written here (a few lines of numpy)
+rather than imported because importing scoringrules compiles its numba kernels at import, about
+10 s per process: more than the whole monthly backtest, and paid again in every worker process.
+tests/reference/test_forecast_reference.py checks it against ``scoringrules.crps_ensemble``.
+The log score and the PIT use the exact predictive
 distribution where we have it: for the model, the mixture over paths of the negative binomial
 given each path's state (Rao-Blackwellised, so no zero-probability artefacts of finite samples).
 """
@@ -11,7 +16,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-import scoringrules as sr
 from scipy import optimize, stats
 
 from ._model import nb_logpmf
@@ -42,8 +46,19 @@ def nb_scores(y, mu, psi, rng):
 
 
 def crps(y: np.ndarray, samples: np.ndarray) -> np.ndarray:
-    """Sample CRPS per observation (samples on the last axis), by scoringrules."""
-    return np.asarray(sr.crps_ensemble(y.astype(float), samples.astype(float), backend="numpy"))
+    """Sample CRPS per observation (samples on the last axis).
+
+    ``2 / m^2 sum_i (1{y < x_(i)} - (i - 1/2) / m) (x_(i) - y) m`` over the sorted samples
+    ``x_(1) <= ... <= x_(m)``: the CRPS of the samples' empirical distribution (Gneiting and
+    Raftery 2007; scoringrules' "qd" estimator).
+    """
+    x = np.sort(np.asarray(samples, dtype=float), axis=-1)
+    m = x.shape[-1]
+    alpha = np.arange(1, m + 1) - 0.5
+    diff = x - np.asarray(y, dtype=float)[..., None]
+    w = np.where(diff < 0, -alpha, m - alpha)  # x <= y: alpha (y - x); x > y: (m - alpha)(x - y)
+    w = np.where(diff == 0, 0.0, w)
+    return 2.0 * np.sum(w * diff, axis=-1) / m**2
 
 
 def fit_size(y: np.ndarray, mu: np.ndarray) -> float:

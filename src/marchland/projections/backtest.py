@@ -8,9 +8,13 @@ fitted, per horizon, on the same fitting window.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+from typing import Any
+
 import numpy as np
 import pandas as pd
 
+from ..compute import Executor
 from ._model import ModelSpec
 from ._scores import BASELINE_FLOOR, crps, fit_size, mixture_scores, nb_scores, summarise_scores
 from ._setup import (
@@ -45,6 +49,7 @@ def backtest_forecast(
     seed: int | None = 0,
     max_order: int = MAX_ORDER,
     details: bool = False,
+    executor: Executor | None = None,
 ) -> pd.DataFrame:
     """Score forecasts made at rolling origins against what was reported afterwards.
 
@@ -68,9 +73,14 @@ def backtest_forecast(
     n_paths : int
         Paths (and baseline samples) per forecast.
     seed : int, optional
-        Seed of ``numpy.random.default_rng``.
+        Seed of the run: every origin gets its own ``numpy.random.default_rng`` from
+        ``SeedSequence(seed).spawn`` (by origin position), so the scores are the same whether
+        the origins run one after the other or in parallel.
     details : bool
         Return one row per scored unit-week instead of the summary.
+    executor : marchland.compute.Executor, optional
+        Where the origins run (:meth:`~marchland.compute.Executor.map_seeded`); by default one
+        after the other in this process.
 
     Returns
     -------
@@ -121,42 +131,80 @@ def backtest_forecast(
             f"plus {horizon_weeks} to score"
         )
     country = units["country"].reindex(ids).to_numpy() if "country" in units else "all"
-    rng = np.random.default_rng(seed)
-    spec = ModelSpec(max_order=max_order)
-    parts = []
-    for date in pd.DatetimeIndex(origins):
-        wide = weeks_panel(counts, ids, date)
-        origin_week = last_week_over(anchor, date)
-        origin = fit_origin(
-            wide,
-            e,
-            orders,
-            origin_week,
-            window_weeks=window_weeks,
-            skip_recent_weeks=skip_recent_weeks,
-            spec=spec,
-        )
-        paths, means, fweeks = run_origin(
-            origin, horizon_weeks=horizon_weeks, n_paths=n_paths, seed=rng, keep_means=True
-        )
-        y = truth.reindex(columns=fweeks).to_numpy(dtype=float).T  # (h, n)
-        ok = np.isfinite(y) & np.isfinite(origin.start)[None, :]
-        hh, ui = np.nonzero(ok)
-        yv = y[hh, ui]
-        base = dict(origin=date, unit_id=ids[ui], week=fweeks[hh], horizon=hh + 1, y=yv)
-        base["country"] = country[ui] if not isinstance(country, str) else country
-        psi = origin.fit.value("log_psi")
-        ls, pit = mixture_scores(yv, means[hh, ui].astype(float), psi, rng)
-        samp = paths[hh, ui]
-        parts.append(_scored(base, "endemic-epidemic", yv, samp, ls, pit, conf))
-        for name, m, hist in _baselines(wide, origin.fit_end, window_weeks, horizon_weeks):
-            mu = np.maximum(np.broadcast_to(m, y.shape)[hh, ui], BASELINE_FLOOR)
-            size = np.array([fit_size(*hist(h)) for h in range(1, horizon_weeks + 1)])[hh]
-            ls, pit = nb_scores(yv, mu, size, rng)
-            samp = rng.poisson(rng.gamma(size[:, None], (mu / size)[:, None], (len(yv), n_paths)))
-            parts.append(_scored(base, name, yv, samp, ls, pit, conf))
+    job = _Job(
+        counts=counts,
+        ids=ids,
+        e=e,
+        orders=orders,
+        truth=truth,
+        anchor=anchor,
+        country=country,
+        spec=ModelSpec(max_order=max_order),
+        window_weeks=window_weeks,
+        skip_recent_weeks=skip_recent_weeks,
+        horizon_weeks=horizon_weeks,
+        n_paths=n_paths,
+        conf=conf,
+    )
+    ex = Executor() if executor is None else executor
+    parts = ex.map_seeded(_score_origin, list(pd.DatetimeIndex(origins)), job, seed=seed)
+    parts = [p for origin_parts in parts for p in origin_parts]
     detail = pd.concat(parts, ignore_index=True)
     return detail if details else summarise_scores(detail)
+
+
+@dataclass(frozen=True, eq=False)
+class _Job:
+    """What every origin of one backtest shares (shipped once per task to a worker)."""
+
+    counts: pd.DataFrame
+    ids: pd.Index
+    e: np.ndarray
+    orders: OrderMatrix
+    truth: pd.DataFrame
+    anchor: pd.Timestamp
+    country: Any
+    spec: ModelSpec
+    window_weeks: int
+    skip_recent_weeks: int
+    horizon_weeks: int
+    n_paths: int
+    conf: float
+
+
+def _score_origin(date: pd.Timestamp, job: _Job, seed) -> list[pd.DataFrame]:
+    """Fit at one origin, simulate, and score the model and both baselines (one task)."""
+    rng = np.random.default_rng(seed)
+    ids, horizon_weeks, n_paths, conf = job.ids, job.horizon_weeks, job.n_paths, job.conf
+    wide = weeks_panel(job.counts, ids, date)
+    origin = fit_origin(
+        wide,
+        job.e,
+        job.orders,
+        last_week_over(job.anchor, date),
+        window_weeks=job.window_weeks,
+        skip_recent_weeks=job.skip_recent_weeks,
+        spec=job.spec,
+    )
+    paths, means, fweeks = run_origin(
+        origin, horizon_weeks=horizon_weeks, n_paths=n_paths, seed=rng, keep_means=True
+    )
+    y = job.truth.reindex(columns=fweeks).to_numpy(dtype=float).T  # (h, n)
+    ok = np.isfinite(y) & np.isfinite(origin.start)[None, :]
+    hh, ui = np.nonzero(ok)
+    yv = y[hh, ui]
+    base = dict(origin=date, unit_id=ids[ui], week=fweeks[hh], horizon=hh + 1, y=yv)
+    base["country"] = job.country[ui] if not isinstance(job.country, str) else job.country
+    psi = origin.fit.value("log_psi")
+    ls, pit = mixture_scores(yv, means[hh, ui].astype(float), psi, rng)
+    parts = [_scored(base, "endemic-epidemic", yv, paths[hh, ui], ls, pit, conf)]
+    for name, m, hist in _baselines(wide, origin.fit_end, job.window_weeks, horizon_weeks):
+        mu = np.maximum(np.broadcast_to(m, y.shape)[hh, ui], BASELINE_FLOOR)
+        size = np.array([fit_size(*hist(h)) for h in range(1, horizon_weeks + 1)])[hh]
+        ls, pit = nb_scores(yv, mu, size, rng)
+        samp = rng.poisson(rng.gamma(size[:, None], (mu / size)[:, None], (len(yv), n_paths)))
+        parts.append(_scored(base, name, yv, samp, ls, pit, conf))
+    return parts
 
 
 def _scored(base, model, y, samples, log_score, pit, conf) -> pd.DataFrame:

@@ -12,6 +12,8 @@ _EXPORTS = {
     "SupplyPlan": "plan",
     "prioritise": "plan",
     "totals": "plan",
+    "forecast_case_totals": "plan",
+    "affected_quantities": "plan",
     "read_supply_items": "plan",
     "read_depots": "depots",
     "choose_depots": "depots",

@@ -8,6 +8,8 @@ border-risk table into:
   to hold there **if the outbreak arrives** (not weighted by probability);
 - :func:`totals`: per country or per depot catchment, the if-it-arrives sums and the
   **risk-weighted** sums (probability x quantity: the expected need);
+- :func:`forecast_case_totals` and :func:`affected_quantities`: for districts that already
+  have cases, quantities sized to an upper quantile of the forecast's 4-week case total;
 - :func:`choose_depots`: which candidate depot sites to open so that the most risk-weighted
   population (probability x population) lies within reach, and :func:`assign_depots`: the
   nearest open depot of every candidate district and whether it is within reach.
@@ -27,7 +29,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..config.schema import DEFAULT_SEVERE_SHARE  # an assumed planning value; see its comment there
+from ..config.schema import (
+    DEFAULT_FORECAST_QUANTILE,  # a planning choice; see its comment
+    DEFAULT_SEVERE_SHARE,  # an assumed planning value; see its comment there
+)
 from ..errors import InputError
 from . import _covering
 from ._input import (
@@ -50,6 +55,8 @@ __all__ = [
     "ITEM_COLUMNS",
     "ITEM_UNITS",
     "SupplyPlan",
+    "affected_quantities",
+    "forecast_case_totals",
     "prioritise",
     "read_supply_items",
     "totals",
@@ -365,3 +372,129 @@ def totals(
         weighted = _ceil(out[f"{name}_risk_weighted"].to_numpy(dtype=float))
         out[f"{name}_risk_weighted"] = pd.array(weighted, dtype="Float64").astype("Int64")
     return out
+
+
+# --- districts already affected ----------------------------------------------------------
+def forecast_case_totals(
+    forecast: Any, *, quantile: float = DEFAULT_FORECAST_QUANTILE
+) -> pd.DataFrame:
+    """Sum each unit's simulated paths over the forecast horizon and summarise the totals.
+
+    Parameters
+    ----------
+    forecast : marchland.projections.Forecast
+        Anything with ``paths`` (horizon x unit x path counts), ``units`` (indexed by
+        ``unit_id`` in path order, with ``start_known``) and ``weeks``.
+    quantile : float
+        Upper quantile of the total to report, at least 0.5 and below 1.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``unit_id``: ``weeks`` (horizon length), ``mean`` and ``median`` of the
+        total over the horizon, and ``upper``, its ``quantile`` (per path the weeks are summed
+        first, then the quantile is taken: a quantile of a sum, not a sum of quantiles). NaN for
+        units whose starting count was unknown. ``attrs["quantile"]`` holds ``quantile``.
+
+    Examples
+    --------
+    >>> import types
+    >>> paths = np.array([[[0, 2, 4, 6]], [[1, 1, 1, 1]]])  # 2 weeks, 1 unit, 4 paths
+    >>> fc = types.SimpleNamespace(paths=paths, weeks=pd.date_range("2026-01-05", periods=2,
+    ...     freq="7D"), units=pd.DataFrame({"start_known": [True]}, index=["A"]))
+    >>> forecast_case_totals(fc, quantile=0.75)[["mean", "upper"]]
+             mean  upper
+    unit_id
+    A         4.0    5.0
+    """
+    q = float(quantile)
+    if not 0.5 <= q < 1:
+        raise ValueError(f"'quantile' needs to be at least 0.5 and below 1. {quantile!r} given.")
+    sums = np.asarray(forecast.paths, dtype=float).sum(axis=0)  # unit x path
+    known = forecast.units["start_known"].to_numpy(dtype=bool)
+    out = pd.DataFrame(
+        {
+            "weeks": len(forecast.weeks),
+            "mean": sums.mean(axis=1),
+            "median": np.quantile(sums, 0.5, axis=1, method="inverted_cdf"),
+            "upper": np.quantile(sums, q, axis=1, method="inverted_cdf"),
+        },
+        index=pd.Index(forecast.units.index, name="unit_id"),
+    )
+    out.loc[~known, ["mean", "median", "upper"]] = np.nan
+    out.attrs["quantile"] = q
+    return out
+
+
+def affected_quantities(
+    forecast_totals: pd.DataFrame, units: pd.DataFrame, *, plan: SupplyPlan
+) -> pd.DataFrame:
+    """Size supplies for districts that already have cases from their forecast case totals.
+
+    Parameters
+    ----------
+    forecast_totals : pandas.DataFrame
+        :func:`forecast_case_totals` output for the affected units (the caller picks them),
+        indexed by ``unit_id`` with ``mean`` and ``upper``.
+    units : pandas.DataFrame
+        Analysis units indexed by ``unit_id`` with ``name``, ``country``, ``population``.
+    plan : SupplyPlan
+        Per-case quantities, severe share and buffers (the attack rates are not used).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by ``unit_id``, largest ``forecast_cases_upper`` first: ``name country
+        population forecast_cases`` (mean total over the horizon) ``forecast_cases_upper`` (its
+        upper quantile), then one nullable-integer column per item = ceil(forecast_cases_upper
+        x s x per_case x (1 + buffer_share)), with s = severe_share for ``basis = "severe"``
+        items and 1 otherwise: the same rule as :func:`prioritise`, with the forecast's upper
+        total in place of the planning cases. ``<NA>`` where the forecast is unknown.
+        ``attrs`` carry ``quantile`` and ``weeks``.
+
+    Notes
+    -----
+    The forecast assumes no change in response: vaccination, water and sanitation work or a
+    change in reporting are not foreseen. Reporting is delayed and incomplete; treat the
+    quantities as a planning figure and defer to national authorities.
+
+    Examples
+    --------
+    >>> units = pd.DataFrame({"name": ["Aldo"], "country": ["TVR"], "population": [50_000]},
+    ...                      index=pd.Index(["TVR-01-01"], name="unit_id"))
+    >>> totals = pd.DataFrame({"mean": [30.0], "upper": [52.0]}, index=units.index)
+    >>> items = pd.DataFrame({"item": ["ors"], "unit": ["sachet"], "per_case": [8],
+    ...                       "basis": ["all"], "buffer_share": [0.25]})
+    >>> plan = SupplyPlan(items, 0.001, 0.003, 0.008)
+    >>> affected_quantities(totals, units, plan=plan)[["forecast_cases_upper", "ors"]]
+               forecast_cases_upper  ors
+    unit_id
+    TVR-01-01                  52.0  520
+    """
+    for col in ("mean", "upper"):
+        if col not in forecast_totals.columns:
+            raise InputError(f"the forecast totals need a {col!r} column", column=col)
+    for col in ("name", "country", "population"):
+        if col not in units.columns:
+            raise InputError(f"the units table needs a {col!r} column", column=col)
+    _check_known(forecast_totals.index, units, "forecast totals name")
+    ids = pd.Index(forecast_totals.index, name="unit_id")
+    out = pd.DataFrame(index=ids)
+    out["name"] = units["name"].reindex(ids)
+    out["country"] = units["country"].reindex(ids)
+    out["population"] = pd.to_numeric(units["population"], errors="coerce").reindex(ids)
+    out["forecast_cases"] = forecast_totals["mean"].astype(float)
+    upper = forecast_totals["upper"].astype(float)
+    out["forecast_cases_upper"] = upper
+    quantities = _quantities(upper.to_numpy(), plan)
+    for name, values in zip(plan.item_names, quantities.T, strict=True):
+        out[name] = pd.array(values, dtype="Float64").astype("Int64")
+    out = out.sort_values("forecast_cases_upper", ascending=False, kind="stable")
+    out.attrs.update(quantile=forecast_totals.attrs.get("quantile"), weeks=_weeks(forecast_totals))
+    return out
+
+
+def _weeks(totals: pd.DataFrame) -> int | None:
+    if "weeks" not in totals.columns or not len(totals):
+        return None
+    return int(totals["weeks"].iloc[0])
