@@ -278,7 +278,7 @@ def require_columns(
             # wrong path or a stray file matched by a pattern). Its first line is not echoed:
             # it may be any text, and messages end up in logs.
             raise InputError(
-                f"none of the configured columns ({key}.columns) is in the file{where}; it does "
+                f"the configured columns ({key}.columns) are not in the file{where}; it does "
                 f"not look like this report table ({len(frame.columns)} column(s) in its first "
                 "line)",
                 file=file,
