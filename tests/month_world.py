@@ -126,7 +126,7 @@ def grid_counts(units: gpd.GeoDataFrame, *, seed: int = 3) -> pd.DataFrame:
     return c
 
 
-def fake_region(cfg) -> SimpleNamespace:
+def fake_region(cfg, today=None) -> SimpleNamespace:
     """What ``region.open_region`` gives, built from the grid (no file reading)."""
     units = grid_units()
     counts = grid_counts(units)

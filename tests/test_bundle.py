@@ -3,7 +3,9 @@
 Covered: every file and layer of the bundle is written; the manifest's sha256 of each input
 matches hashlib on the file; a failure injected in the last writing step leaves the previous
 bundle byte for byte as it was and no partial folder behind; an existing month is never
-replaced without ``overwrite``; two runs with the same inputs and seed give identical tables;
+replaced without ``overwrite``; a rerun with the same inputs and as-of date gives byte-identical
+files except those the manifest lists as carrying a run-time value; a replacing run killed
+between its two renames is undone by the next run;
 every string from the inputs is escaped in report.html; a missing analysis module shows as
 "not computed", never as a faked result. Runs on the invented grid world of ``month_world``
 (the region is built from the grid instead of read from files, so this stays quick).
@@ -215,13 +217,133 @@ def test_partial_folder_of_a_dead_run_is_cleared(no_figures, result, tmp_path):
     assert not dead.exists()
 
 
-def test_same_inputs_and_seed_give_identical_tables(no_figures, world, result, tmp_path):
-    again = _run(world)
-    a = bundle.write_month(result, tmp_path / "a")
-    b = bundle.write_month(again, tmp_path / "b")
-    ta = {k: v for k, v in _snapshot(a).items() if k.startswith("tables/") or k == "rejects.csv"}
-    tb = {k: v for k, v in _snapshot(b).items() if k.startswith("tables/") or k == "rejects.csv"}
-    assert ta and ta == tb
+def _pack(text):
+    return lambda folder: (folder / "a.txt").write_text(text)
+
+
+def test_replacing_a_pack_is_one_atomic_swap_on_linux(tmp_path, monkeypatch):
+    import sys
+
+    if sys.platform.startswith("linux"):
+        assert bundle._renameat2() is not None  # glibc 2.28+; the CI machines have it
+    bundle.replace_atomically(tmp_path, "2026-10", _pack("old"))
+
+    def no_rename(*a, **k):
+        raise AssertionError("two-rename fallback used")
+
+    if bundle._renameat2() is not None:
+        # With the exchange there is no rename at all, so no moment without a pack.
+        monkeypatch.setattr(os, "rename", no_rename)
+    dest = bundle.replace_atomically(tmp_path, "2026-10", _pack("new"), overwrite=True)
+    assert (dest / "a.txt").read_text() == "new"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["2026-10"]
+
+
+def test_a_kill_between_the_two_renames_is_undone_by_the_next_run(tmp_path):
+    import subprocess
+    import sys
+
+    from marchland.errors import DataWarning
+
+    bundle.replace_atomically(tmp_path, "2026-10", _pack("old"))
+    # Where there is no atomic exchange: the process dies (no clean-up possible) right after
+    # moving the old pack aside, before the new one is in place.
+    script = f"""
+import os
+from marchland.pack import bundle
+bundle._exchange = lambda a, b: False
+bundle._between_renames = lambda: os._exit(9)
+bundle.replace_atomically({str(tmp_path)!r}, "2026-10",
+                          lambda d: (d / "a.txt").write_text("new"), overwrite=True)
+"""
+    child = subprocess.run([sys.executable, "-c", script], capture_output=True, timeout=120)
+    assert child.returncode == 9, child.stderr
+    assert not (tmp_path / "2026-10").exists()
+    hidden = sorted(p.name for p in tmp_path.iterdir())
+    assert len(hidden) == 2 and hidden[0].startswith(".2026-10.partial-")  # the new pack
+    assert hidden[1].startswith(".2026-10.replaced-")  # the old one
+    # The next run (here its first check) puts the old pack back and says so; without
+    # overwrite it then refuses as for any existing month.
+    with (
+        pytest.warns(DataWarning, match="restored the previous pack"),
+        pytest.raises(InputError, match="exists already"),
+    ):
+        bundle.check_destination(tmp_path, "2026-10", overwrite=False)
+    assert (tmp_path / "2026-10" / "a.txt").read_text() == "old"
+    assert not (tmp_path / hidden[1]).exists()
+    dest = bundle.replace_atomically(tmp_path, "2026-10", _pack("newer"), overwrite=True)
+    assert (dest / "a.txt").read_text() == "newer"
+    assert [p.name for p in tmp_path.iterdir()] == ["2026-10"]
+
+
+def test_a_kill_after_the_swap_leaves_the_new_pack_and_the_next_run_clears_the_old(tmp_path):
+    import subprocess
+    import sys
+
+    bundle.replace_atomically(tmp_path, "2026-10", _pack("old"))
+    script = f"""
+import os, shutil
+from marchland.pack import bundle
+shutil.rmtree = lambda *a, **k: os._exit(9)  # dies while removing the swapped-out old pack
+bundle.replace_atomically({str(tmp_path)!r}, "2026-10",
+                          lambda d: (d / "a.txt").write_text("new"), overwrite=True)
+"""
+    child = subprocess.run([sys.executable, "-c", script], capture_output=True, timeout=120)
+    assert child.returncode == 9, child.stderr
+    assert (tmp_path / "2026-10" / "a.txt").read_text() == "new"
+    bundle.replace_atomically(tmp_path, "2026-10", _pack("newer"), overwrite=True)
+    assert [p.name for p in tmp_path.iterdir()] == ["2026-10"]
+
+
+def test_a_rerun_gives_byte_identical_files_but_those_the_manifest_lists(world, written, tmp_path):
+    # A second run and write of the same month, later by the clock: every file (tables,
+    # GeoPackage, GeoParquet, maps, atlas, report) has the same bytes, except the files the
+    # manifest itself names as carrying a value of the moment (its own timings).
+    time.sleep(1.1)  # the GeoPackage's time stamps have second resolution
+    again = bundle.write_month(_run(world), tmp_path)
+    a, b = _snapshot(written), _snapshot(again)
+    varies = json.loads((again / "manifest.json").read_text())["varies_between_runs"]
+    assert set(varies) == {"manifest.json"} and all(varies.values())
+    assert sorted(a) == sorted(b) and len(a) > 40
+    differ = sorted(k for k in a if a[k] != b[k])
+    assert differ == ["manifest.json"], differ
+    # The manifest's record of the files agrees too.
+    fa = json.loads((written / "manifest.json").read_text())["files"]
+    fb = json.loads((again / "manifest.json").read_text())["files"]
+    assert fa == fb
+
+
+def test_future_weeks_are_judged_against_the_runs_date_not_the_clock(world, monkeypatch):
+    seen = []
+
+    def spy(cfg, today=None):
+        seen.append(today)
+        raise InputError("stop here", file="spy.csv")
+
+    monkeypatch.setattr(monthly, "_open_region", spy)
+    for kw in ({}, {"as_of": "2026-12-01"}, {"as_of": "2026-10-20"}, {"run_date": "2027-02-03"}):
+        with pytest.raises(InputError, match="stop here"):
+            monthly.run_month(world, "2026-10", **kw)
+    # The month's as-of date (end + as_of_lag_days = 3), a later as-of date, never earlier than
+    # the month's own, or the explicit run date.
+    assert [f"{d:%Y-%m-%d}" for d in seen] == [
+        "2026-11-03",
+        "2026-12-01",
+        "2026-11-03",
+        "2027-02-03",
+    ]
+
+
+def test_manifest_records_the_run_date(written, result):
+    m = json.loads((written / "manifest.json").read_text())
+    assert m["run_date"] == f"{result.run_date:%Y-%m-%d}" == "2026-11-03"
+
+
+def test_as_of_before_any_report_of_the_month_is_refused_before_the_analysis(world, monkeypatch):
+    monkeypatch.setattr(monthly, "_open_region", fake_region)
+    monkeypatch.setattr(_steps._Context, "rates", lambda self: pytest.fail("analysis ran"))
+    with pytest.raises(InputError, match="no report of 2026-10 had been received by the as-of"):
+        monthly.run_month(world, "2026-10", as_of="2020-01-01")
 
 
 def test_report_escapes_input_strings(written):
@@ -310,7 +432,7 @@ def test_a_statistic_the_month_cannot_carry_is_reported_not_fatal(world, monkeyp
 
 
 def test_a_bad_input_file_still_stops_the_run(world, monkeypatch):
-    def bad(cfg):
+    def bad(cfg, today=None):
         raise InputError("cases must be a whole number", file="aaa.csv", row=3, column="cases")
 
     monkeypatch.setattr(monthly, "_open_region", bad)

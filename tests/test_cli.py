@@ -288,3 +288,60 @@ def test_run_refuses_a_source_with_every_row_rejected(runner, world, tmp_path):
     assert res.exit_code == 2, res.output
     assert "every row of report source" in res.output
     assert len(res.output.strip().splitlines()) == 1
+
+
+def _one_error_line(res):
+    assert res.exit_code == 2, res.output
+    assert res.stderr.startswith("error: ") and res.stderr.count("\n") == 1, res.stderr
+    assert "Traceback" not in res.output and "unexpected" not in res.output
+    return res.stderr
+
+
+def _world_with(tmp_path, world, old, new):
+    import shutil
+
+    copy = tmp_path / "w"
+    shutil.copytree(world.parent, copy)
+    cfg = copy / world.name
+    text = cfg.read_text()
+    assert old in text
+    cfg.write_text(text.replace(old, new))
+    return copy, cfg
+
+
+def test_a_boundary_path_to_a_csv_is_named_as_not_a_boundary_file(runner, world, tmp_path):
+    copy, cfg = _world_with(tmp_path, world, 'path = "grid.gpkg"', 'path = "pop.csv"')
+    res = runner.invoke(cli.cli, ["run", str(cfg), "--month", "2026-10", "--out", str(tmp_path)])
+    err = _one_error_line(res)
+    assert "pop.csv" in err
+    assert "not a vector boundary file (GeoPackage, GeoJSON, Shapefile, GeoParquet)" in err
+
+
+def test_a_report_path_to_an_unrelated_file_does_not_echo_its_content(runner, world, tmp_path):
+    copy, cfg = _world_with(tmp_path, world, 'path = "aaa.csv"', 'path = "notes.txt"')
+    (copy / "notes.txt").write_text("private first line, not a report\nmore text\n")
+    res = runner.invoke(cli.cli, ["run", str(cfg), "--month", "2026-10", "--out", str(tmp_path)])
+    err = _one_error_line(res)
+    assert "notes.txt" in err and "does not look like this report table" in err
+    assert "private" not in res.output
+
+
+def test_a_misnamed_column_still_lists_the_files_header(runner, world, tmp_path):
+    copy, cfg = _world_with(tmp_path, world, 'cases = "cases"', 'cases = "n_cases"')
+    res = runner.invoke(cli.cli, ["run", str(cfg), "--month", "2026-10", "--out", str(tmp_path)])
+    err = _one_error_line(res)
+    assert "'n_cases'" in err and "'deaths'" in err  # the configured report's own header
+
+
+def test_as_of_before_any_data_is_one_line_before_the_analysis(
+    runner, world, grid, tmp_path, monkeypatch
+):
+    from marchland.pack import _steps
+
+    monkeypatch.setattr(_steps._Context, "rates", lambda self: pytest.fail("analysis ran"))
+    res = runner.invoke(
+        cli.cli,
+        ["run", str(world), "--month", "2026-10", "--as-of", "2020-01-01", "--out", str(tmp_path)],
+    )
+    err = _one_error_line(res)
+    assert "as_of" in err and "2020-01-01" in err and "no report of 2026-10" in err

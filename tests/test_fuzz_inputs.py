@@ -19,9 +19,9 @@ import pytest
 sys.path.insert(0, str(Path(__file__).parent))
 from fuzz_corpus import Corpus  # noqa: E402
 
-# Cases in the default run: bounded by read_reports' per-source overhead (~0.4 s a case);
-# the benchmark runs thousands.
-N_CASES = 150
+# Cases in the default run: bounded by read_reports' per-source overhead (about 0.1 s of CPU
+# a case); the benchmark runs thousands.
+N_CASES = 300
 
 
 @pytest.fixture(scope="module")

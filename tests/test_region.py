@@ -250,3 +250,22 @@ def test_check_lists_border_pairs_the_graph_left_out(report: CheckReport) -> Non
     assert f"Border pairs left out ({len(left)})" in html
     assert "add it as a row of the links table" in html
     assert str(left["unit_a"].iloc[0]) in html
+
+
+def test_future_weeks_follow_the_given_run_date_not_the_clock(tmp_path: Path) -> None:
+    from month_world import write_world
+
+    cfg = write_world(tmp_path)
+    with open(tmp_path / "aaa.csv", "a") as f:
+        f.write("AAA-01-0000,2027-03-01,4,0,2027-03-05\n")  # a week after the first date
+
+    def future_rows(today: str) -> list[int]:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", DataWarning)
+            rj = open_region(cfg, today=today).rejects
+        return sorted(rj.loc[rj["reason"] == "future-week", "row"].astype(int))
+
+    last_row = len((tmp_path / "aaa.csv").read_text().splitlines())
+    # The same files and date give the same rejects whatever the day of the run.
+    assert future_rows("2026-11-03") == [last_row] == future_rows("2026-11-03")
+    assert future_rows("2027-04-01") == []

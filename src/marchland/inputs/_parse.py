@@ -161,8 +161,47 @@ _NS_MIN, _NS_MAX = pd.Timestamp.min.ceil("D"), pd.Timestamp.max.floor("D")
 
 def text(s: pd.Series) -> pd.Series:
     """Cells as stripped strings; blanks become <NA>."""
+    fast = _text_cells(s.to_numpy(dtype=object))
+    if fast is not None:
+        return pd.Series(fast, index=s.index, name=s.name, copy=False)
     out = s.astype("string").str.strip()
     return out.mask(out == "")
+
+
+def text_frame(frame: pd.DataFrame) -> pd.DataFrame:
+    """:func:`text` on every column, in one pass where every cell is text or missing."""
+    n = len(frame)
+    fast = _text_cells(frame.to_numpy(dtype=object).ravel(order="F")) if frame.shape[1] else None
+    if fast is None:
+        return frame.apply(text) if frame.shape[1] else frame
+    cols = {i: fast[i * n : (i + 1) * n] for i in range(frame.shape[1])}
+    out = pd.DataFrame(cols, index=frame.index, copy=False)
+    out.columns = frame.columns
+    return out
+
+
+def _text_cells(cells: np.ndarray) -> pd.api.extensions.ExtensionArray | None:
+    """Strip text cells with pyarrow in one call; None if any cell is not text or missing.
+
+    The same as ``astype("string").str.strip()`` then blanks to <NA> (pandas' string dtype
+    strips with this pyarrow kernel too), without pandas' per-call overhead, which dominated
+    the reading of small report tables. Numbers and dates (from workbooks) take the pandas
+    path, which writes them as pandas does.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    try:
+        arr = pa.array(cells, from_pandas=True)
+    except (pa.ArrowInvalid, pa.ArrowTypeError, OverflowError):  # e.g. a 2**63 in a workbook
+        return None
+    if arr.type == pa.null():
+        arr = arr.cast(pa.string())
+    if arr.type != pa.string():  # numbers, dates, bytes, mixtures
+        return None
+    t = pc.utf8_trim_whitespace(arr)
+    t = pc.if_else(pc.equal(t, ""), pa.scalar(None, pa.string()), t)
+    return pd.array(t, dtype="string")
 
 
 def _strict(t: pd.Series, fmt: str) -> pd.Series:
@@ -234,6 +273,17 @@ def require_columns(
     if missing:
         field, col = missing[0]
         where = f" (sheet {sheet!r})" if sheet else ""
+        if len(missing) == len(wanted):
+            # None of the configured columns: most likely not this report table at all (a
+            # wrong path or a stray file matched by a pattern). Its first line is not echoed:
+            # it may be any text, and messages end up in logs.
+            raise InputError(
+                f"the configured columns ({key}.columns) are not in the file{where}; it does "
+                f"not look like this report table ({len(frame.columns)} column(s) in its first "
+                "line)",
+                file=file,
+                column=col,
+            )
         raise InputError(
             f"column {col!r} ({key}.columns.{field}) is not in the file{where}; it has "
             f"{list(frame.columns)}",
@@ -316,7 +366,7 @@ def parse_table(
     wanted = {f: getattr(c, f) for f in fields if getattr(c, f)}
     frame = require_columns(frame, wanted, file, sheet, key).reset_index(drop=True)
     # Every cell as stripped text once; blanks become <NA>.
-    frame = frame.apply(text) if frame.shape[1] else frame
+    frame = text_frame(frame)
     n = len(frame)
     df = pd.DataFrame({"file": file.name, "sheet": sheet, "row": np.arange(2, n + 2)})
     df["reason"] = pd.Series([None] * n, dtype=object)

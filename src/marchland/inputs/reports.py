@@ -23,7 +23,7 @@ from ..errors import DataWarning, InputError
 from ._names import Matcher
 from ._parse import flag as _flag
 from ._parse import parse_table as _parse_table
-from ._parse import read_tables, text
+from ._parse import read_tables, text_frame
 from .weeks import epi_week, week_start
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -174,7 +174,7 @@ def load_aliases(
         raise InputError(
             f"the alias table needs columns {cols}; missing {missing}", file=file, column=missing[0]
         )
-    table = table[cols].apply(text)
+    table = text_frame(table[cols])
     table = table[table.notna().all(axis=1)]
     table["country"] = table["country"].str.upper()
     unknown = ~table["unit_id"].isin(units.index)
@@ -438,7 +438,9 @@ def reporting_completeness(
     ([0.67, 0.33], 1)
     """
     levels = pd.DataFrame([(s.country, s.level) for s in specs], columns=["country", "level"])
-    exp = units.reset_index().merge(levels.drop_duplicates(), on=["country", "level"])
+    # Only the two columns: copying the units' geometry here cost more than the rest.
+    exp = pd.DataFrame(units[["country", "level"]]).reset_index()
+    exp = exp.merge(levels.drop_duplicates(), on=["country", "level"])
     exp = exp.set_index(units.index.name or "unit_id")[["country", "level"]]
     exp = exp[~exp.index.duplicated()]
     counts = counts.assign(country=counts["unit_id"].map(exp["country"]))

@@ -61,11 +61,20 @@ def _read(src: Source, layer: str | None, label: str) -> gpd.GeoDataFrame:
             # for tens of thousands of polygons.
             return gpd.read_parquet(path)
         kw = {"layer": layer} if layer else {}
-        return gpd.read_file(path, engine="pyogrio", **kw)
+        frame = gpd.read_file(path, engine="pyogrio", **kw)
     except InputError:
         raise
     except Exception as exc:  # pyogrio and pyarrow raise several types for unreadable files
+        if "not recognized as being in a supported file format" in str(exc):
+            raise InputError(_NOT_VECTOR, file=label) from None
         raise InputError(f"cannot read the boundary file: {exc}", file=label) from None
+    # GDAL reads a plain table (CSV, spreadsheet) too, as rows without geometry.
+    if not isinstance(frame, gpd.GeoDataFrame) or frame._geometry_column_name not in frame:
+        raise InputError(_NOT_VECTOR, file=label)
+    return frame
+
+
+_NOT_VECTOR = "not a vector boundary file (GeoPackage, GeoJSON, Shapefile, GeoParquet)"
 
 
 def _column(frame: pd.DataFrame, col: str, label: str, what: str) -> pd.Series:

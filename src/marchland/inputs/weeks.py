@@ -71,8 +71,12 @@ def epi_week(dates: pd.Series, calendar: str = "iso") -> pd.DataFrame:
 
 
 def _week1_start(years: np.ndarray, calendar: str) -> pd.Series:
-    jan4 = pd.to_datetime(pd.DataFrame({"year": years, "month": 1, "day": 4}), errors="coerce")
-    return week_start(jan4, calendar)
+    y = np.asarray(years, dtype="int64")
+    ok = (y >= 1) & (y <= 9999)  # four-digit years; else NaT
+    # numpy's calendar arithmetic (year count to day) instead of pd.to_datetime on a frame:
+    # the same dates, without its per-call overhead.
+    jan4 = (np.where(ok, y, 2000) - 1970).astype("datetime64[Y]").astype("datetime64[D]") + 3
+    return week_start(pd.Series(jan4.astype("datetime64[us]")).where(ok), calendar)
 
 
 def weeks_in_year(years: pd.Series, calendar: str = "iso") -> pd.Series:

@@ -9,7 +9,6 @@ reasons, config values) goes through :func:`html.escape`; numbers are formatted 
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from datetime import UTC, datetime
 from typing import TYPE_CHECKING, Any
 
 import pandas as pd
@@ -139,7 +138,6 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
     region = result.config.region.name
     month = f"{pd.Period(result.month, freq='M'):%B %Y}"
     title = f"{region}: monthly situation, {month}"
-    created = datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC")
     parts = [
         "<!DOCTYPE html>",
         '<html lang="en"><head><meta charset="utf-8">',
@@ -153,7 +151,8 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         f'<header class="top"><h1>{esc(title)}</h1>',
         f'<div class="sub">Data as received by {result.as_of:%Y-%m-%d} &middot; analysis '
         f"units: {len(result.units):,} &middot; seed {esc(result.seed)} &middot; made "
-        f"{esc(created)} by marchland {esc(__version__)}</div></header>",
+        # No clock time: the same inputs and as-of date give the same page byte for byte.
+        f"by marchland {esc(__version__)}</div></header>",
         f'<p class="caution">{esc(CAUTION_LINE)}</p>',
         f'<p class="note">{month_definition(result)}</p>',
         _contents(

@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
-import tempfile
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -207,7 +205,6 @@ def render_week(result: WeekResult) -> str:
         )
     items = "".join(f"<li><b>{esc(a)}</b> {esc(b)}</li>" for a, b in CAUTIONS)
     body.append(_section("Cautions", f"<ul>{items}</ul>", "cautions"))
-    created = datetime.now(UTC).strftime("%Y-%m-%d %H:%M UTC")
     return "\n".join(
         [
             "<!DOCTYPE html>",
@@ -218,7 +215,7 @@ def render_week(result: WeekResult) -> str:
             f"<title>{esc(title)}</title><style>{_CSS}</style></head><body><main>",
             f"<h1>{esc(title)}</h1>",
             f'<div class="sub">Data as received by {result.as_of:%Y-%m-%d} &middot; made '
-            f"{esc(created)} by marchland {esc(__version__)} &middot; the monthly pack holds "
+            f"by marchland {esc(__version__)} &middot; the monthly pack holds "
             "the full analysis</div>",
             f'<p class="caution">{esc(CAUTION_LINE)}</p>',
             *body,
@@ -241,31 +238,9 @@ def write_week(result: WeekResult, out_dir: str | os.PathLike[str], *, overwrite
     -------
     pathlib.Path
     """
-    out = Path(out_dir)
-    dest = bundle.check_destination(out, result.week, overwrite=overwrite)
-    out.mkdir(parents=True, exist_ok=True)
-    bundle._remove_stale(out, result.week)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{result.week}{bundle._PARTIAL}{os.getpid()}-", dir=out))
-    try:
-        _write_all(result, tmp)
-        os.chmod(tmp, 0o755)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    if dest.exists():
-        old = Path(tempfile.mkdtemp(prefix=f".{result.week}{bundle._OLD}", dir=out))
-        old.rmdir()
-        os.rename(dest, old)
-        try:
-            os.rename(tmp, dest)
-        except BaseException:
-            os.rename(old, dest)
-            shutil.rmtree(tmp, ignore_errors=True)
-            raise
-        shutil.rmtree(old, ignore_errors=True)
-    else:
-        os.rename(tmp, dest)
-    return dest
+    return bundle.replace_atomically(
+        out_dir, result.week, lambda tmp: _write_all(result, tmp), overwrite=overwrite
+    )
 
 
 def _write_all(result: WeekResult, root: Path) -> None:
@@ -307,6 +282,7 @@ def _write_all(result: WeekResult, root: Path) -> None:
         "not_computed": dict(result.absent),
         "warnings": list(result.warnings),
         "files": files,
+        "varies_between_runs": {"manifest.json": "the time the folder was made (created_utc)"},
     }
     (root / "manifest.json").write_text(
         json.dumps(manifest, indent=2, ensure_ascii=False) + "\n", encoding="utf-8"

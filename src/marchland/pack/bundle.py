@@ -22,13 +22,16 @@ and removes the partial folder.
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import os
 import platform
 import shutil
+import sys
 import tempfile
 import time
+import warnings
 from collections.abc import Callable, Mapping
 from dataclasses import asdict, is_dataclass
 from datetime import UTC, datetime
@@ -39,7 +42,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import DataWarning, InputError
 from . import _outlooksteps as _outlook
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -72,6 +75,9 @@ _VERSIONED = (
 def check_destination(out_dir: str | os.PathLike[str], month: str, *, overwrite: bool) -> Path:
     """Return the bundle folder for ``month``; InputError if it exists and overwrite is off.
 
+    A previous pack left hidden by a replacing run that was killed half-way is put back first
+    (with a :class:`~marchland.errors.DataWarning`).
+
     Parameters
     ----------
     out_dir : path-like
@@ -93,6 +99,8 @@ def check_destination(out_dir: str | os.PathLike[str], month: str, *, overwrite:
     '2026-10'
     """
     dest = Path(out_dir) / month
+    if Path(out_dir).is_dir():
+        _restore_replaced(Path(out_dir), month)
     if dest.exists() and not overwrite:
         raise InputError(
             "a bundle for this month exists already; pass --overwrite (overwrite=True) to "
@@ -189,31 +197,160 @@ def write_month(
     Traceback (most recent call last):
     marchland.errors.InputError: ...2026-10: a bundle for this month exists already; ...
     """
+    return replace_atomically(
+        out_dir,
+        result.month,
+        lambda tmp: _write_all(result, tmp, progress),
+        overwrite=overwrite,
+    )
+
+
+def replace_atomically(
+    out_dir: str | os.PathLike[str],
+    name: str,
+    write: Callable[[Path], None],
+    *,
+    overwrite: bool = False,
+) -> Path:
+    """Write a pack into a hidden folder with ``write(folder)``, then put it at ``out_dir/name``.
+
+    An existing pack is replaced only with ``overwrite`` and only once the new one is complete.
+    On Linux the swap is one ``renameat2(RENAME_EXCHANGE)``: at every moment ``out_dir/name``
+    is either the old pack or the new one. Elsewhere it is two renames (the old pack to a
+    hidden ``.NAME.replaced-PID-*`` folder, the new one into place); a process killed between
+    the two leaves no pack under the name, and the next run (or :func:`check_destination`)
+    puts the old one back and says so.
+
+    Parameters
+    ----------
+    out_dir : path-like
+        Folder holding the packs; made if missing.
+    name : str
+        The pack's folder name (``YYYY-MM`` or ``YYYY-Www``).
+    write : callable
+        ``write(folder)`` fills the (empty, existing) temporary folder.
+    overwrite : bool
+
+    Returns
+    -------
+    pathlib.Path
+        ``out_dir / name``.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> out = pathlib.Path(tempfile.mkdtemp())
+    >>> def write(folder):
+    ...     _ = (folder / "a.txt").write_text("new")
+    >>> (replace_atomically(out, "2026-10", write) / "a.txt").read_text()
+    'new'
+    >>> sorted(p.name for p in out.iterdir())
+    ['2026-10']
+    """
     out = Path(out_dir)
-    dest = check_destination(out, result.month, overwrite=overwrite)
+    dest = check_destination(out, name, overwrite=overwrite)
     out.mkdir(parents=True, exist_ok=True)
-    _remove_stale(out, result.month)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{result.month}{_PARTIAL}{os.getpid()}-", dir=out))
+    _remove_stale(out, name)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{name}{_PARTIAL}{os.getpid()}-", dir=out))
     try:
-        _write_all(result, tmp, progress)
-        os.chmod(tmp, 0o755)  # mkdtemp makes it private; a bundle is meant to be shared
+        write(tmp)
+        os.chmod(tmp, 0o755)  # mkdtemp makes it private; a pack is meant to be shared
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    if dest.exists():
-        old = Path(tempfile.mkdtemp(prefix=f".{result.month}{_OLD}", dir=out))
-        old.rmdir()
-        os.rename(dest, old)
-        try:
-            os.rename(tmp, dest)
-        except BaseException:
-            os.rename(old, dest)
-            shutil.rmtree(tmp, ignore_errors=True)
-            raise
-        shutil.rmtree(old, ignore_errors=True)
-    else:
+    if not dest.exists():
         os.rename(tmp, dest)
+        return dest
+    if _exchange(tmp, dest):
+        # One atomic swap: ``tmp`` now holds the old pack (a partial folder of this process
+        # if a kill comes before the removal; the next run removes it).
+        shutil.rmtree(tmp, ignore_errors=True)
+        return dest
+    old = Path(tempfile.mkdtemp(prefix=f".{name}{_OLD}{os.getpid()}-", dir=out))
+    old.rmdir()
+    os.rename(dest, old)
+    _between_renames()
+    try:
+        os.rename(tmp, dest)
+    except BaseException:
+        os.rename(old, dest)
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    shutil.rmtree(old, ignore_errors=True)
     return dest
+
+
+def _between_renames() -> None:
+    """Nothing; the gap of the two-rename replacement (tests make a process die here)."""
+
+
+_RENAME_EXCHANGE = 2  # linux/fs.h
+_AT_FDCWD = -100  # linux/fcntl.h
+
+
+def _renameat2() -> Any:
+    """Return glibc's ``renameat2`` (2.28 and later) through ctypes, or None."""
+    if not sys.platform.startswith("linux"):
+        return None
+    import ctypes
+    import ctypes.util
+
+    try:
+        libc = ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6", use_errno=True)
+        fn = libc.renameat2
+    except (OSError, AttributeError):
+        return None
+    fn.argtypes = [ctypes.c_int, ctypes.c_char_p, ctypes.c_int, ctypes.c_char_p, ctypes.c_uint]
+    fn.restype = ctypes.c_int
+    return fn
+
+
+def _exchange(a: Path, b: Path) -> bool:
+    """Swap two folders atomically (Linux ``RENAME_EXCHANGE``); False where not supported.
+
+    The standard library has no atomic exchange, hence ctypes. A file system without support
+    (EINVAL), an old kernel (ENOSYS) or another platform returns False: the caller falls back
+    to two renames.
+    """
+    fn = _renameat2()
+    if fn is None:
+        return False
+    import ctypes
+
+    rc = fn(_AT_FDCWD, os.fsencode(a), _AT_FDCWD, os.fsencode(b), _RENAME_EXCHANGE)
+    if rc == 0:
+        return True
+    err = ctypes.get_errno()
+    if err in (errno.EINVAL, errno.ENOSYS, errno.EOPNOTSUPP, errno.EPERM):
+        return False
+    raise OSError(err, os.strerror(err), str(b))
+
+
+def _restore_replaced(out: Path, name: str) -> None:
+    """Put back a pack left in a ``.replaced-`` folder by a run killed between its renames.
+
+    With a current pack in place, such folders are leftovers of an interrupted clean-up and
+    are removed. Folders of a process still running are left alone.
+    """
+    prefix = f".{name}{_OLD}"
+    dest = out / name
+    for p in sorted(out.glob(f"{prefix}*")):
+        try:
+            pid = int(p.name[len(prefix) :].split("-")[0])
+        except ValueError:
+            continue
+        if pid != os.getpid() and _alive(pid):
+            continue
+        if not dest.exists():
+            os.rename(p, dest)
+            warnings.warn(
+                f"{dest}: restored the previous pack from {p.name} (a run replacing it was "
+                "stopped before it finished)",
+                DataWarning,
+                stacklevel=3,
+            )
+        else:
+            shutil.rmtree(p, ignore_errors=True)
 
 
 def _remove_stale(out: Path, month: str) -> None:
@@ -434,6 +571,20 @@ def _write_layers(result: MonthResult, path: Path) -> None:
         if result.clusters is None
         else _outlook.clusters_layer(result.clusters, result.units),
     }
+    import pyogrio
+
+    # GDAL stamps each GeoPackage table with the time of writing (gpkg_contents.last_change);
+    # a fixed stamp from the as-of date makes a rerun byte-identical (GDAL's documented
+    # OGR_CURRENT_DATE configuration option).
+    before = pyogrio.get_gdal_config_option("OGR_CURRENT_DATE")
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": f"{result.as_of:%Y-%m-%d}T00:00:00Z"})
+    try:
+        _write_layer_files(layers, path)
+    finally:
+        pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": before})
+
+
+def _write_layer_files(layers: Mapping[str, Any], path: Path) -> None:
     for name, layer in layers.items():
         if layer is None or len(layer) == 0:
             continue
@@ -567,6 +718,13 @@ def _versions() -> dict[str, str]:
     return out
 
 
+#: Files of a bundle holding a value of the moment of the run, and why.
+VARIES_BETWEEN_RUNS = {
+    "manifest.json": "the time the bundle was made (created_utc) and the seconds each step "
+    "took (timings_s)",
+}
+
+
 def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str, float]) -> None:
     # The manifest times itself up to its own writing (hashing every file is most of it).
     started = time.perf_counter()
@@ -587,6 +745,8 @@ def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str
         "marchland": _versions().get("marchland"),
         "month": result.month,
         "as_of": f"{result.as_of:%Y-%m-%d}",
+        # Report weeks after this date were rejected as "future-week".
+        "run_date": None if result.run_date is None else f"{result.run_date:%Y-%m-%d}",
         "created_utc": datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
         "seed": result.seed,
         "config": {
@@ -605,6 +765,8 @@ def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str
         "steps_not_run": dict(result.absent),
         "warnings": list(result.warnings),
         "files": files,
+        # Every other file is byte-identical on a rerun with the same inputs and as-of date.
+        "varies_between_runs": dict(VARIES_BETWEEN_RUNS),
     }
     (root / "manifest.json").write_text(
         json.dumps(manifest, indent=2, ensure_ascii=False) + "\n", encoding="utf-8"

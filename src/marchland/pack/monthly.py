@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from ..config.load import load_config
@@ -69,6 +70,10 @@ class MonthResult:
     as_of : pandas.Timestamp
         The data are read as received by this date.
     seed : int
+    run_date : pandas.Timestamp or None
+        The date report weeks were judged against (a week after it is rejected as
+        "future-week"): the run's ``run_date``, else its as-of date; recorded in the manifest so
+        that the same files give the same rejects on another day.
     units : geopandas.GeoDataFrame
         Analysis units (``name country level parent_id population geometry``).
     weekly : pandas.DataFrame
@@ -173,6 +178,7 @@ class MonthResult:
     cluster_colours: Mapping[str, str] | None = None
     cluster_legend: Mapping[str, str] | None = None
     cluster_significant: tuple[str, ...] = ()
+    run_date: pd.Timestamp | None = None
     timings: dict[str, float] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     absent: dict[str, str] = field(default_factory=dict)
@@ -314,8 +320,8 @@ def default_as_of(config: Config, month: str | pd.Period) -> pd.Timestamp:
     return p.end_time.normalize() + pd.Timedelta(days=config.region.as_of_lag_days)
 
 
-def _open_region(cfg: Config) -> Any:
-    return _need("pack.region", "open_region").open_region(cfg)
+def _open_region(cfg: Config, today: pd.Timestamp | None = None) -> Any:
+    return _need("pack.region", "open_region").open_region(cfg, today=today)
 
 
 # --- the run --------------------------------------------------------------------------------
@@ -363,6 +369,7 @@ def run_month(
     month: str | pd.Period | None = None,
     *,
     as_of: object = None,
+    run_date: object = None,
     progress: Progress | None = None,
     on_month: Callable[[str], None] | None = None,
 ) -> MonthResult:
@@ -377,6 +384,11 @@ def run_month(
     as_of : date-like, optional
         Read the data as received by this date; default the month's end plus
         ``region.as_of_lag_days``.
+    run_date : date-like, optional
+        Report weeks starting after this date are rejected as "future-week". Default: the
+        month's as-of date (its end plus ``region.as_of_lag_days``, or ``as_of`` if later);
+        without a month, ``as_of``, else today's date. Recorded in the result (and the
+        manifest), so a rerun on another day gives the same rejects.
     progress : callable, optional
         Called as ``progress(step, "start", None)`` and ``progress(step, "done", seconds)``.
     on_month : callable, optional
@@ -403,20 +415,30 @@ def run_month(
     cfg = config if isinstance(config, Config) else load_config(config)
     config_s = time.perf_counter() - t0
     run = _Runner(progress)
+    given = parse_month(month) if month is not None else None
+    as_of_ts = pd.Timestamp(as_of) if as_of is not None else None
+    if run_date is not None:
+        judged = pd.Timestamp(run_date).normalize()
+    elif given is not None:
+        # Never before the month's own as-of date: an early --as-of is refused below by name
+        # (nothing received by then), not by every row turning "future".
+        judged = default_as_of(cfg, given)
+        judged = judged if as_of_ts is None else max(judged, as_of_ts.normalize())
+    elif as_of_ts is not None:
+        judged = as_of_ts.normalize()
+    else:  # the latest month: not known before reading, so today's date (recorded)
+        judged = pd.Timestamp.now().normalize()
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)
-        region = run("read inputs", lambda: _open_region(cfg), data_limited=False)
+        region = run("read inputs", lambda: _open_region(cfg, judged), data_limited=False)
         if region is None:
             raise InputError(f"cannot read the region: {run.absent['read inputs']}", file=cfg.path)
-        period = (
-            parse_month(month)
-            if month is not None
-            else parse_month(_latest_week_month(region.counts))
-        )
-        _require_data(region.counts, period)
+        period = given if given is not None else parse_month(_latest_week_month(region.counts))
+        if as_of_ts is None:
+            as_of_ts = default_as_of(cfg, period)
+        _require_data(region.counts, period, as_of_ts)
         if on_month is not None:
             on_month(str(period))
-        as_of_ts = pd.Timestamp(as_of) if as_of is not None else default_as_of(cfg, period)
         fields: dict[str, Any] = {}
         fields.update(run("graph", lambda: _graph_fields(region)))
 
@@ -457,6 +479,7 @@ def run_month(
         month=str(period),
         as_of=as_of_ts,
         seed=cfg.region.seed,
+        run_date=judged,
         timings=dict(run.timings),
         warnings=tuple(dict.fromkeys(messages)),
         absent=dict(run.absent),
@@ -464,17 +487,30 @@ def run_month(
     )
 
 
-def _require_data(counts: pd.DataFrame, period: pd.Period) -> None:
-    """Raise InputError unless some accepted report row falls in the month."""
+def _require_data(counts: pd.DataFrame, period: pd.Period, as_of: pd.Timestamp) -> None:
+    """Raise InputError unless some accepted report row of the month was received by ``as_of``.
+
+    Checked before any analysis, so a wrong month or as-of date is refused at once.
+    """
     weeks = pd.to_datetime(counts["week"])
     months = week_month(weeks)
-    if not (months == period).any():
+    in_month = (months == period).to_numpy()
+    if not in_month.any():
         span = (
             f"the reports run from {weeks.min():%Y-%m-%d} to {weeks.max():%Y-%m-%d}"
             if len(weeks)
             else "no report row was accepted"
         )
         raise InputError(f"no report covers {period}; {span}", column="month", value=str(period))
+    received = pd.to_datetime(counts["received"]).to_numpy()[in_month]
+    if not (received <= np.datetime64(as_of, "ns")).any():
+        first = pd.Series(received).min()
+        raise InputError(
+            f"no report of {period} had been received by the as-of date; the first arrived on "
+            f"{first:%Y-%m-%d}",
+            column="as_of",
+            value=f"{as_of:%Y-%m-%d}",
+        )
 
 
 def _latest_week_month(counts: pd.DataFrame) -> str:

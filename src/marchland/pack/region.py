@@ -205,13 +205,16 @@ def _population(cfg: Config, units: gpd.GeoDataFrame) -> pd.Series:
     )
 
 
-def open_region(config: Config | str | os.PathLike[str]) -> Region:
+def open_region(config: Config | str | os.PathLike[str], *, today: object = None) -> Region:
     """Read a region: boundaries, population, reports; choose analysis units; move counts.
 
     Parameters
     ----------
     config : Config or path
         A loaded config or the path of its TOML file.
+    today : date-like, optional
+        Report weeks after this date are rejected as "future-week" (see
+        :func:`marchland.read_reports`); default today's date.
 
     Returns
     -------
@@ -241,7 +244,7 @@ def open_region(config: Config | str | os.PathLike[str]) -> Region:
     cfg = load_config(config)
     units = units_from_config(cfg)
     units = units.assign(population=_population(cfg, units))
-    rep = read_reports(cfg, units)
+    rep = read_reports(cfg, units, today=today)
     acc = rep.accounting
     dropped = acc.index[(acc["rows_in"] > 0) & (acc["counted"] == 0)]
     if len(dropped):

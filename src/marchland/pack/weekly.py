@@ -149,7 +149,7 @@ def run_week(config: Config | str | os.PathLike[str], week: str) -> WeekResult:
     as_of_ts = start + pd.Timedelta(days=6 + cfg.region.as_of_lag_days)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)
-        region = monthly._open_region(cfg)
+        region = monthly._open_region(cfg, as_of_ts)  # "future" judged against the as-of date
         fields = _compose(cfg, region, week, start, as_of_ts)
     messages = []
     for w in caught:
