@@ -18,8 +18,8 @@ def _run(cfg_path, open_region):
         return monthly.run_month(cfg_path, "2026-08")
 
 
-def _with_late_reports(cfg):
-    region = fake_region(cfg)
+def _with_late_reports(cfg, today=None):
+    region = fake_region(cfg, today)
     late = region.counts.copy()
     # Corrections that arrive long after the August run's as-of date: every count goes up, so
     # units that had reported zeros get first cases (the backtest's outcomes would change).
