@@ -26,7 +26,7 @@ import pytest
 from month_world import fake_region, write_world
 
 from marchland.errors import InputError
-from marchland.pack import _steps, bundle, monthly
+from marchland.pack import _folder, _steps, bundle, monthly
 
 
 @pytest.fixture(scope="module")
@@ -225,13 +225,13 @@ def test_replacing_a_pack_is_one_atomic_swap_on_linux(tmp_path, monkeypatch):
     import sys
 
     if sys.platform.startswith("linux"):
-        assert bundle._renameat2() is not None  # glibc 2.28+; the CI machines have it
+        assert _folder._renameat2() is not None  # glibc 2.28+; the CI machines have it
     bundle.replace_atomically(tmp_path, "2026-10", _pack("old"))
 
     def no_rename(*a, **k):
         raise AssertionError("two-rename fallback used")
 
-    if bundle._renameat2() is not None:
+    if _folder._renameat2() is not None:
         # With the exchange there is no rename at all, so no moment without a pack.
         monkeypatch.setattr(os, "rename", no_rename)
     dest = bundle.replace_atomically(tmp_path, "2026-10", _pack("new"), overwrite=True)
@@ -250,9 +250,9 @@ def test_a_kill_between_the_two_renames_is_undone_by_the_next_run(tmp_path):
     # moving the old pack aside, before the new one is in place.
     script = f"""
 import os
-from marchland.pack import bundle
-bundle._exchange = lambda a, b: False
-bundle._between_renames = lambda: os._exit(9)
+from marchland.pack import _folder, bundle
+_folder._exchange = lambda a, b: False
+_folder._between_renames = lambda: os._exit(9)
 bundle.replace_atomically({str(tmp_path)!r}, "2026-10",
                           lambda d: (d / "a.txt").write_text("new"), overwrite=True)
 """
@@ -268,7 +268,7 @@ bundle.replace_atomically({str(tmp_path)!r}, "2026-10",
         pytest.warns(DataWarning, match="restored the previous pack"),
         pytest.raises(InputError, match="exists already"),
     ):
-        bundle.check_destination(tmp_path, "2026-10", overwrite=False)
+        _folder.check_destination(tmp_path, "2026-10", overwrite=False)
     assert (tmp_path / "2026-10" / "a.txt").read_text() == "old"
     assert not (tmp_path / hidden[1]).exists()
     dest = bundle.replace_atomically(tmp_path, "2026-10", _pack("newer"), overwrite=True)
@@ -283,7 +283,7 @@ def test_a_kill_after_the_swap_leaves_the_new_pack_and_the_next_run_clears_the_o
     bundle.replace_atomically(tmp_path, "2026-10", _pack("old"))
     script = f"""
 import os, shutil
-from marchland.pack import bundle
+from marchland.pack import _folder, bundle
 shutil.rmtree = lambda *a, **k: os._exit(9)  # dies while removing the swapped-out old pack
 bundle.replace_atomically({str(tmp_path)!r}, "2026-10",
                           lambda d: (d / "a.txt").write_text("new"), overwrite=True)
@@ -470,7 +470,7 @@ def test_a_run_killed_midway_leaves_the_previous_bundle(world, result, tmp_path,
 import sys, time
 sys.path.insert(0, {str(os.path.dirname(__file__))!r})
 from month_world import fake_region
-from marchland.pack import bundle
+from marchland.pack import _folder, bundle
 from marchland.pack import monthly
 monthly._open_region = fake_region
 bundle._write_figures = lambda result, root: {{}}

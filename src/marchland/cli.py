@@ -312,8 +312,8 @@ def run(
 
 
 def _week_and_write(ctx: click.Context, cfg: Any, week: str, out: Path | None, overwrite: bool):
+    from .pack._folder import check_destination
     from .pack._weekpage import write_week
-    from .pack.bundle import check_destination
     from .pack.weekly import run_week
 
     console = _console(ctx)
@@ -388,7 +388,8 @@ def _run_and_write(
     ctx: click.Context, cfg: Any, month: str | None, out: Path | None, overwrite: bool, as_of: Any
 ) -> None:
     _first_line(ctx, month)
-    from .pack.bundle import check_destination, write_month
+    from .pack._folder import check_destination
+    from .pack.bundle import write_month
     from .pack.monthly import run_month
 
     console = _console(ctx)
