@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..delays.gaps import fill_gaps
+from ..delays.gaps import filled_cases
 from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
@@ -261,12 +261,11 @@ def _filled(known: pd.DataFrame, static: rf.Static, weeks: pd.DatetimeIndex, dat
     ``known`` holds the versions received by ``date`` with string unit ids.
     """
     units = pd.DataFrame({"country": static.country}, index=static.ids)
-    gaps = fill_gaps(known, units, as_of=date)
+    gap_weeks, cases = filled_cases(known, units, as_of=date)
     out = np.full((len(static.ids), len(weeks)), np.nan)
-    ui = static.ids.get_indexer(gaps["unit_id"])
-    wi = weeks.get_indexer(gaps["week"])
-    ok = (ui >= 0) & (wi >= 0)
-    out[ui[ok], wi[ok]] = gaps["cases"].to_numpy(dtype=float)[ok]
+    wi = weeks.get_indexer(gap_weeks)
+    ok = wi >= 0
+    out[:, wi[ok]] = cases[:, ok]
     return out
 
 
