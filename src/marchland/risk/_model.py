@@ -204,7 +204,7 @@ class Replay:
     ``rows`` are the versions sorted as :func:`marchland.inputs.reports.as_of` sorts them (unit,
     week, received; stable), with ``next_received`` the receipt of the next version of the same
     unit-week: a row is in the view of ``date`` when it was received by then and its successor
-    was not. ``gaps`` are the versions with string unit ids sorted by receipt (stable), so the
+    was not. ``gaps`` are the versions sorted by receipt (stable), so the
     versions known on a date are a prefix. ``first_receipt`` is, per unit-week with cases, when
     the first positive version arrived and its delay (``_first_positive``). Every as-of
     quantity is then a mask or a slice.
@@ -230,8 +230,8 @@ class Replay:
             wk = rows["week"].to_numpy("datetime64[ns]")
             same = (uid[1:] == uid[:-1]) & (wk[1:] == wk[:-1])
             nxt[:-1] = np.where(same, rec[1:], never)
-        gaps = counts.assign(unit_id=counts["unit_id"].astype(str))
-        gaps = gaps.sort_values("received", kind="stable").reset_index(drop=True)
+        # Categorical ids stay categorical: delays factorises them from their codes.
+        gaps = counts.sort_values("received", kind="stable").reset_index(drop=True)
         return cls(
             rows,
             rec,
@@ -248,7 +248,7 @@ class Replay:
         return self.rows[keep].reset_index(drop=True)
 
     def known(self, date: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
-        """Return the versions received by ``date`` (string ids) and first positive receipts."""
+        """Return the versions received by ``date`` and the first positive receipts by then."""
         d = pd.Timestamp(date).as_unit("ns").value
         k = int(np.searchsorted(self.gaps_received, d, side="right"))
         first = self.first_receipt
@@ -258,7 +258,7 @@ class Replay:
 def _filled(known: pd.DataFrame, static: rf.Static, weeks: pd.DatetimeIndex, date) -> np.ndarray:
     """Nowcast-adjusted cases on the unit x week grid (NaN unknown), from delays.fill_gaps.
 
-    ``known`` holds the versions received by ``date`` with string unit ids.
+    ``known`` holds the versions received by ``date`` (unit ids as strings or categories).
     """
     units = pd.DataFrame({"country": static.country}, index=static.ids)
     gap_weeks, cases = filled_cases(known, units, as_of=date)
