@@ -356,7 +356,7 @@ def test_backtest_beats_baselines_on_simulated_diffusion(sim):
     assert bt.loc["score", "brier"] < bt.loc["distance", "brier"]
 
 
-def test_backtest_is_the_same_on_every_executor(sim):
+def test_backtest_is_the_same_on_every_executor(sim, monkeypatch):
     # Serial, two local processes and a Dask LocalCluster (threads in this process: quick to
     # start; a real cluster ships the same pickled shares). Results must be byte-identical.
     distributed = pytest.importorskip("distributed")
@@ -367,6 +367,9 @@ def test_backtest_is_the_same_on_every_executor(sim):
     runs = {}
     with Executor(workers=1) as ex:
         runs["serial"] = run_backtest(sim.counts, sim.units, sim.graph, executor=ex, **kw)
+    from marchland.risk import _backtest
+
+    monkeypatch.setattr(_backtest, "SERIAL_BELOW", 0)  # small work: start the workers anyway
     runs["n_jobs=2"] = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=2, **kw)
     with (
         distributed.LocalCluster(

@@ -327,7 +327,9 @@ penalty, min_cases, covariates
         Seed of the forecast model's paths.
     executor : marchland.compute.Executor, optional
         Where the origins run (this process, local processes or a Dask cluster, as
-        ``[compute]`` sets); overrides ``n_jobs``. Results do not depend on it.
+        ``[compute]`` sets); overrides ``n_jobs``. Results do not depend on it. Local
+        processes are started only when units x origins reach
+        ``marchland.risk._backtest.SERIAL_BELOW`` (below it their start-up costs more).
 
     Returns
     -------
