@@ -296,7 +296,10 @@ def write_markdown(results: dict, path: Path) -> None:
         out += [f"  - `{p}`" for p in r["problems"]]
     for note in results.get("notes", []):
         out += ["", note]
-    path.write_text("\n".join(out) + "\n", encoding="utf-8")
+    # Hand-written sections from "## After wave" on (other benchmarks' figures) are kept.
+    old = path.read_text(encoding="utf-8") if path.exists() else ""
+    kept = old[old.find("\n## After wave") :] if "\n## After wave" in old else ""
+    path.write_text("\n".join(out) + "\n" + kept, encoding="utf-8")
 
 
 def main() -> None:

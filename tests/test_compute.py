@@ -67,15 +67,36 @@ def test_map_keeps_order_on_every_backend(cluster):
         assert ex.map(_square, items) == want
 
 
-def test_monthly_backtest_is_the_same_serial_and_in_local_processes():
-    # The monthly run's backtest fans out over origins with the config's workers.
-    from marchland.pack._steps import _local_jobs
+@pytest.mark.parametrize(
+    ("compute", "backend"),
+    [
+        ({"workers": 1}, "serial"),
+        ({"workers": 2}, "processes"),
+        ({"scheduler": "tcp://x:1"}, "dask"),
+    ],
+)
+def test_monthly_backtest_step_runs_on_the_configs_executor(monkeypatch, compute, backend):
+    # The monthly run's backtest hands its origins to the [compute] executor (the results'
+    # equality across executors is tested in tests/test_risk.py).
+    import types
 
+    import marchland.risk
+    from marchland.pack._steps import _Context
+
+    seen = {}
+
+    def fake_backtest(*args, executor=None, **kwargs):
+        seen["backend"] = executor.backend
+        return types.SimpleNamespace(summary="s", by_country="c")
+
+    monkeypatch.setattr(marchland.risk, "run_backtest", fake_backtest, raising=False)
     cfg = load_config(scenario_path())
-    one = dataclasses.replace(cfg, compute=dataclasses.replace(cfg.compute, workers=1))
-    two = dataclasses.replace(cfg, compute=dataclasses.replace(cfg.compute, workers=2))
-    dask = dataclasses.replace(cfg, compute=dataclasses.replace(cfg.compute, scheduler="tcp://x:1"))
-    assert (_local_jobs(one), _local_jobs(two), _local_jobs(dask)) == (1, 2, 1)
+    cfg = dataclasses.replace(cfg, compute=dataclasses.replace(cfg.compute, **compute))
+    ctx = types.SimpleNamespace(
+        cfg=cfg, counts=None, units=None, graph=None, as_of=None, covariates=None
+    )
+    assert _Context.backtest(ctx) == {"backtest": "s", "backtest_by_country": "c"}
+    assert seen["backend"] == backend
 
 
 @pytest.mark.parametrize(

@@ -287,6 +287,25 @@ def test_silent_country_does_not_dip_the_region(sim):
     assert (rel < 0.5 * dip).all()
 
 
+def test_filled_cases_array_is_fill_gaps_cases(sim):
+    # The array form the border-risk backtest uses must hold fill_gaps's numbers exactly.
+    from marchland.delays.gaps import filled_cases
+
+    weeks = sorted(sim["week"].unique())
+    # OSK silent for three weeks and reporting only from week 5: NaN before its first week.
+    gone = weeks[:5] + weeks[40:43]
+    cut = sim[~(sim["unit_id"].str.startswith("OSK") & sim["week"].isin(gone))]
+    ids = pd.Index(sim["unit_id"].unique(), name="unit_id")
+    units = pd.DataFrame({"country": ids.str[:3]}, index=ids)
+    when = pd.Timestamp(weeks[-1]) + pd.Timedelta(days=9)
+    panel = fill_gaps(cut, units, as_of=when)
+    wk, arr = filled_cases(cut, units, as_of=when)
+    want = panel.pivot(index="unit_id", columns="week", values="cases")
+    want = want.reindex(index=ids, columns=wk).to_numpy(dtype=float)
+    assert np.isnan(arr).any() and np.isfinite(arr).any()
+    np.testing.assert_array_equal(arr, want)
+
+
 def test_gap_with_nothing_to_go_on_is_unknown():
     c = pd.DataFrame(
         {

@@ -356,11 +356,79 @@ def test_backtest_beats_baselines_on_simulated_diffusion(sim):
     assert bt.loc["score", "brier"] < bt.loc["distance", "brier"]
 
 
-def test_backtest_is_the_same_with_two_workers(sim):
-    a = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=1)
-    b = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=2)
-    pd.testing.assert_frame_equal(a.predictions, b.predictions)
-    pd.testing.assert_frame_equal(a.summary, b.summary)
+def test_backtest_is_the_same_on_every_executor(sim, monkeypatch):
+    # Serial, two local processes and a Dask LocalCluster (threads in this process: quick to
+    # start; a real cluster ships the same pickled shares). Results must be byte-identical.
+    distributed = pytest.importorskip("distributed")
+    from marchland.compute import Executor
+
+    weeks = np.sort(sim.counts["week"].unique())
+    kw = {"origins": list(weeks[12:18]), "horizon_weeks": 3}
+    runs = {}
+    with Executor(workers=1) as ex:
+        runs["serial"] = run_backtest(sim.counts, sim.units, sim.graph, executor=ex, **kw)
+    from marchland.risk import _backtest
+
+    monkeypatch.setattr(_backtest, "SERIAL_BELOW", 0)  # small work: start the workers anyway
+    runs["n_jobs=2"] = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=2, **kw)
+    with (
+        distributed.LocalCluster(
+            n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None
+        ) as cluster,
+        Executor(scheduler=cluster.scheduler_address) as ex,
+    ):
+        assert ex.backend == "dask" and ex.parallelism == 2
+        runs["dask"] = run_backtest(sim.counts, sim.units, sim.graph, executor=ex, **kw)
+    a = runs.pop("serial")
+    assert a.predictions["origin"].nunique() == 6
+    for name, b in runs.items():
+        for field in ("predictions", "summary", "by_country", "by_origin"):
+            x, y = getattr(a, field), getattr(b, field)
+            pd.testing.assert_frame_equal(x, y, check_exact=True, obj=f"{name} {field}")
+            hx = pd.util.hash_pandas_object(x).to_numpy()
+            assert (hx == pd.util.hash_pandas_object(y).to_numpy()).all(), (name, field)
+
+
+def _revised(sim, seed=5):
+    """Sim counts with revisions: later versions up and down, same-day ties, a blank version."""
+    rng = np.random.default_rng(seed)
+    c = sim.counts
+    pick = c.sample(frac=0.3, random_state=seed)
+    later = pick.assign(
+        received=pick["received"] + pd.to_timedelta(rng.integers(0, 4, len(pick)) * 7, unit="D"),
+        cases=(pick["cases"].to_numpy(dtype=float) + rng.integers(-1, 3, len(pick))).clip(0),
+    )
+    blank = pick.iloc[:20].assign(
+        cases=pd.array([pd.NA] * 20, dtype="Int64"), received=pick["received"].iloc[:20]
+    )
+    later = later.assign(cases=pd.array(later["cases"].round(), dtype="Int64"))
+    out = pd.concat([c.assign(cases=pd.array(c["cases"], dtype="Int64")), later, blank])
+    return out.sample(frac=1.0, random_state=seed + 1).reset_index(drop=True)
+
+
+def test_backtest_replay_gives_the_panels_of_the_as_of_path(sim):
+    # The backtest arranges the versions once (Replay) instead of sorting and filtering them
+    # again at every origin; each origin's view and panel must equal the direct as-of path's.
+    from marchland.inputs.reports import as_of
+    from marchland.risk import _features as rf
+    from marchland.risk._model import Replay, _panel_at
+
+    counts = _revised(sim)[["unit_id", "week", "cases", "received"]]
+    static = rf.build_static(sim.units, sim.graph)
+    counts = counts.assign(unit_id=pd.Categorical(counts["unit_id"], categories=static.ids))
+    replay = Replay.build(counts, static)
+    week0 = counts["week"].min()
+    assert (counts.groupby(["unit_id", "week"], observed=True).size() > 1).sum() > 50
+    for date in pd.date_range(week0 + pd.Timedelta(days=9), periods=8, freq="27D"):
+        pd.testing.assert_frame_equal(replay.view(date), as_of(counts, date), check_exact=True)
+        kw = {"week0": week0, "recent_weeks": 3, "reintroduction_weeks": 4, "min_cases": 1}
+        p, w = _panel_at(counts, static, date, **kw)
+        q, v = _panel_at(counts, static, date, replay=replay, **kw)
+        assert w == v and p.weeks.equals(q.weeks)
+        for name in ("cases", "reported", "first", "incidence", "at_risk", "complete"):
+            np.testing.assert_array_equal(getattr(p, name), getattr(q, name), err_msg=name)
+        for name in p.features:
+            np.testing.assert_array_equal(p.features[name], q.features[name], err_msg=name)
 
 
 def test_backtest_scores_equal_border_risk_at_the_origin(sim):

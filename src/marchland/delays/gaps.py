@@ -84,6 +84,74 @@ def fill_gaps(
     ['imputed', 'nowcast', 'reported']
     """
     stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
+    ids, u_country, weeks, cases, latest, has, young, start = _fill(
+        counts, units, stamp, max_delay_weeks, recent_weeks
+    )
+    status = np.where(
+        has,
+        np.where(young, "nowcast", "reported"),
+        np.where(np.isnan(cases), "unknown", "imputed"),
+    )
+    u, t = np.nonzero(np.arange(len(weeks))[None, :] >= start[:, None])
+    return pd.DataFrame(
+        {
+            "unit_id": ids.to_numpy()[u],
+            "week": weeks[t],
+            "country": u_country[u],
+            "cases": cases[u, t],
+            "reported": latest[u, t],
+            "status": status[u, t],
+        }
+    )
+
+
+def filled_cases(
+    counts: pd.DataFrame,
+    units: pd.DataFrame,
+    *,
+    as_of: object,
+    max_delay_weeks: int = 8,
+    recent_weeks: int = 8,
+) -> tuple[pd.DatetimeIndex, np.ndarray]:
+    """Return the ``cases`` of :func:`fill_gaps` as a units x weeks array, not a long table.
+
+    For callers that need only the numbers (the border-risk backtest asks for one panel per
+    origin week): building the long table's string columns costs more than the estimate.
+
+    Parameters
+    ----------
+    counts, units, as_of, max_delay_weeks, recent_weeks
+        As in :func:`fill_gaps`.
+
+    Returns
+    -------
+    weeks : pandas.DatetimeIndex
+        The panel's weeks.
+    cases : numpy.ndarray
+        ``(len(units), len(weeks))``, rows in the order of ``units``; NaN where
+        :func:`fill_gaps` has no row or an unknown value.
+
+    Examples
+    --------
+    >>> c = pd.DataFrame({"unit_id": ["a-1", "a-2", "a-1"],
+    ...                   "week": pd.to_datetime(["2026-01-05", "2026-01-05", "2026-01-12"]),
+    ...                   "cases": [4.0, 2.0, 6.0],
+    ...                   "received": pd.to_datetime(["2026-01-13"] * 2 + ["2026-01-20"])})
+    >>> u = pd.DataFrame({"country": ["A", "A"]}, index=["a-1", "a-2"])
+    >>> weeks, cases = filled_cases(c, u, as_of="2026-01-21")
+    >>> cases.shape
+    (2, 2)
+    >>> bool(np.isfinite(cases).all())
+    True
+    """
+    stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
+    _, _, weeks, cases, _, _, _, start = _fill(counts, units, stamp, max_delay_weeks, recent_weeks)
+    before = np.arange(len(weeks))[None, :] < start[:, None]
+    return weeks, np.where(before, np.nan, cases)
+
+
+def _fill(counts, units, stamp, max_delay_weeks, recent_weeks):
+    """Compute the arrays behind :func:`fill_gaps` (see there)."""
     n_d = max_delay_weeks
     cells = unit_cells(counts, stamp, n_d)
     ids = pd.Index(units.index, name="unit_id")
@@ -124,24 +192,10 @@ def fill_gaps(
         ratio = np.where(any_rep & (lev > 0), est / lev, np.nan)[ci]
     imputed = np.where(np.isnan(ratio), level, level * ratio)
     cases = np.where(has, value, imputed)
-    status = np.where(
-        has,
-        np.where(young, "nowcast", "reported"),
-        np.where(np.isnan(imputed), "unknown", "imputed"),
-    )
     first = np.full(len(countries), n_t)
     np.minimum.at(first, ci[pu], pt)
-    u, t = np.nonzero(np.arange(n_t)[None, :] >= first[ci][:, None])
-    return pd.DataFrame(
-        {
-            "unit_id": ids.to_numpy()[u],
-            "week": cells.weeks[t],
-            "country": u_country[u],
-            "cases": cases[u, t],
-            "reported": latest[u, t],
-            "status": status[u, t],
-        }
-    )
+    young = np.broadcast_to(young, has.shape)
+    return ids, u_country, cells.weeks, cases, latest, has, young, first[ci]
 
 
 def aggregate_panel(

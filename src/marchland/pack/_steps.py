@@ -35,16 +35,11 @@ def _need(module: str, *names: str) -> Any:
     return mod
 
 
-def _local_jobs(cfg: Config) -> int:
-    """Worker processes for steps that parallelise with joblib inside their own stage.
-
-    The risk backtest fans out over origins with joblib's local processes; on a Dask cluster
-    (``[compute] scheduler``) it runs in one process here until it takes an executor.
-    """
+def _executor(cfg: Config) -> Any:
+    """Return the executor of ``[compute]`` (serial, local processes or a Dask cluster)."""
     from ..compute import get_executor
 
-    ex = get_executor(getattr(cfg, "compute", None))
-    return ex.workers if ex.backend == "processes" else 1
+    return get_executor(getattr(cfg, "compute", None))
 
 
 class _Context:
@@ -259,16 +254,18 @@ class _Context:
         c = self.cfg.risk
         # self.counts already stops at as_of; passing it too keeps the origins' last week
         # the same as the risk step's.
-        bt = rk.run_backtest(
-            self.counts,
-            self.units,
-            self.graph,
-            as_of=self.as_of,
-            top_k=c.top_k,
-            n_jobs=_local_jobs(self.cfg),
-            covariates=self.covariates,
-            **risk_options(c),
-        )
+        # The origins run where [compute] says: here, local processes or a Dask cluster.
+        with _executor(self.cfg) as ex:
+            bt = rk.run_backtest(
+                self.counts,
+                self.units,
+                self.graph,
+                as_of=self.as_of,
+                top_k=c.top_k,
+                executor=ex,
+                covariates=self.covariates,
+                **risk_options(c),
+            )
         return {"backtest": bt.summary, "backtest_by_country": bt.by_country}
 
     # -- supplies --------------------------------------------------------------------------

@@ -8,11 +8,26 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..compute import Executor
 from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from . import _features as rf
 from . import _hazard
-from ._model import _MODEL_FEATURES, MODELS, _complete_week, _fit, _panel_at, complete_weeks
+from ._model import (
+    _MODEL_FEATURES,
+    MODELS,
+    Replay,
+    _complete_week,
+    _fit,
+    _panel_at,
+    complete_weeks,
+)
+
+#: Below this many unit-origins (units x origin weeks) local worker processes are not started:
+#: on the demo (196 units x 70 origins) the serial backtest took 2.5 s of CPU, two fresh loky
+#: workers 7.5 s (their imports), for the same result (benchmarks/bench_backtest.py). A Dask
+#: cluster, when given, is always used.
+SERIAL_BELOW = 100_000
 
 
 # --- the backtest --------------------------------------------------------------------------
@@ -45,19 +60,23 @@ class Backtest:
 
 
 def _metrics(pred: pd.DataFrame, model: str, top_k: int) -> dict:
-    p = pred[model].to_numpy()
+    p = pred[model].to_numpy(dtype=float)
     y = pred["outcome"].to_numpy(dtype=bool)
-    # Top k per origin, ties broken by unit id as in border_risk's rank.
-    ranked = pred.assign(_p=-p).sort_values(["origin", "_p", "unit_id"])
-    top = ranked.groupby("origin", sort=False).head(top_k)
-    n_origins = int(pred["origin"].nunique())
-    hits = top.groupby("origin")["outcome"].sum()
+    # Top k per origin, ties broken by unit id as in border_risk's rank: one lexsort on codes
+    # (sorted factorisations keep the order of the values), not a frame sort per group.
+    oc = pd.factorize(pred["origin"].to_numpy(), sort=True)[0]
+    uc = pd.factorize(pred["unit_id"].to_numpy(), sort=True)[0]
+    order = np.lexsort((uc, -p, oc))
+    n_origins = int(oc.max()) + 1 if len(oc) else 0
+    so = oc[order]
+    starts = np.flatnonzero(np.r_[True, so[1:] != so[:-1]]) if len(so) else so
+    within = np.arange(len(so)) - np.repeat(starts, np.diff(np.r_[starts, len(so)]))
+    top = order[within < top_k]
+    hits = np.bincount(oc[top], weights=y[top], minlength=n_origins)
     return {
         "auc": _hazard.auc(p, y),
         "brier": _hazard.brier(p, y),
-        "hits_top_k": float(hits.reindex(pred["origin"].unique(), fill_value=0).mean())
-        if n_origins
-        else float("nan"),
+        "hits_top_k": float(hits.sum() / n_origins) if n_origins else float("nan"),
         "n_origins": n_origins,
         "n_scored": len(pred),
         "n_events": int(y.sum()),
@@ -78,15 +97,19 @@ def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
 
 
 def _origins_task(
+    origins: Sequence[int],
     counts: pd.DataFrame,
+    replay: Replay,
     final_pos: np.ndarray,
     final_complete: np.ndarray,
     static: rf.Static,
     grid: pd.DatetimeIndex,
-    origins: Sequence[int],
     params: dict,
-) -> list[pd.DataFrame]:
-    """Score every model at each origin (a worker's share of the backtest)."""
+) -> list[tuple[int, pd.DataFrame]]:
+    """Score every model at each origin (a worker's share of the backtest).
+
+    Returns ``(origin index, predictions)`` pairs, so shares can be put back in origin order.
+    """
     h = params["horizon_weeks"]
     lag = pd.Timedelta(days=params["report_lag_days"])
     r = params["reintroduction_weeks"]
@@ -101,6 +124,7 @@ def _origins_task(
             recent_weeks=params["recent_weeks"],
             reintroduction_weeks=r,
             min_cases=params["min_cases"],
+            replay=replay,
         )
         if panel is None:
             continue
@@ -153,7 +177,7 @@ def _origins_task(
         if params.get("forecast") is not None:
             frame["forecast"] = _forecast_any(counts, static, date, cand, h, params["forecast"])
             frame["kind_forecast"] = "fitted"
-        out.append(frame)
+        out.append((t, frame))
     return out
 
 
@@ -193,11 +217,16 @@ def run(
     min_events: int,
     penalty: float,
     min_cases: int,
-    n_jobs: int,
+    executor: Executor,
     as_of: object,
     forecast: tuple | None = None,
 ) -> Backtest:
-    """Run the backtest on checked inputs (see ``marchland.risk.score.run_backtest``)."""
+    """Run the backtest on checked inputs (see ``marchland.risk.score.run_backtest``).
+
+    The origins are shared out over ``executor`` (this process, local processes or a Dask
+    cluster); every origin's result depends on its week only, and the shares are put back in
+    origin order, so the result is the same on every backend and any number of workers.
+    """
     slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
     if as_of is not None:
         slim = slim[slim["received"] <= pd.Timestamp(as_of)]
@@ -252,19 +281,16 @@ def run(
         "min_cases": min_cases,
         "forecast": forecast,
     }
-    if n_jobs == 1 or len(idx) < 2:
-        frames = _origins_task(slim, final_pos, final_complete, static, grid, idx, params)
-    else:
-        from joblib import Parallel, delayed, effective_n_jobs
-
-        k = min(effective_n_jobs(n_jobs), len(idx))
-        # Interleaved shares balance early (small) and late (large) origins across workers.
-        shares = [idx[i::k] for i in range(k)]
-        parts = Parallel(n_jobs=k, backend="loky")(
-            delayed(_origins_task)(slim, final_pos, final_complete, static, grid, s, params)
-            for s in shares
-        )
-        frames = [f for p in parts for f in p]
+    # The versions sorted once: each origin's as-of view is then a mask, not a sort.
+    replay = Replay.build(slim, static)
+    if executor.backend == "processes" and len(static.ids) * len(idx) < SERIAL_BELOW:
+        executor = Executor()  # starting worker processes would cost more than the work
+    k = max(1, min(executor.parallelism, len(idx)))
+    # Interleaved shares balance early (small) and late (large) origins across workers.
+    shares = [idx[i::k] for i in range(k)]
+    args = (slim, replay, final_pos, final_complete, static, grid, params)
+    parts = executor.map(_origins_task, shares, *args)
+    frames = [f for _, f in sorted((p for part in parts for p in part), key=lambda p: p[0])]
     if not frames:
         return empty
     pred = pd.concat(frames, ignore_index=True)

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..delays.gaps import fill_gaps
+from ..delays.gaps import filled_cases
 from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
@@ -150,9 +150,14 @@ def _panel_at(
     recent_weeks: int,
     reintroduction_weeks: int | None,
     min_cases: int,
+    replay: Replay | None = None,
 ) -> tuple[rf.Panel | None, pd.Timestamp | None]:
-    """Build the panel of data known on ``date``, cut at its last complete week."""
-    view = _as_of_view(counts, date)
+    """Build the panel of data known on ``date``, cut at its last complete week.
+
+    ``replay`` (built once from the same ``counts``) gives the same panel without sorting and
+    filtering every version again: the backtest asks for one panel per origin week.
+    """
+    view = _as_of_view(counts, date) if replay is None else replay.view(date)
     if view.empty:
         return None, None
     start = view["week"].min() if week0 is None else week0
@@ -172,7 +177,12 @@ def _panel_at(
     weeks = grid[: t0 + 1]
     view = view[view["week"] <= weeks[-1]]
     first = first_cases(view, min_cases=min_cases)
-    known = counts[counts["received"] <= date]
+    if replay is None:
+        known = counts[counts["received"] <= date]
+        gap_counts = known.assign(unit_id=known["unit_id"].astype(str))
+        first_positive = _first_positive(known, static)
+    else:
+        gap_counts, first_positive = replay.known(date)
     panel = rf.build_panel(
         view,
         first,
@@ -181,22 +191,81 @@ def _panel_at(
         recent_weeks=recent_weeks,
         reintroduction_weeks=reintroduction_weeks,
         min_cases=min_cases,
-        filled=_filled(known, static, weeks, date),
-        complete=complete_weeks(known, static, len(weeks) - 1),
+        filled=_filled(gap_counts, static, weeks, date),
+        complete=_complete_from(first_positive, static, len(weeks) - 1),
     )
     return panel, weeks[-1]
 
 
+@dataclass(frozen=True, eq=False)
+class Replay:
+    """The versions of the counts arranged once for as-of views at many dates.
+
+    ``rows`` are the versions sorted as :func:`marchland.inputs.reports.as_of` sorts them (unit,
+    week, received; stable), with ``next_received`` the receipt of the next version of the same
+    unit-week: a row is in the view of ``date`` when it was received by then and its successor
+    was not. ``gaps`` are the versions sorted by receipt (stable), so the
+    versions known on a date are a prefix. ``first_receipt`` is, per unit-week with cases, when
+    the first positive version arrived and its delay (``_first_positive``). Every as-of
+    quantity is then a mask or a slice.
+    """
+
+    rows: pd.DataFrame
+    received: np.ndarray
+    next_received: np.ndarray
+    gaps: pd.DataFrame
+    gaps_received: np.ndarray
+    first_receipt: pd.DataFrame
+
+    @classmethod
+    def build(cls, counts: pd.DataFrame, static: rf.Static) -> Replay:
+        """Arrange ``counts`` (``unit_id week cases received``) for replay."""
+        rows = counts.sort_values(["unit_id", "week", "received"], kind="stable")
+        rows = rows.reset_index(drop=True)
+        rec = rows["received"].to_numpy("datetime64[ns]").view(np.int64)
+        never = np.iinfo(np.int64).max
+        nxt = np.full(len(rows), never)
+        if len(rows) > 1:
+            uid = rows["unit_id"].to_numpy()
+            wk = rows["week"].to_numpy("datetime64[ns]")
+            same = (uid[1:] == uid[:-1]) & (wk[1:] == wk[:-1])
+            nxt[:-1] = np.where(same, rec[1:], never)
+        # Categorical ids stay categorical: delays factorises them from their codes.
+        gaps = counts.sort_values("received", kind="stable").reset_index(drop=True)
+        return cls(
+            rows,
+            rec,
+            nxt,
+            gaps,
+            gaps["received"].to_numpy("datetime64[ns]").view(np.int64),
+            _first_positive(counts, static),
+        )
+
+    def view(self, date: pd.Timestamp) -> pd.DataFrame:
+        """Return the as-of view of ``date``, equal to ``reports.as_of(counts, date)``."""
+        d = pd.Timestamp(date).as_unit("ns").value
+        keep = (self.received <= d) & (self.next_received > d)
+        return self.rows[keep].reset_index(drop=True)
+
+    def known(self, date: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
+        """Return the versions received by ``date`` and the first positive receipts by then."""
+        d = pd.Timestamp(date).as_unit("ns").value
+        k = int(np.searchsorted(self.gaps_received, d, side="right"))
+        first = self.first_receipt
+        return self.gaps.iloc[:k], first[first["received"] <= pd.Timestamp(date)]
+
+
 def _filled(known: pd.DataFrame, static: rf.Static, weeks: pd.DatetimeIndex, date) -> np.ndarray:
-    """Nowcast-adjusted cases on the unit x week grid (NaN unknown), from delays.fill_gaps."""
+    """Nowcast-adjusted cases on the unit x week grid (NaN unknown), from delays.fill_gaps.
+
+    ``known`` holds the versions received by ``date`` (unit ids as strings or categories).
+    """
     units = pd.DataFrame({"country": static.country}, index=static.ids)
-    c = known.assign(unit_id=known["unit_id"].astype(str))
-    gaps = fill_gaps(c, units, as_of=date)
+    gap_weeks, cases = filled_cases(known, units, as_of=date)
     out = np.full((len(static.ids), len(weeks)), np.nan)
-    ui = static.ids.get_indexer(gaps["unit_id"])
-    wi = weeks.get_indexer(gaps["week"])
-    ok = (ui >= 0) & (wi >= 0)
-    out[ui[ok], wi[ok]] = gaps["cases"].to_numpy(dtype=float)[ok]
+    wi = weeks.get_indexer(gap_weeks)
+    ok = wi >= 0
+    out[:, wi[ok]] = cases[:, ok]
     return out
 
 
@@ -212,18 +281,37 @@ def complete_weeks(known: pd.DataFrame, static: rf.Static, last: int) -> np.ndar
     with cases, among the reports known. Outcome windows running past it are censored, not
     negatives (a case may still be on its way).
     """
+    return _complete_from(_first_positive(known, static), static, last)
+
+
+def _first_positive(known: pd.DataFrame, static: rf.Static) -> pd.DataFrame:
+    """Per (unit_id, week) with cases: first receipt with cases, its delay, the unit's country.
+
+    The delay is in whole weeks after the week ended (0 at the least), as a float.
+    """
     pos = known[pd.to_numeric(known["cases"], errors="coerce").fillna(0) > 0]
+    first_rec = pos.groupby([pos["unit_id"].astype(str), pos["week"]], observed=True)[
+        "received"
+    ].min()
+    wk = first_rec.index.get_level_values(1)
+    delay = (first_rec.to_numpy() - (wk + pd.Timedelta(days=7))) // pd.Timedelta(days=7)
+    country = pd.Series(static.country, index=static.ids).reindex(
+        first_rec.index.get_level_values(0)
+    )
+    return pd.DataFrame(
+        {
+            "received": first_rec.to_numpy(),
+            "delay": np.maximum(np.asarray(delay, dtype=float), 0.0),
+            "country": country.to_numpy(),
+        }
+    )
+
+
+def _complete_from(first: pd.DataFrame, static: rf.Static, last: int) -> np.ndarray:
+    """``complete_weeks`` from the first positive receipts known (``_first_positive``)."""
     q = pd.Series(0, index=pd.Index(np.unique(static.country)), dtype=np.int64)
-    if len(pos):
-        first_rec = pos.groupby([pos["unit_id"].astype(str), pos["week"]], observed=True)[
-            "received"
-        ].min()
-        wk = first_rec.index.get_level_values(1)
-        delay = (first_rec.to_numpy() - (wk + pd.Timedelta(days=7))) // pd.Timedelta(days=7)
-        country = pd.Series(static.country, index=static.ids).reindex(
-            first_rec.index.get_level_values(0)
-        )
-        d = pd.Series(np.maximum(np.asarray(delay, dtype=float), 0.0), index=country.to_numpy())
+    if len(first):
+        d = pd.Series(first["delay"].to_numpy(), index=first["country"].to_numpy())
         qq = d.groupby(level=0).quantile(DELAY_QUANTILE)
         q = q.add(np.ceil(qq).astype(np.int64), fill_value=0).astype(np.int64)
     return last - q.reindex(static.country).to_numpy(dtype=np.int64)

@@ -46,6 +46,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from ..compute import Executor, default_workers
 from ..errors import InputError
 from . import _backtest
 from . import _features as rf
@@ -285,6 +286,7 @@ def run_backtest(
     as_of: object = None,
     forecast_paths: int = 0,
     seed: int | None = None,
+    executor: Executor | None = None,
 ) -> Backtest:
     """Rolling-origin backtest with the by-country and by-origin breakdowns.
 
@@ -309,7 +311,8 @@ penalty, min_cases, covariates
     top_k : int, default 10
         ``hits_top_k`` counts events among the ``top_k`` highest-scored candidates per origin.
     n_jobs : int, default 1
-        Worker processes over origins (joblib); results do not depend on it.
+        Local worker processes over origins (-1: one per CPU) when no ``executor`` is given;
+        results do not depend on it.
     as_of : date-like, optional
         Replay only what was known on this date: reports received later are dropped first,
         so outcomes too are judged on the data of that date (for a monthly report).
@@ -320,6 +323,11 @@ penalty, min_cases, covariates
         default.
     seed : int, optional
         Seed of the forecast model's paths.
+    executor : marchland.compute.Executor, optional
+        Where the origins run (this process, local processes or a Dask cluster, as
+        ``[compute]`` sets); overrides ``n_jobs``. Results do not depend on it. Local
+        processes are started only when units x origins reach
+        ``marchland.risk._backtest.SERIAL_BELOW`` (below it their start-up costs more).
 
     Returns
     -------
@@ -349,6 +357,10 @@ penalty, min_cases, covariates
         raise InputError(f"'top_k' needs to be a whole number >= 1. {top_k!r} was given instead.")
     if not isinstance(n_jobs, (int, np.integer)) or n_jobs == 0:
         raise InputError(f"'n_jobs' needs to be a non-zero whole number. {n_jobs!r} given.")
+    if executor is None:
+        executor = Executor(
+            workers=n_jobs if n_jobs > 0 else max(1, default_workers() + 1 + n_jobs)
+        )
     static = rf.build_static(units, graph, covariates)
     return _backtest.run(
         counts,
@@ -363,7 +375,7 @@ penalty, min_cases, covariates
         min_events=min_events,
         penalty=penalty,
         min_cases=min_cases,
-        n_jobs=n_jobs,
+        executor=executor,
         as_of=as_of,
         forecast=(units, graph, int(forecast_paths), seed) if forecast_paths else None,
     )
@@ -390,6 +402,7 @@ def backtest_risk(
     by: str | None = None,
     forecast_paths: int = 0,
     seed: int | None = None,
+    executor: Executor | None = None,
 ) -> pd.DataFrame:
     """Rolling-origin backtest of :func:`border_risk` against two baselines.
 
@@ -400,7 +413,7 @@ def backtest_risk(
     ----------
     counts, units, graph, horizon_weeks, origins, min_history_weeks, report_lag_days, top_k, \
 recent_weeks, reintroduction_weeks, min_events, penalty, min_cases, covariates, n_jobs, \
-as_of, forecast_paths, seed
+as_of, forecast_paths, seed, executor
         As in :func:`run_backtest`.
     by : {None, "country"}, optional
         ``"country"``: one row per model and country instead of per model.
@@ -444,6 +457,7 @@ as_of, forecast_paths, seed
         as_of=as_of,
         forecast_paths=forecast_paths,
         seed=seed,
+        executor=executor,
     )
     return bt.summary if by is None else bt.by_country
 
