@@ -72,8 +72,14 @@ def how_to_read(section: str, result: MonthResult) -> str:
             "differs; it has no unit.",
             "<b>Gi* z / Gi* q / Gi* view</b>: a second, simpler view (Getis-Ord Gi*) on the "
             "smoothed rate: z above 0 means the unit and its neighbours together are higher "
-            "than the region. It can disagree with the cluster label (Gi* does not separate "
-            "outliers from clusters). Quote the cluster label; cite Gi* only where both agree.",
+            "than the region. <b>Gi* agrees</b> says whether it points the same way as the "
+            "cluster label. The two can differ on the same row because they ask different "
+            "questions of different inputs: local Moran's I asks whether the unit's "
+            "population-adjusted rate resembles its neighbours', Gi* whether the unit and its "
+            "neighbours summed together stand above the region's smoothed rate; each has its "
+            "own false discovery correction, so near the threshold one can pass and the other "
+            "not, and Gi* cannot show outliers (High-Low, Low-High) at all. Quote the cluster "
+            "label; cite Gi* only where it agrees.",
         )
     if section == "spread":
         return _how(

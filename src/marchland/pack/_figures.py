@@ -188,14 +188,15 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
                     notes,
                     silent=silent,
                     horizon_weeks=result.config.risk.horizon_weeks,
-                    side_note=backtest_note(result),
+                    side_note=BACKTEST_POINTER,
                 ),
                 base,
                 result,
                 risk.sort_values("rank").index,
             ),
             "Probability of a first case within the horizon for unaffected units within two "
-            "graph steps of an affected one; the side panel gives the backtest.",
+            "graph steps of an affected one. How far to trust it: the backtest table beside "
+            "this map (in the atlas, on the map's side panel).",
         )
     if result.priorities is not None:
         depots = result.depots
@@ -319,6 +320,24 @@ def _page_title(caption: str) -> str:
     if len(head) > 110:
         head = re.sub(r"\s*\([^)]*\)$", "", head)
     return head if len(head) <= 110 else head[:107].rsplit(" ", 1)[0] + " ..."
+
+
+#: The risk map's side panel in the PNG (the report prints the backtest table beside it, so
+#: the picture must not repeat it); the atlas page swaps in the table (:func:`for_atlas`).
+BACKTEST_POINTER = "How far to trust it:\nsee the backtest table\nbeside this map in the\nreport."
+
+
+def for_atlas(name: str, fig: Any, result: MonthResult) -> Any:
+    """Finish a saved figure for its atlas page: what the report shows beside it goes on it.
+
+    The atlas has no tables, so the border-risk page gets the backtest numbers in its side
+    panel where the PNG (embedded in the report above the same table) has a pointer.
+    """
+    if name == "border_risk":
+        for t in fig.texts:
+            if t.get_text() == BACKTEST_POINTER:
+                t.set_text(backtest_note(result))
+    return fig
 
 
 def backtest_note(result: MonthResult) -> str:

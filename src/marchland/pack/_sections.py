@@ -118,6 +118,9 @@ def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         for c, head in (("gi_z", "Gi* z"), ("gi_q", "Gi* q"), ("gi_label", "Gi* view")):
             if c in sig:
                 cols[c] = head
+        if "gi_label" in sig:
+            sig = sig.assign(gi_agrees=gi_agrees(sig["label"], sig["gi_label"]))
+            cols["gi_agrees"] = "Gi* agrees"
         body += (
             f"<h3>Significant units ({len(sig)})</h3>"
             + '<div class="scroll">'
@@ -131,6 +134,23 @@ def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             + "</div>"
         )
     return _section("Hotspots", body, "hotspots")
+
+
+def gi_agrees(label: pd.Series, gi_label: pd.Series) -> pd.Series:
+    """Say per unit whether the Gi* view agrees with the local Moran's I cluster label.
+
+    High-High agrees with a Gi* hot spot, Low-Low with a cold spot. High-Low and Low-High are
+    outliers, which Gi* (the unit and its neighbours summed together) cannot show: for them the
+    answer is "not comparable", never a "no" that would read as a contradiction.
+    """
+    from ..stats.autocorrelation import COLD, HOT
+
+    match = {"High-High": HOT, "Low-Low": COLD}
+    want = label.astype(object).map(match)
+    out = pd.Series("not comparable (outlier)", index=label.index, dtype=object)
+    cl = want.notna()
+    out[cl] = (gi_label[cl].astype(object) == want[cl]).map({True: "yes", False: "no"})
+    return out
 
 
 def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
