@@ -168,6 +168,31 @@ GLOSSARY = (
     ),
     ("q (BH)", "a p value corrected for testing every unit at once (Benjamini-Hochberg)."),
     ("High-High", "a hotspot: high rate, neighbours high too."),
+    (
+        "Hotspot",
+        "a unit whose month rate resembles (or, for an outlier, differs from) its neighbours' "
+        "beyond chance: local Moran's I, on the Hotspots map.",
+    ),
+    (
+        "Emerging cluster",
+        "neighbouring units whose cases in the last weeks exceed their usual share: a "
+        "space-time scan, on the Emerging clusters map. Not the same as a hotspot.",
+    ),
+    (
+        "Gi*",
+        "Getis-Ord Gi*: a second view of hotspots, the unit and its neighbours summed.",
+    ),
+    (
+        "Nowcast",
+        "the estimate of what the latest weeks will show once late reports are in, with a "
+        "guess for units that sent nothing; nowcast-adjusted figures use it.",
+    ),
+    ("Silent unit", "a unit that sent no report in the last weeks: not the same as no cases."),
+    (
+        "AUC, Brier, CRPS",
+        "backtest scores: AUC ranks (0.5 coin toss, 1 perfect); Brier and CRPS are errors "
+        "(lower is better).",
+    ),
     ("Border risk", "the chance of a first case within the horizon, for unaffected units."),
     (
         "Planning cases",

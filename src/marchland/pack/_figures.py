@@ -411,10 +411,11 @@ def _band_sentence(result: MonthResult) -> str:
     if result.nowcast is None:
         return ""
     return (
-        " Diamonds on a line: the estimate of the weeks still arriving (late reports and units "
-        "that sent nothing added; bars are what has arrived); the vertical bar through a "
-        "diamond is its 90% interval for reporting delay: the week's final count will probably "
-        "fall inside it, and the wider it is, the less is in yet."
+        " Diamonds on a line: the nowcast estimate of the weeks still arriving (late reports "
+        "and units that sent nothing added; bars are what has arrived), found per area, so "
+        "they can reach further back than the shading; the vertical bar through a diamond is "
+        "its 90% interval for reporting delay: the week's final count will probably fall "
+        "inside it, and the wider it is, the less is in yet."
     )
 
 
@@ -426,9 +427,15 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
     if not reg:
         return
     shaded = (
-        f"the last {delay} complete weeks up to the as-of date are shaded and their bars drawn "
-        "paler: reporting incomplete."
+        f"the last {delay} complete weeks up to the as-of date (the configured reporting delay) "
+        "are shaded and their bars drawn paler: reporting incomplete."
     ) + _band_sentence(result)
+    # The full reading key is given once, under the whole-region curve; the others point to it.
+    same = (
+        "shading"
+        + (" and diamonds" if result.nowcast is not None else "")
+        + " as in the whole-region curve."
+    )
     yield (
         "epi_region",
         maps.epi_curves(
@@ -456,7 +463,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
             ncols=2,
             week_days=week_days,
         ),
-        f"Weekly reported cases and deaths per country; {shaded}",
+        f"Weekly reported cases and deaths per country; {same}",
     )
     prov = province_of(units)
     names = {}
@@ -488,7 +495,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
                 ncols=3,
                 week_days=week_days,
             ),
-            f"Weekly reported cases and deaths per province of {label(country)}{extra}; {shaded}",
+            f"Weekly reported cases and deaths per province of {label(country)}{extra}; {same}",
         )
 
 
