@@ -195,8 +195,8 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
                 risk.sort_values("rank").index,
             ),
             "Probability of a first case within the horizon for unaffected units within two "
-            "graph steps of an affected one. How far to trust it: the backtest table beside "
-            "this map (in the atlas, on the map's side panel).",
+            "graph steps of an affected one. How far to trust it: the backtest table (in the "
+            "report below this map; in the atlas on the map's side panel).",
         )
     if result.priorities is not None:
         depots = result.depots
@@ -324,7 +324,7 @@ def _page_title(caption: str) -> str:
 
 #: The risk map's side panel in the PNG (the report prints the backtest table beside it, so
 #: the picture must not repeat it); the atlas page swaps in the table (:func:`for_atlas`).
-BACKTEST_POINTER = "How far to trust it:\nsee the backtest table\nbeside this map in the\nreport."
+BACKTEST_POINTER = "How far to trust it:\nsee the backtest table\nbelow this map in the\nreport."
 
 
 def for_atlas(name: str, fig: Any, result: MonthResult) -> Any:
@@ -411,11 +411,12 @@ def _band_sentence(result: MonthResult) -> str:
     if result.nowcast is None:
         return ""
     return (
-        " Diamonds on a line: the nowcast estimate of the weeks still arriving (late reports "
-        "and units that sent nothing added; bars are what has arrived), found per area, so "
-        "they can reach further back than the shading; the vertical bar through a diamond is "
-        "its 90% interval for reporting delay: the week's final count will probably fall "
-        "inside it, and the wider it is, the less is in yet."
+        " Diamonds: the nowcast estimate wherever the bar is incomplete, both the weeks still "
+        "arriving (found per area, so they can reach further back than the shading) and "
+        "earlier weeks in which some units sent nothing (late reports and silent units "
+        "added; bars are what has arrived); the vertical bar through a diamond is its 90% "
+        "interval for reporting delay: the week's final count will probably fall inside it, "
+        "and the wider it is, the less is in yet."
     )
 
 

@@ -100,7 +100,7 @@ def outlook_figures(
                     ncols=3,
                 ),
                 f"Weekly cases per province of {label(country)}: reported, nowcast-filled and "
-                f"forecast ({fc.conf:.0%} interval). Projections assume no change in response.",
+                f"forecast ({fc.conf:.0%} interval), read as the country chart.",
             )
 
 
