@@ -176,7 +176,18 @@ def page_png(path: Path) -> bytes:
     with Image.open(io.BytesIO(raw)) as im:
         rgba = im.convert("RGBA")
     flat = Image.alpha_composite(Image.new("RGBA", rgba.size, "white"), rgba).convert("RGB")
-    pal = flat.quantize(PAGE_COLOURS, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE)
+    few = flat.getcolors(PAGE_COLOURS)
+    if few is not None:
+        # Few enough colours for an exact palette: every pixel keeps its colour.
+        palette = Image.new("P", (1, 1))
+        palette.putpalette([c for _, rgb in few for c in rgb])
+        pal = flat.quantize(palette=palette, dither=Image.Dither.NONE)
+    else:
+        # Anti-aliased edges give thousands of near colours; the octree keeps the flat areas
+        # (most pixels) within a few levels of their colour, the same for map and legend.
+        pal = flat.quantize(
+            PAGE_COLOURS, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE
+        )
     buf = io.BytesIO()
     pal.save(buf, "PNG", optimize=True)
     out = buf.getvalue()
