@@ -5,8 +5,10 @@ marks exactly the uncovered districts among the largest needs; item headers carr
 from the items file; every analysis section has its "How to read this" and the report a
 glossary and a month definition; map labels never overlap each other (forced collisions
 included); every atlas page has one paper size, switchable by config; the CLI help shows no
-literal ``\\b`` and a terminal run says at once that it started. Invented data only (the small
-grid world of ``month_world``).
+literal ``\\b`` and a terminal run says at once that it started; the hotspot table's "Gi*
+agrees" column; the report's screen copy of a figure keeps its colours and is smaller; the
+border-risk PNG points to the backtest table and its atlas page carries it. Invented data only
+(the small grid world of ``month_world``).
 """
 
 from __future__ import annotations
@@ -141,3 +143,57 @@ def test_a_terminal_run_says_it_started_at_once(monkeypatch, tmp_path):
     cfg = write_world(tmp_path)
     res = CliRunner().invoke(cli.cli, ["run", str(cfg), "--month", "2026-10"])
     assert res.stderr.startswith("marchland: analysing month 2026-10")
+
+
+def test_gi_agrees_compares_like_with_like():
+    from marchland.pack._sections import gi_agrees
+    from marchland.stats.autocorrelation import COLD, HOT, NOT_SIGNIFICANT
+
+    label = pd.Series(["High-High", "High-High", "Low-Low", "Low-Low", "High-Low", "Low-High"])
+    gi = pd.Series([HOT, NOT_SIGNIFICANT, COLD, HOT, HOT, NOT_SIGNIFICANT])
+    out = gi_agrees(label, gi).tolist()
+    assert out[:4] == ["yes", "no", "yes", "no"]
+    # Gi* cannot show an outlier: neither "yes" nor a "no" that reads as a contradiction.
+    assert out[4:] == ["not comparable (outlier)"] * 2
+
+
+def test_page_copy_of_a_figure_keeps_its_colours_and_is_smaller(tmp_path):
+    import io
+
+    import numpy as np
+    from PIL import Image
+
+    from marchland.pack._html import page_png
+
+    # A map-like picture: flat class colours plus a half-transparent band over white paper.
+    rng = np.random.default_rng(5)
+    palette = rng.integers(0, 256, size=(40, 3), dtype=np.uint8)
+    idx = rng.integers(0, 40, size=(60, 80))
+    rgba = np.dstack([palette[np.repeat(np.repeat(idx, 8, 0), 8, 1)], np.full((480, 640), 255)])
+    rgba = rgba.astype(np.uint8)
+    rgba[:40, :, 3] = 0  # transparent strip: must come out white, not black
+    src = tmp_path / "m.png"
+    Image.fromarray(rgba, "RGBA").save(src)
+    out = page_png(src)
+    assert len(out) < src.stat().st_size
+    back = np.asarray(Image.open(io.BytesIO(out)).convert("RGB"))
+    assert (back[:40] == 255).all()
+    # 40 flat colours fit a 256-colour palette exactly.
+    np.testing.assert_array_equal(back[40:], rgba[40:, :, :3])
+    assert src.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # file on disk left as it was
+
+
+def test_risk_png_points_to_the_backtest_table_the_atlas_shows_it(month):
+    from marchland.pack import _figures
+
+    result, written = month
+    html = (written / "report.html").read_text(encoding="utf-8")
+    risk = html.split('<section id="risk">', 1)[1].split("</section>", 1)[0]
+    assert risk.count("<th>AUC</th>") == 1  # the table once, beside the map
+    fig = next(f for n, f, _ in _figures.draw_figures(result) if n == "border_risk")
+    texts = [t.get_text() for t in fig.texts]
+    assert _figures.BACKTEST_POINTER in texts and not any("Brier" in t for t in texts)
+    _figures.for_atlas("border_risk", fig, result)
+    texts = [t.get_text() for t in fig.texts]
+    assert any("Brier" in t and "score" in t for t in texts)
+    assert _figures.BACKTEST_POINTER not in texts

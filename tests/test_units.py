@@ -142,7 +142,7 @@ def test_missing_file_and_column(files: dict[str, Path], tmp_path: Path) -> None
     with pytest.raises(InputError, match="not found"):
         read_units(tmp_path / "nope.gpkg", id="code", name="name", country="TVR", level=2)
     (tmp_path / "junk.gpkg").write_text("not a geopackage")
-    with pytest.raises(InputError, match="cannot read"):
+    with pytest.raises(InputError, match="not a vector boundary file"):
         read_units(tmp_path / "junk.gpkg", id="code", name="name", country="TVR", level=2)
     with pytest.raises(InputError) as info:
         read_units(files["tvr2"], id="dist_id", name="name", country="TVR", level=2)

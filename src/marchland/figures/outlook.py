@@ -81,6 +81,9 @@ def cluster_outline_map(
     if len(outlines):
         outlines.boundary.plot(ax=ax, color="white", linewidth=3.2, zorder=6)
         outlines.boundary.plot(ax=ax, color=OUTLINE, linewidth=1.6, zorder=7)
+        # geopandas labels the axes with the CRS's easting/northing; no other map has them.
+        ax.set_xlabel("")
+        ax.set_ylabel("")
         pts = outlines.geometry.representative_point()
         for i, (pt, lab) in enumerate(zip(pts, outlines["label"], strict=True)):
             ax.text(

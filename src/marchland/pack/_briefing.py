@@ -72,8 +72,14 @@ def how_to_read(section: str, result: MonthResult) -> str:
             "differs; it has no unit.",
             "<b>Gi* z / Gi* q / Gi* view</b>: a second, simpler view (Getis-Ord Gi*) on the "
             "smoothed rate: z above 0 means the unit and its neighbours together are higher "
-            "than the region. It can disagree with the cluster label (Gi* does not separate "
-            "outliers from clusters). Quote the cluster label; cite Gi* only where both agree.",
+            "than the region. <b>Gi* agrees</b> says whether it points the same way as the "
+            "cluster label. The two can differ on the same row because they ask different "
+            "questions of different inputs: local Moran's I asks whether the unit's "
+            "population-adjusted rate resembles its neighbours', Gi* whether the unit and its "
+            "neighbours summed together stand above the region's smoothed rate; each has its "
+            "own false discovery correction, so near the threshold one can pass and the other "
+            "not, and Gi* cannot show outliers (High-Low, Low-High) at all. Quote the cluster "
+            "label; cite Gi* only where it agrees.",
         )
     if section == "spread":
         return _how(
@@ -162,6 +168,31 @@ GLOSSARY = (
     ),
     ("q (BH)", "a p value corrected for testing every unit at once (Benjamini-Hochberg)."),
     ("High-High", "a hotspot: high rate, neighbours high too."),
+    (
+        "Hotspot",
+        "a unit whose month rate resembles (or, for an outlier, differs from) its neighbours' "
+        "beyond chance: local Moran's I, on the Hotspots map.",
+    ),
+    (
+        "Emerging cluster",
+        "neighbouring units whose cases in the last weeks exceed their usual share: a "
+        "space-time scan, on the Emerging clusters map. Not the same as a hotspot.",
+    ),
+    (
+        "Gi*",
+        "Getis-Ord Gi*: a second view of hotspots, the unit and its neighbours summed.",
+    ),
+    (
+        "Nowcast",
+        "the estimate of what the latest weeks will show once late reports are in, with a "
+        "guess for units that sent nothing; nowcast-adjusted figures use it.",
+    ),
+    ("Silent unit", "a unit that sent no report in the last weeks: not the same as no cases."),
+    (
+        "AUC, Brier, CRPS",
+        "backtest scores: AUC ranks (0.5 coin toss, 1 perfect); Brier and CRPS are errors "
+        "(lower is better).",
+    ),
     ("Border risk", "the chance of a first case within the horizon, for unaffected units."),
     (
         "Planning cases",

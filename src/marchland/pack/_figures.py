@@ -188,14 +188,15 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
                     notes,
                     silent=silent,
                     horizon_weeks=result.config.risk.horizon_weeks,
-                    side_note=backtest_note(result),
+                    side_note=BACKTEST_POINTER,
                 ),
                 base,
                 result,
                 risk.sort_values("rank").index,
             ),
             "Probability of a first case within the horizon for unaffected units within two "
-            "graph steps of an affected one; the side panel gives the backtest.",
+            "graph steps of an affected one. How far to trust it: the backtest table (in the "
+            "report below this map; in the atlas on the map's side panel).",
         )
     if result.priorities is not None:
         depots = result.depots
@@ -321,6 +322,24 @@ def _page_title(caption: str) -> str:
     return head if len(head) <= 110 else head[:107].rsplit(" ", 1)[0] + " ..."
 
 
+#: The risk map's side panel in the PNG (the report prints the backtest table beside it, so
+#: the picture must not repeat it); the atlas page swaps in the table (:func:`for_atlas`).
+BACKTEST_POINTER = "How far to trust it:\nsee the backtest table\nbelow this map in the\nreport."
+
+
+def for_atlas(name: str, fig: Any, result: MonthResult) -> Any:
+    """Finish a saved figure for its atlas page: what the report shows beside it goes on it.
+
+    The atlas has no tables, so the border-risk page gets the backtest numbers in its side
+    panel where the PNG (embedded in the report above the same table) has a pointer.
+    """
+    if name == "border_risk":
+        for t in fig.texts:
+            if t.get_text() == BACKTEST_POINTER:
+                t.set_text(backtest_note(result))
+    return fig
+
+
 def backtest_note(result: MonthResult) -> str:
     """Backtest numbers as a short monospace block for the risk map's side panel."""
     bt = result.backtest
@@ -392,10 +411,12 @@ def _band_sentence(result: MonthResult) -> str:
     if result.nowcast is None:
         return ""
     return (
-        " Diamonds on a line: the estimate of the weeks still arriving (late reports and units "
-        "that sent nothing added; bars are what has arrived); the vertical bar through a "
-        "diamond is its 90% interval for reporting delay: the week's final count will probably "
-        "fall inside it, and the wider it is, the less is in yet."
+        " Diamonds: the nowcast estimate wherever the bar is incomplete, both the weeks still "
+        "arriving (found per area, so they can reach further back than the shading) and "
+        "earlier weeks in which some units sent nothing (late reports and silent units "
+        "added; bars are what has arrived); the vertical bar through a diamond is its 90% "
+        "interval for reporting delay: the week's final count will probably fall inside it, "
+        "and the wider it is, the less is in yet."
     )
 
 
@@ -407,9 +428,15 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
     if not reg:
         return
     shaded = (
-        f"the last {delay} complete weeks up to the as-of date are shaded and their bars drawn "
-        "paler: reporting incomplete."
+        f"the last {delay} complete weeks up to the as-of date (the configured reporting delay) "
+        "are shaded and their bars drawn paler: reporting incomplete."
     ) + _band_sentence(result)
+    # The full reading key is given once, under the whole-region curve; the others point to it.
+    same = (
+        "shading"
+        + (" and diamonds" if result.nowcast is not None else "")
+        + " as in the whole-region curve."
+    )
     yield (
         "epi_region",
         maps.epi_curves(
@@ -437,7 +464,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
             ncols=2,
             week_days=week_days,
         ),
-        f"Weekly reported cases and deaths per country; {shaded}",
+        f"Weekly reported cases and deaths per country; {same}",
     )
     prov = province_of(units)
     names = {}
@@ -469,7 +496,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
                 ncols=3,
                 week_days=week_days,
             ),
-            f"Weekly reported cases and deaths per province of {label(country)}{extra}; {shaded}",
+            f"Weekly reported cases and deaths per province of {label(country)}{extra}; {same}",
         )
 
 

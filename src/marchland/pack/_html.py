@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import base64
 import html
+import io
 from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -136,8 +137,65 @@ def table_html(
     return out
 
 
+#: Colours kept when a figure is re-encoded for the page. Our maps are flat class colours,
+#: grey borders and text: 256 palette entries draw them without visible loss (common practice
+#: for web maps), at a third of the size of the full-colour PNG.
+PAGE_COLOURS = 256
+
+
+def page_png(path: Path) -> bytes:
+    """Return the PNG at ``path`` re-encoded for the report page: a 256-colour palette PNG.
+
+    The file on disk is not touched (``maps/*.png`` keep full colour for print and GIS use);
+    only the copy embedded in report.html is smaller. Pillow's quantizer is used (it comes with
+    matplotlib), with no dithering so flat class colours stay flat; transparency is laid on
+    white, the page's figure background.
+
+    Parameters
+    ----------
+    path : pathlib.Path
+        A PNG file.
+
+    Returns
+    -------
+    bytes
+        The palette PNG; the original bytes when re-encoding does not make it smaller.
+
+    Examples
+    --------
+    >>> import io, tempfile
+    >>> from PIL import Image
+    >>> f = Path(tempfile.mkdtemp()) / "a.png"
+    >>> Image.new("RGBA", (40, 20), (200, 30, 30, 255)).save(f)
+    >>> Image.open(io.BytesIO(page_png(f))).mode in ("P", "RGBA")
+    True
+    """
+    from PIL import Image
+
+    raw = Path(path).read_bytes()
+    with Image.open(io.BytesIO(raw)) as im:
+        rgba = im.convert("RGBA")
+    flat = Image.alpha_composite(Image.new("RGBA", rgba.size, "white"), rgba).convert("RGB")
+    few = flat.getcolors(PAGE_COLOURS)
+    if few is not None:
+        # Few enough colours for an exact palette: every pixel keeps its colour.
+        palette = Image.new("P", (1, 1))
+        palette.putpalette([c for _, rgb in few for c in rgb])
+        pal = flat.quantize(palette=palette, dither=Image.Dither.NONE)
+    else:
+        # Anti-aliased edges give thousands of near colours; the octree keeps the flat areas
+        # (most pixels) within a few levels of their colour, the same for map and legend.
+        pal = flat.quantize(
+            PAGE_COLOURS, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE
+        )
+    buf = io.BytesIO()
+    pal.save(buf, "PNG", optimize=True)
+    out = buf.getvalue()
+    return out if len(out) < len(raw) else raw
+
+
 def _img(path: Path, alt: str) -> str:
-    data = base64.b64encode(Path(path).read_bytes()).decode("ascii")
+    data = base64.b64encode(page_png(path)).decode("ascii")
     return f'<img alt="{esc(alt)}" src="data:image/png;base64,{data}">'
 
 
@@ -145,9 +203,16 @@ def _figure(figures: Mapping[str, Any], name: str) -> str:
     f = figures.get(name)
     if f is None:
         return ""
+    path = Path(f["path"])
+    # The page carries a screen copy; the full-resolution file sits beside it in maps/.
+    full = (
+        f' <a href="maps/{esc(path.name)}">Full resolution: maps/{esc(path.name)}</a>'
+        if path.parent.name == "maps"
+        else ""
+    )
     return (
-        f'<figure id="fig-{esc(name)}">{_img(f["path"], f["caption"])}'
-        f"<figcaption>{esc(f['caption'])}</figcaption></figure>"
+        f'<figure id="fig-{esc(name)}">{_img(path, f["caption"])}'
+        f"<figcaption>{esc(f['caption'])}{full}</figcaption></figure>"
     )
 
 

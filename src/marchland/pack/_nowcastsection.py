@@ -9,13 +9,19 @@ import pandas as pd
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
+from ._briefing import _how
 from ._html import _absent, _section, esc, table_html
 
 READ_BAND = (
-    "How to read it: the reported count is what has arrived by the as-of date; the estimate "
-    "adds the reports that usually still come in, and a guess for units that sent nothing "
-    "(never taken as zero). The 90% interval is for reporting delay only: the week's final "
-    "count will probably fall inside it; a wide interval means little of the week is in yet."
+    "The reported count is what has arrived by the as-of date; the estimate adds the reports "
+    "that usually still come in, and a guess for units that sent nothing (never taken as "
+    "zero). The 90% interval is for reporting delay only: the week's final count will "
+    "probably fall inside it; a wide interval means little of the week is in yet.",
+    "A dash instead of an interval: no delay interval can be given, because the area sent "
+    "nothing that week or past weeks show no report arriving this early; the estimate then "
+    "rests on the guess for the silent units and has no band.",
+    "<b>Status</b>: reported, the week is past the usual reporting delay and every unit "
+    "sent its count; estimated, late reports or units that sent nothing are estimated.",
 )
 
 
@@ -70,7 +76,8 @@ def nowcast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = _absent(result, "nowcast")
     nc = result.nowcast
     if nc is not None:
-        body += f'<p class="note">{esc(READ_BAND)}</p>' + coverage_note(result)
+        # How much of the month is in is said once, in the headline.
+        body += _how(*READ_BAND)
         recent = nc[nc["level"].isin(["region", "country"])]
         last = sorted(recent["week"].unique())[-4:]
         recent = recent[recent["week"].isin(last)].copy()

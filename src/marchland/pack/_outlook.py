@@ -100,7 +100,7 @@ def outlook_figures(
                     ncols=3,
                 ),
                 f"Weekly cases per province of {label(country)}: reported, nowcast-filled and "
-                f"forecast ({fc.conf:.0%} interval). Projections assume no change in response.",
+                f"forecast ({fc.conf:.0%} interval), read as the country chart.",
             )
 
 
@@ -132,6 +132,13 @@ def _fan_series(result: MonthResult, key: pd.Series, fc: Any) -> dict[str, pd.Da
 def clusters_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     """Report section on emerging clusters."""
     body = _absent(result, "clusters") + f'<p class="caution">{esc(CLUSTER_CAUTION)}</p>'
+    body += (
+        '<p class="note"><b>Not the hotspots above.</b> A hotspot (local Moran\'s I) compares '
+        "a unit's attack rate for the whole month with its neighbours'. An emerging cluster "
+        "is a group of neighbouring units whose cases in the last weeks are higher than their "
+        "usual share of the region's cases predicts, whatever their rate: the two can pick "
+        "different places.</p>"
+    )
     cl = result.clusters
     if cl is not None:
         a = cl.attrs
@@ -147,6 +154,11 @@ def clusters_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             "a week, how often a cluster this strong would arise by chance.</p>"
         )
         body += _figure(figures, "clusters")
+        if len(cl):
+            body += (
+                f'<p class="note">The table lists every cluster the scan found ({len(cl)}); the '
+                "map draws only those with p &le; 0.05. Quote only those.</p>"
+            )
         t = cl.copy()
         t["units"] = [", ".join(u) for u in t["units"]]
         body += table_html(
@@ -193,6 +205,7 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             },
             empty="No forecast.",
         )
+        body += "".join(_figure(figures, n) for n in figures if str(n).startswith("epi_forecast"))
     bt = result.forecast_backtest
     if bt is not None:
         allc = bt[bt["country"] == "all"].reset_index()
@@ -211,6 +224,6 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             "month quick). CRPS: mean continuous ranked probability score per unit-week, lower "
             "is better; baselines are last week carried forward and the mean of the last 4 "
             "weeks. Coverage: share of outcomes inside the model's interval.</p>"
-            + table_html(wide, cols, kinds={"coverage": "pct"})
+            + table_html(wide, cols, kinds={"coverage": "pct", "horizon": "int"})
         )
     return _section("The next four weeks", body, "outlook")

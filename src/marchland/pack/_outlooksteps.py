@@ -26,7 +26,7 @@ BACKTEST_STEP_WEEKS = 2
 BACKTEST_SPAN_WEEKS = 26
 BACKTEST_PATHS = 200
 PANEL_SOURCE = (
-    "nowcast-filled panel (delays.fill_gaps: recent weeks scaled for late reports, "
+    "nowcast-filled panel (recent weeks scaled for late reports, "
     "unreported unit-weeks imputed from the unit's share of its country)"
 )
 

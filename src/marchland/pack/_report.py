@@ -1,8 +1,9 @@
 """report.html: one self-contained page for the month (inline CSS, images as data URIs).
 
 One inline script (the interactive map, allowed by its hash), no font or style sheet from
-elsewhere, no link that leaves the page: the file can
-be mailed or opened offline. Every string that comes from input data (unit names, sources,
+elsewhere, no link that leaves the pack folder (each figure links to its full-resolution file in
+``maps/``): the file can be mailed or opened offline. The figures are embedded as screen copies
+(:func:`._html.page_png`). Every string that comes from input data (unit names, sources,
 reasons, config values) goes through :func:`html.escape`; numbers are formatted here.
 """
 
@@ -96,25 +97,54 @@ def _headline(result: MonthResult) -> str:
         "" if h["global_moran_p"] is None else f"permutation p = {_fmt(h['global_moran_p'], 'p')}"
     )
     horizon = result.config.risk.horizon_weeks
+    adj = _region_adjusted(result)
     tiles = [
-        _tile(_num(h["cases"], "int"), f"cases reported, {month}"),
+        _tile(
+            _num(h["cases"], "int"),
+            f"cases reported, {month}",
+            "" if adj is None else f"nowcast-adjusted: {_fmt(adj['adjusted_cases'], 'int')}",
+        ),
         _tile(_num(h["deaths"], "int"), f"deaths reported, {month}"),
-        _tile(_num(h["rate"]), "attack rate per 100,000, whole region", rate_ci),
+        _tile(
+            _num(h["rate"]),
+            "attack rate per 100,000, whole region",
+            rate_ci + ("" if adj is None else f"; nowcast-adjusted: {_fmt(adj['adjusted_rate'])}"),
+        ),
         _tile(
             _num(h["newly_affected"], "int"),
             "units with a first case this month",
             "" if h["affected"] is None else f"{h['affected']:,} of {h['units']:,} affected so far",
         ),
-        _tile(_num(h["global_moran_i"], "p"), "global Moran's I (rate-adjusted)", moran),
+        _tile(
+            _num(h["global_moran_i"], "p"),
+            "global Moran's I (rate-adjusted)",
+            moran or _why(result, "hotspots"),
+        ),
         _tile(
             _num(h["expected_new_units"]),
             f"expected newly affected units, next {horizon} weeks",
-            ""
+            _why(result, "border risk")
             if h["candidates"] is None
             else f"sum of probabilities over {h['candidates']:,} candidates",
         ),
     ]
     return '<div class="tiles">' + "".join(tiles) + "</div>" + coverage_note(result)
+
+
+def _region_adjusted(result: MonthResult) -> Any:
+    """Return the whole region's nowcast-adjusted month (cases, rate), or None."""
+    a = result.month_adjusted_by_area
+    if a is None:
+        return None
+    row = a[a["level"] == "region"]
+    return None if not len(row) else row.iloc[0]
+
+
+def _why(result: MonthResult, step: str) -> str:
+    """Say why a headline number is missing: the step's reason from ``result.absent``."""
+    if step in result.absent:
+        return f"not computed: {esc(result.absent[step])}"
+    return ""
 
 
 def _contents(sections: Sequence[tuple[str, str]]) -> str:
@@ -159,9 +189,9 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
             [
                 ("headline", "Headline"),
                 ("map", "Interactive map"),
-                ("rates", "Attack rates"),
                 ("epi", "Epi curves"),
-                ("nowcast", "Latest weeks"),
+                ("nowcast", "Latest weeks (nowcast)"),
+                ("rates", "Attack rates"),
                 ("hotspots", "Hotspots"),
                 ("clusters", "Emerging clusters"),
                 ("spread", "Spread"),
@@ -175,9 +205,10 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
         ),
         _section("Headline", _headline(result), "headline"),
         _webmap.map_section(result),
-        _rates_section(result, figures),
+        # Reading order: how the counts move, how complete the last weeks are, then where.
         _epi_section(result, figures),
         nowcast_section(result, figures),
+        _rates_section(result, figures),
         _hotspot_section(result, figures),
         clusters_section(result, figures),
         _spread_section(result, figures),

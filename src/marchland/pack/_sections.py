@@ -27,11 +27,12 @@ from ._html import (
     esc,
     table_html,
 )
-from ._nowcastsection import adjusted_rates_table, coverage_note
+from ._nowcastsection import adjusted_rates_table
 
 
 def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    body = how_to_read("rates", result) + _absent(result, "rates") + coverage_note(result)
+    # How much of the month is in is said once, in the headline; the adjusted table is here.
+    body = how_to_read("rates", result) + _absent(result, "rates")
     body += _figure(figures, "attack_rate") + _figure(figures, "attack_rate_months")
     body += adjusted_rates_table(result)
     if result.rates_by_area is not None:
@@ -97,7 +98,8 @@ def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
 
 
 def _epi_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
-    names = [n for n in figures if n.startswith("epi_")]
+    # The forecast fan charts (epi_forecast_*) belong to "The next four weeks".
+    names = [n for n in figures if n.startswith("epi_") and not n.startswith("epi_forecast")]
     body = "".join(_figure(figures, n) for n in names)
     if not names:
         body = '<p class="note">No weekly counts to draw.</p>'
@@ -125,6 +127,9 @@ def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         for c, head in (("gi_z", "Gi* z"), ("gi_q", "Gi* q"), ("gi_label", "Gi* view")):
             if c in sig:
                 cols[c] = head
+        if "gi_label" in sig:
+            sig = sig.assign(gi_agrees=gi_agrees(sig["label"], sig["gi_label"]))
+            cols["gi_agrees"] = "Gi* agrees"
         body += (
             f"<h3>Significant units ({len(sig)})</h3>"
             + '<div class="scroll">'
@@ -140,12 +145,34 @@ def _hotspot_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     return _section("Hotspots", body, "hotspots")
 
 
+def _method_name(method: str) -> str:
+    """Return the speed method as the prose names it ("trend surface")."""
+    return str(method).replace("_", " ")
+
+
+def gi_agrees(label: pd.Series, gi_label: pd.Series) -> pd.Series:
+    """Say per unit whether the Gi* view agrees with the local Moran's I cluster label.
+
+    High-High agrees with a Gi* hot spot, Low-Low with a cold spot. High-Low and Low-High are
+    outliers, which Gi* (the unit and its neighbours summed together) cannot show: for them the
+    answer is "not comparable", never a "no" that would read as a contradiction.
+    """
+    from ..stats.autocorrelation import COLD, HOT
+
+    match = {"High-High": HOT, "Low-Low": COLD}
+    want = label.astype(object).map(match)
+    out = pd.Series("not comparable (outlier)", index=label.index, dtype=object)
+    cl = want.notna()
+    out[cl] = (gi_label[cl].astype(object) == want[cl]).map({True: "yes", False: "no"})
+    return out
+
+
 def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body = how_to_read("spread", result) + _absent(result, "spread") + _figure(figures, "arrival")
     if result.velocity is not None:
         v = result.velocity
         body += "<h3>Speed of spread</h3>" + table_html(
-            v.by_method,
+            v.by_method.rename(index=_method_name),
             {
                 "km_per_week": "km per week",
                 "lower": "lower",
@@ -157,6 +184,7 @@ def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         )
         if v.by_group is not None and len(v.by_group):
             by = v.by_group.reset_index(level="group").rename(columns={"group": "country"})
+            by = by.rename(index=_method_name)
             by["country"] = by["country"].map(result.config.country_label)
             body += (
                 "<h3>Speed of spread by country</h3>"
@@ -175,8 +203,11 @@ def _spread_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
                 + '<p class="note">Few units give wide intervals: read the limits.</p>'
             )
     if result.introductions_by_border is not None and len(result.introductions_by_border):
-        body += "<h3>Probable introductions per border</h3>" + table_html(
-            result.introductions_by_border
+        body += (
+            "<h3>Probable introductions per border</h3>"
+            + table_html(result.introductions_by_border)
+            + '<p class="note">A unit with sources in two countries counts under each border, '
+            "so the rows can add up to more than the introductions listed below.</p>"
         )
     if result.introductions is not None:
         intro = result.introductions
@@ -209,7 +240,7 @@ def _risk_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
                     "n_origins": "origins",
                 },
                 index="model",
-                kinds={"auc": "p", "brier": "p"},
+                kinds={"auc": "p", "brier": "p", "n_origins": "int"},
             )
         )
         side += (
@@ -262,9 +293,13 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     body += (
         '<p class="caution"><b>Example planning values, not guidance.</b> Quantities come '
         "from the planning attack rates and per-case items in the config; they are the "
-        "user's numbers"
-        + (f" ({esc(result.supply_note.rstrip('. '))})" if result.supply_note else "")
-        + ".</p>"
+        "user's numbers, not this analysis's."
+        + (
+            f" The config says: &ldquo;{esc(result.supply_note.strip())}&rdquo;"
+            if result.supply_note
+            else ""
+        )
+        + "</p>"
     )
     body += _figure(figures, "priorities")
     if result.priorities is not None:
@@ -299,12 +334,17 @@ def _supplies_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             index="country",
         )
     if result.supply_totals_by_depot is not None:
+        by_depot = result.supply_totals_by_depot
+        if result.depots is not None and "name" in result.depots:
+            # The depot's name as in the depot table and the priority list, with its site code.
+            names = result.depots["name"].astype(str)
+            by_depot = by_depot.rename(
+                index=lambda s: f"{names[s]} ({s})" if s in names.index else s
+            )
         body += (
             "<h3>Totals per depot catchment</h3><p>Each candidate district counted at its nearest "
             "open depot, whether or not it lies within reach.</p>"
-            + table_html(
-                with_units(result.supply_totals_by_depot, item_units(result)), index="depot"
-            )
+            + table_html(with_units(by_depot, item_units(result)), index="depot")
         )
     return _section("Pre-positioning", body, "supplies")
 

@@ -353,7 +353,7 @@ def _write_figures(
     from matplotlib.backends.backend_pdf import PdfPages
 
     from ..figures.maps import save_figure
-    from ._figures import atlas_page, cover_page, draw_figures
+    from ._figures import atlas_page, cover_page, draw_figures, for_atlas
 
     mdir = root / "maps"
     mdir.mkdir()
@@ -375,7 +375,7 @@ def _write_figures(
         for i, (name, fig, caption) in enumerate(entries):
             path = mdir / f"{name}.png"
             save_figure(fig, path)
-            atlas_page(pdf, fig, paper)
+            atlas_page(pdf, for_atlas(name, fig, result), paper)
             # Closed as it is drawn, so the peak memory is one figure's.
             fig.clear()
             entries[i] = (name, None, caption)
