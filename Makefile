@@ -24,7 +24,7 @@ demo: $(VENV)/.installed
 	$(BIN)/marchland demo --out out --overwrite
 
 test: $(VENV)/.installed-test
-	$(BIN)/python -m pytest
+	$(BIN)/python -m pytest -n 2
 
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check src tests benchmarks

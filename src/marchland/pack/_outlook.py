@@ -14,7 +14,7 @@ import pandas as pd
 from ..figures import maps
 from ..figures.outlook import cluster_outline_map, fan_charts
 from ._html import _absent, _figure, _fmt, _section, esc, table_html
-from ._outlooksteps import clusters_layer
+from ._outlooksteps import CLUSTER_MAX_UNITS, clusters_layer
 from ._steps import province_of
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -146,7 +146,8 @@ def clusters_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
         body += (
             '<p class="note">Method: space-time permutation scan statistic (Kulldorff et al. '
             "2005), prospective: every cluster ends at the window's last week, is 1 to 4 weeks "
-            "long and covers a unit and its nearest neighbours up to half the window's cases. "
+            "long and covers a unit and its nearest neighbours up to half the window's cases "
+            f"and at most {CLUSTER_MAX_UNITS} units. "
             f"Scanned: {esc(a.get('panel', ''))}, weeks {_fmt(w0)} to {_fmt(w1)}, "
             f"{a.get('units_scanned', '?')} units ({a.get('units_imputed', 0)} with an imputed "
             f"week; {len(a.get('units_unknown', []))} left out as unknown); "
