@@ -460,7 +460,7 @@ def _summary(console: Any, result: Any, dest: Path) -> None:
     )
     total = sum(result.timings.values())
     console.print(
-        f"  analysis steps took {total:.1f} s; slowest steps (writing included): "
+        f"  analysis took {total:.1f} s, then the pack was written; slowest steps of either: "
         + ", ".join(f"{k} {float(v):.1f} s" for k, v in _slowest(result, dest))
     )
     for step, reason in result.absent.items():

@@ -175,6 +175,9 @@ def _no_math(fig: Figure) -> Figure:
     return fig
 
 
+_SUBTITLE_CHARS = 135  # 9 pt text across the map figure's width
+
+
 def _new_map(title: str, subtitle: str = "") -> tuple[Figure, Axes]:
     fig = Figure(figsize=_MAP_SIZE, dpi=DPI, facecolor="white")
     ax = fig.add_axes(_MAP_AX)
@@ -182,7 +185,18 @@ def _new_map(title: str, subtitle: str = "") -> tuple[Figure, Axes]:
         0.02, 0.955, title, fontsize=13, fontweight="bold", ha="left", va="center", color="#1d1d1b"
     )
     if subtitle:
-        fig.text(0.02, 0.922, subtitle, fontsize=9, ha="left", va="center", color="#4a4740")
+        # Long subtitles (a partial month says how much of it is in) wrap rather than run off.
+        lines = textwrap.wrap(subtitle, _SUBTITLE_CHARS)
+        fig.text(
+            0.02,
+            0.933,
+            "\n".join(lines),
+            fontsize=9 if len(lines) == 1 else 8,
+            ha="left",
+            va="top",
+            color="#4a4740",
+            linespacing=1.25,
+        )
     return fig, ax
 
 
