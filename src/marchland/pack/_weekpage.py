@@ -155,7 +155,8 @@ def render_week(result: WeekResult) -> str:
                     "cases": "int",
                 },
             )
-            + '<p class="note">Wilson 95% interval; few cases give wide limits.</p>',
+            + '<p class="note">Exact (Clopper-Pearson) 95% interval; few cases give wide '
+            "limits.</p>",
             "cfr",
         )
     )
@@ -190,7 +191,7 @@ def render_week(result: WeekResult) -> str:
                     "share_4w": "share, last 4 weeks",
                 },
                 index="country",
-                kinds={"share": "pct", "share_4w": "pct"},
+                kinds={"units": "int", "units_reporting": "int", "share": "pct", "share_4w": "pct"},
             ),
             "completeness",
         )

@@ -4,9 +4,10 @@
 last day plus ``region.as_of_lag_days``), gathers the short update partners get between monthly
 packs: cases and deaths by country, epi curves with the nowcast band
 (:func:`marchland.delays.nowcasting.nowcast`), units newly affected this week, the week's CFR
-with its Wilson interval, border alerts (candidates whose border-risk probability rose most
-since the previous week) and reporting completeness by country. The monthly pack stays the
-full analysis; :func:`marchland.pack._weekpage.write_week` writes the folder.
+with its exact (Clopper-Pearson) interval, border alerts (candidates whose border-risk
+probability rose most since the previous week) and reporting completeness by country. The
+monthly pack stays the full analysis; :func:`marchland.pack._weekpage.write_week` writes the
+folder.
 """
 
 from __future__ import annotations
