@@ -174,3 +174,23 @@ def _raw_demo() -> dict:
     import tomllib
 
     return tomllib.loads(scenario_path().read_text(encoding="utf-8"))
+
+
+def test_reading_a_config_and_checking_it_import_nothing_heavy():
+    # `marchland check` reads inputs but runs no analysis: no graph, model, cluster or drawing
+    # library may be imported on that path (measured with `python -X importtime`).
+    import subprocess
+    import sys
+
+    code = (
+        "import sys, warnings; warnings.simplefilter('ignore');"
+        "from marchland.config.load import load_config; from marchland.demo import scenario_path;"
+        "cfg = load_config(scenario_path());"
+        "light = [m for m in ('joblib', 'distributed', 'numba') if m in sys.modules];"
+        "from marchland.pack.region import check; check(cfg);"
+        "heavy = [m for m in ('distributed', 'libpysal', 'spopt', 'statsmodels', 'esda', "
+        "'matplotlib', 'joblib') if m in sys.modules];"
+        "print(light, heavy)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[] []"

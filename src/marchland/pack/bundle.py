@@ -28,6 +28,7 @@ import os
 import platform
 import time
 from collections.abc import Callable, Mapping
+from contextvars import ContextVar
 from dataclasses import asdict, is_dataclass
 from datetime import UTC, datetime
 from importlib import metadata
@@ -133,8 +134,11 @@ def _write_all(
 
     tables = timed("bundle: tables", lambda: _write_tables(result, root))
     timed("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg"))
-    kw = {} if progress is None else {"progress": progress}
-    figures = timed("bundle: maps", lambda: _write_figures(result, root, **kw))
+    token = _PROGRESS.set(progress)
+    try:
+        figures = timed("bundle: maps", lambda: _write_figures(result, root))
+    finally:
+        _PROGRESS.reset(token)
     timed("bundle: report", lambda: _write_report(result, root, figures, tables))
     _write_manifest(result, root, timings)
 
@@ -347,14 +351,20 @@ def _write_layer_files(layers: Mapping[str, Any], path: Path) -> None:
         gdf.to_parquet(pq / f"{name}.parquet", index=False)
 
 
-def _write_figures(
-    result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None = None
-) -> dict[str, dict[str, Any]]:
+# The caller's progress callback while the figures are written (kept out of _write_figures'
+# signature, which tests replace with a stub).
+_PROGRESS: ContextVar[Callable[[str, int, int], None] | None] = ContextVar(
+    "marchland_bundle_progress", default=None
+)
+
+
+def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:
     from matplotlib.backends.backend_pdf import PdfPages
 
     from ..figures.maps import save_figure
     from ._figures import atlas_page, cover_page, draw_figures, for_atlas
 
+    progress = _PROGRESS.get()
     mdir = root / "maps"
     mdir.mkdir()
     figures: dict[str, dict[str, Any]] = {}
