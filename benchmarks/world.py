@@ -33,7 +33,6 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyproj
-import rasterio
 import scipy.sparse as sp
 import shapely
 from rasterio.features import rasterize
@@ -46,7 +45,7 @@ from marchland.demo import scenario_path
 from marchland.demo._boundaries import FILES, country_copies, write_boundaries
 from marchland.demo._names import name_pool
 from marchland.demo._outbreak import N_WEEKS, START
-from marchland.demo._population import CELL_DEG, NODATA, POP_MAX, POP_MIN
+from marchland.demo._population import CELL_DEG, NODATA, POP_MAX, POP_MIN, write_grid
 from marchland.demo._reports import DIRT_COLUMNS, reported_counts, write_tvr
 from marchland.demo._world import (
     GEN_CRS,
@@ -270,28 +269,6 @@ def build_population(world: World, rng: np.random.Generator):
     return values, transform, towns, totals
 
 
-def write_raster(values: np.ndarray, transform: Affine, path: Path) -> None:
-    """Write the grid as a deflate-compressed, tiled float32 GeoTIFF in EPSG:4326."""
-    profile = dict(
-        driver="GTiff",
-        width=values.shape[1],
-        height=values.shape[0],
-        count=1,
-        dtype="float32",
-        crs="EPSG:4326",
-        transform=transform,
-        nodata=NODATA,
-        compress="deflate",
-        predictor=3,
-        tiled=True,
-        blockxsize=256,
-        blockysize=256,
-    )
-    with rasterio.open(path, "w", **profile) as dst:
-        dst.write(values, 1)
-        dst.update_tags(description="people per cell, synthetic benchmark world")
-
-
 def simulate(world: World, population: np.ndarray, rng: np.random.Generator):
     """A weekly stochastic metapopulation outbreak over the adjacency, as a sparse model.
 
@@ -443,7 +420,9 @@ def generate(n: int, out: str | Path, *, seed: int = 1) -> dict:
         (out / sub).mkdir(parents=True)
     write_boundaries(world, country_copies(world, rng), out / "boundaries")
     t0 = _timed(times, "boundaries", t0)
-    write_raster(values, transform, out / "population.tif")
+    write_grid(
+        values, out / "population.tif", "people per cell, synthetic benchmark world", transform
+    )
     t0 = _timed(times, "raster", t0)
     d = world.districts.assign(population=totals, island=False)
     sc = SimpleNamespace(

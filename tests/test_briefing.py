@@ -20,7 +20,7 @@ import geopandas as gpd
 import pandas as pd
 import pytest
 from click.testing import CliRunner
-from month_world import fake_region, write_world
+from month_world import write_world
 from shapely.geometry import box
 
 from marchland import cli
@@ -30,13 +30,8 @@ from marchland.pack import _briefing, bundle, monthly
 
 
 @pytest.fixture(scope="module")
-def month(tmp_path_factory):
-    root = tmp_path_factory.mktemp("world")
-    cfg = write_world(root)
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(monthly, "_open_region", fake_region)
-        result = monthly.run_month(cfg, "2026-10")
-    return result, bundle.write_month(result, root / "out")
+def month(grid_month):
+    return grid_month
 
 
 def test_priority_frame_adds_need_depot_and_flag(month):

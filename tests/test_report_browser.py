@@ -20,9 +20,6 @@ import shutil
 import subprocess
 
 import pytest
-from month_world import fake_region, write_world
-
-from marchland.pack import bundle, monthly
 
 _CHECK = """<script>
 window.addEventListener("load", function () {
@@ -79,13 +76,8 @@ def _render(html_path, tmp_path) -> dict:
 
 
 @pytest.fixture(scope="module")
-def report(tmp_path_factory):
-    root = tmp_path_factory.mktemp("world")
-    cfg = write_world(root)
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(monthly, "_open_region", fake_region)
-        result = monthly.run_month(cfg, "2026-10")
-    return bundle.write_month(result, root / "out") / "report.html"
+def report(grid_month):
+    return grid_month[1] / "report.html"
 
 
 def test_report_renders_with_every_image_and_no_request(report, tmp_path):

@@ -19,10 +19,7 @@ import shutil
 import subprocess
 
 import pytest
-from month_world import fake_region, write_world
 from test_report_browser import _chromium
-
-from marchland.pack import bundle, monthly
 
 
 def _pdftotext() -> str:
@@ -67,13 +64,8 @@ def _missing(page, tmp_path) -> list[str]:
 
 
 @pytest.fixture(scope="module")
-def report(tmp_path_factory):
-    root = tmp_path_factory.mktemp("world")
-    cfg = write_world(root)
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(monthly, "_open_region", fake_region)
-        result = monthly.run_month(cfg, "2026-10")
-    return bundle.write_month(result, root / "out") / "report.html"
+def report(grid_month):
+    return grid_month[1] / "report.html"
 
 
 def test_printed_report_shows_every_table_column(report, tmp_path):

@@ -19,12 +19,11 @@ import numpy as np
 import pandas as pd
 import pytest
 import shapely
-from month_world import fake_region, write_world
 from shapely.geometry import box
 from test_report_browser import _chromium
 
 from marchland.figures import _mapclass as mc
-from marchland.pack import _webmap, bundle, monthly
+from marchland.pack import _webmap, bundle
 
 _DRIVE = """<script>
 window.addEventListener("load", function () {
@@ -59,19 +58,15 @@ window.addEventListener("load", function () {
 
 
 @pytest.fixture(scope="module")
-def month(tmp_path_factory):
-    root = tmp_path_factory.mktemp("world")
-    cfg = write_world(root)
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(monthly, "_open_region", fake_region)
-        result = monthly.run_month(cfg, "2026-10")
+def month(grid_month, tmp_path_factory):
+    result = grid_month[0]
     # A report spelling that is neither id nor name, as place-name matching records it.
     extra = pd.DataFrame({"source": ["x"], "place": ["Old Ninefive"], "unit_id": ["BBB-02-0905"]})
     result = dataclasses.replace(
         result,
         matches=extra if result.matches is None else pd.concat([result.matches, extra]),
     )
-    return result, bundle.write_month(result, root / "out") / "report.html"
+    return result, bundle.write_month(result, tmp_path_factory.mktemp("webmap")) / "report.html"
 
 
 def _drive(report, tmp_path, **params) -> dict:

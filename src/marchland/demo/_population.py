@@ -188,24 +188,27 @@ def build_flood(world: World, labels: np.ndarray) -> np.ndarray:
 
 def write_flood(values: np.ndarray, path: Path) -> None:
     """Write the flood-share grid beside the population raster (same grid and format)."""
-    _write_grid(values, path, "share of each cell flooded in the wet season, fictional scenario")
+    write_grid(values, path, "share of each cell flooded in the wet season, fictional scenario")
 
 
 def write_raster(pop: Population, path: Path) -> None:
     """Write the raster as a deflate-compressed float32 GeoTIFF in EPSG:4326."""
-    _write_grid(pop.values, path, "people per cell, fictional Senn basin scenario")
+    write_grid(pop.values, path, "people per cell, fictional Senn basin scenario")
 
 
-def _write_grid(values: np.ndarray, path: Path, description: str) -> None:
+def write_grid(
+    values: np.ndarray, path: Path, description: str, transform: Affine = _TRANSFORM
+) -> None:
+    """Write a lon-lat grid as a deflate-compressed, tiled float32 GeoTIFF (EPSG:4326)."""
     path.parent.mkdir(parents=True, exist_ok=True)
     profile = dict(
         driver="GTiff",
-        width=NCOL,
-        height=NROW,
+        width=values.shape[1],
+        height=values.shape[0],
         count=1,
         dtype="float32",
         crs="EPSG:4326",
-        transform=_TRANSFORM,
+        transform=transform,
         nodata=NODATA,
         compress="deflate",
         predictor=3,
