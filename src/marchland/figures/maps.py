@@ -1,4 +1,4 @@
-"""Static maps and epi curves for the monthly bundle (matplotlib + mapclassify).
+"""Static maps and epi curves for the monthly bundle (matplotlib; Fisher-Jenks classes).
 
 This module draws; it computes no statistic and imports no analysis module. Every function
 takes GeoDataFrames, DataFrames, Series and plain values and returns a matplotlib ``Figure``;
@@ -229,10 +229,10 @@ def rate_classes(
 ) -> np.ndarray:
     """Upper bounds of ``k`` classes for positive rates, shared by every panel that uses them.
 
-    Fisher-Jenks natural breaks (mapclassify) on the pooled positive, finite values. Above 300
-    values the breaks are computed on 300 evenly spaced order statistics of the pooled values:
-    mapclassify's exact Fisher-Jenks is quadratic in n (seconds for a few thousand values
-    without numba) and its sampled variant draws at random; evenly spaced order statistics
+    Fisher-Jenks natural breaks (``_mapclass.natural_breaks``, equal to mapclassify's) on the
+    pooled positive, finite values. Above 300 values the breaks are computed on 300 evenly
+    spaced order statistics of the pooled values: exact Fisher-Jenks is quadratic in n and
+    mapclassify's sampled variant draws at random; evenly spaced order statistics
     are deterministic and keep the shape of the distribution. Zero and missing values are not
     classed here: maps draw them as their own legend entries.
 

@@ -57,7 +57,6 @@ _VERSIONED = (
     "scipy",
     "statsmodels",
     "spopt",
-    "mapclassify",
     "matplotlib",
     "rasterio",
     "exactextract",
