@@ -23,6 +23,8 @@ from __future__ import annotations
 
 import os
 import re
+import sys
+import warnings
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from typing import Any
@@ -31,7 +33,7 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor"]
+__all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor", "share_tasks"]
 
 #: Accepted scheduler addresses: a Dask network protocol, a host and an optional port (or an
 #: in-process ``inproc://`` address, as a ``LocalCluster(processes=False)`` has).
@@ -196,3 +198,141 @@ def get_executor(
     sched = scheduler if scheduler is not None else getattr(compute, "scheduler", None)
     n = workers if workers is not None else getattr(compute, "workers", None)
     return Executor(scheduler=sched or None, workers=default_workers() if n is None else int(n))
+
+
+def share_tasks(
+    fn: Callable[[int], Any],
+    n: int,
+    *,
+    workers: int,
+    done: Callable[[int, int], None] | None = None,
+) -> list[Any]:
+    """Return ``[fn(0), ..., fn(n - 1)]``, computed here and in ``workers - 1`` forked copies.
+
+    For work that needs what this process holds in memory (a month's results, figures that
+    do not pickle) and whose tasks differ in cost: each process takes the next task nobody has
+    taken (one shared counter), so a long task does not hold the others up. The copies are
+    made by ``fork``, so they start at once with everything already imported and computed;
+    :class:`Executor`'s workers would import the stack afresh and be sent the data. Where
+    ``fork`` is not the platform's safe choice (Windows, macOS) or one worker is asked for, the
+    tasks run here one after the other; results are the same either way.
+
+    Parameters
+    ----------
+    fn : callable
+        ``fn(i)`` runs task ``i``; its result must pickle and should be small (it travels back
+        over a pipe): write large outputs to files.
+    n : int
+        Number of tasks.
+    workers : int
+        Processes in all, this one included.
+    done : callable, optional
+        Called here as ``done(finished, n)`` whenever this process learns of a finished task.
+
+    Returns
+    -------
+    list
+        Results in task order.
+
+    Raises
+    ------
+    Exception
+        The first error a task raised, in whichever process it ran.
+
+    Examples
+    --------
+    >>> share_tasks(lambda i: i * i, 5, workers=2)
+    [0, 1, 4, 9, 16]
+    """
+    forking = workers > 1 and n > 1 and sys.platform.startswith("linux")
+    if not forking:
+        out = []
+        for i in range(n):
+            out.append(fn(i))
+            if done is not None:
+                done(i + 1, n)
+        return out
+    import multiprocessing as mp
+    import queue as queue_mod
+
+    ctx = mp.get_context("fork")
+    counter = ctx.Value("i", 0)
+    results = ctx.Queue()
+    procs = [
+        ctx.Process(target=_take_tasks, args=(fn, n, counter, results), daemon=True)
+        for _ in range(min(workers, n) - 1)
+    ]
+    with warnings.catch_warnings():
+        # Python 3.12+ warns that forking a process with threads may deadlock; ours are idle
+        # library pools (BLAS, numba) and the copies only run ``fn``.
+        warnings.filterwarnings("ignore", message=r".*use of fork\(\) may lead to deadlocks")
+        for p in procs:
+            p.start()
+    got: dict[int, Any] = {}
+
+    def receive(value: tuple[int, bool, Any]) -> None:
+        i, ok, payload = value
+        if not ok:
+            raise payload
+        got[i] = payload
+        if done is not None:
+            done(len(got), n)
+
+    try:
+        while (i := _next_task(counter, n)) is not None:
+            receive((i, True, fn(i)))
+            while True:
+                try:
+                    receive(results.get_nowait())
+                except queue_mod.Empty:
+                    break
+        while len(got) < n:
+            try:
+                receive(results.get(timeout=1.0))
+            except queue_mod.Empty:
+                dead = [p for p in procs if p.exitcode not in (None, 0)]
+                if dead:
+                    raise RuntimeError(
+                        f"a worker process stopped (exit code {dead[0].exitcode}) before "
+                        "finishing its task"
+                    ) from None
+    finally:
+        for p in procs:
+            if len(got) < n:
+                p.terminate()
+            p.join()
+        results.close()
+    return [got[i] for i in range(n)]
+
+
+def _next_task(counter: Any, n: int) -> int | None:
+    with counter.get_lock():
+        i = counter.value
+        if i >= n:
+            return None
+        counter.value = i + 1
+    return i
+
+
+def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any) -> None:
+    """Take tasks until none is left, sending back each result or the error (a forked copy)."""
+    while (i := _next_task(counter, n)) is not None:
+        try:
+            results.put((i, True, fn(i)))
+        except BaseException as exc:
+            results.put((i, False, _picklable(exc)))
+            break
+    results.close()
+    results.join_thread()
+
+
+def _picklable(exc: BaseException) -> BaseException:
+    import pickle
+    import traceback
+
+    try:
+        pickle.loads(pickle.dumps(exc))
+        return exc
+    except Exception:
+        text = "".join(traceback.format_exception(exc))
+        return RuntimeError(f"a task failed in a worker process:\n{text}")

@@ -612,7 +612,7 @@ def priority_map(
     return _no_math(fig)
 
 
-def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
+def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> np.ndarray:
     """Write ``fig`` as a PNG at ``dpi`` and, when ``pdf`` (a ``PdfPages``) is given, as a page.
 
     Parameters
@@ -622,6 +622,12 @@ def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
         The PNG to write.
     pdf : matplotlib.backends.backend_pdf.PdfPages, optional
     dpi : int
+
+    Returns
+    -------
+    numpy.ndarray
+        The PNG's pixels (height x width x RGBA, uint8), so a copy in another format needs no
+        second rendering and no decoding.
 
     Examples
     --------
@@ -633,11 +639,18 @@ def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
     >>> import pathlib, tempfile
     >>> fig = attack_rate_map(base_map(u), pd.Series({"a": 1.0, "b": 0.0}), MapNotes("x", "y"))
     >>> out = pathlib.Path(tempfile.mkdtemp()) / "rate.png"
-    >>> save_figure(fig, out)
+    >>> save_figure(fig, out).shape[2]
+    4
     >>> out.read_bytes()[1:4]
     b'PNG'
     """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
     _no_math(fig)
+    # An Agg canvas of the figure's own keeps the PNG's rendering after saving.
+    canvas = FigureCanvasAgg(fig)
     fig.savefig(path, dpi=dpi, facecolor="white")
+    pixels = np.array(canvas.buffer_rgba())
     if pdf is not None:
         pdf.savefig(fig)
+    return pixels

@@ -15,7 +15,7 @@ from ..figures import maps
 from ..figures.outlook import cluster_outline_map, fan_charts
 from ._html import _absent, _figure, _fmt, _section, esc, table_html
 from ._outlooksteps import CLUSTER_MAX_UNITS, clusters_layer
-from ._steps import province_of
+from ._steps import busiest, province_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
@@ -58,7 +58,7 @@ def outlook_figures(
         month = f"{pd.Period(result.month, freq='M'):%B %Y}"
         yield (
             "clusters",
-            cluster_outline_map(base, rate, layer, notes, bins=bins, period=month),
+            lambda: cluster_outline_map(base, rate, layer, notes, bins=bins, period=month),
             f"Emerging space-time clusters with p <= 0.05 ({len(shown)} of {len(cl)} found), "
             "outlined over the attack rate; labels give the first week and the p-value. A "
             "cluster is a signal to investigate, not a confirmed outbreak.",
@@ -70,7 +70,7 @@ def outlook_figures(
     label = result.config.country_label
     yield (
         "epi_forecast_countries",
-        fan_charts(
+        lambda: fan_charts(
             {label(c): v for c, v in _fan_series(result, units["country"], fc).items()},
             notes,
             title="The next four weeks by country: reported, nowcast-filled and forecast",
@@ -88,19 +88,28 @@ def outlook_figures(
     per = _fan_series(result, prov, fc)
     country_of = units.groupby(prov)["country"].first()
     for country in sorted(units["country"].unique()):
-        panels = {f"{names.get(p, p)} ({p})": v for p, v in per.items() if country_of[p] == country}
+        ids = sorted(p for p in per if country_of[p] == country)
+        shown = busiest(ids, per, "filled")
+        panels = {f"{names.get(p, p)} ({p})": per[p] for p in shown}
+        extra = (
+            f", the {len(shown)} of its {len(ids)} provinces with the most cases in the weeks "
+            "drawn (every unit's forecast is in tables/forecast.csv)"
+            if len(shown) < len(ids)
+            else ""
+        )
         if panels:
             yield (
                 f"epi_forecast_provinces_{country}",
-                fan_charts(
+                lambda panels=panels, country=country: fan_charts(
                     panels,
                     notes,
                     title=f"The next four weeks by province, {label(country)}",
                     conf=fc.conf,
                     ncols=3,
                 ),
-                f"Weekly cases per province of {label(country)}: reported, nowcast-filled and "
-                f"forecast ({fc.conf:.0%} interval), read as the country chart.",
+                f"Weekly cases per province of {label(country)}{extra}: reported, "
+                f"nowcast-filled and forecast ({fc.conf:.0%} interval), read as the country "
+                "chart.",
             )
 
 
