@@ -9,8 +9,10 @@ Backends, by the settings of ``[compute]`` in the config (or ``--scheduler``/``-
 the command line):
 
 - nothing set, or ``workers = 1``: the tasks run one after the other in this process;
-- ``workers = N``: N local worker processes (joblib's loky backend, which ships functions with
-  cloudpickle and reuses its workers between calls);
+- ``workers = N``: N local processes. On Linux these are forked copies of this process
+  (:func:`share_tasks`): they start in milliseconds with everything already imported and
+  computed, and nothing is shipped to them. Elsewhere joblib's loky workers, which import the
+  stack afresh and are sent the function and data with cloudpickle (seconds to start);
 - ``scheduler = "tcp://host:8786"``: an existing Dask cluster, through ``distributed.Client``.
   We start no scheduler of our own; start one with Dask's own tools.
 
@@ -101,6 +103,11 @@ class Executor:
         return "processes" if self.workers > 1 else "serial"
 
     @property
+    def forks(self) -> bool:
+        """Whether local workers are forked copies of this process (cheap to start)."""
+        return self.backend == "processes" and _can_fork()
+
+    @property
     def parallelism(self) -> int:
         """Tasks that can run at once (Dask: the cluster's worker threads)."""
         if self.scheduler is None:
@@ -133,9 +140,11 @@ class Executor:
         if self.backend == "serial" or len(items) < 2:
             return [fn(item, *args) for item in items]
         if self.backend == "processes":
+            k = min(self.workers, len(items))
+            if self.forks:
+                return share_tasks(lambda i: fn(items[i], *args), len(items), workers=k)
             from joblib import Parallel, delayed
 
-            k = min(self.workers, len(items))
             return list(Parallel(n_jobs=k, backend="loky")(delayed(fn)(i, *args) for i in items))
         client = self._connect()
         shared = [client.scatter(a, broadcast=True) for a in args]
@@ -244,7 +253,7 @@ def share_tasks(
     >>> share_tasks(lambda i: i * i, 5, workers=2)
     [0, 1, 4, 9, 16]
     """
-    forking = workers > 1 and n > 1 and sys.platform.startswith("linux")
+    forking = workers > 1 and n > 1 and _can_fork()
     if not forking:
         out = []
         for i in range(n):
@@ -274,13 +283,15 @@ def share_tasks(
         i, ok, payload = value
         if not ok:
             raise payload
-        got[i] = payload
+        got[i], said = payload
+        for message, category, filename, lineno in said:
+            warnings.warn_explicit(message, category, filename, lineno)
         if done is not None:
             done(len(got), n)
 
     try:
         while (i := _next_task(counter, n)) is not None:
-            receive((i, True, fn(i)))
+            receive((i, True, (fn(i), [])))
             while True:
                 try:
                     receive(results.get_nowait())
@@ -305,6 +316,16 @@ def share_tasks(
     return [got[i] for i in range(n)]
 
 
+def _can_fork() -> bool:
+    """Return whether work may be shared with forked copies of this process.
+
+    Linux only: macOS's system libraries are not fork-safe and Windows cannot fork. Numba's
+    parallel kernels (the cluster scan) must not run in a copy (their thread pool does not
+    survive a fork); no task shared this way calls them.
+    """
+    return sys.platform.startswith("linux")
+
+
 def _next_task(counter: Any, n: int) -> int | None:
     with counter.get_lock():
         i = counter.value
@@ -315,10 +336,18 @@ def _next_task(counter: Any, n: int) -> int | None:
 
 
 def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any) -> None:
-    """Take tasks until none is left, sending back each result or the error (a forked copy)."""
+    """Take tasks until none is left, sending back each result or the error (a forked copy).
+
+    Warnings a task raises travel back with its result and are raised again in the calling
+    process, so a shared run warns as a serial one does.
+    """
     while (i := _next_task(counter, n)) is not None:
         try:
-            results.put((i, True, fn(i)))
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                value = fn(i)
+            said = [(w.message, w.category, w.filename, w.lineno) for w in caught]
+            results.put((i, True, (value, said)))
         except BaseException as exc:
             results.put((i, False, _picklable(exc)))
             break
