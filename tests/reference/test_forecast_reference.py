@@ -132,3 +132,23 @@ def test_lattice_graph_is_queen_contiguity():
     ours = {i: sorted(units.index.get_indexer(g[u].index)) for i, u in enumerate(units.index)}
     assert all(ours[i] == sorted(ref.neighbors[i]) for i in range(36))
     assert pd.Index(units.index).is_unique
+
+
+def test_pit_interval_share_has_expectation_conf_under_the_true_distribution():
+    # Czado, Gneiting & Held (2009): the non-randomised PIT of y drawn from F is uniform, so the
+    # share of it in [0.05, 0.95], averaged over y with scipy.stats.nbinom's pmf, is exactly 0.9,
+    # whereas the central 90 % interval of the same distribution covers more (its mass at 0).
+    from marchland.projections._scores import pit_interval_share
+
+    k = np.arange(0, 2000)
+    for mu, psi in ((0.2, 0.5), (1.5, 3.0), (40.0, 1.2)):
+        dist = stats.nbinom(psi, psi / (psi + mu))
+        share = pit_interval_share(dist.cdf(k - 1), dist.cdf(k), 0.9)
+        np.testing.assert_allclose(np.sum(dist.pmf(k) * share), 0.9, atol=1e-9)
+        lo, hi = dist.ppf(0.05), dist.ppf(0.95)
+        raw = dist.cdf(hi) - dist.cdf(lo - 1)
+        assert raw >= 0.9
+    # A point mass of the PIT (F(y - 1) = F(y)) counts as inside or outside, nothing between.
+    np.testing.assert_array_equal(
+        pit_interval_share(np.array([0.5, 0.99]), np.array([0.5, 0.99]), 0.9), [1.0, 0.0]
+    )

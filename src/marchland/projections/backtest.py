@@ -16,7 +16,15 @@ import pandas as pd
 
 from ..compute import Executor
 from ._model import ModelSpec
-from ._scores import BASELINE_FLOOR, crps, fit_size, mixture_scores, nb_scores, summarise_scores
+from ._scores import (
+    BASELINE_FLOOR,
+    crps,
+    fit_size,
+    mixture_scores,
+    nb_scores,
+    pit_interval_share,
+    summarise_scores,
+)
 from ._setup import (
     DEFAULT_SKIP_RECENT_WEEKS,
     DEFAULT_WINDOW_WEEKS,
@@ -88,10 +96,13 @@ def backtest_forecast(
         Indexed by ``model`` ("endemic-epidemic", "last-week", "mean-4-weeks"), one row per
         model, ``horizon`` and ``country`` ("all" pools every country), with ``crps`` (mean,
         lower is better), ``log_score`` (mean negative log predictive probability),
-        ``coverage`` (share inside the central ``conf`` interval), ``pit_ks`` and ``pit_p``
+        ``coverage`` (share inside the central ``conf`` interval of the samples),
+        ``coverage_pit`` (expected share of the randomised PIT inside the central ``conf``
+        range, given ``F(y - 1)`` and ``F(y)``: coverage with the discreteness of counts taken
+        out, Czado, Gneiting and Held 2009), ``pit_ks`` and ``pit_p``
         (Kolmogorov-Smirnov statistic and p-value of the randomised PIT against uniform) and
         ``n`` (unit-weeks scored). With ``details``: ``origin unit_id country week horizon y
-        crps log_score pit covered`` per model.
+        crps log_score pit covered covered_pit`` per model.
 
     References
     ----------
@@ -196,18 +207,19 @@ def _score_origin(date: pd.Timestamp, job: _Job, seed) -> list[pd.DataFrame]:
     base = dict(origin=date, unit_id=ids[ui], week=fweeks[hh], horizon=hh + 1, y=yv)
     base["country"] = job.country[ui] if not isinstance(job.country, str) else job.country
     psi = origin.fit.value("log_psi")
-    ls, pit = mixture_scores(yv, means[hh, ui].astype(float), psi, rng)
-    parts = [_scored(base, "endemic-epidemic", yv, paths[hh, ui], ls, pit, conf)]
+    sc = mixture_scores(yv, means[hh, ui].astype(float), psi, rng)
+    parts = [_scored(base, "endemic-epidemic", yv, paths[hh, ui], sc, conf)]
     for name, m, hist in _baselines(wide, origin.fit_end, job.window_weeks, horizon_weeks):
         mu = np.maximum(np.broadcast_to(m, y.shape)[hh, ui], BASELINE_FLOOR)
         size = np.array([fit_size(*hist(h)) for h in range(1, horizon_weeks + 1)])[hh]
-        ls, pit = nb_scores(yv, mu, size, rng)
+        sc = nb_scores(yv, mu, size, rng)
         samp = rng.poisson(rng.gamma(size[:, None], (mu / size)[:, None], (len(yv), n_paths)))
-        parts.append(_scored(base, name, yv, samp, ls, pit, conf))
+        parts.append(_scored(base, name, yv, samp, sc, conf))
     return parts
 
 
-def _scored(base, model, y, samples, log_score, pit, conf) -> pd.DataFrame:
+def _scored(base, model, y, samples, scores, conf) -> pd.DataFrame:
+    log_score, pit, pit_lo, pit_hi = scores
     a = (1 - conf) / 2
     lo, hi = np.quantile(samples, [a, 1 - a], axis=-1, method="inverted_cdf")
     return pd.DataFrame(
@@ -218,6 +230,7 @@ def _scored(base, model, y, samples, log_score, pit, conf) -> pd.DataFrame:
             "log_score": log_score,
             "pit": pit,
             "covered": (lo <= y) & (y <= hi),
+            "covered_pit": pit_interval_share(pit_lo, pit_hi, conf),
         }
     )
 
