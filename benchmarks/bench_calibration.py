@@ -9,7 +9,8 @@ KEY=VALUE pairs go to backtest_forecast (e.g. dispersion=shared window_weeks=12)
 Printed per horizon: CRPS of the model and both baselines; coverage of the model's 90 %
 interval, raw (share of outcomes inside) and PIT-based (expected share of the randomised PIT
 in [0.05, 0.95], Czado, Gneiting and Held 2009), each overall and split by zero / non-zero
-outcome; log score.
+outcome; log score; the coverage the same intervals would have if the forecasts were right
+(cov_expect: share of the forecast's own samples inside). Then by forecast mean and country.
 """
 
 import sys
@@ -53,6 +54,7 @@ def table(det: pd.DataFrame) -> pd.DataFrame:
             "crps_last": crps["last-week"],
             "crps_mean4": crps["mean-4-weeks"],
             "cov_raw": g["covered"].mean(),
+            "cov_expect": g["covered_expected"].mean(),
             "cov_pit": g["covered_pit"].mean(),
             "raw_zero": m[m.zero].groupby("horizon")["covered"].mean(),
             "raw_pos": m[~m.zero].groupby("horizon")["covered"].mean(),
@@ -96,7 +98,13 @@ det = demo_details(**OPTIONS)
 print(f"demo month backtest 2026-10 {OPTIONS or ''}: {time.perf_counter() - t:.1f} s")
 print(table(det).round(3).to_string())
 by_country = det[det["model"] == "endemic-epidemic"].groupby("country")
-print(by_country[["covered", "covered_pit", "crps"]].mean().round(3).to_string())
+m = det[det["model"] == "endemic-epidemic"]
+level = pd.cut(m["mean"], [0, 0.2, 1, 5, 20, float("inf")], include_lowest=True)
+cols = ["covered", "covered_expected", "covered_pit", "y", "mean"]
+print("by forecast mean:")
+print(m.groupby(level, observed=True)[cols].mean().round(3).to_string())
+cols = ["covered", "covered_expected", "covered_pit", "crps"]
+print(by_country[cols].mean().round(3).to_string())
 if "--sim" in sys.argv:
     t = time.perf_counter()
     det = sim_details(**OPTIONS)

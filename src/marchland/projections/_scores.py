@@ -106,6 +106,7 @@ def summarise_scores(detail: pd.DataFrame) -> pd.DataFrame:
                 "crps": g["crps"].mean(),
                 "log_score": g["log_score"].mean(),
                 "coverage": g["covered"].mean(),
+                "coverage_expected": g["covered_expected"].mean(),
                 "coverage_pit": g["covered_pit"].mean(),
                 "pit_ks": np.nan if ks is None else ks.statistic,
                 "pit_p": np.nan if ks is None else ks.pvalue,
@@ -115,7 +116,16 @@ def summarise_scores(detail: pd.DataFrame) -> pd.DataFrame:
 
     pooled = detail.assign(country="all")
     both = pd.concat([pooled, detail], ignore_index=True)
-    cols = ["crps", "log_score", "coverage", "coverage_pit", "pit_ks", "pit_p", "n"]
+    cols = [
+        "crps",
+        "log_score",
+        "coverage",
+        "coverage_expected",
+        "coverage_pit",
+        "pit_ks",
+        "pit_p",
+        "n",
+    ]
     rows = [
         {"model": m, "horizon": h, "country": c, **agg(g).to_dict()}
         for (m, h, c), g in both.groupby(["model", "horizon", "country"], sort=False)
