@@ -4,7 +4,8 @@ $ python benchmarks/bench_calibration.py [--sim] [KEY=VALUE ...]
 - the demo month's own backtest for 2026-10 (pack._outlooksteps.backtest_summary: 13 origins,
   200 paths, the config's seed), scored unit-week by unit-week;
 - --sim: the simulated outbreak of tests/test_forecast.py (10 x 10 lattice, 40 weeks, seed 11,
-  window 12, every 3rd week, 300 paths, seed 2).
+  window 12, every 3rd week, 300 paths, seed 2); --sim-country: the same with a true size
+  of 1.5 in country C0 and 6 in C1.
 KEY=VALUE pairs go to backtest_forecast (e.g. dispersion=shared window_weeks=12).
 Printed per horizon: CRPS of the model and both baselines; coverage of the model's 90 %
 interval, raw (share of outcomes inside) and PIT-based (expected share of the randomised PIT
@@ -86,9 +87,9 @@ def demo_details(**options) -> pd.DataFrame:
         return backtest_summary(ctx, shim)
 
 
-def sim_details(**options) -> pd.DataFrame:
-    """Details of the simulated backtest of tests/test_forecast.py."""
-    s = simulate_outbreak(10, 40, seed=11, lam=0.6, phi=0.3)
+def sim_details(psi=3.0, **options) -> pd.DataFrame:
+    """Details of the simulated backtest of tests/test_forecast.py (``psi`` may differ)."""
+    s = simulate_outbreak(10, 40, seed=11, lam=0.6, phi=0.3, psi=psi)
     kw = dict(window_weeks=12, step_weeks=3, n_paths=300, seed=2, details=True)
     return pj.backtest_forecast(s.counts, s.units, s.graph, **{**kw, **options})
 
@@ -109,4 +110,9 @@ if "--sim" in sys.argv:
     t = time.perf_counter()
     det = sim_details(**OPTIONS)
     print(f"simulated outbreak backtest {OPTIONS or ''}: {time.perf_counter() - t:.1f} s")
+    print(table(det).round(3).to_string())
+if "--sim-country" in sys.argv:
+    psi = {"C0": 1.5, "C1": 6.0}
+    det = sim_details(psi=psi, **OPTIONS)
+    print(f"simulated outbreak, sizes {psi} {OPTIONS or ''}")
     print(table(det).round(3).to_string())
