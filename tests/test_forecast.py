@@ -87,18 +87,23 @@ def test_parameter_recovery_interval_coverage(dispersion, truth):
 
 def test_small_countries_share_one_size():
     # A country with fewer than MIN_NONZERO_PER_SIZE non-zero counts in the window shares one
-    # size with the other such countries; when none has enough, all units share one size.
+    # size with the other such countries; if together they still have too few, they join the
+    # busiest country; when none has enough, all units share one size.
     from marchland.projections._model import MIN_NONZERO_PER_SIZE, size_groups
 
-    labels = np.array(["A", "A", "B", "C"])
-    unit = np.repeat(np.arange(4), MIN_NONZERO_PER_SIZE)
+    n = MIN_NONZERO_PER_SIZE
+    labels = np.array(["A", "A", "B", "C", "D"])
+    unit = np.repeat(np.arange(5), n)
     y = np.ones(len(unit))
-    y[(unit == 2)] = 0  # B: all zero
-    y[np.flatnonzero(unit == 3)[1:]] = 0  # C: one non-zero count
+    y[np.flatnonzero(unit == 2)[n // 2 :]] = 0  # B: n/2 non-zero
+    y[np.flatnonzero(unit == 3)[n // 2 :]] = 0  # C: n/2 non-zero, B+C: n
     codes, names = size_groups(labels, y, unit)
-    assert names == ("A", "B+C") and codes.tolist() == [0, 0, 1, 1]
-    codes, names = size_groups(labels, np.where(unit < 2, 0.0, y), unit)  # A now all zero
-    assert names == ("all",) and codes.tolist() == [0, 0, 0, 0]
+    assert names == ("A", "D", "B+C") and codes.tolist() == [0, 0, 2, 2, 1]
+    y[unit == 3] = 0  # B+C: n/2, too few together: they join A (2n non-zero, the busiest)
+    codes, names = size_groups(labels, y, unit)
+    assert names == ("A+B+C", "D") and codes.tolist() == [0, 0, 0, 0, 1]
+    codes, names = size_groups(labels, np.where(unit == 2, y, 0.0), unit)  # only B has any
+    assert names == ("all",) and codes.tolist() == [0, 0, 0, 0, 0]
 
 
 # --- the forecast object -----------------------------------------------------------------------
@@ -226,6 +231,17 @@ def test_too_few_weeks_names_the_minimum(sim):
         forecast(sim.counts, sim.units, sim.graph, as_of=early)
     with pytest.raises(ValueError, match="'window_weeks' needs to be at least"):
         forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), window_weeks=3)
+
+
+def test_dispersion_option(sim):
+    shared = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), n_paths=50, dispersion="shared"
+    )
+    assert [p for p in shared.parameters.index if p.startswith("psi")] == ["psi"]
+    with pytest.raises(ValueError, match="'dispersion' needs to be one of"):
+        forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), dispersion="unit")
+    with pytest.raises(ValueError, match="'dispersion' needs to be one of"):
+        backtest_forecast(sim.counts, sim.units, sim.graph, dispersion="Country")
 
 
 def test_unit_missing_from_graph_and_bad_population(sim):

@@ -198,7 +198,7 @@ def _dispersion_text(parameters) -> str:
         "negative binomial dispersion estimated per country (Paul and Held 2011): "
         + ", ".join(groups)
         + (
-            "; countries joined by + had too few cases for their own"
+            "; countries joined by + share one (too few cases for one each)"
             if "+" in "".join(groups)
             else ""
         )

@@ -69,7 +69,9 @@ class Fit:
     size_index: np.ndarray | None = None  # (n,) position in theta of each unit's log size
 
     def sizes(self) -> np.ndarray:
-        """Negative binomial size ``psi`` of each unit."""
+        """Negative binomial size ``psi`` of each unit (``Problem.fit`` sets the index)."""
+        if self.size_index is None:
+            raise ValueError("this fit has no size index: build it with Problem.fit")
         return np.exp(self.theta[self.size_index])
 
     def value(self, name: str, default: float = 0.0) -> float:
@@ -332,7 +334,8 @@ def size_groups(labels: np.ndarray, y: np.ndarray, unit: np.ndarray):
     """Size group per unit and the groups' names; small groups pooled (``MIN_NONZERO_PER_SIZE``).
 
     ``y`` are the observed counts and ``unit`` the unit of each. Groups with too few non-zero
-    counts share one size, named by their labels joined with "+"; if no group has enough (or
+    counts share one size, named by their labels joined with "+"; if even together they have
+    too few, they join the group with the most non-zero counts. If no group has enough (or
     there is only one group), all units share one size.
     """
     codes, uniques = pd.factorize(pd.Series(labels), sort=True)
@@ -340,10 +343,14 @@ def size_groups(labels: np.ndarray, y: np.ndarray, unit: np.ndarray):
     big = nonzero >= MIN_NONZERO_PER_SIZE
     if big.sum() == 0 or len(uniques) == 1:
         return np.zeros(len(codes), dtype=int), ("all",)
-    names = [str(u) for u, b in zip(uniques, big, strict=True) if b]
-    small = [str(u) for u, b in zip(uniques, big, strict=True) if not b]
+    members = [[str(u)] for u, b in zip(uniques, big, strict=True) if b]
     remap = np.cumsum(big) - 1
-    remap[~big] = len(names)
-    if small:
-        names.append("+".join(small))
-    return remap[codes], tuple(names)
+    if (~big).any():
+        if nonzero[~big].sum() >= MIN_NONZERO_PER_SIZE:
+            remap[~big] = len(members)
+            members.append([])
+        else:  # a size fitted to (nearly) all zeros runs to its bound: join the busiest group
+            remap[~big] = remap[np.argmax(nonzero)]
+        for k in np.flatnonzero(~big):
+            members[remap[k]].append(str(uniques[k]))
+    return remap[codes], tuple("+".join(m) for m in members)
