@@ -27,6 +27,12 @@ CLUSTER_CAUTION = (
     "(a new clinic reporting, a backlog sent at once, a changed case definition) can create "
     "one, and the latest weeks are nowcast estimates. Check with the district team first."
 )
+# Backtest coverage columns shown in the report, and their headers.
+COVERAGE_COLUMNS = {
+    "coverage": "model {level} coverage",
+    "coverage_expected": "expected if right",
+    "coverage_pit": "PIT-based coverage",
+}
 FORECAST_CAUTION = (
     "Projections assume no change in response: they carry the recent pattern forward and "
     "cannot foresee vaccination, water and sanitation work, or changes in reporting. The "
@@ -192,6 +198,22 @@ def clusters_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     return _section("Emerging clusters", body, "clusters")
 
 
+def _dispersion_text(parameters) -> str:
+    """Say how the negative binomial dispersion was estimated (one, or one per country group)."""
+    groups = [str(p)[4:] for p in parameters.index if str(p).startswith("psi_")]
+    if not groups:
+        return "one negative binomial dispersion for all units"
+    return (
+        "negative binomial dispersion estimated per country (Paul and Held 2011): "
+        + ", ".join(groups)
+        + (
+            "; countries joined by + share one (too few cases for one each)"
+            if "+" in "".join(groups)
+            else ""
+        )
+    )
+
+
 def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     """Report section "The next four weeks", with the backtest beside it."""
     body = _absent(result, "forecast") + f'<p class="caution">{esc(FORECAST_CAUTION)}</p>'
@@ -202,6 +224,7 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             '<p class="note">Endemic-epidemic model (Held, Hoehle and Hofmann 2005; power-law '
             f"neighbourhood, Meyer and Held 2014) fitted to the last {fc.window_weeks} weeks of "
             f"the nowcast-filled panel, origin week {fc.origin_week:%Y-%m-%d}; "
+            f"{esc(_dispersion_text(fc.parameters))}; "
             f"{fc.conf:.0%} intervals from simulated paths.</p>"
         )
         body += table_html(
@@ -220,20 +243,33 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     if bt is not None:
         allc = bt[bt["country"] == "all"].reset_index()
         wide = allc.pivot(index="horizon", columns="model", values="crps")
-        cov = allc[allc["model"] == "endemic-epidemic"].set_index("horizon")["coverage"]
-        wide["coverage"] = cov
+        model = allc[allc["model"] == "endemic-epidemic"].set_index("horizon")
+        cov_cols = [c for c in COVERAGE_COLUMNS if c in model.columns]
+        for c in cov_cols:
+            wide[c] = model[c]
         wide = wide.reset_index()
         wide["horizon"] = wide["horizon"].astype(int)
+        level = f"{result.forecast.conf if fc else 0.9:.0%}"
         cols = {"horizon": "weeks ahead"}
-        cols.update({m: f"CRPS {m}" for m in wide.columns if m not in ("horizon", "coverage")})
-        cols["coverage"] = f"model {result.forecast.conf if fc else 0.9:.0%} coverage"
+        cols.update({m: f"CRPS {m}" for m in wide.columns if m not in ("horizon", *cov_cols)})
+        cols.update({c: COVERAGE_COLUMNS[c].format(level=level) for c in cov_cols})
         body += (
             "<h3>How far to trust it</h3>"
             '<p class="note">Backtest on this outbreak as known on the as-of date: '
             f"{esc(bt.attrs.get('origins', ''))} (fewer than the full backtest, to keep the "
             "month quick). CRPS: mean continuous ranked probability score per unit-week, lower "
             "is better; baselines are last week carried forward and the mean of the last 4 "
-            "weeks. Coverage: share of outcomes inside the model's interval.</p>"
-            + table_html(wide, cols, kinds={"coverage": "pct", "horizon": "int"})
+            f"weeks. Coverage: share of outcomes inside the model's {level} interval. Where a "
+            f"district's weekly count is usually 0, its {level} interval holds more than "
+            f"{level} of outcomes even when the forecast is right; the next "
+            "column gives the share the forecast itself expected. PIT-based coverage takes "
+            "that effect out (expected share of the randomised probability integral transform "
+            f"inside the central {level}; Czado, Gneiting and Held 2009): near {level} means "
+            "intervals of the right width, below means too narrow.</p>"
+            + table_html(
+                wide,
+                cols,
+                kinds={"horizon": "int", **dict.fromkeys(cov_cols, "pct")},
+            )
         )
     return _section("The next four weeks", body, "outlook")
