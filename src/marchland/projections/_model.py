@@ -35,6 +35,9 @@ LOG_BOUNDS = {
     "log_d": (np.log(0.05), np.log(20.0)),
     "log_psi": (-6.0, 12.0),
 }
+# A parameter ending within 1 % of a bound is flagged: the bounded search stops short of the
+# bound itself (the demo's distance decay ended at 19.98 against 20).
+AT_BOUND_LOG = 0.01
 LAG_FILL_WEEKS = 4  # a missing lagged count is carried forward at most this many weeks
 DISPERSIONS = ("country", "shared")  # one NB size per country, or one for all units
 # A group needs this many non-zero counts in the window for a size of its own; below, its units
@@ -315,7 +318,8 @@ class Problem:
         at_bound = tuple(
             nm
             for nm, t, (lo, hi) in zip(self.names, theta, bounds, strict=True)
-            if (lo is not None and t <= lo + 1e-6) or (hi is not None and t >= hi - 1e-6)
+            if (lo is not None and t <= lo + AT_BOUND_LOG)
+            or (hi is not None and t >= hi - AT_BOUND_LOG)
         )
         return Fit(
             names=self.names,

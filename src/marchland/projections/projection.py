@@ -318,7 +318,8 @@ def forecast(
     if (~known).any():
         notes.append(f"{int((~known).sum())} unit(s) with no recent report: start taken as 0")
     if origin.fit.at_bound:
-        notes.append(f"parameters at a bound of the search: {list(origin.fit.at_bound)}")
+        names = [n.removeprefix("log_") for n in origin.fit.at_bound]
+        notes.append(f"parameters at a bound of the search: {', '.join(names)}")
     unit_info = pd.DataFrame(
         {
             "country": units["country"] if "country" in units.columns else "all",
