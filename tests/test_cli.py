@@ -195,6 +195,17 @@ def test_check_reads_every_source(runner, world):
     assert "2070 rows read = 2070 used + 0 rejected" in res.output
 
 
+def test_check_judges_future_weeks_by_the_given_run_date(runner, world):
+    # The world's weeks run to 2026-10-26: checked as on 2026-09-01, the 8 weekly rows per
+    # unit after that date are future weeks; by default (today) none is.
+    res = runner.invoke(cli.cli, ["check", str(world), "--run-date", "2026-09-01"])
+    assert res.exit_code == 0, res.stderr
+    assert "2070 rows read = 1590 used + 480 rejected" in res.output
+    assert "future-week 240" in res.output
+    bad = runner.invoke(cli.cli, ["check", str(world), "--run-date", "1 Sept"])
+    assert bad.exit_code == 2 and "needs a date YYYY-MM-DD" in bad.output
+
+
 def test_check_exits_2_when_a_source_cannot_be_used(runner, world, tmp_path):
     # Without the province file every district names a parent no boundary file has.
     text = world.read_text()

@@ -231,8 +231,16 @@ def _load(config_path: Path):
 # --- commands --------------------------------------------------------------------------------
 @cli.command(short_help="Read a config's inputs and say what was read, used and rejected.")
 @_config_arg
+@click.option(
+    "--run-date",
+    "run_date",
+    callback=_date,
+    metavar="YYYY-MM-DD",
+    help="Judge report weeks as a run on this date would: weeks starting after it are "
+    "rejected as future weeks. Default: today.",
+)
 @click.pass_context
-def check(ctx: click.Context, config: Path) -> None:
+def check(ctx: click.Context, config: Path, run_date: Any) -> None:
     r"""Read every boundary, population and report source of CONFIG and account for each row.
 
     Prints, per source: rows read, used and rejected by reason, fuzzy matches made, weeks
@@ -240,10 +248,11 @@ def check(ctx: click.Context, config: Path) -> None:
 
     \b
     $ marchland check demo_data/scenario.toml
+    $ marchland check demo_data/scenario.toml --run-date 2026-11-03
     """
     from .pack.region import check as _check
 
-    report = _check(_load(config))
+    report = _check(_load(config), run_date=run_date)
     click.echo(report.to_text())
     if not report.ok:
         ctx.exit(2)

@@ -426,7 +426,7 @@ def _row(kind: str, path: object, status: str = "ok", message: str = "", **kw) -
     return {"kind": kind, "path": str(path), "status": status, "message": message, **kw}
 
 
-def check(config: Config | str | os.PathLike[str]) -> CheckReport:
+def check(config: Config | str | os.PathLike[str], *, run_date: object = None) -> CheckReport:
     """Read every input of a config, source by source, and account for each row.
 
     A source that cannot be read is reported (``status="error"`` with the one-line reason)
@@ -435,6 +435,9 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
     Parameters
     ----------
     config : Config or path
+    run_date : date-like, optional
+        Report weeks starting after this date are rejected as "future-week" (as in a run);
+        default today's date. Give the run's date to check a past month as it was run.
 
     Returns
     -------
@@ -483,6 +486,7 @@ def check(config: Config | str | os.PathLike[str]) -> CheckReport:
                     calendar=cfg.region.calendar,
                     matching=cfg.matching,
                     checks=cfg.checks,
+                    today=run_date,
                 )
             except InputError as exc:
                 rows[spec.name] = _row(
