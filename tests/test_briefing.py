@@ -192,3 +192,28 @@ def test_risk_png_points_to_the_backtest_table_the_atlas_shows_it(month):
     texts = [t.get_text() for t in fig.texts]
     assert any("Brier" in t and "score" in t for t in texts)
     assert _figures.BACKTEST_POINTER not in texts
+
+
+def test_figures_are_the_same_files_whoever_draws_them(month, tmp_path):
+    # Drawn in this process alone and shared with a forked copy (each takes the next figure):
+    # the PNGs, their report copies and the atlas (one-page PDFs joined in atlas order) are
+    # byte for byte the same, so the manifest's digests do not depend on the worker count.
+    from marchland.pack._drawing import write_figures
+
+    result, _ = month
+    drawn = {}
+    for workers in (1, 2):
+        root = tmp_path / f"w{workers}"
+        root.mkdir()
+        figs = write_figures(result, root, workers=workers)
+        drawn[workers] = (
+            {n: (f["path"].read_bytes(), f["page"]) for n, f in figs.items()},
+            (root / "atlas.pdf").read_bytes(),
+        )
+        assert not (root / ".pages").exists()
+    assert list(drawn[1][0]) == list(drawn[2][0])  # same figures, atlas order
+    for name in drawn[1][0]:
+        assert drawn[1][0][name] == drawn[2][0][name], name
+    assert drawn[1][1] == drawn[2][1]
+    pages = len(re.findall(rb"/Type\s*/Page\b(?!s)", drawn[1][1]))
+    assert pages == len(drawn[1][0]) + 1  # a cover page, then one page per figure

@@ -1,14 +1,17 @@
 """The executor front: same results on every backend, clear errors, config and CLI wiring.
 
-Covered: serial, local processes (joblib loky) and a Dask cluster (a ``distributed.LocalCluster``
-started here, the public way to run Dask on one machine) give identical seeded results; a bad
-scheduler address or worker count is refused by the config reader and the executor; an
-unreachable scheduler is an InputError, not a traceback.
+Covered: serial, local processes (forked copies on Linux, joblib loky elsewhere) and a Dask
+cluster (a ``distributed.LocalCluster`` started here, the public way to run Dask on one
+machine) give identical seeded results; a bad scheduler address or worker count is refused by
+the config reader and the executor; an unreachable scheduler is an InputError, not a
+traceback. Work shared with a forked copy keeps task order, really runs in two processes,
+brings back the copy's errors and warnings, and runs in-process where forking is unsafe.
 """
 
 from __future__ import annotations
 
 import dataclasses
+import sys
 
 import numpy as np
 import pytest
@@ -196,3 +199,73 @@ def test_reading_a_config_and_checking_it_import_nothing_heavy():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[] []"
+
+
+# --- work shared with forked copies (figures, and local workers on Linux) -------------------
+def _meet(folder):
+    """A task that waits until two processes have each taken a task, then returns its pid."""
+    import os
+    import time
+
+    def task(i: int) -> int:
+        (folder / f"{os.getpid()}-{i}").touch()
+        deadline = time.monotonic() + 60
+        while len({p.name.split("-")[0] for p in folder.iterdir()}) < 2:
+            if time.monotonic() > deadline:
+                break
+            time.sleep(0.01)
+        return os.getpid()
+
+    return task
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="forking is Linux-only here")
+def test_share_tasks_uses_a_forked_copy_and_keeps_task_order(tmp_path):
+    import os
+
+    from marchland.compute import share_tasks
+
+    pids = share_tasks(_meet(tmp_path), 4, workers=2)
+    assert len(set(pids)) == 2 and os.getpid() in pids
+    assert share_tasks(lambda i: i * i, 9, workers=2) == [i * i for i in range(9)]
+    finished = []
+    share_tasks(lambda i: i, 5, workers=2, done=lambda k, n: finished.append((k, n)))
+    assert finished == [(k, 5) for k in range(1, 6)]
+
+
+def test_share_tasks_raises_a_copys_error_and_repeats_its_warnings(tmp_path):
+    import warnings
+
+    from marchland.compute import share_tasks
+
+    meet = _meet(tmp_path)
+
+    def task(i: int) -> int:
+        meet(i)
+        if i == 1:
+            warnings.warn(f"task {i} says so", UserWarning, stacklevel=1)
+        return i
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        assert share_tasks(task, 2, workers=2) == [0, 1]
+    assert [str(w.message) for w in caught] == ["task 1 says so"]
+
+    def fails(i: int) -> int:
+        meet(i)
+        if i == 1:
+            raise InputError("bad row", file="a.csv", row=3)
+        return i
+
+    with pytest.raises(InputError, match="bad row"):
+        share_tasks(fails, 2, workers=2)
+
+
+def test_share_tasks_runs_here_where_forking_is_not_safe(monkeypatch):
+    import os
+
+    import marchland.compute as compute
+
+    monkeypatch.setattr(compute.sys, "platform", "darwin")
+    assert compute.share_tasks(lambda i: os.getpid(), 4, workers=2) == [os.getpid()] * 4
+    assert not Executor(workers=2).forks
