@@ -28,14 +28,15 @@ non-neighbour across the line, 2031 m: Ashe and Washington, with Tennessee betwe
 
 Ground truth (``state_line_truth``), from plain shapely and never from marchland's graph: each
 county's stretch of the state line is the part of its boundary within 1 m of the other file's
-outline (files as shipped, same datum); its position along the line is its easting (the line
-runs west-east, checked). A North Carolina and a Virginia unit are neighbours across the line
-when their stretches overlap by more than 50 m. Measured: 27 pairs, overlaps 223 m to 39.7 km;
-every other pair's stretches overlap by nothing at all. Treated explicitly:
+outline (files as shipped, same datum, in an equal-area projection centred on the line); its
+position along the line is its easting (the line runs west-east, checked). A North Carolina
+and a Virginia unit are neighbours across the line when their stretches overlap by more than
+50 m. Measured: 27 pairs, overlaps 224 m to 39.7 km; every other pair's stretches overlap by
+nothing at all. Treated explicitly:
 
-- Hertford and Suffolk: Hertford's stretch ends about 223 m west of where Suffolk's begins
-  (Gates and Southampton share those 223 m); the polygons are 159 m apart. Not neighbours here; at a
-  tolerance above 159 m the pair must be listed in ``left_out`` as a corner, not joined.
+- Hertford and Suffolk: Hertford's stretch ends about 224 m west of where Suffolk's begins
+  (Gates and Southampton share those 224 m); the polygons are 159 m apart. Not neighbours
+  here; at a tolerance above 159 m the pair must be listed in ``left_out``, not joined.
 - Danville city (on the state line, from memory) is enclosed by Pittsylvania in this
   generalised file and lies 302 m from North Carolina: not a neighbour in these files.
 
@@ -66,6 +67,8 @@ SCENARIOS = {  # declared CRS of sids2, working CRS (None: read_units' default),
     "same datum": ("EPSG:4326", None, 1.0),
     "NAD27 label": ("EPSG:4267", "EPSG:5070", 30.0),
 }
+# Equal-area projection centred on the state line: lengths along it true to about 0.1 %.
+LOCAL = "+proj=laea +lat_0=36.55 +lon_0=-79.8 +datum=WGS84 +units=m +no_defs"
 # North Carolina - Virginia county pairs along the state line, west to east (from memory).
 FROM_MEMORY = {
     ("Ashe", "Grayson"),
@@ -138,8 +141,8 @@ def units_for(scenario: str):
 def state_line_truth(d: float = 1.0, min_overlap: float = 50.0):
     """Cross-border pairs and their overlap along the state line (plain shapely, see above)."""
     nc, va, _ = raw_files()
-    a = nc.set_crs("EPSG:4326").to_crs("EPSG:5070")
-    b = va.to_crs("EPSG:5070")
+    a = nc.set_crs("EPSG:4326").to_crs(LOCAL)
+    b = va.to_crs(LOCAL)
     outline_a = shapely.union_all(a.geometry.to_numpy()).boundary
     outline_b = shapely.union_all(b.geometry.to_numpy()).boundary
     line = shapely.intersection(outline_a, shapely.buffer(outline_b, d))
@@ -174,11 +177,12 @@ def state_line_truth(d: float = 1.0, min_overlap: float = 50.0):
     names = dict(zip(nc["uid"], nc["NAME"], strict=True)) | dict(
         zip(va["uid"], va["NAME"], strict=True)
     )
-    return edge_set(truth["a"], truth["b"]), names
+    overlaps = {frozenset((r.a, r.b)): r.overlap_m for r in truth.itertuples()}
+    return set(overlaps), overlaps, names
 
 
 def ids_named(*names):
-    _, n = state_line_truth()
+    *_, n = state_line_truth()
     by_name = {v: k for k, v in n.items()}  # names used here occur in one state only
     return [by_name[x] for x in names]
 
@@ -196,7 +200,7 @@ def line_offsets(units) -> float:
 
 
 def test_truth_agrees_with_the_recalled_border_pairs():
-    truth, names = state_line_truth()
+    truth, _, names = state_line_truth()
     # (North Carolina name, Virginia name): both states have a Brunswick and a Northampton.
     named = {
         tuple(names[u] for u in sorted(p, key=lambda u: not u.startswith("NC"))) for p in truth
@@ -221,7 +225,7 @@ def test_measured_offsets_between_the_two_files(scenario):
 def test_every_state_line_pair_found_and_nothing_else(scenario, which):
     tol = SCENARIOS[scenario][2] if which == "measured" else which
     units = units_for(scenario)
-    truth, _ = state_line_truth()
+    truth, *_ = state_line_truth()
     bg = border_graph(units, tolerance=tol)
     e = bg.edges[bg.edges["cross_border"]]
     found = edge_set(e["focal"], e["neighbor"])
@@ -268,3 +272,43 @@ def test_within_each_file_libpysal_contiguity_unchanged(scenario, rule):
         gal = read_gal(va_path.parent / "virginia_queen.gal", key)
         side = {p for p in ours if not next(iter(p)).startswith("NC")}
     assert side == gal
+
+
+@pytest.mark.parametrize("tol", [0.0, 1.0])
+def test_lines_common_up_to_roundoff_are_shared_boundaries(tol):
+    # The files as shipped share the line vertex for vertex; read through two CRSs they are a
+    # fraction of a millimetre apart. That is line contact: kind "shared-boundary" and its
+    # length, at zero tolerance too (plain shapely truth: easting overlap along the line).
+    units = units_for("same datum")
+    truth, overlaps, _ = state_line_truth()
+    bg = border_graph(units, tolerance=tol)
+    e = bg.edges[bg.edges["cross_border"]]
+    assert edge_set(e["focal"], e["neighbor"]) == truth
+    assert set(e["kind"]) == {"shared-boundary"}
+    assert (e["gap_m"] == 0).all()
+    pairs = zip(e["focal"], e["neighbor"], strict=True)
+    expected = np.array([overlaps[frozenset(p)] for p in pairs])
+    np.testing.assert_allclose(e["shared_m"], expected, rtol=0.01, atol=5.0)
+
+
+@pytest.mark.parametrize("scenario", sorted(SCENARIOS))
+def test_min_shared_m_never_drops_line_contact(scenario):
+    # min_shared_m = 3 km at 300 m: the two true pairs shorter than that (Gates-Southampton
+    # 223 m, Stokes-Henry 2.2 km) still join where the files share the line (same datum), and
+    # are gap-bridged pairs listed as "short" where the files do not (NAD27 label).
+    units = units_for(scenario)
+    truth, overlaps, _ = state_line_truth()
+    short = {p for p in truth if overlaps[p] < 3000}
+    assert len(short) == 2
+    bg = border_graph(units, tolerance=300.0, min_shared_m=3000.0)
+    e = bg.edges[bg.edges["cross_border"]]
+    found = edge_set(e["focal"], e["neighbor"])
+    lo = bg.left_out
+    listed = edge_set(lo["unit_a"], lo["unit_b"])
+    if scenario == "same datum":
+        assert found == truth
+        assert not listed & truth
+    else:
+        assert found == truth - short
+        assert listed & truth == short
+        assert set(lo.loc[lo["near_shared_m"] > 0, "reason"]) == {"short"}

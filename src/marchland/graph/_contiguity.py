@@ -7,8 +7,8 @@ Two rules, because two kinds of seams occur in the inputs:
 * **Between files, or between countries**, outlines digitised by different producers neither
   meet nor stop overlapping exactly. Candidate pairs come within ``tolerance`` metres (an
   STRtree query and shapely 2 array functions over the candidate pairs only). A pair whose
-  boundaries truly touch along a line (an exactly shared segment of positive length) is always
-  joined, as within a file. Any other pair is joined when its near-shared length (below) is
+  boundaries truly touch along a line (line contact, below) is always joined, as within a
+  file. Any other pair is joined when its near-shared length (below) is
   positive and at least ``min_shared_m`` (the corner rule; default 0: any positive length).
   Pairs within the tolerance that the rule leaves out are listed in ``BorderGraph.left_out``.
 
@@ -39,10 +39,22 @@ differences (their outlines differ in length); on a synthetic Voronoi layer with
 junctions (benchmarks/bench_graph.py, 10,000 units) +13 m mean, 89 m standard deviation, and no
 pair meeting at a point above 91 m.
 
-``shared_m`` of a cross-file pair is the larger of the exactly shared length (boundary
-intersection) and this estimate. ``kind`` is "shared-boundary" when the boundaries truly share
-a line and "gap-bridged" when the tolerance was needed; ``gap_m`` is 0 for outlines that
-overlap.
+Line contact up to roundoff
+---------------------------
+Two files cut from one source share a border vertex for vertex, but read through different
+CRSs (one in lon/lat, one in UTM, both reprojected to the working CRS) the common vertices land
+a fraction of a millimetre apart (0.2-0.7 mm on libpysal's sids2 and vautm17n counties,
+tests/reference/test_graph_realborders.py), so GEOS finds slivers and hair gaps and no shared
+line. Line contact is therefore the same near-shared length measured at a width of 1 cm
+(``_ROUNDOFF_M``), or the exactly shared length if larger, for pairs no more than 1 cm apart:
+it must exceed 1 cm, and where the units overlap, the overlap's mean width along that line must
+stay under 1 cm (a real overlap of two digitisations is no line contact; its near-shared length
+decides). Pairs in line contact are joined whatever ``min_shared_m`` is and whatever the
+tolerance, 0 included, with that length as ``shared_m``.
+
+``shared_m`` of a cross-file pair is the larger of the line-contact length and the near-shared
+estimate. ``kind`` is "shared-boundary" for line contact (and point contact at zero tolerance)
+and "gap-bridged" when the tolerance was needed; ``gap_m`` is 0 for outlines that overlap.
 
 Why the default needs only a positive near-shared length: a file pulled away from its
 neighbour across the border (normal to it) keeps the junctions of both files facing each
@@ -77,6 +89,10 @@ LINK_COLUMNS = ("from_id", "to_id", "kind", "name")
 # Near-shared lengths at or below this (metres) are numerical noise of a point contact: the
 # buffers' flat caps pass exactly through the other outline's end there.
 _MIN_NEAR_M = 1e-3
+# Width (metres) within which two outlines count as one line: well above the reprojection
+# roundoff between files read through different CRSs (0.2-0.7 mm measured on libpysal's sids2
+# and vautm17n, tests/reference/test_graph_realborders.py), far below any digitising precision.
+_ROUNDOFF_M = 0.01
 _HASH_MULTIPLIERS = tuple(
     np.uint64(m)
     for m in (0x9E3779B97F4A7C15, 0xC2B2AE3D27D4EB4F, 0x165667B19E3779F9, 0x27D4EB2F165667C5)
@@ -356,11 +372,9 @@ def _tolerant_pairs(
     rim = np.unique(segments.u)
     bounds = shapely.bounds(geoms)
 
-    def grown(idx):
+    def grown(idx, by=tolerance):
         b = bounds[idx]
-        return shapely.box(
-            b[:, 0] - tolerance, b[:, 1] - tolerance, b[:, 2] + tolerance, b[:, 3] + tolerance
-        )
+        return shapely.box(b[:, 0] - by, b[:, 1] - by, b[:, 2] + by, b[:, 3] + by)
 
     tree = shapely.STRtree(geoms[rim])
     a, b = tree.query(grown(rim))  # bounding boxes only: cheap, then filter by group
@@ -380,37 +394,35 @@ def _tolerant_pairs(
     # does a file's inner edge that an overlapping file's inner edge happens to lie along.
     outline = segments.outlines(np.concatenate([i, j]))
     exact = shapely.length(shapely.intersection(outline[i], outline[j]))
-    if tolerance > 0:
-        # Clip each outline to the other's box grown by the tolerance: only that part can be
-        # near, and buffering a whole long district outline is the costly step.
-        ci = shapely.intersection(outline[i], grown(j))
-        cj = shapely.intersection(outline[j], grown(i))
-        # See the module docstring. Both units tiling their files: flat-capped buffers stop at
-        # the outlines' ends, so nothing beyond a stretch's end counts. Otherwise round caps,
-        # and a lone unit's direction loses the two tolerances its turning outline adds.
-        tiled = segments.tiled[i] & segments.tiled[j]
-        bi = np.empty(len(i), dtype=object)
-        bj = np.empty(len(i), dtype=object)
-        for mask, cap in ((tiled, "flat"), (~tiled, "round")):
-            bi[mask] = shapely.buffer(ci[mask], tolerance, cap_style=cap)
-            bj[mask] = shapely.buffer(cj[mask], tolerance, cap_style=cap)
-        near_ij = shapely.length(shapely.intersection(ci, bj))
-        near_ji = shapely.length(shapely.intersection(cj, bi))
-        estimate = np.minimum(
-            near_ij - 2 * tolerance * ~segments.tiled[i],
-            near_ji - 2 * tolerance * ~segments.tiled[j],
+    # Line contact up to roundoff: files read through different CRSs put one border's common
+    # vertices a fraction of a millimetre apart, so GEOS finds no shared line between them
+    # (see the module docstring). Measured by the same near-shared length at _ROUNDOFF_M.
+    contact = np.zeros(len(i))
+    touching = gap <= _ROUNDOFF_M
+    if touching.any():
+        contact[touching] = _near_shared(
+            outline, i[touching], j[touching], _ROUNDOFF_M, segments.tiled, grown
         )
-        estimate = np.maximum(estimate, 0.0)
-    else:
-        estimate = np.zeros(len(i))
-    shared = np.maximum(exact, estimate)
+    line = np.maximum(exact, contact)
+    estimate = (
+        _near_shared(outline, i, j, tolerance, segments.tiled, grown)
+        if tolerance > 0
+        else np.zeros(len(i))
+    )
+    shared = np.maximum(line, estimate)
     # True contact along a line always joins (as within a file). A gap-bridged pair needs a
     # positive near-shared length of at least min_shared_m; a point contact joins only under
     # queen at zero tolerance (files declared to match exactly, so plain queen as libpysal).
     # (Units that overlap may have outlines running together along the data's edge: that is
-    # not contact along a line, so their near-shared length decides.)
+    # not contact along a line, so their near-shared length decides. Overlap counts from a
+    # mean width of _ROUNDOFF_M along the line: thinner slivers are roundoff. A line no longer
+    # than _ROUNDOFF_M is a point contact moved by roundoff.)
     touches = shapely.touches(gi, gj)
-    touch_line = (exact > 0) & touches
+    touch_line = (line > _ROUNDOFF_M) & touches
+    sliver = (line > _ROUNDOFF_M) & ~touches & touching
+    if sliver.any():
+        overlap = shapely.area(shapely.intersection(gi[sliver], gj[sliver]))
+        touch_line[sliver] = overlap <= _ROUNDOFF_M * line[sliver]
     bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m)
     # At zero tolerance: a point contact under queen, and units that overlap under either rule.
     point = (gap == 0) & (tolerance == 0) & (~touches | (not rook))
@@ -438,6 +450,27 @@ def _tolerant_pairs(
         }
     )
     return out, left_out
+
+
+def _near_shared(outline, i, j, width, tiled, grown) -> np.ndarray:
+    """Near-shared length of pairs (i, j) at ``width`` metres (the corner rule, module docs)."""
+    # Clip each outline to the other's box grown by the width: only that part can be near,
+    # and buffering a whole long district outline is the costly step.
+    ci = shapely.intersection(outline[i], grown(j, width))
+    cj = shapely.intersection(outline[j], grown(i, width))
+    # Both units tiling their files: flat-capped buffers stop at the outlines' ends, so nothing
+    # beyond a stretch's end counts. Otherwise round caps, and a lone unit's direction loses the
+    # two widths its turning outline adds.
+    both = tiled[i] & tiled[j]
+    bi = np.empty(len(i), dtype=object)
+    bj = np.empty(len(i), dtype=object)
+    for mask, cap in ((both, "flat"), (~both, "round")):
+        bi[mask] = shapely.buffer(ci[mask], width, cap_style=cap)
+        bj[mask] = shapely.buffer(cj[mask], width, cap_style=cap)
+    near_ij = shapely.length(shapely.intersection(ci, bj))
+    near_ji = shapely.length(shapely.intersection(cj, bi))
+    estimate = np.minimum(near_ij - 2 * width * ~tiled[i], near_ji - 2 * width * ~tiled[j])
+    return np.maximum(estimate, 0.0)
 
 
 def _warn_overlaps(gi, gj, i, j) -> None:
