@@ -312,3 +312,40 @@ def test_min_shared_m_never_drops_line_contact(scenario):
         assert found == truth - short
         assert listed & truth == short
         assert set(lo.loc[lo["near_shared_m"] > 0, "reason"]) == {"short"}
+
+
+@pytest.mark.parametrize("rule", ["queen", "rook"])
+@pytest.mark.parametrize("tol", [0.0, 1.0, 150.0])
+def test_one_file_split_and_read_through_two_crss(tol, rule):
+    # vautm17n split in two at random (as in test_graph_reference.py), the second half handed
+    # over in lon/lat (as another office would send it): common borders differ by roundoff.
+    # Across the split, the rook pairs of the shipped virginia_rook.gal join as shared
+    # boundaries; pairs meeting at a point only (virginia_queen.gal minus rook) join at zero
+    # tolerance under queen (plain queen), else are left out.
+    _, va, va_path = raw_files()
+    key = dict(zip(va["POLY_ID"].astype(int).astype(str), va["uid"], strict=True))
+    rook = read_gal(va_path.parent / "virginia_rook.gal", key)
+    fips = dict(zip(va["FIPS"].astype(int).astype(str), va["uid"], strict=True))
+    queen = read_gal(va_path.parent / "virginia_queen.gal", fips)
+    second = np.random.default_rng(4).random(len(va)) < 0.5
+    units = read_units(
+        [va[~second], va[second].to_crs("EPSG:4326")],
+        id="uid",
+        name="NAME",
+        country=["AAA", "BBB"],
+    )
+    side = units["country"]
+    across = {p for p in queen if side.loc[list(p)].nunique() == 2}
+    rook_across = {p for p in rook if p in across}
+    assert len(rook_across) > 10 and len(across - rook_across) > 0
+    bg = border_graph(units, tolerance=tol, rule=rule)
+    e = bg.edges[bg.edges["cross_border"]]
+    found = edge_set(e["focal"], e["neighbor"])
+    pairs = map(frozenset, zip(e["focal"], e["neighbor"], strict=True))
+    kinds = dict(zip(pairs, e["kind"], strict=True))
+    assert {kinds[p] for p in rook_across} == {"shared-boundary"}
+    assert found == (across if tol == 0 and rule == "queen" else rook_across)
+    if tol > 0:
+        assert (e["shared_m"] > 0).all()
+        listed = edge_set(bg.left_out["unit_a"], bg.left_out["unit_b"])
+        assert across - rook_across <= listed

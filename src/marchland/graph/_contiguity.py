@@ -50,7 +50,8 @@ line. Line contact is therefore the same near-shared length measured at a width 
 it must exceed 1 cm, and where the units overlap, the overlap's mean width along that line must
 stay under 1 cm (a real overlap of two digitisations is no line contact; its near-shared length
 decides). Pairs in line contact are joined whatever ``min_shared_m`` is and whatever the
-tolerance, 0 included, with that length as ``shared_m``.
+tolerance, 0 included, with that length as ``shared_m``. Likewise at zero tolerance a point
+contact is one within 1 cm, and under rook units overlap only beyond a 1 cm square.
 
 ``shared_m`` of a cross-file pair is the larger of the line-contact length and the near-shared
 estimate. ``kind`` is "shared-boundary" for line contact (and point contact at zero tolerance)
@@ -383,7 +384,7 @@ def _tolerant_pairs(
     keep = ~np.isin(i * n + j, known)
     i, j = i[keep], j[keep]
     gi, gj = geoms[i], geoms[j]
-    near = shapely.dwithin(gi, gj, tolerance) if tolerance > 0 else shapely.intersects(gi, gj)
+    near = shapely.dwithin(gi, gj, max(tolerance, _ROUNDOFF_M))
     i, j, gi, gj = i[near], j[near], gi[near], gj[near]
     if len(i) == 0:
         return empty, left_empty
@@ -414,17 +415,19 @@ def _tolerant_pairs(
     # queen at zero tolerance (files declared to match exactly, so plain queen as libpysal).
     # (Units that overlap may have outlines running together along the data's edge: that is
     # not contact along a line, so their near-shared length decides. Overlap counts from a
-    # mean width of _ROUNDOFF_M along the line: thinner slivers are roundoff. A line no longer
-    # than _ROUNDOFF_M is a point contact moved by roundoff.)
-    touches = shapely.touches(gi, gj)
-    touch_line = (line > _ROUNDOFF_M) & touches
-    sliver = (line > _ROUNDOFF_M) & ~touches & touching
-    if sliver.any():
-        overlap = shapely.area(shapely.intersection(gi[sliver], gj[sliver]))
-        touch_line[sliver] = overlap <= _ROUNDOFF_M * line[sliver]
-    bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m)
+    # mean width of _ROUNDOFF_M along the line, or an area of _ROUNDOFF_M squared where they
+    # meet at a point: thinner slivers are roundoff. A line no longer than _ROUNDOFF_M is a
+    # point contact moved by roundoff.)
+    inside = (gap == 0) & ~shapely.touches(gi, gj)  # interiors meet
+    overlap = inside.copy()
+    check = inside & ((line > _ROUNDOFF_M) | ((tolerance == 0) & rook))
+    if check.any():
+        area = shapely.area(shapely.intersection(gi[check], gj[check]))
+        overlap[check] = area > _ROUNDOFF_M * np.maximum(line[check], _ROUNDOFF_M)
+    touch_line = (line > _ROUNDOFF_M) & ~overlap
+    bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m) & (gap <= tolerance)
     # At zero tolerance: a point contact under queen, and units that overlap under either rule.
-    point = (gap == 0) & (tolerance == 0) & (~touches | (not rook))
+    point = (gap <= _ROUNDOFF_M) & (tolerance == 0) & (overlap | (not rook))
     joined = touch_line | bridged | point
     _warn_overlaps(gi[joined], gj[joined], i[joined], j[joined])
     kind = np.where(touch_line | (point & ~bridged), "shared-boundary", "gap-bridged")
@@ -437,7 +440,7 @@ def _tolerant_pairs(
             "kind": kind[joined],
         }
     )
-    left = ~joined
+    left = ~joined & (gap <= tolerance)  # (candidates come within _ROUNDOFF_M at least)
     reason = np.where(estimate[left] > _MIN_NEAR_M, "short", "corner")
     left_out = pd.DataFrame(
         {
