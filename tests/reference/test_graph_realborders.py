@@ -20,6 +20,8 @@ What was measured on them (``line_offsets`` below; figures in the report of the 
   memory) and worked in NAD83 / Conus Albers (EPSG:5070, so the datum shift is applied), the
   North Carolina file moves about 26 m against the Virginia one: the two sides of the line
   overlap by 8.5-10 m and slide 22 m along it, as two producers' digitisations do ("NAD27 label").
+  (read_units' default working CRS, a PROJ string on the WGS 84 ellipsoid with no datum, applies
+  no datum shift at all: NAD27 and WGS 84 declarations land on the same coordinates.)
 
 Tolerances: 1 m for "same datum" and 30 m for "NAD27 label" (the largest measured offset across
 the line times three, common practice margin); 500 m (the setting at which the issue saw a
