@@ -37,7 +37,11 @@ one tolerance. Measured errors: on the demo's 48 cross-border district pairs (tr
 1.8-35 km) +48 m mean, 137 m standard deviation, most of it the files' own digitising
 differences (their outlines differ in length); on a synthetic Voronoi layer with oblique
 junctions (benchmarks/bench_graph.py, 10,000 units) +13 m mean, 89 m standard deviation, and no
-pair meeting at a point above 91 m.
+pair meeting at a point above 91 m. The same turn makes a pair that meets only where a border
+ends at a third country absent from the data face each other: on two real county files 85-560 m
+apart along their border (tests/reference/test_graph_realborders.py, libpysal's sids2 and
+georgia) such a corner pair, 278 m apart, scores 33 m at a 500 m tolerance, 571 m at 1 km and
+1,483 m at 1.5 km, and is joined; a ``min_shared_m`` above the tolerance leaves it out.
 
 Line contact up to roundoff
 ---------------------------
