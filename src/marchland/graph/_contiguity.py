@@ -7,8 +7,8 @@ Two rules, because two kinds of seams occur in the inputs:
 * **Between files, or between countries**, outlines digitised by different producers neither
   meet nor stop overlapping exactly. Candidate pairs come within ``tolerance`` metres (an
   STRtree query and shapely 2 array functions over the candidate pairs only). A pair whose
-  boundaries truly touch along a line (an exactly shared segment of positive length) is always
-  joined, as within a file. Any other pair is joined when its near-shared length (below) is
+  boundaries truly touch along a line (line contact, below) is always joined, as within a
+  file. Any other pair is joined when its near-shared length (below) is
   positive and at least ``min_shared_m`` (the corner rule; default 0: any positive length).
   Pairs within the tolerance that the rule leaves out are listed in ``BorderGraph.left_out``.
 
@@ -37,12 +37,29 @@ one tolerance. Measured errors: on the demo's 48 cross-border district pairs (tr
 1.8-35 km) +48 m mean, 137 m standard deviation, most of it the files' own digitising
 differences (their outlines differ in length); on a synthetic Voronoi layer with oblique
 junctions (benchmarks/bench_graph.py, 10,000 units) +13 m mean, 89 m standard deviation, and no
-pair meeting at a point above 91 m.
+pair meeting at a point above 91 m. The same turn makes a pair that meets only where a border
+ends at a third country absent from the data face each other: on two real county files 85-560 m
+apart along their border (tests/reference/test_graph_realborders.py, libpysal's sids2 and
+georgia) such a corner pair, 278 m apart, scores 33 m at a 500 m tolerance, 571 m at 1 km and
+1,483 m at 1.5 km, and is joined; a ``min_shared_m`` above the tolerance leaves it out.
 
-``shared_m`` of a cross-file pair is the larger of the exactly shared length (boundary
-intersection) and this estimate. ``kind`` is "shared-boundary" when the boundaries truly share
-a line and "gap-bridged" when the tolerance was needed; ``gap_m`` is 0 for outlines that
-overlap.
+Line contact up to roundoff
+---------------------------
+Two files cut from one source share a border vertex for vertex, but read through different
+CRSs (one in lon/lat, one in UTM, both reprojected to the working CRS) the common vertices land
+a fraction of a millimetre apart (0.2-0.7 mm on libpysal's sids2 and vautm17n counties,
+tests/reference/test_graph_realborders.py), so GEOS finds slivers and hair gaps and no shared
+line. Line contact is therefore the same near-shared length measured at a width of 1 cm
+(``_ROUNDOFF_M``), or the exactly shared length if larger, for pairs no more than 1 cm apart:
+it must exceed 1 cm, and where the units overlap, the overlap's mean width along that line must
+stay under 1 cm (a real overlap of two digitisations is no line contact; its near-shared length
+decides). Pairs in line contact are joined whatever ``min_shared_m`` is and whatever the
+tolerance, 0 included, with that length as ``shared_m``. Likewise at zero tolerance a point
+contact is one within 1 cm, and under rook units overlap only beyond a 1 cm square.
+
+``shared_m`` of a cross-file pair is the larger of the line-contact length and the near-shared
+estimate. ``kind`` is "shared-boundary" for line contact (and point contact at zero tolerance)
+and "gap-bridged" when the tolerance was needed; ``gap_m`` is 0 for outlines that overlap.
 
 Why the default needs only a positive near-shared length: a file pulled away from its
 neighbour across the border (normal to it) keeps the junctions of both files facing each
@@ -61,7 +78,6 @@ tolerance a point contact between files is no evidence of a border and is listed
 
 from __future__ import annotations
 
-import os
 import warnings
 
 import numpy as np
@@ -71,12 +87,16 @@ from libpysal.graph import Graph
 
 from ..errors import DataWarning, InputError
 from ._leftout import left_out_table
+from ._links import add_links
 from .border import RULES, BorderGraph
 
-LINK_COLUMNS = ("from_id", "to_id", "kind", "name")
 # Near-shared lengths at or below this (metres) are numerical noise of a point contact: the
 # buffers' flat caps pass exactly through the other outline's end there.
 _MIN_NEAR_M = 1e-3
+# Width (metres) within which two outlines count as one line: well above the reprojection
+# roundoff between files read through different CRSs (0.2-0.7 mm measured on libpysal's sids2
+# and vautm17n, tests/reference/test_graph_realborders.py), far below any digitising precision.
+_ROUNDOFF_M = 0.01
 _HASH_MULTIPLIERS = tuple(
     np.uint64(m)
     for m in (0x9E3779B97F4A7C15, 0xC2B2AE3D27D4EB4F, 0x165667B19E3779F9, 0x27D4EB2F165667C5)
@@ -126,7 +146,7 @@ def build_border_graph(
 
     # 3. extra links from a table
     if links is not None:
-        pairs = _add_links(pairs, links, ids, geoms, parents)
+        pairs = add_links(pairs, links, ids, geoms, parents)
 
     cross = country[pairs["i"].to_numpy()] != country[pairs["j"].to_numpy()]
     pairs["cross_border"] = cross
@@ -356,11 +376,9 @@ def _tolerant_pairs(
     rim = np.unique(segments.u)
     bounds = shapely.bounds(geoms)
 
-    def grown(idx):
+    def grown(idx, by=tolerance):
         b = bounds[idx]
-        return shapely.box(
-            b[:, 0] - tolerance, b[:, 1] - tolerance, b[:, 2] + tolerance, b[:, 3] + tolerance
-        )
+        return shapely.box(b[:, 0] - by, b[:, 1] - by, b[:, 2] + by, b[:, 3] + by)
 
     tree = shapely.STRtree(geoms[rim])
     a, b = tree.query(grown(rim))  # bounding boxes only: cheap, then filter by group
@@ -370,7 +388,7 @@ def _tolerant_pairs(
     keep = ~np.isin(i * n + j, known)
     i, j = i[keep], j[keep]
     gi, gj = geoms[i], geoms[j]
-    near = shapely.dwithin(gi, gj, tolerance) if tolerance > 0 else shapely.intersects(gi, gj)
+    near = shapely.dwithin(gi, gj, max(tolerance, _ROUNDOFF_M))
     i, j, gi, gj = i[near], j[near], gi[near], gj[near]
     if len(i) == 0:
         return empty, left_empty
@@ -380,40 +398,40 @@ def _tolerant_pairs(
     # does a file's inner edge that an overlapping file's inner edge happens to lie along.
     outline = segments.outlines(np.concatenate([i, j]))
     exact = shapely.length(shapely.intersection(outline[i], outline[j]))
-    if tolerance > 0:
-        # Clip each outline to the other's box grown by the tolerance: only that part can be
-        # near, and buffering a whole long district outline is the costly step.
-        ci = shapely.intersection(outline[i], grown(j))
-        cj = shapely.intersection(outline[j], grown(i))
-        # See the module docstring. Both units tiling their files: flat-capped buffers stop at
-        # the outlines' ends, so nothing beyond a stretch's end counts. Otherwise round caps,
-        # and a lone unit's direction loses the two tolerances its turning outline adds.
-        tiled = segments.tiled[i] & segments.tiled[j]
-        bi = np.empty(len(i), dtype=object)
-        bj = np.empty(len(i), dtype=object)
-        for mask, cap in ((tiled, "flat"), (~tiled, "round")):
-            bi[mask] = shapely.buffer(ci[mask], tolerance, cap_style=cap)
-            bj[mask] = shapely.buffer(cj[mask], tolerance, cap_style=cap)
-        near_ij = shapely.length(shapely.intersection(ci, bj))
-        near_ji = shapely.length(shapely.intersection(cj, bi))
-        estimate = np.minimum(
-            near_ij - 2 * tolerance * ~segments.tiled[i],
-            near_ji - 2 * tolerance * ~segments.tiled[j],
+    # Line contact up to roundoff: files read through different CRSs put one border's common
+    # vertices a fraction of a millimetre apart, so GEOS finds no shared line between them
+    # (see the module docstring). Measured by the same near-shared length at _ROUNDOFF_M.
+    contact = np.zeros(len(i))
+    touching = gap <= _ROUNDOFF_M
+    if touching.any():
+        contact[touching] = _near_shared(
+            outline, i[touching], j[touching], _ROUNDOFF_M, segments.tiled, grown
         )
-        estimate = np.maximum(estimate, 0.0)
-    else:
-        estimate = np.zeros(len(i))
-    shared = np.maximum(exact, estimate)
+    line = np.maximum(exact, contact)
+    estimate = (
+        _near_shared(outline, i, j, tolerance, segments.tiled, grown)
+        if tolerance > 0
+        else np.zeros(len(i))
+    )
+    shared = np.maximum(line, estimate)
     # True contact along a line always joins (as within a file). A gap-bridged pair needs a
     # positive near-shared length of at least min_shared_m; a point contact joins only under
     # queen at zero tolerance (files declared to match exactly, so plain queen as libpysal).
     # (Units that overlap may have outlines running together along the data's edge: that is
-    # not contact along a line, so their near-shared length decides.)
-    touches = shapely.touches(gi, gj)
-    touch_line = (exact > 0) & touches
-    bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m)
+    # not contact along a line, so their near-shared length decides. Overlap counts from a
+    # mean width of _ROUNDOFF_M along the line, or an area of _ROUNDOFF_M squared where they
+    # meet at a point: thinner slivers are roundoff. A line no longer than _ROUNDOFF_M is a
+    # point contact moved by roundoff.)
+    inside = (gap == 0) & ~shapely.touches(gi, gj)  # interiors meet
+    overlap = inside.copy()
+    check = inside & ((line > _ROUNDOFF_M) | ((tolerance == 0) & rook))
+    if check.any():
+        area = shapely.area(shapely.intersection(gi[check], gj[check]))
+        overlap[check] = area > _ROUNDOFF_M * np.maximum(line[check], _ROUNDOFF_M)
+    touch_line = (line > _ROUNDOFF_M) & ~overlap
+    bridged = (estimate > _MIN_NEAR_M) & (estimate >= min_shared_m) & (gap <= tolerance)
     # At zero tolerance: a point contact under queen, and units that overlap under either rule.
-    point = (gap == 0) & (tolerance == 0) & (~touches | (not rook))
+    point = (gap <= _ROUNDOFF_M) & (tolerance == 0) & (overlap | (not rook))
     joined = touch_line | bridged | point
     _warn_overlaps(gi[joined], gj[joined], i[joined], j[joined])
     kind = np.where(touch_line | (point & ~bridged), "shared-boundary", "gap-bridged")
@@ -426,7 +444,7 @@ def _tolerant_pairs(
             "kind": kind[joined],
         }
     )
-    left = ~joined
+    left = ~joined & (gap <= tolerance)  # (candidates come within _ROUNDOFF_M at least)
     reason = np.where(estimate[left] > _MIN_NEAR_M, "short", "corner")
     left_out = pd.DataFrame(
         {
@@ -438,6 +456,27 @@ def _tolerant_pairs(
         }
     )
     return out, left_out
+
+
+def _near_shared(outline, i, j, width, tiled, grown) -> np.ndarray:
+    """Near-shared length of pairs (i, j) at ``width`` metres (the corner rule, module docs)."""
+    # Clip each outline to the other's box grown by the width: only that part can be near,
+    # and buffering a whole long district outline is the costly step.
+    ci = shapely.intersection(outline[i], grown(j, width))
+    cj = shapely.intersection(outline[j], grown(i, width))
+    # Both units tiling their files: flat-capped buffers stop at the outlines' ends, so nothing
+    # beyond a stretch's end counts. Otherwise round caps, and a lone unit's direction loses the
+    # two widths its turning outline adds.
+    both = tiled[i] & tiled[j]
+    bi = np.empty(len(i), dtype=object)
+    bj = np.empty(len(i), dtype=object)
+    for mask, cap in ((both, "flat"), (~both, "round")):
+        bi[mask] = shapely.buffer(ci[mask], width, cap_style=cap)
+        bj[mask] = shapely.buffer(cj[mask], width, cap_style=cap)
+    near_ij = shapely.length(shapely.intersection(ci, bj))
+    near_ji = shapely.length(shapely.intersection(cj, bi))
+    estimate = np.minimum(near_ij - 2 * width * ~tiled[i], near_ji - 2 * width * ~tiled[j])
+    return np.maximum(estimate, 0.0)
 
 
 def _warn_overlaps(gi, gj, i, j) -> None:
@@ -454,134 +493,6 @@ def _warn_overlaps(gi, gj, i, j) -> None:
             DataWarning,
             stacklevel=4,
         )
-
-
-# --- extra links -------------------------------------------------------------------------------
-def _read_links(links):
-    if isinstance(links, str | os.PathLike):
-        path = os.fspath(links)
-        try:
-            table = pd.read_csv(path, dtype=str, keep_default_na=False)
-        except (OSError, pd.errors.ParserError) as err:
-            raise InputError(f"cannot read the links table ({err})", file=path) from None
-        return table, path
-    if isinstance(links, pd.DataFrame):
-        return links, None
-    raise InputError(
-        "links need to be a DataFrame or the path of a CSV file with columns "
-        f"{list(LINK_COLUMNS)}. {type(links).__name__} was given instead."
-    )
-
-
-def _add_links(pairs: pd.DataFrame, links, ids, geoms, parents=None) -> pd.DataFrame:
-    table, path = _read_links(links)
-    for col in ("from_id", "to_id"):
-        if col not in table.columns:
-            raise InputError(
-                f"the links table needs columns {list(LINK_COLUMNS)}; {col!r} is missing",
-                file=path,
-                column=col,
-            )
-    if len(table) == 0:
-        return pairs
-    n = len(ids)
-    pos = pd.Series(np.arange(n), index=pd.Index(ids).astype(str))
-    kinds = table["kind"] if "kind" in table.columns else pd.Series("link", index=table.index)
-    names = table["name"] if "name" in table.columns else pd.Series("", index=table.index)
-    lift = None
-    if parents is not None:
-        lift = pd.Series(parents).dropna().astype(str)
-        lift.index = lift.index.astype(str)
-    ends = []
-    for col in ("from_id", "to_id"):
-        val = table[col].astype(str).str.strip()
-        name = val
-        if lift is not None:
-            # A link may name a district of a country analysed at province level: climb to the
-            # nearest ancestor that is an analysis unit (a few levels at most).
-            for _ in range(3):
-                up = ~name.isin(pos.index) & name.isin(lift.index)
-                if not up.any():
-                    break
-                name = name.where(~up, name.map(lift))
-        p = pos.reindex(name.to_numpy()).to_numpy()
-        missing = np.flatnonzero(np.isnan(p))
-        if len(missing):
-            r = missing[0]
-            raise InputError(
-                f"{val.iloc[r]!r} is not an analysis unit of this graph"
-                f"{_parent_hint(val.iloc[r], pos.index) if lift is None else ''}",
-                file=path,
-                row=r + 1,
-                column=col,
-                value=val.iloc[r],
-            )
-        ends.append(p.astype(np.int64))
-    a, b = ends
-    inner = a == b
-    if lift is not None and inner.any():
-        # Both ends inside one analysis unit: nothing to link at this level; say so.
-        r = np.flatnonzero(inner)
-        warnings.warn(
-            f"links table rows {(r + 1).tolist()} join places inside one analysis unit and "
-            "add no edge at this level",
-            DataWarning,
-            stacklevel=4,
-        )
-        table, a, b, kinds, names = (
-            table[~inner],
-            a[~inner],
-            b[~inner],
-            kinds[~inner],
-            names[~inner],
-        )
-    self_loop = np.flatnonzero(a == b)
-    if len(self_loop):
-        r = self_loop[0]
-        raise InputError(
-            "a link must join two different units",
-            file=path,
-            row=r + 1,
-            column="to_id",
-            value=table["to_id"].iloc[r],
-        )
-    lo, hi = np.minimum(a, b), np.maximum(a, b)
-    new = pd.DataFrame(
-        {
-            "i": lo,
-            "j": hi,
-            "link_kind": kinds.astype("string").to_numpy(),
-            "link_name": names.astype("string").to_numpy(),
-        }
-    )
-    new["link_kind"] = new["link_kind"].fillna("link").replace("", "link")
-    new = new.drop_duplicates(["i", "j"])  # a pair listed twice is one link (first row kept)
-    pair_key = pairs["i"].to_numpy() * n + pairs["j"].to_numpy()
-    new_key = new["i"].to_numpy() * n + new["j"].to_numpy()
-    # A link over a pair that already borders keeps its boundary kind and records the link.
-    hit = pd.Series(np.arange(len(pairs)), index=pair_key).reindex(new_key).to_numpy()
-    on_edge = ~np.isnan(hit)
-    rows = hit[on_edge].astype(np.int64)
-    pairs = pairs.copy()
-    pairs.loc[pairs.index[rows], "link_kind"] = new["link_kind"].to_numpy()[on_edge]
-    pairs.loc[pairs.index[rows], "link_name"] = new["link_name"].to_numpy()[on_edge]
-    add = new[~on_edge]
-    if len(add):
-        add = add.assign(
-            shared_m=np.nan,
-            gap_m=shapely.distance(geoms[add["i"].to_numpy()], geoms[add["j"].to_numpy()]),
-            kind="link",
-        )
-        pairs = pd.concat([pairs, add[pairs.columns]], ignore_index=True)
-    return pairs
-
-
-def _parent_hint(value: str, known: pd.Index) -> str:
-    """Suggest the province when a link names a district of a country analysed at level 1."""
-    head = value.rsplit("-", 1)[0] if value.count("-") >= 2 else None
-    if head is not None and head in known:
-        return f"; its country is analysed at a coarser level, so name {head!r} instead"
-    return ""
 
 
 def _both_directions(pairs: pd.DataFrame, ids) -> pd.DataFrame:

@@ -28,11 +28,11 @@ def border_graph(
 
     Within one boundary file (column ``source``) units are neighbours by exact contiguity
     (libpysal ``Graph.build_contiguity``). Units of different files or different countries are
-    neighbours when their boundaries truly share a line, or come within ``tolerance`` metres
-    along a positive length of at least ``min_shared_m`` metres (the corner rule, stated in
-    :mod:`marchland.graph._contiguity`). Pairs within the tolerance that the rule leaves out are
-    listed in ``.left_out`` for a person to confirm. Rows of ``links`` add further neighbours
-    (ferries, bridges, road crossings).
+    neighbours when their boundaries truly share a line (up to 1 cm of reprojection roundoff),
+    or come within ``tolerance`` metres along a positive length of at least ``min_shared_m``
+    metres (the corner rule, stated in :mod:`marchland.graph._contiguity`). Pairs within the
+    tolerance that the rule leaves out are listed in ``.left_out`` for a person to confirm.
+    Rows of ``links`` add further neighbours (ferries, bridges, road crossings).
 
     Parameters
     ----------
