@@ -115,6 +115,23 @@ def test_named_crs_and_level_inference(files: dict[str, Path]) -> None:
         read_units(files["tvr1"], id="code", name="name", country="TVR", crs="EPSG:4326")
 
 
+def test_files_on_an_older_datum_are_shifted_into_the_working_crs() -> None:
+    # The same coordinates declared NAD27 and WGS 84 are different places; the working CRS
+    # carries the WGS 84 datum so pyproj applies the shift between them. Reference: pyproj's
+    # own NAD27 -> WGS 84 transformation of the same point (an outside implementation).
+    from pyproj import Transformer
+
+    a = grid("OSK", -79.5, 36.0, 2, 0.1, "EPSG:4326")
+    b = a.set_crs("EPSG:4267", allow_override=True)
+    ua = read_units(a, id="code", name="name", country="OSK", level=2)
+    ub = read_units(b, id="code", name="name", country="OSK", level=2, crs=ua.crs)
+    moved = ua.geometry.centroid.distance(ub.geometry.centroid)
+    x, y = Transformer.from_crs("EPSG:4267", "EPSG:4326", always_xy=True).transform(-79.45, 36.05)
+    want = Geod(ellps="WGS84").inv(-79.45, 36.05, x, y)[2]
+    assert want > 5  # NAD27 and WGS 84 differ by metres here, not by rounding
+    np.testing.assert_allclose(moved, want, rtol=0.05)
+
+
 def test_geodataframe_sources_not_mutated() -> None:
     a = grid("OSK", 5, 50, 2, 0.1, "EPSG:4326")
     before = a.copy()

@@ -216,19 +216,22 @@ def _one_source(
 def working_crs(frames: Sequence[gpd.GeoDataFrame]) -> CRS:
     """Choose a Lambert azimuthal equal-area CRS centred on the frames' extent (metres).
 
+    On the WGS 84 datum, so files on an older datum (NAD27, say) are shifted onto it: with
+    only an ellipsoid named, pyproj would read every datum as the same (tens of metres off).
+
     Examples
     --------
     >>> import geopandas as gpd, shapely
     >>> f = gpd.GeoDataFrame(geometry=[shapely.box(10, 40, 12, 42)], crs="EPSG:4326")
     >>> working_crs([f]).srs
-    '+proj=laea +lat_0=41.0 +lon_0=11.0 +x_0=0 +y_0=0 +ellps=WGS84 +units=m +no_defs +type=crs'
+    '+proj=laea +lat_0=41.0 +lon_0=11.0 +x_0=0 +y_0=0 +datum=WGS84 +units=m +no_defs +type=crs'
 
     """
     b = np.array([f.to_crs("EPSG:4326").total_bounds for f in frames])
     lon = round(float((b[:, 0].min() + b[:, 2].max()) / 2), 2)
     lat = round(float((b[:, 1].min() + b[:, 3].max()) / 2), 2)
     return CRS.from_proj4(
-        f"+proj=laea +lat_0={lat} +lon_0={lon} +x_0=0 +y_0=0 +ellps=WGS84 +units=m +no_defs"
+        f"+proj=laea +lat_0={lat} +lon_0={lon} +x_0=0 +y_0=0 +datum=WGS84 +units=m +no_defs"
     )
 
 
