@@ -269,3 +269,29 @@ def test_future_weeks_follow_the_given_run_date_not_the_clock(tmp_path: Path) ->
     # The same files and date give the same rejects whatever the day of the run.
     assert future_rows("2026-11-03") == [last_row] == future_rows("2026-11-03")
     assert future_rows("2027-04-01") == []
+
+
+def test_check_lists_pairs_joined_on_a_short_facing_length() -> None:
+    import dataclasses
+
+    from marchland.pack._sections import short_joins_block
+
+    # At 3 km of gap tolerance some demo pairs are joined across a gap while facing each other
+    # along less than that: each is listed with the advice to raise min_shared_m; raising it
+    # above their facing length leaves them out of the graph (and then they are "left out").
+    cfg = load_config(SCENARIO)
+    wide = dataclasses.replace(cfg, graph=dataclasses.replace(cfg.graph, tolerance_m=3000.0))
+    rep = check(wide)
+    short = rep.border_short_joins
+    assert len(short) > 0 and (short["near_shared_m"] < 3000.0).all()
+    assert (short["country_a"] != short["country_b"]).all()
+    text = rep.to_text()
+    assert f"Border pairs joined on a short facing length ({len(short)})" in text
+    assert "raise [graph] min_shared_m" in text
+    assert "facing length" in short_joins_block(short)
+    graph = dataclasses.replace(wide.graph, min_shared_m=3000.0)
+    strict = check(dataclasses.replace(wide, graph=graph))
+    assert len(strict.border_short_joins) == 0
+    left = strict.border_left_out
+    pairs = set(zip(left["unit_a"], left["unit_b"], strict=True))
+    assert set(zip(short["unit_a"], short["unit_b"], strict=True)) <= pairs

@@ -498,6 +498,11 @@ def test_georgia_every_pair_found_within_tolerance(tol):
     # absent third state, so they face each other over a length that grows with the tolerance
     # (the module docs of marchland.graph._contiguity: the edge of the data).
     assert found - truth <= corner
+    # ...and the corner, joined, is listed for a person to check: it faces its neighbour along
+    # less than the tolerance; no true pair (3.3 km and more) is listed.
+    listed = bg.short_joins(tol)
+    listed = edge_set(listed["unit_a"], listed["unit_b"])
+    assert found - truth <= listed and not (listed & truth)
     d = shapely.distance(
         units.geometry.loc[e["focal"]].to_numpy(), units.geometry.loc[e["neighbor"]].to_numpy()
     )

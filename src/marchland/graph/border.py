@@ -155,6 +155,60 @@ class BorderGraph:
         """Units with no neighbour, links included."""
         return self.ids[~self.ids.isin(self.edges["focal"])].tolist()
 
+    def short_joins(self, facing_below_m: float) -> pd.DataFrame:
+        """Return the pairs joined across a gap that face each other along less than given.
+
+        The gap-bridging rule joins pairs of different files that run alongside each other
+        within the tolerance. Where a border ends at a country missing from the data, two
+        units meeting only at that end can still face each other along a short stretch and be
+        joined; a facing length below the tolerance itself is the sign to look. These pairs
+        are listed (``marchland check``, the report) for a person to confirm; links added by
+        hand are not listed.
+
+        Parameters
+        ----------
+        facing_below_m : float
+            List joins whose near-shared length is below this (the gap tolerance).
+
+        Returns
+        -------
+        pandas.DataFrame
+            ``unit_a unit_b country_a country_b gap_m near_shared_m``, one row per pair,
+            shortest facing first.
+
+        Examples
+        --------
+        >>> e = pd.DataFrame({"focal": ["a", "b"], "neighbor": ["b", "a"], "shared_m": 40.0,
+        ...                   "gap_m": 90.0, "cross_border": True, "kind": "gap-bridged"})
+        >>> g = BorderGraph(e, pd.Index(["a", "b"]), pd.Series({"a": "AAA", "b": "BBB"}))
+        >>> g.short_joins(150)[["unit_a", "unit_b", "near_shared_m"]].values.tolist()
+        [['a', 'b', 40.0]]
+        >>> len(g.short_joins(30))
+        0
+        """
+        e = self.edges
+        hand = e["link_kind"].notna() if "link_kind" in e.columns else False
+        pick = (
+            (e["kind"] == "gap-bridged")
+            & e["cross_border"].astype(bool)
+            & (e["shared_m"] < facing_below_m)
+            & ~hand
+            & (e["focal"].astype(str) < e["neighbor"].astype(str))
+        )
+        e = e[pick]
+        country = self.countries if self.countries is not None else pd.Series(dtype=object)
+        out = pd.DataFrame(
+            {
+                "unit_a": e["focal"].to_numpy(),
+                "unit_b": e["neighbor"].to_numpy(),
+                "country_a": country.reindex(e["focal"]).to_numpy(),
+                "country_b": country.reindex(e["neighbor"]).to_numpy(),
+                "gap_m": e["gap_m"].to_numpy(dtype=float),
+                "near_shared_m": e["shared_m"].to_numpy(dtype=float),
+            }
+        )
+        return out.sort_values(["near_shared_m", "unit_a", "unit_b"], ignore_index=True)
+
     @cached_property
     def graph(self) -> Graph:
         """Binary libpysal ``Graph`` over ``ids`` (islands carry a zero self-weight)."""

@@ -427,6 +427,8 @@ def _quality_section(result: MonthResult) -> str:
             "tables/completeness.csv.</p>"
         )
     body += left_out_block(getattr(result.graph, "left_out", None))
+    if result.graph is not None and hasattr(result.graph, "short_joins"):
+        body += short_joins_block(result.graph.short_joins(result.config.graph.tolerance_m))
     if result.absent:
         body += (
             "<h3>Steps not computed</h3><ul>"
@@ -472,6 +474,34 @@ def left_out_block(left: pd.DataFrame | None) -> str:
         f'<h3>Border pairs left out ({len(left)})</h3><p class="note">{esc(LEFT_OUT_ADVICE)}</p>'
         + '<div class="scroll">'
         + table_html(left.round({"gap_m": 0, "near_shared_m": 0}), cols)
+        + "</div>"
+    )
+
+
+SHORT_JOINS_ADVICE = (
+    "These pairs from different boundary files or countries were made neighbours across a "
+    "gap, but face each other along less than the gap tolerance: a corner where a border "
+    "meets a country missing from the data looks like this. If a pair does not really "
+    "border, raise [graph] min_shared_m above its facing length and run again."
+)
+
+
+def short_joins_block(short: pd.DataFrame | None) -> str:
+    """Render the data section's list of pairs joined on a short facing length (if any)."""
+    if short is None or not len(short):
+        return ""
+    cols = {
+        "unit_a": "unit",
+        "country_a": "country",
+        "unit_b": "unit",
+        "country_b": "country",
+        "gap_m": "gap (m)",
+        "near_shared_m": "facing length (m)",
+    }
+    return (
+        f"<h3>Border pairs joined on a short facing length ({len(short)})</h3>"
+        f'<p class="note">{esc(SHORT_JOINS_ADVICE)}</p><div class="scroll">'
+        + table_html(short.round({"gap_m": 0, "near_shared_m": 0}), cols)
         + "</div>"
     )
 

@@ -306,6 +306,11 @@ class CheckReport:
         Pairs of analysis units from different boundary files or countries that come within
         the gap tolerance but that the border graph did not join (``BorderGraph.left_out``);
         None when the graph could not be built. Add a real one to the links table.
+    border_short_joins : pandas.DataFrame or None
+        Pairs joined across a gap that face each other along less than the gap tolerance
+        (``BorderGraph.short_joins``): corners where a border meets a country missing from the
+        data can look like this. Raise ``[graph] min_shared_m`` above a false one's facing
+        length to leave it out.
     """
 
     sources: pd.DataFrame
@@ -317,6 +322,7 @@ class CheckReport:
     notes: tuple[str, ...]
     ok: bool
     border_left_out: pd.DataFrame | None = None
+    border_short_joins: pd.DataFrame | None = None
 
     def to_text(self) -> str:
         """Summarise the check as plain text for the terminal, one block per kind of input."""
@@ -378,19 +384,9 @@ class CheckReport:
                     f"  {c}: {k['share']:.0%} of {int(k['expected_weeks'])} unit-weeks; "
                     f"{int(k['gap_weeks'])} weeks with no report; last received {last}"
                 )
-        left = self.border_left_out
-        if left is not None and len(left):
-            lines.append(
-                f"Border pairs left out ({len(left)}): within the gap tolerance but not made "
-                "neighbours. If a pair really borders, add it to the links table ([graph] links):"
-            )
-            for r in left.head(_SHOW_REJECTS).itertuples():  # at most _SHOW_REJECTS lines
-                lines.append(
-                    f"  {r.unit_a} ({r.country_a}) - {r.unit_b} ({r.country_b}): gap "
-                    f"{r.gap_m:.0f} m, facing {r.near_shared_m:.0f} m ({r.reason})"
-                )
-            if len(left) > _SHOW_REJECTS:
-                lines.append(f"  ... and {len(left) - _SHOW_REJECTS} more")
+        from ._checkgraph import pair_lines
+
+        lines += pair_lines(self.border_left_out, self.border_short_joins, _SHOW_REJECTS)
         lines.append(
             "All sources read." if self.ok else "Some sources could not be read (see ERR above)."
         )
@@ -555,11 +551,11 @@ def check(config: Config | str | os.PathLike[str], *, run_date: object = None) -
                 .sum(min_count=1),
             }
         )
-    left_out = None
+    left_out = short_joins = None
     if units is not None:
-        from ._checkgraph import border_left_out
+        from ._checkgraph import border_pairs
 
-        left_out = border_left_out(cfg, units, counts, rows, notes)
+        left_out, short_joins = border_pairs(cfg, units, counts, rows, notes)
         sources = pd.concat(
             [sources, pd.DataFrame.from_dict({"graph": rows["graph"]}, orient="index")]
         ).reindex(columns=_SOURCE_COLUMNS)
@@ -577,6 +573,7 @@ def check(config: Config | str | os.PathLike[str], *, run_date: object = None) -
         notes=tuple(notes),
         ok=ok,
         border_left_out=left_out,
+        border_short_joins=short_joins,
     )
 
 
