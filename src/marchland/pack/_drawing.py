@@ -86,9 +86,12 @@ def write_figures(
         if progress is not None:
             progress("maps and atlas pages", k, n)
 
-    share_tasks(task, len(plans) + 1, workers=workers, done=done)
+    # Taken from the end of the atlas: the multi-panel epi curves and fan charts come last in
+    # it and cost most, so drawing them first leaves the quick maps to even out the finish.
+    n = len(plans) + 1
+    share_tasks(lambda k: task(n - 1 - k), n, workers=workers, done=done)
     _join_pages(
-        [work / f"{i:03d}.pdf" for i in range(len(plans) + 1)],
+        [work / f"{i:03d}.pdf" for i in range(n)],
         root / "atlas.pdf",
         title=f"marchland atlas {result.month}",
     )
