@@ -269,3 +269,32 @@ def test_share_tasks_runs_here_where_forking_is_not_safe(monkeypatch):
     monkeypatch.setattr(compute.sys, "platform", "darwin")
     assert compute.share_tasks(lambda i: os.getpid(), 4, workers=2) == [os.getpid()] * 4
     assert not Executor(workers=2).forks
+
+
+def test_background_work_returns_its_value_warnings_and_errors():
+    import os
+    import warnings
+
+    from marchland.compute import in_background
+
+    def work() -> tuple[int, int]:
+        warnings.warn("from the copy", UserWarning, stacklevel=1)
+        return os.getpid(), sum(range(100))
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        job = in_background(work)
+        pid, total = job.result()
+        assert job.result() == (pid, total)  # asked twice: same value, warned once
+        assert [str(w.message) for w in caught] == ["from the copy"]
+        assert in_background(work, workers=1).result()[0] == os.getpid()  # or here, at once
+    assert total == 4950 and len(caught) == 2
+    if sys.platform.startswith("linux"):
+        assert pid != os.getpid()  # it ran in a forked copy
+
+    def fails() -> None:
+        raise InputError("no such column", file="b.csv", column="cases")
+
+    for workers in (1, 2):
+        with pytest.raises(InputError, match="no such column"):
+            in_background(fails, workers=workers).result()

@@ -271,27 +271,19 @@ def share_tasks(
         ctx.Process(target=_take_tasks, args=(fn, n, counter, results), daemon=True)
         for _ in range(min(workers, n) - 1)
     ]
-    with warnings.catch_warnings():
-        # Python 3.12+ warns that forking a process with threads may deadlock; ours are idle
-        # library pools (BLAS, numba) and the copies only run ``fn``.
-        warnings.filterwarnings("ignore", message=r".*use of fork\(\) may lead to deadlocks")
-        for p in procs:
-            p.start()
+    for p in procs:
+        _start(p)
     got: dict[int, Any] = {}
 
     def receive(value: tuple[int, bool, Any]) -> None:
         i, ok, payload = value
-        if not ok:
-            raise payload
-        got[i], said = payload
-        for message, category, filename, lineno in said:
-            warnings.warn_explicit(message, category, filename, lineno)
+        got[i] = _deliver(ok, payload)
         if done is not None:
             done(len(got), n)
 
     try:
         while (i := _next_task(counter, n)) is not None:
-            receive((i, True, (fn(i), [])))
+            receive((i, True, (fn(i), [])))  # done here: its warnings were raised here
             while True:
                 try:
                     receive(results.get_nowait())
@@ -336,23 +328,47 @@ def _next_task(counter: Any, n: int) -> int | None:
 
 
 def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any) -> None:
-    """Take tasks until none is left, sending back each result or the error (a forked copy).
-
-    Warnings a task raises travel back with its result and are raised again in the calling
-    process, so a shared run warns as a serial one does.
-    """
+    """Take tasks until none is left, sending back each result or the error (a forked copy)."""
     while (i := _next_task(counter, n)) is not None:
-        try:
-            with warnings.catch_warnings(record=True) as caught:
-                warnings.simplefilter("always")
-                value = fn(i)
-            said = [(w.message, w.category, w.filename, w.lineno) for w in caught]
-            results.put((i, True, (value, said)))
-        except BaseException as exc:
-            results.put((i, False, _picklable(exc)))
+        ok, payload = _captured(fn, i)
+        results.put((i, ok, payload))
+        if not ok:
             break
     results.close()
     results.join_thread()
+
+
+def _start(process: Any) -> None:
+    with warnings.catch_warnings():
+        # Python 3.12+ warns that forking a process with threads may deadlock; ours are idle
+        # library pools (BLAS, numba) and the copies only run the task given.
+        warnings.filterwarnings("ignore", message=r".*use of fork\(\) may lead to deadlocks")
+        process.start()
+
+
+def _captured(fn: Callable[..., Any], *args: Any) -> tuple[bool, Any]:
+    """Run ``fn`` in a forked copy: ``(True, (value, warnings))`` or ``(False, error)``.
+
+    Warnings travel back with the value and are raised again in the calling process
+    (:func:`_deliver`), so work done in a copy warns as it would have here.
+    """
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            value = fn(*args)
+        return True, (value, [(w.message, w.category, w.filename, w.lineno) for w in caught])
+    except BaseException as exc:
+        return False, _picklable(exc)
+
+
+def _deliver(ok: bool, payload: Any) -> Any:
+    """Return a copy's value after raising its warnings here, or raise its error here."""
+    if not ok:
+        raise payload
+    value, said = payload
+    for message, category, filename, lineno in said:
+        warnings.warn_explicit(message, category, filename, lineno)
+    return value
 
 
 def _picklable(exc: BaseException) -> BaseException:
@@ -365,3 +381,83 @@ def _picklable(exc: BaseException) -> BaseException:
     except Exception:
         text = "".join(traceback.format_exception(exc))
         return RuntimeError(f"a task failed in a worker process:\n{text}")
+
+
+class Background:
+    """One piece of work running in a forked copy of this process; :meth:`result` waits.
+
+    Made by :func:`in_background`. Where the work could not be forked it has already run here
+    and :meth:`result` returns (or raises) what it gave.
+    """
+
+    def __init__(self, fn: Callable[[], Any], fork: bool) -> None:
+        self._process = self._conn = None
+        self._outcome: tuple[bool, Any] | None = None
+        if not fork:
+            try:
+                self._outcome = True, (fn(), [])
+            except Exception as exc:
+                self._outcome = False, exc
+            return
+        import multiprocessing as mp
+
+        ctx = mp.get_context("fork")
+        self._conn, child = ctx.Pipe(duplex=False)
+        # Not a daemon: the work may share its own tasks with forked copies (share_tasks).
+        self._process = ctx.Process(target=_send_back, args=(fn, child))
+        _start(self._process)
+        child.close()
+
+    def cancel(self) -> None:
+        """Stop the work if it is still running (when its result will not be asked for)."""
+        if self._outcome is None and self._process is not None:
+            self._process.terminate()
+            self._process.join()
+            self._conn.close()
+            self._outcome = False, RuntimeError("the work was cancelled")
+
+    def result(self) -> Any:
+        """Wait for the work; return its value (its warnings raised here) or raise its error."""
+        if self._outcome is None:
+            try:
+                self._outcome = self._conn.recv()
+            except EOFError:
+                self._process.join()
+                code = self._process.exitcode
+                self._outcome = (
+                    False,
+                    RuntimeError(
+                        f"a worker process stopped (exit code {code}) before finishing its task"
+                    ),
+                )
+            finally:
+                self._conn.close()
+                if self._process.is_alive():
+                    self._process.join()
+        ok, payload = self._outcome
+        value = _deliver(ok, payload)  # raises the work's error, or its warnings, here
+        self._outcome = True, (value, [])  # asked again: the value, warnings not repeated
+        return value
+
+
+def in_background(fn: Callable[[], Any], *, workers: int = 2) -> Background:
+    """Start ``fn()`` in a forked copy of this process while this one goes on.
+
+    For a long step whose inputs are ready and whose output is needed later (the forecast
+    while the other analyses run; the bundle's tables and layers while the figures are
+    drawn). With ``workers`` below 2 or where forking is unsafe (not Linux), ``fn`` runs here
+    at once. The value must pickle (it comes back over a pipe); warnings are raised here when
+    :meth:`Background.result` is called.
+
+    Examples
+    --------
+    >>> job = in_background(lambda: sum(range(10)))
+    >>> job.result()
+    45
+    """
+    return Background(fn, fork=workers > 1 and _can_fork())
+
+
+def _send_back(fn: Callable[[], Any], conn: Any) -> None:
+    conn.send(_captured(fn))
+    conn.close()

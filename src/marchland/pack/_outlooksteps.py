@@ -82,6 +82,41 @@ def clusters_step(ctx: Any) -> dict[str, Any]:
     return {"clusters": out}
 
 
+def start_forecast(ctx: Any) -> Any:
+    """Start :func:`forecast_step` in a forked copy of this process (``compute.in_background``).
+
+    The filled panel is made here first, so the cluster scan uses the same one without making
+    it again; an error making it is left for the steps to meet and report. Local processes
+    only: with a Dask cluster (whose client does not survive a fork) or one worker, the step
+    runs here at once.
+    """
+    import contextlib
+    import time
+
+    from ..compute import in_background
+
+    with contextlib.suppress(Exception):
+        filled_panel(ctx)
+    ex = _executor(ctx.cfg)
+    workers = ex.workers if ex.backend == "processes" else 1
+
+    def timed() -> tuple[dict[str, Any], float]:
+        t0 = time.perf_counter()
+        return forecast_step(ctx), time.perf_counter() - t0
+
+    return in_background(timed, workers=workers)
+
+
+def finish_forecast(job: Any, alongside: dict[str, float]) -> dict[str, Any]:
+    """Wait for :func:`start_forecast`'s step and record its own seconds in ``alongside``.
+
+    Its errors are raised here, for the run to report as any step's.
+    """
+    fields, seconds = job.result()
+    alongside["forecast"] = round(seconds, 3)
+    return fields
+
+
 def forecast_step(ctx: Any) -> dict[str, Any]:
     """Four-week forecast as of the as-of date from the filled panel, and a lean backtest."""
     pj = _need("projections", "forecast", "backtest_forecast")

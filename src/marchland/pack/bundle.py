@@ -444,7 +444,7 @@ def _versions() -> dict[str, str]:
 #: Files of a bundle holding a value of the moment of the run, and why.
 VARIES_BETWEEN_RUNS = {
     "manifest.json": "the time the bundle was made (created_utc) and the seconds each step "
-    "took (timings_s)",
+    "took (timings_s, alongside_s)",
 }
 
 
@@ -485,6 +485,9 @@ def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str
             **bundle_timings,
             "bundle: manifest": round(time.perf_counter() - started, 3),
         },
+        # Steps that ran in a forked copy while later steps ran here: their own seconds (the
+        # time they were waited for is in timings_s, which adds up to the run).
+        "alongside_s": dict(getattr(result, "alongside", {}) or {}),
         "steps_not_run": dict(result.absent),
         "warnings": list(result.warnings),
         "files": files,

@@ -123,7 +123,11 @@ class MonthResult:
         the config's upper quantile of the forecast 4-week case total
         (:func:`marchland.supplies.plan.affected_quantities`); None without a forecast.
     timings : dict
-        Seconds per step.
+        Seconds per step, in this process: they add up to the run. A step run in a forked copy
+        alongside others (the forecast) counts the time it was waited for.
+    alongside : dict
+        Seconds a step took in a forked copy while the steps after it ran here (not in
+        ``timings``' sum).
     warnings : tuple of str
         Data warnings raised during the run.
     absent : dict
@@ -180,6 +184,7 @@ class MonthResult:
     cluster_significant: tuple[str, ...] = ()
     run_date: pd.Timestamp | None = None
     timings: dict[str, float] = field(default_factory=dict)
+    alongside: dict[str, float] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
     absent: dict[str, str] = field(default_factory=dict)
 
@@ -415,6 +420,7 @@ def run_month(
     cfg = config if isinstance(config, Config) else load_config(config)
     config_s = time.perf_counter() - t0
     run = _Runner(progress)
+    alongside: dict[str, float] = {}
     given = parse_month(month) if month is not None else None
     as_of_ts = pd.Timestamp(as_of) if as_of is not None else None
     if run_date is not None:
@@ -453,13 +459,20 @@ def run_month(
 
         fields.update(run("rates", ctx.rates) or {})
         fields.update(run("nowcast", ctx.nowcast) or {})
-        fields.update(run("hotspots", ctx.hotspots) or {})
-        fields.update(run("spread", ctx.spread) or {})
-        risk = run("border risk", ctx.risk)
-        fields.update(risk or {})
-        fields.update(run("backtest", ctx.backtest) or {})
-        fields.update(run("clusters", lambda: _outlook.clusters_step(ctx)) or {})
-        fields.update(run("forecast", lambda: _outlook.forecast_step(ctx)) or {})
+        # The forecast with its backtest, the longest analysis, needs only the filled panel:
+        # it runs in a forked copy while hotspots, spread, risk and clusters go on here.
+        ahead = _outlook.start_forecast(ctx)
+        try:
+            fields.update(run("hotspots", ctx.hotspots) or {})
+            fields.update(run("spread", ctx.spread) or {})
+            risk = run("border risk", ctx.risk)
+            fields.update(risk or {})
+            fields.update(run("backtest", ctx.backtest) or {})
+            fields.update(run("clusters", lambda: _outlook.clusters_step(ctx)) or {})
+            forecast = run("forecast", lambda: _outlook.finish_forecast(ahead, alongside))
+            fields.update(forecast or {})
+        finally:
+            ahead.cancel()  # a step failed before the forecast was waited for
         fields.update(
             run(
                 "supplies",
@@ -481,6 +494,7 @@ def run_month(
         seed=cfg.region.seed,
         run_date=judged,
         timings=dict(run.timings),
+        alongside=alongside,
         warnings=tuple(dict.fromkeys(messages)),
         absent=dict(run.absent),
         **fields,
