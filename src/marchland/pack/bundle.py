@@ -131,15 +131,35 @@ def _write_all(
         timings[name] = round(time.perf_counter() - t0, 3)
         return value
 
-    tables = timed("bundle: tables", lambda: _write_tables(result, root))
-    timed("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg"))
+    from ..compute import in_background
+    from ._drawing import figure_workers
+
+    def tables_and_layers() -> dict[str, float]:
+        own: dict[str, float] = {}
+        for name, write in (
+            ("bundle: tables", lambda: _write_tables(result, root)),
+            ("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg")),
+        ):
+            t0 = time.perf_counter()
+            write()
+            own[name] = round(time.perf_counter() - t0, 3)
+        return own
+
+    # Tables and layers are written by a forked copy while the figures are drawn (in one
+    # process, in turn, where there is no second CPU or forking is unsafe).
+    side = timed(
+        "bundle: start", lambda: in_background(tables_and_layers, workers=figure_workers(result))
+    )
     token = _PROGRESS.set(progress)
     try:
         figures = timed("bundle: maps", lambda: _write_figures(result, root))
     finally:
         _PROGRESS.reset(token)
-    timed("bundle: report", lambda: _write_report(result, root, figures, tables))
-    _write_manifest(result, root, timings)
+        if "bundle: maps" not in timings:
+            side.cancel()
+    alongside = timed("bundle: tables and layers", side.result)
+    timed("bundle: report", lambda: _write_report(result, root, figures))
+    _write_manifest(result, root, timings, alongside)
 
 
 def _flat(df: pd.DataFrame) -> pd.DataFrame:
@@ -363,9 +383,7 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
     return write_figures(result, root, workers=figure_workers(result), progress=_PROGRESS.get())
 
 
-def _write_report(
-    result: MonthResult, root: Path, figures: Mapping[str, Any], tables: Mapping[str, pd.DataFrame]
-) -> None:
+def _write_report(result: MonthResult, root: Path, figures: Mapping[str, Any]) -> None:
     from ._report import render_report
 
     html = render_report(result, figures)
@@ -448,7 +466,12 @@ VARIES_BETWEEN_RUNS = {
 }
 
 
-def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str, float]) -> None:
+def _write_manifest(
+    result: MonthResult,
+    root: Path,
+    bundle_timings: Mapping[str, float],
+    bundle_alongside: Mapping[str, float] | None = None,
+) -> None:
     # The manifest times itself up to its own writing (hashing every file is most of it).
     started = time.perf_counter()
     cfg = result.config
@@ -487,7 +510,10 @@ def _write_manifest(result: MonthResult, root: Path, bundle_timings: Mapping[str
         },
         # Steps that ran in a forked copy while later steps ran here: their own seconds (the
         # time they were waited for is in timings_s, which adds up to the run).
-        "alongside_s": dict(getattr(result, "alongside", {}) or {}),
+        "alongside_s": {
+            **dict(getattr(result, "alongside", {}) or {}),
+            **dict(bundle_alongside or {}),
+        },
         "steps_not_run": dict(result.absent),
         "warnings": list(result.warnings),
         "files": files,
