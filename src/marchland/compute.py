@@ -8,13 +8,20 @@ and the task list only, never on the backend or the number of workers.
 Backends, by the settings of ``[compute]`` in the config (or ``--scheduler``/``--workers`` on
 the command line):
 
-- nothing set, or ``workers = 1``: the tasks run one after the other in this process;
-- ``workers = N``: N local processes. On Linux these are forked copies of this process
+- ``workers = 1``: the tasks run one after the other in this process;
+- ``workers = N`` (nothing set: the CPUs this process may use): N local processes. On Linux these are forked copies of this process
   (:func:`share_tasks`): they start in milliseconds with everything already imported and
   computed, and nothing is shipped to them. Elsewhere joblib's loky workers, which import the
   stack afresh and are sent the function and data with cloudpickle (seconds to start);
 - ``scheduler = "tcp://host:8786"``: an existing Dask cluster, through ``distributed.Client``.
   We start no scheduler of our own; start one with Dask's own tools.
+
+Two more shapes of parallel work use the same forked copies (and run in this process where
+forking is unsafe or one worker is set): :func:`share_tasks`, tasks of uneven cost that each
+process takes in turn (the month's figures), and :func:`in_background`, one long piece of work
+that runs while this process goes on (the forecast beside the other analyses; the bundle's
+tables and layers beside the figures). A copy's warnings are raised again here and its errors
+raised here, so a run behaves the same with any number of workers.
 
 This module sits low in the layering (it imports only :mod:`marchland.errors`) and imports
 joblib and distributed only when a parallel map is asked for, so ``marchland check`` and
