@@ -9,10 +9,11 @@ Backends, by the settings of ``[compute]`` in the config (or ``--scheduler``/``-
 the command line):
 
 - ``workers = 1``: the tasks run one after the other in this process;
-- ``workers = N`` (nothing set: the CPUs this process may use): N local processes. On Linux these are forked copies of this process
-  (:func:`share_tasks`): they start in milliseconds with everything already imported and
-  computed, and nothing is shipped to them. Elsewhere joblib's loky workers, which import the
-  stack afresh and are sent the function and data with cloudpickle (seconds to start);
+- ``workers = N`` (nothing set: the CPUs this process may use): N local processes. On Linux
+  these are forked copies of this process (:func:`share_tasks`): they start in milliseconds
+  with everything already imported and computed, and nothing is shipped to them. Elsewhere
+  joblib's loky workers, which import the stack afresh and are sent the function and data with
+  cloudpickle (seconds to start);
 - ``scheduler = "tcp://host:8786"``: an existing Dask cluster, through ``distributed.Client``.
   We start no scheduler of our own; start one with Dask's own tools.
 

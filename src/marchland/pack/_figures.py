@@ -316,8 +316,14 @@ def cover_page(result: MonthResult, captions: list[str]) -> Any:
     ]
     fig.text(0.06, 0.74, "\n".join(lines), fontsize=10, va="top", linespacing=1.6)
     pages = [f"{i + 2}. {_page_title(c)}" for i, c in enumerate(captions)]
-    fig.text(0.06, 0.47, "Pages", fontsize=10, fontweight="bold")
-    fig.text(0.06, 0.45, "\n".join(pages), fontsize=7, va="top", linespacing=1.5, color="#2b2925")
+    fig.text(0.06, 0.52, "Pages", fontsize=10, fontweight="bold")
+    # The contents run from 0.50 down to 0.13 of the page, above the caution: a long list gets
+    # a smaller type (never below 5 pt) rather than running into it.
+    room_pt = 0.37 * fig.get_figheight() * 72
+    size = max(5.0, min(7.0, room_pt / (1.5 * max(len(pages), 1))))
+    fig.text(
+        0.06, 0.50, "\n".join(pages), fontsize=size, va="top", linespacing=1.5, color="#2b2925"
+    )
     fig.text(
         0.06,
         0.08,
@@ -335,6 +341,8 @@ def _page_title(caption: str) -> str:
     import re
 
     head = re.split(r"; |\. ", caption.strip(), maxsplit=1)[0].rstrip(".")
+    # A bracket the cut left open ("... (all 5 weeks in") goes with its words.
+    head = re.sub(r",?\s*\([^)]*$", "", head)
     if len(head) > 110:
         head = re.sub(r"\s*\([^)]*\)$", "", head)
     return head if len(head) <= 110 else head[:107].rsplit(" ", 1)[0] + " ..."
