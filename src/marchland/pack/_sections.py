@@ -461,21 +461,7 @@ def left_out_block(left: pd.DataFrame | None) -> str:
             '<h3>Border pairs left out</h3><p class="note">None: every pair of units from '
             "different files within the gap tolerance is a neighbour.</p>"
         )
-    cols = {
-        "unit_a": "unit",
-        "country_a": "country",
-        "unit_b": "unit",
-        "country_b": "country",
-        "gap_m": "gap (m)",
-        "near_shared_m": "facing length (m)",
-        "reason": "why left out",
-    }
-    return (
-        f'<h3>Border pairs left out ({len(left)})</h3><p class="note">{esc(LEFT_OUT_ADVICE)}</p>'
-        + '<div class="scroll">'
-        + table_html(left.round({"gap_m": 0, "near_shared_m": 0}), cols)
-        + "</div>"
-    )
+    return _pairs_block("Border pairs left out", LEFT_OUT_ADVICE, left)
 
 
 SHORT_JOINS_ADVICE = (
@@ -490,6 +476,11 @@ def short_joins_block(short: pd.DataFrame | None) -> str:
     """Render the data section's list of pairs joined on a short facing length (if any)."""
     if short is None or not len(short):
         return ""
+    return _pairs_block("Border pairs joined on a short facing length", SHORT_JOINS_ADVICE, short)
+
+
+def _pairs_block(title: str, advice: str, pairs: pd.DataFrame) -> str:
+    """Render a heading with the count, the advice and the pairs (``LEFT_OUT_COLUMNS`` or some)."""
     cols = {
         "unit_a": "unit",
         "country_a": "country",
@@ -497,11 +488,13 @@ def short_joins_block(short: pd.DataFrame | None) -> str:
         "country_b": "country",
         "gap_m": "gap (m)",
         "near_shared_m": "facing length (m)",
+        "reason": "why left out",
     }
+    cols = {k: v for k, v in cols.items() if k in pairs.columns}
     return (
-        f"<h3>Border pairs joined on a short facing length ({len(short)})</h3>"
-        f'<p class="note">{esc(SHORT_JOINS_ADVICE)}</p><div class="scroll">'
-        + table_html(short.round({"gap_m": 0, "near_shared_m": 0}), cols)
+        f'<h3>{esc(title)} ({len(pairs)})</h3><p class="note">{esc(advice)}</p>'
+        + '<div class="scroll">'
+        + table_html(pairs.round({"gap_m": 0, "near_shared_m": 0}), cols)
         + "</div>"
     )
 
