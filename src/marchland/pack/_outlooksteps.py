@@ -29,6 +29,12 @@ FORECAST_CONF = 0.9
 BACKTEST_STEP_WEEKS = 2
 BACKTEST_SPAN_WEEKS = 26
 BACKTEST_PATHS = 200
+# Each origin refits the model on every unit, so a continent's month has fewer origins: at
+# most this many unit-origins (13 origins every 2 weeks up to 2,000 units; 3 origins every 8
+# weeks from 8,667 units on), never fewer than 3. At 10,000 units three origins still score
+# 30,000 unit-weeks per horizon; each origin there costs about 16 s of CPU (RESULTS.md).
+BACKTEST_UNIT_ORIGINS = 26_000
+BACKTEST_MIN_ORIGINS = 3
 PANEL_SOURCE = (
     "nowcast-filled panel (recent weeks scaled for late reports, "
     "unreported unit-weeks imputed from the unit's share of its country)"
@@ -142,13 +148,34 @@ def forecast_step(ctx: Any) -> dict[str, Any]:
     }
 
 
+def backtest_origins(n_units: int) -> tuple[int, int]:
+    """Return the month's backtest origins and the weeks between them, for ``n_units`` units.
+
+    13 origins every 2 weeks while ``n_units`` x 13 stays within ``BACKTEST_UNIT_ORIGINS``;
+    beyond, as many as fit (never fewer than ``BACKTEST_MIN_ORIGINS``) spread over the same
+    26 weeks.
+
+    Examples
+    --------
+    >>> backtest_origins(196), backtest_origins(5_000), backtest_origins(50_000)
+    ((13, 2), (5, 5), (3, 8))
+    """
+    most = BACKTEST_SPAN_WEEKS // BACKTEST_STEP_WEEKS
+    n = min(most, max(BACKTEST_MIN_ORIGINS, BACKTEST_UNIT_ORIGINS // max(n_units, 1)))
+    return n, max(BACKTEST_STEP_WEEKS, BACKTEST_SPAN_WEEKS // n)
+
+
 def backtest_summary(ctx: Any, pj: Any) -> pd.DataFrame:
-    """Backtest at every 2nd week of the last 26 (origins one lag after each week ended)."""
+    """Backtest at every 2nd week of the last 26 (origins one lag after each week ended).
+
+    With many units there are fewer origins, further apart (:func:`backtest_origins`).
+    """
     weeks = pd.DatetimeIndex(sorted(ctx.counts["week"].unique()))
     last = weeks.max() - FORECAST_HORIZON_WEEKS * pd.Timedelta(weeks=1)
     first_ok = weeks.min() + 8 * pd.Timedelta(weeks=1)  # the model's fitting window
     start = max(first_ok, last - (BACKTEST_SPAN_WEEKS - 1) * pd.Timedelta(weeks=1))
-    cand = pd.date_range(end=last, periods=BACKTEST_SPAN_WEEKS // BACKTEST_STEP_WEEKS, freq="14D")
+    n, step = backtest_origins(len(ctx.units))
+    cand = pd.date_range(end=last, periods=n, freq=f"{7 * step}D")
     cand = cand[cand >= start]
     lag = pd.Timedelta(days=7 + ctx.cfg.region.as_of_lag_days)
     # The origins run on the [compute] executor (one seed per origin: the same table for any
@@ -166,7 +193,7 @@ def backtest_summary(ctx: Any, pj: Any) -> pd.DataFrame:
             executor=ex,
         )
     bt.attrs["origins"] = (
-        f"{len(cand)} origins, every {BACKTEST_STEP_WEEKS} weeks from {cand.min():%Y-%m-%d} "
+        f"{len(cand)} origins, every {step} weeks from {cand.min():%Y-%m-%d} "
         f"to {cand.max():%Y-%m-%d}, {BACKTEST_PATHS} paths each"
         if len(cand)
         else "no origin"
