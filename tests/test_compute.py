@@ -96,7 +96,7 @@ def test_monthly_backtest_step_runs_on_the_configs_executor(monkeypatch, compute
     cfg = load_config(scenario_path())
     cfg = dataclasses.replace(cfg, compute=dataclasses.replace(cfg.compute, **compute))
     ctx = types.SimpleNamespace(
-        cfg=cfg, counts=None, units=None, graph=None, as_of=None, covariates=None
+        cfg=cfg, counts=None, units=[], graph=None, as_of=None, covariates=None
     )
     assert _Context.backtest(ctx) == {"backtest": "s", "backtest_by_country": "c"}
     assert seen["backend"] == backend

@@ -449,6 +449,21 @@ def test_backtest_outcome_is_a_case_within_the_horizon(sim):
     np.testing.assert_array_equal(p["outcome"].to_numpy(), first <= end)
 
 
+def test_backtest_every_kth_origin_keeps_the_latest_and_its_predictions(sim):
+    # A continent's month takes every k-th default origin, counted back from the last: the
+    # origins kept are the same weeks, with the same predictions, as in the weekly backtest.
+    full = run_backtest(sim.counts, sim.units, sim.graph)
+    third = run_backtest(sim.counts, sim.units, sim.graph, every_weeks=3)
+    weeks = np.sort(full.predictions["origin"].unique())
+    kept = np.sort(third.predictions["origin"].unique())
+    np.testing.assert_array_equal(kept, weeks[::-1][::3][::-1])
+    a = full.predictions[full.predictions["origin"].isin(kept)].reset_index(drop=True)
+    b = third.predictions.reset_index(drop=True)
+    pd.testing.assert_frame_equal(a[b.columns], b)
+    with pytest.raises(InputError, match="every_weeks"):
+        run_backtest(sim.counts, sim.units, sim.graph, every_weeks=0)
+
+
 def test_backtest_origin_outside_the_data_is_an_input_error(sim):
     with pytest.raises(InputError, match="origins"):
         backtest_risk(sim.counts, sim.units, sim.graph, origins=["2030-01-01"])

@@ -36,6 +36,11 @@ def _need(module: str, *names: str) -> Any:
     return mod
 
 
+#: Units per week between the month's border-risk backtest origins (see ``_Context.backtest``):
+#: at 10,000 units every 5th week (69 origins took 44 s of CPU at every week; RESULTS.md).
+RISK_BACKTEST_UNITS = 2_000
+
+
 def _executor(cfg: Config) -> Any:
     """Return the executor of ``[compute]`` (serial, local processes or a Dask cluster)."""
     from ..compute import get_executor
@@ -256,6 +261,9 @@ class _Context:
         # self.counts already stops at as_of; passing it too keeps the origins' last week
         # the same as the risk step's.
         # The origins run where [compute] says: here, local processes or a Dask cluster.
+        # Every origin refits the model on every unit: a continent's month takes every k-th
+        # origin week (k = units // RISK_BACKTEST_UNITS; the demo and up to 3,999 units: all).
+        every = max(1, len(self.units) // RISK_BACKTEST_UNITS)
         with _executor(self.cfg) as ex:
             bt = rk.run_backtest(
                 self.counts,
@@ -265,6 +273,7 @@ class _Context:
                 top_k=c.top_k,
                 executor=ex,
                 covariates=self.covariates,
+                every_weeks=every,
                 **risk_options(c),
             )
         return {"backtest": bt.summary, "backtest_by_country": bt.by_country}

@@ -220,6 +220,7 @@ def run(
     executor: Executor,
     as_of: object,
     forecast: tuple | None = None,
+    every_weeks: int = 1,
 ) -> Backtest:
     """Run the backtest on checked inputs (see ``marchland.risk.score.run_backtest``).
 
@@ -259,6 +260,7 @@ def run(
         if not len(any_case):
             return empty
         idx = list(range(int(any_case[0]) + min_history_weeks, last + 1))
+        idx = idx[::-1][::every_weeks][::-1]  # every k-th, the latest kept
     else:
         ts = pd.DatetimeIndex(pd.to_datetime(list(origins)))
         idx = sorted({_complete_week(grid, d + pd.Timedelta(days=6)) for d in ts})

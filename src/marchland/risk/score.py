@@ -287,6 +287,7 @@ def run_backtest(
     forecast_paths: int = 0,
     seed: int | None = None,
     executor: Executor | None = None,
+    every_weeks: int = 1,
 ) -> Backtest:
     """Rolling-origin backtest with the by-country and by-origin breakdowns.
 
@@ -306,6 +307,9 @@ penalty, min_cases, covariates
         Origin weeks (any day within the week); default every week from ``min_history_weeks``
         after the first reported case to ``horizon_weeks`` before the last reported week.
     min_history_weeks : int, default 8
+    every_weeks : int, default 1
+        With the default origins, take every ``every_weeks``-th of them, counted back from the
+        last (a continent's month: each origin refits the model on every unit).
     report_lag_days : int, default 3
         Days after an origin week's end at which the data are taken as known.
     top_k : int, default 10
@@ -355,6 +359,8 @@ penalty, min_cases, covariates
     _check_options(horizon_weeks, recent_weeks, min_events, penalty)
     if not isinstance(top_k, (int, np.integer)) or top_k < 1:
         raise InputError(f"'top_k' needs to be a whole number >= 1. {top_k!r} was given instead.")
+    if not isinstance(every_weeks, (int, np.integer)) or every_weeks < 1:
+        raise InputError(f"'every_weeks' needs to be a whole number >= 1; {every_weeks!r} given.")
     if not isinstance(n_jobs, (int, np.integer)) or n_jobs == 0:
         raise InputError(f"'n_jobs' needs to be a non-zero whole number. {n_jobs!r} given.")
     if executor is None:
@@ -378,6 +384,7 @@ penalty, min_cases, covariates
         executor=executor,
         as_of=as_of,
         forecast=(units, graph, int(forecast_paths), seed) if forecast_paths else None,
+        every_weeks=every_weeks,
     )
 
 
