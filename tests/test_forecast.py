@@ -38,38 +38,72 @@ def sim():
 
 
 # --- parameter recovery ------------------------------------------------------------------------
-def test_parameter_recovery_interval_coverage():
+TRUE_BY_COUNTRY = {**{k: v for k, v in TRUE.items() if k != "psi"}, "psi_C0": 1.5, "psi_C1": 6.0}
+
+
+@pytest.mark.parametrize(
+    ("dispersion", "truth"),
+    [("shared", TRUE), ("country", TRUE_BY_COUNTRY)],
+    ids=["shared", "country"],
+)
+def test_parameter_recovery_interval_coverage(dispersion, truth):
     # 50 seeded outbreaks on a 10 x 10 lattice (100 units, 16 weeks): the 95 % Wald intervals
-    # from the Hessian must cover the true values in 90-98 % of fits, pooled over 5 parameters.
+    # from the Hessian must cover the true values in 90-98 % of fits, pooled over the
+    # parameters (one size shared by all units, or one per country of the lattice).
     units, g = lattice(10)
     bg = as_border_graph(g, countries=units["country"])
     ids = units.index
     orders = OrderMatrix.from_graph(bg, ids, 5)
     e = units["population"].to_numpy() / 100_000
+    psi = truth["psi"] if dispersion == "shared" else {"C0": 1.5, "C1": 6.0}
+    spec = ModelSpec(dispersion=dispersion)
     covered = []
     for seed in range(50):
         s = simulate_outbreak(
             10,
             16,
             seed=seed,
-            lam=TRUE["lambda"],
-            intercept=TRUE["intercept"],
-            phi=TRUE["phi"],
-            d=TRUE["d"],
-            psi=TRUE["psi"],
+            lam=truth["lambda"],
+            intercept=truth["intercept"],
+            phi=truth["phi"],
+            d=truth["d"],
+            psi=psi,
         )
+        assert s.truth == truth
         block = s.panel.to_numpy(dtype=float)
-        prob = Problem.build(
-            block, e, np.zeros((100, 0)), week_angles(s.panel.columns[1:]), orders, ModelSpec()
-        )
+        angles = week_angles(s.panel.columns[1:])
+        groups = units["country"].to_numpy()
+        prob = Problem.build(block, e, np.zeros((100, 0)), angles, orders, spec, (), groups)
         table = prob.fit().table(0.95)
+        assert set(table.index) == set(truth)
         covered.append(
-            [table.loc[k, "lower"] <= v <= table.loc[k, "upper"] for k, v in TRUE.items()]
+            [table.loc[k, "lower"] <= v <= table.loc[k, "upper"] for k, v in truth.items()]
         )
     covered = np.array(covered)
-    print("recovery coverage per parameter:", dict(zip(TRUE, covered.mean(axis=0), strict=True)))
+    print("recovery coverage per parameter:", dict(zip(truth, covered.mean(axis=0), strict=True)))
     assert 0.90 <= covered.mean() <= 0.98
     assert (covered.mean(axis=0) >= 0.8).all()
+
+
+def test_small_countries_share_one_size():
+    # A country with fewer than MIN_NONZERO_PER_SIZE non-zero counts in the window shares one
+    # size with the other such countries; if together they still have too few, they join the
+    # busiest country; when none has enough, all units share one size.
+    from marchland.projections._model import MIN_NONZERO_PER_SIZE, size_groups
+
+    n = MIN_NONZERO_PER_SIZE
+    labels = np.array(["A", "A", "B", "C", "D"])
+    unit = np.repeat(np.arange(5), n)
+    y = np.ones(len(unit))
+    y[np.flatnonzero(unit == 2)[n // 2 :]] = 0  # B: n/2 non-zero
+    y[np.flatnonzero(unit == 3)[n // 2 :]] = 0  # C: n/2 non-zero, B+C: n
+    codes, names = size_groups(labels, y, unit)
+    assert names == ("A", "D", "B+C") and codes.tolist() == [0, 0, 2, 2, 1]
+    y[unit == 3] = 0  # B+C: n/2, too few together: they join A (2n non-zero, the busiest)
+    codes, names = size_groups(labels, y, unit)
+    assert names == ("A+B+C", "D") and codes.tolist() == [0, 0, 0, 0, 1]
+    codes, names = size_groups(labels, np.where(unit == 2, y, 0.0), unit)  # only B has any
+    assert names == ("all",) and codes.tolist() == [0, 0, 0, 0, 0]
 
 
 # --- the forecast object -----------------------------------------------------------------------
@@ -101,10 +135,12 @@ def test_forecast_table_and_parameters(sim):
     np.testing.assert_allclose(t["mean"], f.paths.mean(axis=2).ravel())
     assert list(f.parameters.columns[:4]) == ["estimate", "lower", "upper", "se"]
     # True values inside the 95 % intervals on this seed (a single fit; recovery test above
-    # checks the rate).
-    for k, v in TRUE.items():
-        if k != "lambda":
-            assert f.parameters.loc[k, "lower"] <= v <= f.parameters.loc[k, "upper"], k
+    # checks the rate). One size per country by default; both countries' true size is 3.
+    truth = {k: v for k, v in TRUE.items() if k not in ("lambda", "psi")}
+    truth.update(psi_C0=TRUE["psi"], psi_C1=TRUE["psi"])
+    assert set(truth) <= set(f.parameters.index)
+    for k, v in truth.items():
+        assert f.parameters.loc[k, "lower"] <= v <= f.parameters.loc[k, "upper"], k
 
 
 def test_aggregate_sums_paths_not_intervals(sim):
@@ -197,6 +233,17 @@ def test_too_few_weeks_names_the_minimum(sim):
         forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), window_weeks=3)
 
 
+def test_dispersion_option(sim):
+    shared = forecast(
+        sim.counts, sim.units, sim.graph, as_of=_as_of(sim), n_paths=50, dispersion="shared"
+    )
+    assert [p for p in shared.parameters.index if p.startswith("psi")] == ["psi"]
+    with pytest.raises(ValueError, match="'dispersion' needs to be one of"):
+        forecast(sim.counts, sim.units, sim.graph, as_of=_as_of(sim), dispersion="unit")
+    with pytest.raises(ValueError, match="'dispersion' needs to be one of"):
+        backtest_forecast(sim.counts, sim.units, sim.graph, dispersion="Country")
+
+
 def test_unit_missing_from_graph_and_bad_population(sim):
     extra = sim.units.iloc[:1].rename(index={sim.units.index[0]: "ZZZ"})
     with pytest.raises(ValueError, match="graph must hold every unit"):
@@ -223,8 +270,9 @@ def test_backtest_on_simulated_outbreak_beats_baselines():
         assert (
             at["endemic-epidemic"] < at["last-week"] and at["endemic-epidemic"] < at["mean-4-weeks"]
         ), h
-    cov = a.loc["endemic-epidemic", "coverage"]
-    assert cov.between(0.85, 0.95).all()
+    cov = a.loc["endemic-epidemic", ["coverage", "coverage_pit"]]
+    assert cov["coverage"].between(0.85, 0.95).all()
+    assert cov["coverage_pit"].between(0.85, 0.95).all()
 
 
 def test_backtest_same_for_any_number_of_workers():
@@ -246,11 +294,16 @@ def test_backtest_same_for_any_number_of_workers():
     pd.testing.assert_frame_equal(serial, backwards)
 
 
-def test_demo_month_backtest_beats_last_week_at_horizons_2_to_4():
+def test_demo_month_backtest_beats_both_baselines_and_is_calibrated():
     # The month's own backtest (pack._outlooksteps.backtest_summary: 13 origins every 2 weeks,
     # 200 paths, the config's seed) on the demo as known for 2026-10: the model's mean CRPS is
-    # below the last week carried forward at 2 to 4 weeks ahead. At 1 week ahead the two are
-    # close (the last week is a strong predictor one step on), so it is not asserted.
+    # below the last week carried forward and the 4-week mean at 1 to 4 weeks ahead (with one
+    # size per country; one shared size lost nothing at 2-4 weeks but was within 2 % of the
+    # last week at 1). The 90 % intervals hold 85-95 % of the randomised PIT (the
+    # discreteness-free coverage of Czado, Gneiting and Held 2009). Raw coverage is higher
+    # (about 96 % at 1-2 weeks: two outcomes in three are 0, and a central interval of a
+    # count forecast with much mass at 0 holds over 90 % by construction; the forecasts' own
+    # samples put 97 % in these intervals), so only its lower side is asserted.
     import types
 
     import marchland.demo as demo
@@ -275,5 +328,10 @@ def test_demo_month_backtest_beats_last_week_at_horizons_2_to_4():
         .pivot(index="horizon", columns="model", values="crps")
     )
     print(a.round(3).to_string())
-    for h in (2, 3, 4):
+    for h in (1, 2, 3, 4):
         assert a.loc[h, "endemic-epidemic"] < a.loc[h, "last-week"], h
+        assert a.loc[h, "endemic-epidemic"] < a.loc[h, "mean-4-weeks"], h
+    model = bt.loc["endemic-epidemic"].query("country == 'all'").set_index("horizon")
+    print(model[["coverage", "coverage_expected", "coverage_pit"]].round(3).to_string())
+    assert model["coverage_pit"].between(0.85, 0.95).all()
+    assert (model["coverage"] >= 0.85).all()

@@ -127,6 +127,26 @@ def test_rate_classes_match_mapclassify_fisher_jenks():
     np.testing.assert_allclose(ours, ref)
 
 
+@pytest.mark.parametrize(
+    ("dataset", "column"),
+    [("columbus", "CRIME"), ("sids2", "SIDR79"), ("baltim", "PRICE"), ("sids2", "NWR74")],
+)
+@pytest.mark.parametrize("k", [3, 5, 7])
+def test_natural_breaks_equal_mapclassify_on_libpysal_data(dataset, column, k):
+    # Outside implementation and open data: mapclassify.FisherJenks on columns of datasets
+    # libpysal ships (columbus crime, North Carolina SIDS rates, Baltimore house prices); the
+    # rounded copy has many ties, where both keep the longest last class.
+    from libpysal import examples
+
+    from marchland.figures._mapclass import natural_breaks
+
+    col = gpd.read_file(examples.get_path(f"{dataset}.shp"))[column].to_numpy(dtype=float)
+    for x in (np.sort(col), np.sort(col.round(0))):
+        ours = natural_breaks(x, k)
+        ref = mapclassify.FisherJenks(x, k=k).bins
+        np.testing.assert_allclose(ours, ref, rtol=1e-12)
+
+
 def test_rate_classes_thinned_are_deterministic_and_span_the_data():
     x = np.random.default_rng(6).lognormal(2, 1.5, 3000)
     a, b = maps.rate_classes(x), maps.rate_classes(x[::-1])

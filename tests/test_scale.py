@@ -142,15 +142,15 @@ def test_geoparquet_boundaries_read_like_the_geopackage(tmp_path):
 
 
 def test_province_cap_keeps_the_provinces_with_most_cases():
-    from marchland.pack._figures import _most_cases
+    from marchland.pack._steps import busiest
 
     weeks = pd.date_range("2026-01-05", periods=3, freq="7D")
     per = {
         f"P{i:02d}": pd.DataFrame({"cases": [i, np.nan, 1.0], "deaths": 0.0}, index=weeks)
         for i in range(20)
     }
-    assert _most_cases(sorted(per), per, 3) == ["P17", "P18", "P19"]
-    assert _most_cases(["P01", "P02"], per, 3) == ["P01", "P02"]
+    assert busiest(sorted(per), per, "cases", 3) == ["P17", "P18", "P19"]
+    assert busiest(["P01", "P02"], per, "cases", 3) == ["P01", "P02"]
 
 
 def test_cli_progress_bar_counts_on_a_terminal_only():

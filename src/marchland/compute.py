@@ -9,8 +9,10 @@ Backends, by the settings of ``[compute]`` in the config (or ``--scheduler``/``-
 the command line):
 
 - nothing set, or ``workers = 1``: the tasks run one after the other in this process;
-- ``workers = N``: N local worker processes (joblib's loky backend, which ships functions with
-  cloudpickle and reuses its workers between calls);
+- ``workers = N``: N local processes. On Linux these are forked copies of this process
+  (:func:`share_tasks`): they start in milliseconds with everything already imported and
+  computed, and nothing is shipped to them. Elsewhere joblib's loky workers, which import the
+  stack afresh and are sent the function and data with cloudpickle (seconds to start);
 - ``scheduler = "tcp://host:8786"``: an existing Dask cluster, through ``distributed.Client``.
   We start no scheduler of our own; start one with Dask's own tools.
 
@@ -23,6 +25,8 @@ from __future__ import annotations
 
 import os
 import re
+import sys
+import warnings
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from typing import Any
@@ -31,7 +35,7 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor"]
+__all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor", "share_tasks"]
 
 #: Accepted scheduler addresses: a Dask network protocol, a host and an optional port (or an
 #: in-process ``inproc://`` address, as a ``LocalCluster(processes=False)`` has).
@@ -99,6 +103,11 @@ class Executor:
         return "processes" if self.workers > 1 else "serial"
 
     @property
+    def forks(self) -> bool:
+        """Whether local workers are forked copies of this process (cheap to start)."""
+        return self.backend == "processes" and _can_fork()
+
+    @property
     def parallelism(self) -> int:
         """Tasks that can run at once (Dask: the cluster's worker threads)."""
         if self.scheduler is None:
@@ -131,9 +140,11 @@ class Executor:
         if self.backend == "serial" or len(items) < 2:
             return [fn(item, *args) for item in items]
         if self.backend == "processes":
+            k = min(self.workers, len(items))
+            if self.forks:
+                return share_tasks(lambda i: fn(items[i], *args), len(items), workers=k)
             from joblib import Parallel, delayed
 
-            k = min(self.workers, len(items))
             return list(Parallel(n_jobs=k, backend="loky")(delayed(fn)(i, *args) for i in items))
         client = self._connect()
         shared = [client.scatter(a, broadcast=True) for a in args]
@@ -196,3 +207,161 @@ def get_executor(
     sched = scheduler if scheduler is not None else getattr(compute, "scheduler", None)
     n = workers if workers is not None else getattr(compute, "workers", None)
     return Executor(scheduler=sched or None, workers=default_workers() if n is None else int(n))
+
+
+def share_tasks(
+    fn: Callable[[int], Any],
+    n: int,
+    *,
+    workers: int,
+    done: Callable[[int, int], None] | None = None,
+) -> list[Any]:
+    """Return ``[fn(0), ..., fn(n - 1)]``, computed here and in ``workers - 1`` forked copies.
+
+    For work that needs what this process holds in memory (a month's results, figures that
+    do not pickle) and whose tasks differ in cost: each process takes the next task nobody has
+    taken (one shared counter), so a long task does not hold the others up. The copies are
+    made by ``fork``, so they start at once with everything already imported and computed;
+    :class:`Executor`'s workers would import the stack afresh and be sent the data. Where
+    ``fork`` is not the platform's safe choice (Windows, macOS) or one worker is asked for, the
+    tasks run here one after the other; results are the same either way.
+
+    Parameters
+    ----------
+    fn : callable
+        ``fn(i)`` runs task ``i``; its result must pickle and should be small (it travels back
+        over a pipe): write large outputs to files.
+    n : int
+        Number of tasks.
+    workers : int
+        Processes in all, this one included.
+    done : callable, optional
+        Called here as ``done(finished, n)`` whenever this process learns of a finished task.
+
+    Returns
+    -------
+    list
+        Results in task order.
+
+    Raises
+    ------
+    Exception
+        The first error a task raised, in whichever process it ran.
+
+    Examples
+    --------
+    >>> share_tasks(lambda i: i * i, 5, workers=2)
+    [0, 1, 4, 9, 16]
+    """
+    forking = workers > 1 and n > 1 and _can_fork()
+    if not forking:
+        out = []
+        for i in range(n):
+            out.append(fn(i))
+            if done is not None:
+                done(i + 1, n)
+        return out
+    import multiprocessing as mp
+    import queue as queue_mod
+
+    ctx = mp.get_context("fork")
+    counter = ctx.Value("i", 0)
+    results = ctx.Queue()
+    procs = [
+        ctx.Process(target=_take_tasks, args=(fn, n, counter, results), daemon=True)
+        for _ in range(min(workers, n) - 1)
+    ]
+    with warnings.catch_warnings():
+        # Python 3.12+ warns that forking a process with threads may deadlock; ours are idle
+        # library pools (BLAS, numba) and the copies only run ``fn``.
+        warnings.filterwarnings("ignore", message=r".*use of fork\(\) may lead to deadlocks")
+        for p in procs:
+            p.start()
+    got: dict[int, Any] = {}
+
+    def receive(value: tuple[int, bool, Any]) -> None:
+        i, ok, payload = value
+        if not ok:
+            raise payload
+        got[i], said = payload
+        for message, category, filename, lineno in said:
+            warnings.warn_explicit(message, category, filename, lineno)
+        if done is not None:
+            done(len(got), n)
+
+    try:
+        while (i := _next_task(counter, n)) is not None:
+            receive((i, True, (fn(i), [])))
+            while True:
+                try:
+                    receive(results.get_nowait())
+                except queue_mod.Empty:
+                    break
+        while len(got) < n:
+            try:
+                receive(results.get(timeout=1.0))
+            except queue_mod.Empty:
+                dead = [p for p in procs if p.exitcode not in (None, 0)]
+                if dead:
+                    raise RuntimeError(
+                        f"a worker process stopped (exit code {dead[0].exitcode}) before "
+                        "finishing its task"
+                    ) from None
+    finally:
+        for p in procs:
+            if len(got) < n:
+                p.terminate()
+            p.join()
+        results.close()
+    return [got[i] for i in range(n)]
+
+
+def _can_fork() -> bool:
+    """Return whether work may be shared with forked copies of this process.
+
+    Linux only: macOS's system libraries are not fork-safe and Windows cannot fork. Numba's
+    parallel kernels (the cluster scan) must not run in a copy (their thread pool does not
+    survive a fork); no task shared this way calls them.
+    """
+    return sys.platform.startswith("linux")
+
+
+def _next_task(counter: Any, n: int) -> int | None:
+    with counter.get_lock():
+        i = counter.value
+        if i >= n:
+            return None
+        counter.value = i + 1
+    return i
+
+
+def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any) -> None:
+    """Take tasks until none is left, sending back each result or the error (a forked copy).
+
+    Warnings a task raises travel back with its result and are raised again in the calling
+    process, so a shared run warns as a serial one does.
+    """
+    while (i := _next_task(counter, n)) is not None:
+        try:
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                value = fn(i)
+            said = [(w.message, w.category, w.filename, w.lineno) for w in caught]
+            results.put((i, True, (value, said)))
+        except BaseException as exc:
+            results.put((i, False, _picklable(exc)))
+            break
+    results.close()
+    results.join_thread()
+
+
+def _picklable(exc: BaseException) -> BaseException:
+    import pickle
+    import traceback
+
+    try:
+        pickle.loads(pickle.dumps(exc))
+        return exc
+    except Exception:
+        text = "".join(traceback.format_exception(exc))
+        return RuntimeError(f"a task failed in a worker process:\n{text}")

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pytest
 import statsmodels.api as sm
 from scipy import sparse, stats
 from scipy.sparse import csgraph
@@ -26,7 +27,7 @@ from marchland.projections._synthetic import lattice, simulate_outbreak
 from marchland.projections._weights import OrderMatrix
 
 
-def _problem(sim, spec, z=None):
+def _problem(sim, spec, z=None, groups=None):
     bg = as_border_graph(sim.graph, countries=sim.units["country"])
     ids = sim.units.index
     e = sim.units["population"].to_numpy() / 100_000
@@ -34,16 +35,32 @@ def _problem(sim, spec, z=None):
     names = tuple(f"z{k}" for k in range(z.shape[1]))
     angles = week_angles(sim.panel.columns[1:])
     prob = Problem.build(
-        sim.panel.to_numpy(float), e, z, angles, OrderMatrix.from_graph(bg, ids, 5), spec, names
+        sim.panel.to_numpy(float),
+        e,
+        z,
+        angles,
+        OrderMatrix.from_graph(bg, ids, 5),
+        spec,
+        names,
+        groups,
     )
     return prob, e, z, angles
 
 
-def test_loglik_equals_scipy_nbinom_with_means_by_hand():
-    sim = simulate_outbreak(8, 20, seed=3)
-    prob, e, _, _ = _problem(sim, ModelSpec())
+@pytest.mark.parametrize("dispersion", ["shared", "country"])
+def test_loglik_equals_scipy_nbinom_with_means_by_hand(dispersion):
+    # One size for all units, or one per country (C0 left half of the lattice, C1 right half).
+    sim = simulate_outbreak(8, 20, seed=3, psi={"C0": 1.5, "C1": 6.0})
+    country = sim.units["country"].to_numpy()
+    prob, e, _, _ = _problem(sim, ModelSpec(dispersion=dispersion), groups=country)
     fit = prob.fit()
-    lam, phi, d, psi = (fit.value(k) for k in ("log_lambda", "log_phi", "log_d", "log_psi"))
+    lam, phi, d = (fit.value(k) for k in ("log_lambda", "log_phi", "log_d"))
+    if dispersion == "shared":
+        psi = np.full(len(country), fit.value("log_psi"))
+    else:
+        psi = np.where(country == "C0", fit.value("log_psi_C0"), fit.value("log_psi_C1"))
+        assert fit.value("log_psi_C0") < fit.value("log_psi_C1")  # truth 1.5 < 6
+    psi = psi[:, None]
     # Graph orders from scipy's all-pairs shortest paths on the libpysal adjacency (dense: small).
     adj = sim.graph.sparse
     order = csgraph.shortest_path(adj, unweighted=True, directed=False)
@@ -57,12 +74,13 @@ def test_loglik_equals_scipy_nbinom_with_means_by_hand():
 
 
 def test_endemic_only_fit_equals_statsmodels_negative_binomial():
-    # statsmodels.discrete.discrete_model.NegativeBinomial (NB2) with offset log e.
+    # statsmodels.discrete.discrete_model.NegativeBinomial (NB2) with offset log e: one size
+    # shared by all units (the "shared" dispersion), as statsmodels has.
     sim = simulate_outbreak(8, 20, seed=5, lam=0.4, phi=0.2)
     rng = np.random.default_rng(0)
     z = rng.normal(size=(len(sim.units), 1))
-    spec = ModelSpec(autoregressive=False, neighbourhood=False, seasonal=True)
-    prob, e, z, angles = _problem(sim, spec, z)
+    spec = ModelSpec(autoregressive=False, neighbourhood=False, seasonal=True, dispersion="shared")
+    prob, e, z, angles = _problem(sim, spec, z, groups=sim.units["country"].to_numpy())
     fit = prob.fit(("z0",))
     y = sim.panel.to_numpy(float)[:, 1:]
     x = endemic_design(angles, z, True)
@@ -107,7 +125,8 @@ def test_sample_crps_equals_scoringrules():
 
 def test_pit_is_uniform_for_data_from_the_model():
     # Czado, Gneiting & Held (2009): randomised PIT of calibrated count forecasts is U(0, 1).
-    sim = simulate_outbreak(10, 34, seed=21)
+    # Data with one size per country, forecast with the default per-country sizes.
+    sim = simulate_outbreak(10, 34, seed=21, psi={"C0": 1.5, "C1": 6.0})
     det = backtest_forecast(
         sim.counts,
         sim.units,
@@ -132,3 +151,39 @@ def test_lattice_graph_is_queen_contiguity():
     ours = {i: sorted(units.index.get_indexer(g[u].index)) for i, u in enumerate(units.index)}
     assert all(ours[i] == sorted(ref.neighbors[i]) for i in range(36))
     assert pd.Index(units.index).is_unique
+
+
+def test_pit_interval_share_has_expectation_conf_under_the_true_distribution():
+    # Czado, Gneiting & Held (2009): the non-randomised PIT of y drawn from F is uniform, so the
+    # share of it in [0.05, 0.95], averaged over y with scipy.stats.nbinom's pmf, is exactly 0.9,
+    # whereas the central 90 % interval of the same distribution covers more (its mass at 0).
+    from marchland.projections._scores import pit_interval_share
+
+    k = np.arange(0, 2000)
+    for mu, psi in ((0.2, 0.5), (1.5, 3.0), (40.0, 1.2)):
+        dist = stats.nbinom(psi, psi / (psi + mu))
+        share = pit_interval_share(dist.cdf(k - 1), dist.cdf(k), 0.9)
+        np.testing.assert_allclose(np.sum(dist.pmf(k) * share), 0.9, atol=1e-9)
+        lo, hi = dist.ppf(0.05), dist.ppf(0.95)
+        raw = dist.cdf(hi) - dist.cdf(lo - 1)
+        assert raw >= 0.9
+    # A point mass of the PIT (F(y - 1) = F(y)) counts as inside or outside, nothing between.
+    np.testing.assert_array_equal(
+        pit_interval_share(np.array([0.5, 0.99]), np.array([0.5, 0.99]), 0.9), [1.0, 0.0]
+    )
+
+
+@pytest.mark.parametrize("dispersion", ["shared", "country"])
+def test_analytic_gradient_equals_scipy_finite_differences(dispersion):
+    # scipy.optimize.approx_fprime (central differences of the log-likelihood) against the
+    # analytic gradient, away from the optimum, with one size or one per country.
+    from scipy import optimize
+
+    sim = simulate_outbreak(8, 20, seed=3, psi={"C0": 1.5, "C1": 6.0})
+    spec = ModelSpec(dispersion=dispersion)
+    prob, _, _, _ = _problem(sim, spec, groups=sim.units["country"].to_numpy())
+    theta = prob.start() + np.random.default_rng(2).normal(0, 0.2, len(prob.names))
+    analytic = prob.nll_grad(theta)[1]
+    numeric = optimize.approx_fprime(theta, lambda t: -prob.loglik(t), 1e-6)
+    np.testing.assert_allclose(analytic, numeric, rtol=1e-4, atol=1e-3)
+    assert len(prob.names) == (5 if dispersion == "shared" else 6)

@@ -1,7 +1,7 @@
 """Stage 11, figures: result tables and geometry in, matplotlib figures out.
 
-Comes in: GeoDataFrames and tables already computed. Goes out: static maps (classes from
-mapclassify), epi curves. Draws only; imports no analysis stage, so a figure never computes a
+Comes in: GeoDataFrames and tables already computed. Goes out: static maps (Fisher-Jenks
+classes), epi curves. Draws only; imports no analysis stage, so a figure never computes a
 statistic of its own. Uses: errors, config.
 """
 

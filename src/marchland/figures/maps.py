@@ -1,4 +1,4 @@
-"""Static maps and epi curves for the monthly bundle (matplotlib + mapclassify).
+"""Static maps and epi curves for the monthly bundle (matplotlib; Fisher-Jenks classes).
 
 This module draws; it computes no statistic and imports no analysis module. Every function
 takes GeoDataFrames, DataFrames, Series and plain values and returns a matplotlib ``Figure``;
@@ -229,10 +229,10 @@ def rate_classes(
 ) -> np.ndarray:
     """Upper bounds of ``k`` classes for positive rates, shared by every panel that uses them.
 
-    Fisher-Jenks natural breaks (mapclassify) on the pooled positive, finite values. Above 300
-    values the breaks are computed on 300 evenly spaced order statistics of the pooled values:
-    mapclassify's exact Fisher-Jenks is quadratic in n (seconds for a few thousand values
-    without numba) and its sampled variant draws at random; evenly spaced order statistics
+    Fisher-Jenks natural breaks (``_mapclass.natural_breaks``, equal to mapclassify's) on the
+    pooled positive, finite values. Above 300 values the breaks are computed on 300 evenly
+    spaced order statistics of the pooled values: exact Fisher-Jenks is quadratic in n and
+    mapclassify's sampled variant draws at random; evenly spaced order statistics
     are deterministic and keep the shape of the distribution. Zero and missing values are not
     classed here: maps draw them as their own legend entries.
 
@@ -612,7 +612,7 @@ def priority_map(
     return _no_math(fig)
 
 
-def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
+def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> np.ndarray:
     """Write ``fig`` as a PNG at ``dpi`` and, when ``pdf`` (a ``PdfPages``) is given, as a page.
 
     Parameters
@@ -622,6 +622,12 @@ def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
         The PNG to write.
     pdf : matplotlib.backends.backend_pdf.PdfPages, optional
     dpi : int
+
+    Returns
+    -------
+    numpy.ndarray
+        The PNG's pixels (height x width x RGBA, uint8), so a copy in another format needs no
+        second rendering and no decoding.
 
     Examples
     --------
@@ -633,11 +639,18 @@ def save_figure(fig: Figure, path, *, pdf=None, dpi: int = DPI) -> None:
     >>> import pathlib, tempfile
     >>> fig = attack_rate_map(base_map(u), pd.Series({"a": 1.0, "b": 0.0}), MapNotes("x", "y"))
     >>> out = pathlib.Path(tempfile.mkdtemp()) / "rate.png"
-    >>> save_figure(fig, out)
+    >>> save_figure(fig, out).shape[2]
+    4
     >>> out.read_bytes()[1:4]
     b'PNG'
     """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
     _no_math(fig)
+    # An Agg canvas of the figure's own keeps the PNG's rendering after saving.
+    canvas = FigureCanvasAgg(fig)
     fig.savefig(path, dpi=dpi, facecolor="white")
+    pixels = np.array(canvas.buffer_rgba())
     if pdf is not None:
         pdf.savefig(fig)
+    return pixels

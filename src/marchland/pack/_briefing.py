@@ -193,6 +193,12 @@ GLOSSARY = (
         "backtest scores: AUC ranks (0.5 coin toss, 1 perfect); Brier and CRPS are errors "
         "(lower is better).",
     ),
+    (
+        "Coverage, PIT-based coverage",
+        "share of past outcomes inside a forecast's 90% interval. For counts that are usually "
+        "0 it is above 90% even for a right forecast; the PIT-based figure takes that out: "
+        "near 90% means intervals of the right width, below means too narrow.",
+    ),
     ("Border risk", "the chance of a first case within the horizon, for unaffected units."),
     (
         "Planning cases",

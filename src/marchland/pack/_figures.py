@@ -6,7 +6,7 @@ Kept apart from ``maps`` (which draws from plain tables and knows no result obje
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..figures import maps
 from ._outlook import outlook_figures
-from ._steps import province_of
+from ._steps import busiest, province_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
@@ -92,11 +92,29 @@ def atlas_page(pdf: Any, fig: Any, paper: str) -> None:
     pdf.savefig(fig, bbox_inches=box, pad_inches=0)
 
 
+#: One figure to draw: its file name, a call that draws it, its caption.
+FigurePlan = tuple[str, Callable[[], Any], str]
+
+
 def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     """Yield ``(name, figure, caption)`` for every figure the result supports, in atlas order.
 
-    Figures are yielded one at a time and closed by the caller's saving, so memory stays flat.
+    Figures are drawn one at a time as they are asked for, so memory stays flat.
     """
+    for name, build, caption in figure_plans(result):
+        yield name, build(), caption
+
+
+def figure_plans(result: MonthResult) -> list[FigurePlan]:
+    """Return the plan of every figure the result supports, in atlas order, none drawn yet.
+
+    Names and captions are known before any drawing (the atlas's contents page lists them),
+    and each figure can be drawn on its own, in any process that holds the result.
+    """
+    return list(_plans(result))
+
+
+def _plans(result: MonthResult) -> Iterator[FigurePlan]:
     notes = notes_for(result)
     base = maps.base_map(result.units, country_names=result.config.country_names)
     month = _month_label(result.month)
@@ -107,7 +125,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         rate = result.rates["month_rate"].where(result.rates["month_weeks_reported"] > 0)
         yield (
             "attack_rate",
-            _marks(
+            lambda: _marks(
                 maps.attack_rate_map(
                     base, rate, notes, bins=bins, period=month, subtitle=_rate_subtitle(result)
                 ),
@@ -125,7 +143,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
             panels.columns = [f"{pd.Period(c, freq='M'):%b %Y}" for c in panels.columns]
             yield (
                 "attack_rate_months",
-                maps.rate_small_multiples(base, panels, notes, bins=bins),
+                lambda: maps.rate_small_multiples(base, panels, notes, bins=bins),
                 "Attack rate per 100,000 for each of the last six months, one shared class scheme.",
             )
     if result.hotspots is not None and result.cluster_colours is not None:
@@ -133,7 +151,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         fdr = result.config.analysis.fdr
         yield (
             "hotspots",
-            _marks(
+            lambda: _marks(
                 maps.cluster_map(
                     base,
                     hs["label"],
@@ -157,7 +175,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
     if result.fronts is not None:
         yield (
             "arrival",
-            _marks(
+            lambda: _marks(
                 maps.arrival_map(
                     base,
                     result.fronts["first_week"],
@@ -180,7 +198,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         silent = risk.index[risk["silent"].astype(bool)] if "silent" in risk else []
         yield (
             "border_risk",
-            _marks(
+            lambda: _marks(
                 maps.risk_map(
                     base,
                     risk["probability"],
@@ -202,7 +220,7 @@ def draw_figures(result: MonthResult) -> Iterator[tuple[str, Any, str]]:
         depots = result.depots
         yield (
             "priorities",
-            _marks(
+            lambda: _marks(
                 maps.priority_map(
                     base,
                     result.priorities["rank"],
@@ -420,7 +438,7 @@ def _band_sentence(result: MonthResult) -> str:
     )
 
 
-def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[str, Any, str]]:
+def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[FigurePlan]:
     delay = result.config.analysis.reporting_delay_weeks
     as_of = result.as_of
     week_days = 7
@@ -439,7 +457,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
     )
     yield (
         "epi_region",
-        maps.epi_curves(
+        lambda: maps.epi_curves(
             {notes.region or "Region": reg["region"]},
             notes,
             as_of=as_of,
@@ -455,7 +473,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
     countries = {label(c): w for c, w in by_country.items()}
     yield (
         "epi_countries",
-        maps.epi_curves(
+        lambda: maps.epi_curves(
             countries,
             notes,
             as_of=as_of,
@@ -477,7 +495,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
         if not ids:
             continue
         n_all = len(ids)
-        ids = _most_cases(ids, per_prov, MAX_PROVINCE_PANELS)
+        ids = busiest(ids, per_prov, "cases")
         panels = {f"{names.get(p, p)} ({p})": per_prov[p] for p in ids}
         extra = (
             f", the {len(ids)} of its {n_all} provinces with the most reported cases (every "
@@ -487,7 +505,7 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
         )
         yield (
             f"epi_provinces_{country}",
-            maps.epi_curves(
+            lambda panels=panels, country=country: maps.epi_curves(
                 panels,
                 notes,
                 as_of=as_of,
@@ -498,17 +516,3 @@ def _epi_figures(result: MonthResult, notes: maps.MapNotes) -> Iterator[tuple[st
             ),
             f"Weekly reported cases and deaths per province of {label(country)}{extra}; {same}",
         )
-
-
-#: Panels in one country's province epi-curve figure: each panel is an axes with its own
-#: ticks and labels, the costliest thing to draw, and past a dozen they are too small to read.
-MAX_PROVINCE_PANELS = 12
-
-
-def _most_cases(ids: list[str], per_prov: dict[str, pd.DataFrame], k: int) -> list[str]:
-    """Return the ``k`` provinces with the most cases (ties by id), in id order."""
-    if len(ids) <= k:
-        return ids
-    total = pd.Series({p: float(np.nansum(per_prov[p]["cases"].to_numpy())) for p in ids})
-    top = total.sort_index().sort_values(ascending=False, kind="stable").index[:k]
-    return sorted(top)

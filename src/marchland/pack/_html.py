@@ -143,18 +143,22 @@ def table_html(
 PAGE_COLOURS = 256
 
 
-def page_png(path: Path) -> bytes:
+def page_png(path: Path, pixels: Any = None) -> bytes:
     """Return the PNG at ``path`` re-encoded for the report page: a 256-colour palette PNG.
 
     The file on disk is not touched (``maps/*.png`` keep full colour for print and GIS use);
     only the copy embedded in report.html is smaller. Pillow's quantizer is used (it comes with
     matplotlib), with no dithering so flat class colours stay flat; transparency is laid on
-    white, the page's figure background.
+    white, the page's figure background. zlib level 6: level 9 made the demo's copies 8 %
+    smaller for seven times the time (measured: 1.50 against 1.63 MB, 2.75 against 0.41 s).
 
     Parameters
     ----------
     path : pathlib.Path
         A PNG file.
+    pixels : array-like, optional
+        The same picture as RGBA pixels (``figures.maps.save_figure`` returns them), which
+        spares decoding the file.
 
     Returns
     -------
@@ -172,9 +176,12 @@ def page_png(path: Path) -> bytes:
     """
     from PIL import Image
 
-    raw = Path(path).read_bytes()
-    with Image.open(io.BytesIO(raw)) as im:
-        rgba = im.convert("RGBA")
+    path = Path(path)
+    if pixels is None:
+        with Image.open(path) as im:
+            rgba = im.convert("RGBA")
+    else:
+        rgba = Image.fromarray(np.ascontiguousarray(pixels), "RGBA")
     flat = Image.alpha_composite(Image.new("RGBA", rgba.size, "white"), rgba).convert("RGB")
     few = flat.getcolors(PAGE_COLOURS)
     if few is not None:
@@ -189,13 +196,14 @@ def page_png(path: Path) -> bytes:
             PAGE_COLOURS, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE
         )
     buf = io.BytesIO()
-    pal.save(buf, "PNG", optimize=True)
+    pal.save(buf, "PNG", compress_level=6)
     out = buf.getvalue()
-    return out if len(out) < len(raw) else raw
+    return out if len(out) < path.stat().st_size else path.read_bytes()
 
 
-def _img(path: Path, alt: str) -> str:
-    data = base64.b64encode(page_png(path)).decode("ascii")
+def _img(path: Path, alt: str, page: bytes | None = None) -> str:
+    """Return an embedded image: ``page`` (a copy made when the figure was drawn) or the file's."""
+    data = base64.b64encode(page if page is not None else page_png(path)).decode("ascii")
     return f'<img alt="{esc(alt)}" src="data:image/png;base64,{data}">'
 
 
@@ -211,7 +219,7 @@ def _figure(figures: Mapping[str, Any], name: str) -> str:
         else ""
     )
     return (
-        f'<figure id="fig-{esc(name)}">{_img(path, f["caption"])}'
+        f'<figure id="fig-{esc(name)}">{_img(path, f["caption"], f.get("page"))}'
         f"<figcaption>{esc(f['caption'])}{full}</figcaption></figure>"
     )
 

@@ -15,7 +15,7 @@ from ..figures import maps
 from ..figures.outlook import cluster_outline_map, fan_charts
 from ._html import _absent, _figure, _fmt, _section, esc, table_html
 from ._outlooksteps import CLUSTER_MAX_UNITS, clusters_layer
-from ._steps import province_of
+from ._steps import busiest, province_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
@@ -27,6 +27,12 @@ CLUSTER_CAUTION = (
     "(a new clinic reporting, a backlog sent at once, a changed case definition) can create "
     "one, and the latest weeks are nowcast estimates. Check with the district team first."
 )
+# Backtest coverage columns shown in the report, and their headers.
+COVERAGE_COLUMNS = {
+    "coverage": "model {level} coverage",
+    "coverage_expected": "expected if right",
+    "coverage_pit": "PIT-based coverage",
+}
 FORECAST_CAUTION = (
     "Projections assume no change in response: they carry the recent pattern forward and "
     "cannot foresee vaccination, water and sanitation work, or changes in reporting. The "
@@ -58,7 +64,7 @@ def outlook_figures(
         month = f"{pd.Period(result.month, freq='M'):%B %Y}"
         yield (
             "clusters",
-            cluster_outline_map(base, rate, layer, notes, bins=bins, period=month),
+            lambda: cluster_outline_map(base, rate, layer, notes, bins=bins, period=month),
             f"Emerging space-time clusters with p <= 0.05 ({len(shown)} of {len(cl)} found), "
             "outlined over the attack rate; labels give the first week and the p-value. A "
             "cluster is a signal to investigate, not a confirmed outbreak.",
@@ -70,7 +76,7 @@ def outlook_figures(
     label = result.config.country_label
     yield (
         "epi_forecast_countries",
-        fan_charts(
+        lambda: fan_charts(
             {label(c): v for c, v in _fan_series(result, units["country"], fc).items()},
             notes,
             title="The next four weeks by country: reported, nowcast-filled and forecast",
@@ -88,19 +94,28 @@ def outlook_figures(
     per = _fan_series(result, prov, fc)
     country_of = units.groupby(prov)["country"].first()
     for country in sorted(units["country"].unique()):
-        panels = {f"{names.get(p, p)} ({p})": v for p, v in per.items() if country_of[p] == country}
+        ids = sorted(p for p in per if country_of[p] == country)
+        shown = busiest(ids, per, "filled")
+        panels = {f"{names.get(p, p)} ({p})": per[p] for p in shown}
+        extra = (
+            f", the {len(shown)} of its {len(ids)} provinces with the most cases in the weeks "
+            "drawn (every unit's forecast is in tables/forecast.csv)"
+            if len(shown) < len(ids)
+            else ""
+        )
         if panels:
             yield (
                 f"epi_forecast_provinces_{country}",
-                fan_charts(
+                lambda panels=panels, country=country: fan_charts(
                     panels,
                     notes,
                     title=f"The next four weeks by province, {label(country)}",
                     conf=fc.conf,
                     ncols=3,
                 ),
-                f"Weekly cases per province of {label(country)}: reported, nowcast-filled and "
-                f"forecast ({fc.conf:.0%} interval), read as the country chart.",
+                f"Weekly cases per province of {label(country)}{extra}: reported, "
+                f"nowcast-filled and forecast ({fc.conf:.0%} interval), read as the country "
+                "chart.",
             )
 
 
@@ -183,6 +198,22 @@ def clusters_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     return _section("Emerging clusters", body, "clusters")
 
 
+def _dispersion_text(parameters) -> str:
+    """Say how the negative binomial dispersion was estimated (one, or one per country group)."""
+    groups = [str(p)[4:] for p in parameters.index if str(p).startswith("psi_")]
+    if not groups:
+        return "one negative binomial dispersion for all units"
+    return (
+        "negative binomial dispersion estimated per country (Paul and Held 2011): "
+        + ", ".join(groups)
+        + (
+            "; countries joined by + share one (too few cases for one each)"
+            if "+" in "".join(groups)
+            else ""
+        )
+    )
+
+
 def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     """Report section "The next four weeks", with the backtest beside it."""
     body = _absent(result, "forecast") + f'<p class="caution">{esc(FORECAST_CAUTION)}</p>'
@@ -193,6 +224,7 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             '<p class="note">Endemic-epidemic model (Held, Hoehle and Hofmann 2005; power-law '
             f"neighbourhood, Meyer and Held 2014) fitted to the last {fc.window_weeks} weeks of "
             f"the nowcast-filled panel, origin week {fc.origin_week:%Y-%m-%d}; "
+            f"{esc(_dispersion_text(fc.parameters))}; "
             f"{fc.conf:.0%} intervals from simulated paths.</p>"
         )
         body += table_html(
@@ -211,20 +243,33 @@ def forecast_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
     if bt is not None:
         allc = bt[bt["country"] == "all"].reset_index()
         wide = allc.pivot(index="horizon", columns="model", values="crps")
-        cov = allc[allc["model"] == "endemic-epidemic"].set_index("horizon")["coverage"]
-        wide["coverage"] = cov
+        model = allc[allc["model"] == "endemic-epidemic"].set_index("horizon")
+        cov_cols = [c for c in COVERAGE_COLUMNS if c in model.columns]
+        for c in cov_cols:
+            wide[c] = model[c]
         wide = wide.reset_index()
         wide["horizon"] = wide["horizon"].astype(int)
+        level = f"{result.forecast.conf if fc else 0.9:.0%}"
         cols = {"horizon": "weeks ahead"}
-        cols.update({m: f"CRPS {m}" for m in wide.columns if m not in ("horizon", "coverage")})
-        cols["coverage"] = f"model {result.forecast.conf if fc else 0.9:.0%} coverage"
+        cols.update({m: f"CRPS {m}" for m in wide.columns if m not in ("horizon", *cov_cols)})
+        cols.update({c: COVERAGE_COLUMNS[c].format(level=level) for c in cov_cols})
         body += (
             "<h3>How far to trust it</h3>"
             '<p class="note">Backtest on this outbreak as known on the as-of date: '
             f"{esc(bt.attrs.get('origins', ''))} (fewer than the full backtest, to keep the "
             "month quick). CRPS: mean continuous ranked probability score per unit-week, lower "
             "is better; baselines are last week carried forward and the mean of the last 4 "
-            "weeks. Coverage: share of outcomes inside the model's interval.</p>"
-            + table_html(wide, cols, kinds={"coverage": "pct", "horizon": "int"})
+            f"weeks. Coverage: share of outcomes inside the model's {level} interval. Where a "
+            f"district's weekly count is usually 0, its {level} interval holds more than "
+            f"{level} of outcomes even when the forecast is right; the next "
+            "column gives the share the forecast itself expected. PIT-based coverage takes "
+            "that effect out (expected share of the randomised probability integral transform "
+            f"inside the central {level}; Czado, Gneiting and Held 2009): near {level} means "
+            "intervals of the right width, below means too narrow.</p>"
+            + table_html(
+                wide,
+                cols,
+                kinds={"horizon": "int", **dict.fromkeys(cov_cols, "pct")},
+            )
         )
     return _section("The next four weeks", body, "outlook")

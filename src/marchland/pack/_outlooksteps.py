@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..inputs.weeks import week_month
-from ._steps import _need
+from ._steps import _executor, _need
 
 CLUSTER_WINDOW_WEEKS = 12  # three months of baseline behind the cylinders (as the scan default)
 CLUSTER_MAX_WEEKS = 4
@@ -116,21 +116,20 @@ def backtest_summary(ctx: Any, pj: Any) -> pd.DataFrame:
     cand = pd.date_range(end=last, periods=BACKTEST_SPAN_WEEKS // BACKTEST_STEP_WEEKS, freq="14D")
     cand = cand[cand >= start]
     lag = pd.Timedelta(days=7 + ctx.cfg.region.as_of_lag_days)
-    # The origins run one after the other here: 13 origins take ~8 s in one process, and two
-    # local worker processes were slower on the shared 2-core machine (worker start-up and
-    # import of the stage outweigh ~0.5 s per origin; benchmarks/bench_forecast.py). The
-    # backtest takes an executor (one seed per origin, same table for any worker count) for
-    # the full backtest or a Dask cluster.
-    bt = pj.backtest_forecast(
-        ctx.counts,
-        ctx.units,
-        ctx.graph,
-        origins=cand + lag,
-        horizon_weeks=FORECAST_HORIZON_WEEKS,
-        n_paths=BACKTEST_PATHS,
-        seed=ctx.seed,
-        conf=FORECAST_CONF,
-    )
+    # The origins run on the [compute] executor (one seed per origin: the same table for any
+    # worker count); forked local workers start at once, so two pay even on the demo.
+    with _executor(ctx.cfg) as ex:
+        bt = pj.backtest_forecast(
+            ctx.counts,
+            ctx.units,
+            ctx.graph,
+            origins=cand + lag,
+            horizon_weeks=FORECAST_HORIZON_WEEKS,
+            n_paths=BACKTEST_PATHS,
+            seed=ctx.seed,
+            conf=FORECAST_CONF,
+            executor=ex,
+        )
     bt.attrs["origins"] = (
         f"{len(cand)} origins, every {BACKTEST_STEP_WEEKS} weeks from {cand.min():%Y-%m-%d} "
         f"to {cand.max():%Y-%m-%d}, {BACKTEST_PATHS} paths each"

@@ -11,6 +11,7 @@ import importlib
 import warnings
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from ..config.schema import Config
@@ -376,3 +377,20 @@ def _flatten_areas(agg: pd.DataFrame, windows: list[str], region: Any, cfg: Conf
         kind="stable",
     )
     return out.reset_index(drop=True)
+
+
+#: Panels in one country's province figure (epi curves, fan charts): each panel is an axes
+#: with its own ticks and labels, the costliest thing to draw, and past a dozen they are too
+#: small to read.
+MAX_PROVINCE_PANELS = 12
+
+
+def busiest(
+    ids: list[str], series: dict[str, pd.DataFrame], column: str, k: int = MAX_PROVINCE_PANELS
+) -> list[str]:
+    """Return the ``k`` areas whose ``column`` sums highest (ties by id), in id order."""
+    if len(ids) <= k:
+        return ids
+    total = pd.Series({p: float(np.nansum(series[p][column].to_numpy())) for p in ids})
+    top = total.sort_index().sort_values(ascending=False, kind="stable").index[:k]
+    return sorted(top)

@@ -57,7 +57,6 @@ _VERSIONED = (
     "scipy",
     "statsmodels",
     "spopt",
-    "mapclassify",
     "matplotlib",
     "rasterio",
     "exactextract",
@@ -359,40 +358,9 @@ _PROGRESS: ContextVar[Callable[[str, int, int], None] | None] = ContextVar(
 
 
 def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]:
-    from matplotlib.backends.backend_pdf import PdfPages
+    from ._drawing import figure_workers, write_figures
 
-    from ..figures.maps import save_figure
-    from ._figures import atlas_page, cover_page, draw_figures, for_atlas
-
-    progress = _PROGRESS.get()
-    mdir = root / "maps"
-    mdir.mkdir()
-    figures: dict[str, dict[str, Any]] = {}
-    with PdfPages(
-        root / "atlas.pdf",
-        metadata={
-            "Title": f"marchland atlas {result.month}",
-            "Creator": "marchland",
-            "CreationDate": None,
-        },
-    ) as pdf:
-        # The figures share the base map's Paths, so holding them all until the cover page
-        # (which lists every caption) is cheap; each is emptied once saved, so only one
-        # rendering's buffers are alive at a time.
-        entries = list(draw_figures(result))
-        paper = getattr(result.config.output, "paper", "a4")
-        atlas_page(pdf, cover_page(result, [caption for _, _, caption in entries]), paper)
-        for i, (name, fig, caption) in enumerate(entries):
-            path = mdir / f"{name}.png"
-            save_figure(fig, path)
-            atlas_page(pdf, for_atlas(name, fig, result), paper)
-            # Closed as it is drawn, so the peak memory is one figure's.
-            fig.clear()
-            entries[i] = (name, None, caption)
-            figures[name] = {"path": path, "caption": caption}
-            if progress is not None:
-                progress("maps and atlas pages", i + 1, len(entries))
-    return figures
+    return write_figures(result, root, workers=figure_workers(result), progress=_PROGRESS.get())
 
 
 def _write_report(

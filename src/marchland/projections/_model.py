@@ -1,8 +1,13 @@
 """Maximum-likelihood fit of the endemic-epidemic negative binomial model.
 
-mu_it = e_i nu_it + lambda y_i,t-1 + phi sum_j w_ji(d) y_j,t-1, Y_it ~ NegBin(mu_it, psi),
+mu_it = e_i nu_it + lambda y_i,t-1 + phi sum_j w_ji(d) y_j,t-1, Y_it ~ NegBin(mu_it, psi_g(i)),
 log nu_it = beta' x_it (intercept, optional sin/cos of the week of the year, unit covariates).
 Held, Hoehle & Paul (2005); Paul & Held (2011); Meyer & Held (2014) for the power-law weights.
+The size psi is one for all units ("shared") or one per group of units ("country"): the
+unit-specific overdispersion of Paul & Held (2011), with units grouped as Meyer, Held & Hoehle
+(2017, Journal of Statistical Software 77(11), section 3) allow (both from memory). A group with
+too few non-zero counts in the fitting window to pin its own size down shares one size with the
+other such groups.
 
 Written here because no Python library fits this model; the likelihood with an analytic
 gradient goes to ``scipy.optimize.minimize`` and the standard errors come from the Hessian
@@ -31,6 +36,11 @@ LOG_BOUNDS = {
     "log_psi": (-6.0, 12.0),
 }
 LAG_FILL_WEEKS = 4  # a missing lagged count is carried forward at most this many weeks
+DISPERSIONS = ("country", "shared")  # one NB size per country, or one for all units
+# A group needs this many non-zero counts in the window for a size of its own; below, its units
+# share a size with the other small groups (a size fitted to nearly all zeros runs to the
+# bound of extreme overdispersion). Twenty is a rule of thumb (common practice).
+MIN_NONZERO_PER_SIZE = 20
 
 
 @dataclass(frozen=True)
@@ -41,6 +51,7 @@ class ModelSpec:
     neighbourhood: bool = True
     seasonal: bool = False
     max_order: int = 5
+    dispersion: str = "shared"
 
 
 @dataclass(frozen=True)
@@ -55,6 +66,13 @@ class Fit:
     spec: ModelSpec
     covariate_names: tuple[str, ...]
     at_bound: tuple[str, ...] = field(default=())
+    size_index: np.ndarray | None = None  # (n,) position in theta of each unit's log size
+
+    def sizes(self) -> np.ndarray:
+        """Negative binomial size ``psi`` of each unit (``Problem.fit`` sets the index)."""
+        if self.size_index is None:
+            raise ValueError("this fit has no size index: build it with Problem.fit")
+        return np.exp(self.theta[self.size_index])
 
     def value(self, name: str, default: float = 0.0) -> float:
         """Natural-scale value of a parameter (``exp`` of a ``log_`` one)."""
@@ -108,8 +126,8 @@ def endemic_design(angles: np.ndarray, z: np.ndarray, seasonal: bool) -> np.ndar
     return np.concatenate(parts, axis=2)
 
 
-def nb_logpmf(y: np.ndarray, mu: np.ndarray, psi: float) -> np.ndarray:
-    """Negative binomial log-probability with mean ``mu`` and size ``psi`` (NB2)."""
+def nb_logpmf(y: np.ndarray, mu: np.ndarray, psi) -> np.ndarray:
+    """Negative binomial log-probability with mean ``mu`` and size ``psi`` (NB2, broadcast)."""
     return (
         special.gammaln(y + psi)
         - special.gammaln(psi)
@@ -132,10 +150,16 @@ class Problem:
     orders: OrderMatrix
     spec: ModelSpec
     names: tuple[str, ...]
+    unit_size: np.ndarray  # (n,) size group of each unit (0 .. n_sizes - 1)
+    n_sizes: int
 
     @classmethod
-    def build(cls, panel, e, z, angles, orders, spec, covariate_names=()):
-        """``panel`` (n, T+1): column 0 only serves as the first lag."""
+    def build(cls, panel, e, z, angles, orders, spec, covariate_names=(), groups=None):
+        """``panel`` (n, T+1): column 0 only serves as the first lag.
+
+        ``groups`` labels each unit's size group (used when ``spec.dispersion`` is not
+        "shared"); ``None`` puts all units in one.
+        """
         lag = fill_lags(panel)[:, :-1]
         y = panel[:, 1:]
         ok = np.isfinite(y) & np.isfinite(lag)
@@ -149,7 +173,10 @@ class Problem:
             names.append("log_lambda")
         if spec.neighbourhood and not orders.empty:
             names += ["log_phi", "log_d"]
-        names.append("log_psi")
+        shared = spec.dispersion == "shared" or groups is None
+        labels = np.zeros(len(e), dtype=int) if shared else np.asarray(groups)
+        unit_size, size_names = size_groups(labels, y[ui, ti], ui)
+        names += ["log_psi"] if len(size_names) == 1 else [f"log_psi_{g}" for g in size_names]
         return cls(
             y=y[ui, ti],
             ylag=lag[ui, ti],
@@ -160,6 +187,8 @@ class Problem:
             orders=orders,
             spec=spec,
             names=tuple(names),
+            unit_size=unit_size,
+            n_sizes=len(size_names),
         )
 
     @property
@@ -190,14 +219,23 @@ class Problem:
             return mu
         return mu, en, lam, phi, d, nsum, dnsum
 
+    @property
+    def row_size(self) -> np.ndarray:
+        """Size group of each row."""
+        return self.unit_size[self.rows[0]]
+
+    def sizes(self, theta: np.ndarray) -> np.ndarray:
+        """Negative binomial size of each row."""
+        return np.exp(theta[len(theta) - self.n_sizes :])[self.row_size]
+
     def loglik(self, theta: np.ndarray) -> float:
         """Total log-likelihood."""
-        return float(nb_logpmf(self.y, self.mean(theta), np.exp(theta[-1])).sum())
+        return float(nb_logpmf(self.y, self.mean(theta), self.sizes(theta)).sum())
 
     def nll_grad(self, theta: np.ndarray) -> tuple[float, np.ndarray]:
         """Negative log-likelihood and its analytic gradient."""
         mu, en, lam, phi, d, nsum, dnsum = self.mean(theta, parts=True)
-        psi = np.exp(theta[-1])
+        psi = self.sizes(theta)
         y = self.y
         ll = nb_logpmf(y, mu, psi)
         g = y / mu - (y + psi) / (psi + mu)  # d loglik / d mu
@@ -213,7 +251,7 @@ class Problem:
             + 1
             - (y + psi) / (psi + mu)
         )
-        grad.append([psi * dpsi.sum()])
+        grad.append(np.bincount(self.row_size, weights=psi * dpsi, minlength=self.n_sizes))
         grad = np.concatenate([np.asarray(v, dtype=float).ravel() for v in grad])
         return -float(ll.sum()), -grad
 
@@ -222,9 +260,10 @@ class Problem:
         rate = max(self.y.sum(), 0.5) / self.e.sum()
         theta = np.zeros(len(self.names))
         theta[0] = np.log(rate / 3)
-        for name, v in (("log_lambda", 0.4), ("log_phi", 0.1), ("log_d", 1.5), ("log_psi", 1.0)):
+        for name, v in (("log_lambda", 0.4), ("log_phi", 0.1), ("log_d", 1.5)):
             if name in self.names:
                 theta[self.names.index(name)] = np.log(v)
+        theta[len(theta) - self.n_sizes :] = 0.0  # every size starts at 1
         return theta
 
     def _hessian(self, theta: np.ndarray) -> np.ndarray:
@@ -234,7 +273,12 @@ class Problem:
     def fit(self, covariate_names=()) -> Fit:
         """Maximise the likelihood; covariance from the numerical Hessian of the gradient."""
         m = len(self.y)
-        bounds = [LOG_BOUNDS.get(nm, (None, None)) for nm in self.names]
+        bounds = [
+            LOG_BOUNDS["log_psi" if nm.startswith("log_psi") else nm]
+            if nm.startswith("log_")
+            else (None, None)
+            for nm in self.names
+        ]
 
         def f(theta):
             v, g = self.nll_grad(theta)
@@ -282,4 +326,31 @@ class Problem:
             spec=self.spec,
             covariate_names=tuple(covariate_names),
             at_bound=at_bound,
+            size_index=len(self.names) - self.n_sizes + self.unit_size,
         )
+
+
+def size_groups(labels: np.ndarray, y: np.ndarray, unit: np.ndarray):
+    """Size group per unit and the groups' names; small groups pooled (``MIN_NONZERO_PER_SIZE``).
+
+    ``y`` are the observed counts and ``unit`` the unit of each. Groups with too few non-zero
+    counts share one size, named by their labels joined with "+"; if even together they have
+    too few, they join the group with the most non-zero counts. If no group has enough (or
+    there is only one group), all units share one size.
+    """
+    codes, uniques = pd.factorize(pd.Series(labels), sort=True)
+    nonzero = np.bincount(codes[unit], weights=(y > 0), minlength=len(uniques))
+    big = nonzero >= MIN_NONZERO_PER_SIZE
+    if big.sum() == 0 or len(uniques) == 1:
+        return np.zeros(len(codes), dtype=int), ("all",)
+    members = [[str(u)] for u, b in zip(uniques, big, strict=True) if b]
+    remap = np.cumsum(big) - 1
+    if (~big).any():
+        if nonzero[~big].sum() >= MIN_NONZERO_PER_SIZE:
+            remap[~big] = len(members)
+            members.append([])
+        else:  # a size fitted to (nearly) all zeros runs to its bound: join the busiest group
+            remap[~big] = remap[np.argmax(nonzero)]
+        for k in np.flatnonzero(~big):
+            members[remap[k]].append(str(uniques[k]))
+    return remap[codes], tuple("+".join(m) for m in members)

@@ -29,20 +29,43 @@ def nb_cdf(y: np.ndarray, mu: np.ndarray, psi: float) -> np.ndarray:
 
 
 def mixture_scores(y, means, psi, rng):
-    """Log score and randomised PIT under a mixture of NB2 (mixture over the last axis)."""
+    """Log score, randomised PIT and ``F(y - 1)``, ``F(y)`` under a mixture of NB2.
+
+    The mixture is over the last axis of ``means``; ``psi`` is one size or one per observation.
+    """
     yy = y[..., None]
-    logp = nb_logpmf(yy, means, psi)
+    size = np.asarray(psi, dtype=float)
+    size = size[..., None] if size.ndim else size
+    logp = nb_logpmf(yy, means, size)
     log_score = -(np.logaddexp.reduce(logp, axis=-1) - np.log(means.shape[-1]))
-    hi = nb_cdf(yy, means, psi).mean(axis=-1)
-    lo = nb_cdf(yy - 1, means, psi).mean(axis=-1)
-    return log_score, lo + rng.uniform(size=hi.shape) * (hi - lo)
+    hi = nb_cdf(yy, means, size).mean(axis=-1)
+    lo = nb_cdf(yy - 1, means, size).mean(axis=-1)
+    return log_score, lo + rng.uniform(size=hi.shape) * (hi - lo), lo, hi
 
 
 def nb_scores(y, mu, psi, rng):
-    """Log score and randomised PIT under one NB2 per observation."""
+    """Log score, randomised PIT and ``F(y - 1)``, ``F(y)`` under one NB2 per observation."""
     log_score = -nb_logpmf(y, mu, psi)
     hi, lo = nb_cdf(y, mu, psi), nb_cdf(y - 1, mu, psi)
-    return log_score, lo + rng.uniform(size=np.shape(y)) * (hi - lo)
+    return log_score, lo + rng.uniform(size=np.shape(y)) * (hi - lo), lo, hi
+
+
+def pit_interval_share(lo, hi, conf: float) -> np.ndarray:
+    """Chance that the randomised PIT falls in ``[(1 - conf) / 2, (1 + conf) / 2]``.
+
+    Given ``F(y - 1) = lo`` and ``F(y) = hi`` the randomised PIT is uniform on ``[lo, hi]``
+    (its distribution is the non-randomised PIT of Czado, Gneiting and Held 2009), so the share
+    is the length of the overlap over ``hi - lo``. Averaged over outcomes it is the coverage of
+    a central interval with the discreteness of counts taken out: for a calibrated forecast its
+    expectation is exactly ``conf``, whereas a central interval of a count distribution with
+    much mass at 0 covers more than ``conf`` by construction.
+    """
+    a = (1 - conf) / 2
+    lo, hi = np.asarray(lo, dtype=float), np.asarray(hi, dtype=float)
+    width = hi - lo
+    overlap = np.clip(np.minimum(hi, 1 - a) - np.maximum(lo, a), 0.0, None)
+    point = ((lo >= a) & (lo <= 1 - a)).astype(float)  # a point mass of the PIT (width 0)
+    return np.where(width > 0, overlap / np.where(width > 0, width, 1.0), point)
 
 
 def crps(y: np.ndarray, samples: np.ndarray) -> np.ndarray:
@@ -83,6 +106,8 @@ def summarise_scores(detail: pd.DataFrame) -> pd.DataFrame:
                 "crps": g["crps"].mean(),
                 "log_score": g["log_score"].mean(),
                 "coverage": g["covered"].mean(),
+                "coverage_expected": g["covered_expected"].mean(),
+                "coverage_pit": g["covered_pit"].mean(),
                 "pit_ks": np.nan if ks is None else ks.statistic,
                 "pit_p": np.nan if ks is None else ks.pvalue,
                 "n": len(g),
@@ -91,7 +116,16 @@ def summarise_scores(detail: pd.DataFrame) -> pd.DataFrame:
 
     pooled = detail.assign(country="all")
     both = pd.concat([pooled, detail], ignore_index=True)
-    cols = ["crps", "log_score", "coverage", "pit_ks", "pit_p", "n"]
+    cols = [
+        "crps",
+        "log_score",
+        "coverage",
+        "coverage_expected",
+        "coverage_pit",
+        "pit_ks",
+        "pit_p",
+        "n",
+    ]
     rows = [
         {"model": m, "horizon": h, "country": c, **agg(g).to_dict()}
         for (m, h, c), g in both.groupby(["model", "horizon", "country"], sort=False)

@@ -105,8 +105,12 @@ def fit_origin(
     skip_recent_weeks: int,
     spec: ModelSpec,
     covariates: pd.DataFrame | None = None,
+    groups=None,
 ) -> Origin:
-    """Fit the model to the ``window_weeks`` weeks ending ``skip_recent_weeks`` before origin."""
+    """Fit the model to the ``window_weeks`` weeks ending ``skip_recent_weeks`` before origin.
+
+    ``groups`` labels each unit's negative binomial size group (``spec.dispersion``).
+    """
     if window_weeks < MIN_FIT_WEEKS:
         raise ValueError(
             f"'window_weeks' needs to be at least {MIN_FIT_WEEKS}. {window_weeks!r} was given."
@@ -129,7 +133,7 @@ def fit_origin(
         )
     z = np.zeros((len(e), 0)) if covariates is None else covariates.to_numpy(dtype=float)
     names = () if covariates is None else tuple(covariates.columns)
-    prob = Problem.build(block, e, z, week_angles(weeks[1:]), orders, spec, names)
+    prob = Problem.build(block, e, z, week_angles(weeks[1:]), orders, spec, names, groups)
     fit = prob.fit(names)
     # Start state: last known count, carried forward at most a few weeks (NaN if none).
     start = fill_lags(panel.reindex(columns=weeks).to_numpy(dtype=float))[:, -1]

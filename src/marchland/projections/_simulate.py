@@ -18,7 +18,7 @@ def simulate_paths(
     lam: float,
     phi: float,
     d: float,
-    psi: float,
+    psi,
     orders: OrderMatrix,
     n_paths: int,
     rng: np.random.Generator,
@@ -32,8 +32,10 @@ def simulate_paths(
         Counts in the week before the first simulated week.
     endemic : (steps, n) array
         Endemic mean ``e_i nu_it`` for every simulated week.
-    lam, phi, d, psi : float
-        Autoregressive and neighbourhood rates, power-law decay and negative binomial size.
+    lam, phi, d : float
+        Autoregressive and neighbourhood rates, power-law decay.
+    psi : float or (n,) array
+        Negative binomial size, shared or per unit.
 
     Returns
     -------
@@ -46,11 +48,13 @@ def simulate_paths(
     wt = orders.weights(d) if (phi > 0 and not orders.empty) else None
     paths = np.empty((steps, n, n_paths), dtype=np.int32)
     means = np.empty((steps, n, n_paths), dtype=np.float32) if keep_means else None
+    size = np.asarray(psi, dtype=float)
+    size = size.reshape(n, 1) if size.ndim else size
     for s in range(steps):
         mu = endemic[s][:, None] + lam * y
         if wt is not None:
             mu += phi * (wt @ y)
-        y = rng.poisson(rng.gamma(psi, mu / psi)).astype(float)
+        y = rng.poisson(rng.gamma(size, mu / size)).astype(float)
         paths[s] = y
         if keep_means:
             means[s] = mu

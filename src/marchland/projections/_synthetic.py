@@ -60,12 +60,16 @@ def simulate_outbreak(
     lam: float = 0.5,
     phi: float = 0.3,
     d: float = 1.5,
-    psi: float = 3.0,
+    psi: float | dict[str, float] = 3.0,
     max_order: int = 5,
     seed: int | None = None,
     report_lag_days: int = 8,
 ) -> Synthetic:
-    """Draw ``weeks`` weeks of counts on a ``side`` x ``side`` lattice from the model."""
+    """Draw ``weeks`` weeks of counts on a ``side`` x ``side`` lattice from the model.
+
+    ``psi`` is one negative binomial size, or one per country (``{"C0": ..., "C1": ...}``);
+    the truth then holds ``psi_C0``, ``psi_C1`` (the fitted parameters' names).
+    """
     units, g = lattice(side)
     ids = units.index
     bg = as_border_graph(g, countries=units["country"])
@@ -74,7 +78,8 @@ def simulate_outbreak(
     rng = np.random.default_rng(seed)
     start = rng.poisson(2.0, len(ids)).astype(float)
     endemic = np.broadcast_to(e * np.exp(intercept), (weeks, len(ids)))
-    kw = dict(lam=lam, phi=phi, d=d, psi=psi, orders=orders, n_paths=1, rng=rng)
+    sizes = units["country"].map(psi).to_numpy(dtype=float) if isinstance(psi, dict) else float(psi)
+    kw = dict(lam=lam, phi=phi, d=d, psi=sizes, orders=orders, n_paths=1, rng=rng)
     y = simulate_paths(start, endemic, **kw)[:, :, 0]
     week0 = pd.Timestamp("2025-01-06")
     wk = pd.date_range(week0, periods=weeks + 1, freq="7D")
@@ -86,5 +91,6 @@ def simulate_outbreak(
     long["received"] = long["week"] + pd.Timedelta(days=report_lag_days)
     long["source"] = "synthetic"
     long["row"] = np.arange(1, len(long) + 1)
-    truth = {"intercept": intercept, "lambda": lam, "phi": phi, "d": d, "psi": psi}
+    truth = {"intercept": intercept, "lambda": lam, "phi": phi, "d": d}
+    truth.update({f"psi_{c}": v for c, v in psi.items()} if isinstance(psi, dict) else {"psi": psi})
     return Synthetic(units, long, g, truth, panel)

@@ -16,7 +16,15 @@ import pandas as pd
 
 from ..compute import Executor
 from ._model import ModelSpec
-from ._scores import BASELINE_FLOOR, crps, fit_size, mixture_scores, nb_scores, summarise_scores
+from ._scores import (
+    BASELINE_FLOOR,
+    crps,
+    fit_size,
+    mixture_scores,
+    nb_scores,
+    pit_interval_share,
+    summarise_scores,
+)
 from ._setup import (
     DEFAULT_SKIP_RECENT_WEEKS,
     DEFAULT_WINDOW_WEEKS,
@@ -28,7 +36,14 @@ from ._setup import (
     weeks_panel,
 )
 from ._weights import OrderMatrix
-from .projection import MAX_ORDER, _graph_for, run_origin
+from .projection import (
+    DEFAULT_DISPERSION,
+    MAX_ORDER,
+    _graph_for,
+    model_spec,
+    run_origin,
+    size_labels,
+)
 
 MODELS = ("endemic-epidemic", "last-week", "mean-4-weeks")
 
@@ -48,6 +63,7 @@ def backtest_forecast(
     n_paths: int = 500,
     seed: int | None = 0,
     max_order: int = MAX_ORDER,
+    dispersion: str = DEFAULT_DISPERSION,
     details: bool = False,
     executor: Executor | None = None,
 ) -> pd.DataFrame:
@@ -59,7 +75,7 @@ def backtest_forecast(
         As for :func:`forecast`.
     horizon_weeks : int
         Weeks ahead scored (1 to ``horizon_weeks``).
-    window_weeks, skip_recent_weeks, max_order
+    window_weeks, skip_recent_weeks, max_order, dispersion
         Model options, as for :func:`forecast`.
     origins : sequence of date-like, optional
         Dates the forecasts are made on. By default one per ``step_weeks`` weeks, from the
@@ -88,10 +104,16 @@ def backtest_forecast(
         Indexed by ``model`` ("endemic-epidemic", "last-week", "mean-4-weeks"), one row per
         model, ``horizon`` and ``country`` ("all" pools every country), with ``crps`` (mean,
         lower is better), ``log_score`` (mean negative log predictive probability),
-        ``coverage`` (share inside the central ``conf`` interval), ``pit_ks`` and ``pit_p``
+        ``coverage`` (share inside the central ``conf`` interval of the samples),
+        ``coverage_expected`` (the coverage those same intervals would have if the forecasts
+        were right: above ``conf`` for counts with much mass at 0),
+        ``coverage_pit`` (expected share of the randomised PIT inside the central ``conf``
+        range, given ``F(y - 1)`` and ``F(y)``: coverage with the discreteness of counts taken
+        out, Czado, Gneiting and Held 2009), ``pit_ks`` and ``pit_p``
         (Kolmogorov-Smirnov statistic and p-value of the randomised PIT against uniform) and
         ``n`` (unit-weeks scored). With ``details``: ``origin unit_id country week horizon y
-        crps log_score pit covered`` per model.
+        mean crps log_score pit covered covered_expected covered_pit`` per model (``mean``: of
+        the samples).
 
     References
     ----------
@@ -139,7 +161,8 @@ def backtest_forecast(
         truth=truth,
         anchor=anchor,
         country=country,
-        spec=ModelSpec(max_order=max_order),
+        spec=model_spec(dispersion, max_order=max_order),
+        groups=size_labels(units, ids),
         window_weeks=window_weeks,
         skip_recent_weeks=skip_recent_weeks,
         horizon_weeks=horizon_weeks,
@@ -170,6 +193,7 @@ class _Job:
     horizon_weeks: int
     n_paths: int
     conf: float
+    groups: Any = None
 
 
 def _score_origin(date: pd.Timestamp, job: _Job, seed) -> list[pd.DataFrame]:
@@ -185,6 +209,7 @@ def _score_origin(date: pd.Timestamp, job: _Job, seed) -> list[pd.DataFrame]:
         window_weeks=job.window_weeks,
         skip_recent_weeks=job.skip_recent_weeks,
         spec=job.spec,
+        groups=job.groups,
     )
     paths, means, fweeks = run_origin(
         origin, horizon_weeks=horizon_weeks, n_paths=n_paths, seed=rng, keep_means=True
@@ -195,29 +220,35 @@ def _score_origin(date: pd.Timestamp, job: _Job, seed) -> list[pd.DataFrame]:
     yv = y[hh, ui]
     base = dict(origin=date, unit_id=ids[ui], week=fweeks[hh], horizon=hh + 1, y=yv)
     base["country"] = job.country[ui] if not isinstance(job.country, str) else job.country
-    psi = origin.fit.value("log_psi")
-    ls, pit = mixture_scores(yv, means[hh, ui].astype(float), psi, rng)
-    parts = [_scored(base, "endemic-epidemic", yv, paths[hh, ui], ls, pit, conf)]
+    psi = origin.fit.sizes()[ui]
+    sc = mixture_scores(yv, means[hh, ui].astype(float), psi, rng)
+    parts = [_scored(base, "endemic-epidemic", yv, paths[hh, ui], sc, conf)]
     for name, m, hist in _baselines(wide, origin.fit_end, job.window_weeks, horizon_weeks):
         mu = np.maximum(np.broadcast_to(m, y.shape)[hh, ui], BASELINE_FLOOR)
         size = np.array([fit_size(*hist(h)) for h in range(1, horizon_weeks + 1)])[hh]
-        ls, pit = nb_scores(yv, mu, size, rng)
+        sc = nb_scores(yv, mu, size, rng)
         samp = rng.poisson(rng.gamma(size[:, None], (mu / size)[:, None], (len(yv), n_paths)))
-        parts.append(_scored(base, name, yv, samp, ls, pit, conf))
+        parts.append(_scored(base, name, yv, samp, sc, conf))
     return parts
 
 
-def _scored(base, model, y, samples, log_score, pit, conf) -> pd.DataFrame:
+def _scored(base, model, y, samples, scores, conf) -> pd.DataFrame:
+    log_score, pit, pit_lo, pit_hi = scores
     a = (1 - conf) / 2
     lo, hi = np.quantile(samples, [a, 1 - a], axis=-1, method="inverted_cdf")
     return pd.DataFrame(
         {
             **base,
             "model": model,
+            "mean": samples.mean(axis=-1),
             "crps": crps(y, samples),
             "log_score": log_score,
             "pit": pit,
             "covered": (lo <= y) & (y <= hi),
+            # What "covered" would average to if the forecast were right: the share of its own
+            # samples inside the interval (over conf for counts with much mass at one value).
+            "covered_expected": ((lo[:, None] <= samples) & (samples <= hi[:, None])).mean(-1),
+            "covered_pit": pit_interval_share(pit_lo, pit_hi, conf),
         }
     )
 

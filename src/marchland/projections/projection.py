@@ -15,7 +15,7 @@ import pandas as pd
 from scipy import sparse
 
 from ..graph.border import BorderGraph, as_border_graph
-from ._model import ModelSpec
+from ._model import DISPERSIONS, ModelSpec
 from ._setup import (
     DEFAULT_SKIP_RECENT_WEEKS,
     DEFAULT_WINDOW_WEEKS,
@@ -33,6 +33,7 @@ from ._weights import OrderMatrix
 TABLE_COLUMNS = ("week", "horizon", "mean", "median", "lower", "upper", "p_any", "note")
 GROUPINGS = ("unit", "province", "country", "region")
 MAX_ORDER = 5  # neighbourhood reaches 5 graph steps; power-law weights beyond are negligible
+DEFAULT_DISPERSION = "country"  # lower CRPS than "shared" at h1-4 (bench_calibration.py)
 
 
 @dataclass(frozen=True, eq=False)
@@ -47,7 +48,8 @@ class Forecast:
         ``lower``, ``upper`` (central ``conf`` interval of the paths), ``p_any`` (probability of
         at least one case) and ``note`` (why a row is NaN, else "").
     parameters : pandas.DataFrame
-        Indexed by parameter (``intercept``, ``lambda``, ``phi``, ``d``, ``psi``, ...):
+        Indexed by parameter (``intercept``, ``lambda``, ``phi``, ``d``, and ``psi`` or one
+        ``psi_<country>`` per size group, ...):
         ``estimate lower upper`` (95 % Wald interval, natural scale), ``se`` (on ``scale``),
         ``scale`` and ``at_bound``.
     paths : numpy.ndarray
@@ -164,7 +166,7 @@ def run_origin(origin: Origin, *, horizon_weeks: int, n_paths: int, seed, keep_m
         lam=fit.value("log_lambda"),
         phi=fit.value("log_phi"),
         d=fit.value("log_d", 1.0),
-        psi=fit.value("log_psi"),
+        psi=fit.sizes(),
         orders=origin.orders,
         n_paths=n_paths,
         rng=np.random.default_rng(seed),
@@ -191,6 +193,7 @@ def forecast(
     seasonal: bool = False,
     covariates: pd.DataFrame | None = None,
     max_order: int = MAX_ORDER,
+    dispersion: str = DEFAULT_DISPERSION,
 ) -> Forecast:
     """Project weekly cases per unit for the next weeks, with intervals, from the data as known.
 
@@ -230,6 +233,9 @@ def forecast(
         Numeric unit-level covariates of the endemic part, indexed by ``unit_id``.
     max_order : int
         Farthest graph order the neighbourhood part reaches.
+    dispersion : {"country", "shared"}
+        One negative binomial size per country (a country with fewer than 20 non-zero counts in
+        the window shares one with the other such countries), or one for all units.
 
     Returns
     -------
@@ -254,6 +260,8 @@ def forecast(
     multivariate time series of infectious disease counts. Statistics in Medicine 30:1118-1136.
     Meyer S, Held L (2014). Power-law models for infectious disease spread. Annals of Applied
     Statistics 8:1612-1639.
+    Meyer S, Held L, Hoehle M (2017). Journal of Statistical Software 77(11):1-55 (grouped
+    overdispersion parameters of the endemic-epidemic model).
 
     Examples
     --------
@@ -266,8 +274,8 @@ def forecast(
     ...     f = forecast(r.counts, r.units, r.graph, as_of="2026-09-01", seed=1, n_paths=200)
     >>> sorted(f.table["horizon"].unique().tolist())
     [1, 2, 3, 4]
-    >>> list(f.parameters.index)
-    ['intercept', 'lambda', 'phi', 'd', 'psi']
+    >>> list(f.parameters.index)  # one negative binomial size per country
+    ['intercept', 'lambda', 'phi', 'd', 'psi_MRW', 'psi_OSK', 'psi_QLN', 'psi_TVR']
     """
     if int(horizon_weeks) != horizon_weeks or horizon_weeks < 1:
         raise ValueError(f"'horizon_weeks' needs to be a whole number >= 1. {horizon_weeks!r}")
@@ -284,7 +292,7 @@ def forecast(
         raise ValueError(f"no reports known on {date.date()}: nothing to forecast from")
     origin_week = last_week_over(pd.Timestamp(wide.columns.min()), date)
     orders = OrderMatrix.from_graph(bg, ids, max_order)
-    spec = ModelSpec(seasonal=seasonal, max_order=max_order)
+    spec = model_spec(dispersion, seasonal=seasonal, max_order=max_order)
     z = None if covariates is None else covariates.reindex(ids)
     if z is not None and z.isna().any().any():
         raise ValueError("'covariates' must have a value for every unit")
@@ -297,6 +305,7 @@ def forecast(
         skip_recent_weeks=skip_recent_weeks,
         spec=spec,
         covariates=z,
+        groups=size_labels(units, ids),
     )
     paths, weeks = run_origin(origin, horizon_weeks=horizon_weeks, n_paths=n_paths, seed=seed)
     table = summarise_paths(paths, ids, weeks, conf)
@@ -330,6 +339,22 @@ def forecast(
         conf=conf,
         notes=tuple(notes),
     )
+
+
+def model_spec(dispersion: str, **kw) -> ModelSpec:
+    """Model parts with the dispersion checked against the allowed values."""
+    if dispersion not in DISPERSIONS:
+        raise ValueError(
+            f"'dispersion' needs to be one of {DISPERSIONS}. {dispersion!r} was given instead."
+        )
+    return ModelSpec(dispersion=dispersion, **kw)
+
+
+def size_labels(units: pd.DataFrame, ids: pd.Index) -> np.ndarray | None:
+    """Country of each unit, the groups of a per-country size (None without a country)."""
+    if "country" not in units.columns:
+        return None
+    return units["country"].reindex(ids).astype(str).to_numpy()
 
 
 def _graph_for(graph, units) -> BorderGraph:

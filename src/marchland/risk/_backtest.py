@@ -23,10 +23,10 @@ from ._model import (
     complete_weeks,
 )
 
-#: Below this many unit-origins (units x origin weeks) local worker processes are not started:
+#: Below this many unit-origins (units x origin weeks) loky worker processes are not started:
 #: on the demo (196 units x 70 origins) the serial backtest took 2.5 s of CPU, two fresh loky
-#: workers 7.5 s (their imports), for the same result (benchmarks/bench_backtest.py). A Dask
-#: cluster, when given, is always used.
+#: workers 7.5 s (their imports), for the same result (benchmarks/bench_backtest.py). Forked
+#: workers (Linux) start in milliseconds and are always used; so is a Dask cluster.
 SERIAL_BELOW = 100_000
 
 
@@ -283,7 +283,11 @@ def run(
     }
     # The versions sorted once: each origin's as-of view is then a mask, not a sort.
     replay = Replay.build(slim, static)
-    if executor.backend == "processes" and len(static.ids) * len(idx) < SERIAL_BELOW:
+    if (
+        executor.backend == "processes"
+        and not executor.forks
+        and len(static.ids) * len(idx) < SERIAL_BELOW
+    ):
         executor = Executor()  # starting worker processes would cost more than the work
     k = max(1, min(executor.parallelism, len(idx)))
     # Interleaved shares balance early (small) and late (large) origins across workers.

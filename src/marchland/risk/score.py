@@ -325,9 +325,9 @@ penalty, min_cases, covariates
         Seed of the forecast model's paths.
     executor : marchland.compute.Executor, optional
         Where the origins run (this process, local processes or a Dask cluster, as
-        ``[compute]`` sets); overrides ``n_jobs``. Results do not depend on it. Local
-        processes are started only when units x origins reach
-        ``marchland.risk._backtest.SERIAL_BELOW`` (below it their start-up costs more).
+        ``[compute]`` sets); overrides ``n_jobs``. Results do not depend on it. Where local
+        processes cannot be forked (not Linux), they are started only when units x origins
+        reach ``marchland.risk._backtest.SERIAL_BELOW`` (below it their start-up costs more).
 
     Returns
     -------
