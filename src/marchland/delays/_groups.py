@@ -49,11 +49,15 @@ def check_args(
 
 def country_of(ids: pd.Index, units: pd.DataFrame | None) -> np.ndarray:
     """Country code of each unit id: ``units.country`` if given, else the id's prefix."""
+    if units is not None and "country" in units:
+        known = pd.Series(units["country"]).reindex(ids).to_numpy(dtype=object)
+        missing = pd.isna(known)
+        if not missing.any():  # the prefixes are only needed for units not in ``units``
+            return known
     prefix = ids.str.split("-").str[0].to_numpy(dtype=object)
     if units is None or "country" not in units:
         return prefix
-    known = pd.Series(units["country"]).reindex(ids).to_numpy(dtype=object)
-    return np.where(pd.isna(known), prefix, known)
+    return np.where(missing, prefix, known)
 
 
 def province_of(ids: pd.Index, units: pd.DataFrame | None) -> np.ndarray:

@@ -182,12 +182,13 @@ def _fill(counts, units, stamp, max_delay_weeks, recent_weeks):
         level = level_sum / level_n
     has = ~np.isnan(latest)
     # Per country and week: estimate over reporting units, and their summed recent level.
-    est = np.zeros((len(countries), n_t))
-    np.add.at(est, ci, np.where(has, value, 0))
-    lev = np.zeros((len(countries), n_t))
-    np.add.at(lev, ci, np.where(has & ~np.isnan(level), level, 0))
-    any_rep = np.zeros((len(countries), n_t), bool)
-    np.logical_or.at(any_rep, ci, has)
+    # (bincount adds in unit order, as np.add.at did, many times faster on units x weeks)
+    cell = (ci[:, None] * n_t + np.arange(n_t)[None, :]).ravel()
+    size = len(countries) * n_t
+    est = np.bincount(cell, np.where(has, value, 0).ravel(), size).reshape(-1, n_t)
+    lev = np.bincount(cell, np.where(has & ~np.isnan(level), level, 0).ravel(), size)
+    lev = lev.reshape(-1, n_t)
+    any_rep = np.bincount(cell, has.ravel(), size).reshape(-1, n_t) > 0
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = np.where(any_rep & (lev > 0), est / lev, np.nan)[ci]
     imputed = np.where(np.isnan(ratio), level, level * ratio)
