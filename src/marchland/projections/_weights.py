@@ -37,6 +37,12 @@ class OrderMatrix:
         o = e["order"].to_numpy(dtype=float)[keep]
         return cls(j[keep].astype(np.int64), i[keep].astype(np.int64), np.log(o), len(ids))
 
+    def __getstate__(self) -> dict:
+        """Pickle without the last weights built (a worker builds its own)."""
+        state = self.__dict__.copy()
+        state.pop("_last", None)
+        return state
+
     @property
     def empty(self) -> bool:
         """True when no unit has a neighbour."""
@@ -75,6 +81,16 @@ class OrderMatrix:
         ``w_ji = o_ji^-d / sum_k o_jk^-d``: what sender ``j`` passes on sums to one over its
         neighbours within ``max_order`` steps.
         """
+        # The numerical Hessian moves one parameter at a time: a third of the optimiser's
+        # calls ask for the decay of the call before (same numbers, built once).
+        last = self.__dict__.get("_last")
+        if last is not None and last[0] == d and (last[1] or not derivative):
+            return last[2] if derivative else last[2][0]
+        out = self._weights(d, derivative)
+        self.__dict__["_last"] = (d, derivative, out if derivative else (out, None))
+        return out
+
+    def _weights(self, d: float, derivative: bool):
         n = self.n
         perm, indices, _, code, code_csr = self._csr
         # o^-d for each distinct order, looked up per pair: the same numbers as exp over every
