@@ -21,6 +21,7 @@ import pandas as pd
 
 from ..errors import DataWarning, InputError
 from ._names import Matcher
+from ._order import one_row_per_unit_week
 from ._parse import flag as _flag
 from ._parse import parse_table as _parse_table
 from ._parse import read_tables, text_frame
@@ -104,39 +105,12 @@ def as_of(counts: pd.DataFrame, date: object = None) -> pd.DataFrame:
     out = counts
     if date is not None:
         out = out[out["received"] <= pd.Timestamp(date)]
-    elif _one_row_per_unit_week(out):  # already a view (e.g. first_cases of an as-of view)
+    elif one_row_per_unit_week(out):  # already a view (e.g. first_cases of an as-of view)
         return out.reset_index(drop=True)
     # Stable sort: for equal received dates the later row of the later file wins.
     out = out.sort_values(["unit_id", "week", "received"], kind="stable")
     out = out.drop_duplicates(["unit_id", "week"], keep="last")
     return out.reset_index(drop=True)
-
-
-def _one_row_per_unit_week(frame: pd.DataFrame) -> bool:
-    """Whether rows are strictly increasing in (unit_id, week): sorting would change nothing.
-
-    Ids compare as the sort compares them: category order for categorical ids, else as text.
-    Anything else (missing values, mixed types) answers False and takes the sort.
-    """
-    if len(frame) < 2:
-        return False
-    ids = frame["unit_id"]
-    if isinstance(ids.dtype, pd.CategoricalDtype):
-        u = ids.cat.codes.to_numpy()
-        if (u < 0).any():
-            return False
-    else:
-        u = ids.to_numpy(dtype=object)
-        if pd.isna(u).any():
-            return False
-    w = frame["week"].to_numpy("datetime64[ns]")
-    if np.isnat(w).any():
-        return False
-    try:
-        later = (u[1:] > u[:-1]) | ((u[1:] == u[:-1]) & (w[1:] > w[:-1]))
-    except TypeError:  # ids of mixed types
-        return False
-    return bool(np.all(later))
 
 
 # --- the result ------------------------------------------------------------------------------
