@@ -10,8 +10,9 @@ time, this process's CPU time and a digest of the predictions (equal digests: eq
 ``--cache FILE`` keeps the opened region in a pickle for later runs (opening the 10k world takes
 one to two minutes). ``--n-jobs`` passes ``n_jobs=`` instead of an executor (the call older
 versions take, for before/after timings). With ``--profile`` the serial run is profiled with
-cProfile and the top functions printed. The CPU time of local worker processes is read with psutil
-(workers started for the run are counted whole, start-up included).
+cProfile on CPU time (the wall clock counts other work on a shared machine) and the top
+functions printed. The CPU time of local worker processes is read with psutil (workers started
+for the run are counted whole, start-up included).
 """
 
 from __future__ import annotations
@@ -99,7 +100,7 @@ def main() -> None:
             import cProfile
             import pstats
 
-            pr = cProfile.Profile()
+            pr = cProfile.Profile(time.process_time)
             pr.enable()
         w0, c0, k0 = time.perf_counter(), time.process_time(), _workers_cpu()
         with ex:
@@ -108,6 +109,7 @@ def main() -> None:
         if a.profile and ex.backend == "serial":
             pr.disable()
             pstats.Stats(pr).sort_stats("cumulative").print_stats(35)
+            pstats.Stats(pr).sort_stats("tottime").print_stats(25)
         n_or = int(bt.summary.loc["score", "n_origins"])
         print(
             f"{name}: wall {w1 - w0:.2f} s, CPU (this process) {c1 - c0:.2f} s, "

@@ -49,23 +49,42 @@ def check_args(
 
 def country_of(ids: pd.Index, units: pd.DataFrame | None) -> np.ndarray:
     """Country code of each unit id: ``units.country`` if given, else the id's prefix."""
+    if units is not None and "country" in units:
+        known = pd.Series(units["country"]).reindex(ids).to_numpy(dtype=object)
+        missing = pd.isna(known)
+        if not missing.any():  # the prefixes are only needed for units not in ``units``
+            return known
     prefix = ids.str.split("-").str[0].to_numpy(dtype=object)
     if units is None or "country" not in units:
         return prefix
-    known = pd.Series(units["country"]).reindex(ids).to_numpy(dtype=object)
-    return np.where(pd.isna(known), prefix, known)
+    return np.where(missing, prefix, known)
 
 
 def province_of(ids: pd.Index, units: pd.DataFrame | None) -> np.ndarray:
     """Province of each unit: itself at level 1, its parent at level 2 (``units``), else id."""
-    fallback = ids.str.split("-").str[:2].str.join("-").to_numpy(dtype=object)
+    codes, uniq = pd.factorize(ids)
+    if len(uniq) < len(ids) and not (codes < 0).any():
+        # A long panel repeats every id once per week: work out each id once.
+        return _province_of(pd.Index(uniq), units)[codes]
+    return _province_of(ids, units)
+
+
+def _province_of(ids: pd.Index, units: pd.DataFrame | None) -> np.ndarray:
     if units is None or "parent_id" not in units or "level" not in units:
-        return fallback
+        return _id_province(ids)
     level = pd.Series(units["level"]).reindex(ids).to_numpy()
     parent = pd.Series(units["parent_id"]).reindex(ids).to_numpy(dtype=object)
     own = np.asarray(ids, dtype=object)
     out = np.where(level == 1, own, parent)
-    return np.where(pd.isna(out) | pd.isna(level), fallback, out)
+    missing = pd.isna(out) | pd.isna(level)
+    if not missing.any():  # the id-based guess is only needed for units not in ``units``
+        return out
+    return np.where(missing, _id_province(ids), out)
+
+
+def _id_province(ids: pd.Index) -> np.ndarray:
+    """Return the province part of ids shaped ``CCC-PP-DD`` (their first two parts)."""
+    return ids.str.split("-").str[:2].str.join("-").to_numpy(dtype=object)
 
 
 def group_of(ids: pd.Index, by: str, units: pd.DataFrame | None) -> np.ndarray:

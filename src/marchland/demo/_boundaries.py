@@ -72,17 +72,56 @@ def _land_borders(world: World) -> list:
     return out
 
 
+class _Near:
+    """Distances from many points to one geometry, looked up through an STRtree of its segments.
+
+    GEOS measures a point against every segment of a line or polygon; the borders and country
+    outlines of a large world have hundreds of thousands of segments, so measuring every vertex
+    against them directly grows with the product. The tree finds the few segments near each
+    point; the distances are those GEOS gives (0 inside a polygon, else the nearest segment).
+    """
+
+    def __init__(self, geom):
+        self.geom = geom
+        rings = shapely.get_parts(geom.boundary if geom.geom_type.endswith("Polygon") else geom)
+        segs = []
+        for ring in rings:
+            c = shapely.get_coordinates(ring)
+            segs.append(shapely.linestrings(np.stack([c[:-1], c[1:]], axis=1)))
+        self.tree = shapely.STRtree(np.concatenate(segs))
+        shapely.prepare(geom)
+
+    def within(self, pts, distance):
+        """Positions of ``pts`` no further than ``distance`` from the geometry."""
+        hit, _ = self.tree.query(pts, predicate="dwithin", distance=distance)
+        return np.unique(hit)
+
+    def distance(self, pts):
+        """Distance of each point to the geometry (0 inside a polygon or on it)."""
+        out = np.zeros(len(pts))
+        outside = ~shapely.intersects(self.geom, pts)
+        if outside.any():
+            _, dist = self.tree.query_nearest(pts[outside], return_distance=True, all_matches=False)
+            out[outside] = dist
+        return out
+
+
 def _profile_shift(xy, own, other, line, union, params):
-    """Push points near ``line`` along its normal, towards ``other``, by the border's profile."""
+    """Push points near ``line`` along its normal, towards ``other``, by the border's profile.
+
+    ``line`` and ``union``'s values are :class:`_Near` lookups of the border and the countries.
+    """
     wavelength, phase = params
-    pts = shapely.points(xy)
-    dist = shapely.distance(pts, line)
     lo, hi = _TAPER_M
+    out = np.zeros_like(xy)
+    cand = line.within(shapely.points(xy), hi)  # only these can lie within the taper
+    pts = shapely.points(xy[cand])
+    dist = shapely.distance(pts, line.geom)
     w = np.clip((hi - dist) / (hi - lo), 0, 1)
     near = w > 0
-    out = np.zeros_like(xy)
     if not near.any():
         return out
+    line = line.geom
     s = shapely.line_locate_point(line, pts[near])
     p0 = shapely.get_coordinates(shapely.line_interpolate_point(line, s - 150))
     p1 = shapely.get_coordinates(shapely.line_interpolate_point(line, s + 150))
@@ -91,10 +130,10 @@ def _profile_shift(xy, own, other, line, union, params):
     t /= np.maximum(np.hypot(t[:, 0], t[:, 1]), 1e-9)[:, None]
     n = np.column_stack([-t[:, 1], t[:, 0]])
     probe = shapely.points(q + 300 * n)
-    towards = shapely.distance(probe, union[other]) < shapely.distance(probe, union[own])
+    towards = union[other].distance(probe) < union[own].distance(probe)
     n *= np.where(towards, 1.0, -1.0)[:, None]
     m = np.tanh(3 * np.sin(2 * np.pi * s / wavelength + phase))  # +1 overlap, -1 gap
-    out[near] = (w[near] * _PROFILE_M * m)[:, None] * n
+    out[cand[near]] = (w[near] * _PROFILE_M * m)[:, None] * n
     return out
 
 
@@ -128,6 +167,9 @@ def country_copies(world: World, rng: np.random.Generator) -> dict[str, gpd.GeoD
     """
     out = {}
     borders = _land_borders(world)
+    if borders:  # index each border and country once, for every vertex of every country
+        near = {c: _Near(g) for c, g in borders[0][3].items()}
+        borders = [(a, b, _Near(line), near) for a, b, line, _union in borders]
     params = [(rng.uniform(45_000, 90_000), rng.uniform(0, 2 * np.pi)) for _ in borders]
     for c in FILES:
         d = world.districts[world.districts["country"] == c]

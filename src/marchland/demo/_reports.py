@@ -135,17 +135,21 @@ def write_tvr(sc, cases, deaths, folder: Path, rng, dirt, *, country: str = "TVR
     header = ["district_code", "district", "week_start", "cases", "deaths", "received"]
     for i, m in enumerate(months):
         part = frame[frame["file"] == m]
-        rows = [
-            [
-                r.code,
-                r.name,
-                r.week.strftime("%Y-%m-%d"),
-                int(r.cases),
-                int(r.deaths),
-                r.received.strftime("%Y-%m-%d"),
-            ]
-            for r in part.itertuples()
-        ]
+        # Column by column (a large world has millions of rows); rows stay lists to edit.
+        rows = list(
+            map(
+                list,
+                zip(
+                    part["code"].tolist(),
+                    part["name"].tolist(),
+                    part["week"].dt.strftime("%Y-%m-%d").tolist(),
+                    part["cases"].astype(int).tolist(),
+                    part["deaths"].astype(int).tolist(),
+                    part["received"].dt.strftime("%Y-%m-%d").tolist(),
+                    strict=True,
+                ),
+            )
+        )
         tags = {}
         if i == 6:  # a negative count in place of a real one
             k = next(

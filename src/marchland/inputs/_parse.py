@@ -91,9 +91,12 @@ def _csv_table(path: Path) -> pd.DataFrame:
     header = [h.strip() for h in records[0]]
     rows = records[1:]
     n = len(header)
-    filled = [r for r in rows if any(c.strip() for c in r)]
-    if filled and all(len(r) == n + 1 and not r[-1].strip() for r in filled):
-        rows = [r[:n] if len(r) == n + 1 else r for r in rows]
+    lengths = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows))
+    if (lengths == n + 1).any():  # only then can every filled row end in a delimiter
+        filled = [r for r in rows if any(c.strip() for c in r)]
+        if filled and all(len(r) == n + 1 and not r[-1].strip() for r in filled):
+            rows = [r[:n] if len(r) == n + 1 else r for r in rows]
+            lengths = np.fromiter(map(len, rows), dtype=np.int64, count=len(rows))
     seen: dict[str, int] = {}
     names = []
     for h in header:  # repeated headers get ".1", ".2" as pandas names them
@@ -101,13 +104,15 @@ def _csv_table(path: Path) -> pd.DataFrame:
         names.append(h if k == 0 else f"{h}.{k}")
         seen[h] = k + 1
     bad: dict[int, int] = {}
-    cells = []
-    for i, r in enumerate(rows):
-        if len(r) == n or not any(c.strip() for c in r):
-            cells.append((r + [""] * n)[:n])
-        else:
-            bad[i] = len(r)
-            cells.append([""] * n)
+    cells = rows
+    if (lengths != n).any():  # rows of the right length go in as they are (most files)
+        cells = []
+        for i, r in enumerate(rows):
+            if len(r) == n or not any(c.strip() for c in r):
+                cells.append((r + [""] * n)[:n])
+            else:
+                bad[i] = len(r)
+                cells.append([""] * n)
     frame = (
         pd.DataFrame(cells, columns=names, dtype=object)
         if n
@@ -219,6 +224,14 @@ def parse_dates(s: pd.Series, fmt: str | None = None) -> tuple[pd.Series, np.nda
     source), which are rejected rather than guessed.
     """
     t = text(s)
+    # Report files repeat a few dates over thousands of rows: parse each distinct cell once.
+    codes, uniq = pd.factorize(t)
+    if len(uniq) < len(t):
+        u, amb_u = parse_dates(pd.Series(uniq, name=t.name), fmt)
+        # A blank cell's code is -1: the value appended last (NaT, not ambiguous).
+        out = np.append(u.to_numpy("datetime64[ns]"), np.datetime64("NaT", "ns"))[codes]
+        amb = np.append(amb_u, False)[codes]
+        return pd.Series(out, index=t.index, name=u.name), amb
     iso = t.str.extract(_ISO_DATE, expand=False)
     out = _strict(iso, "%Y-%m-%d")
     if fmt:
@@ -249,6 +262,12 @@ def whole_numbers(
     negative).
     """
     t = text(s)
+    # Counts repeat (mostly small numbers): parse each distinct cell once.
+    codes, uniq = pd.factorize(t)
+    if len(uniq) < len(t):
+        u, _blank_u, bad_u = whole_numbers(pd.Series(uniq, name=t.name), thousands)
+        vals = pd.Series(u.array.take(codes, allow_fill=True), index=t.index, name=u.name)
+        return vals, codes < 0, np.append(bad_u, False)[codes]
     blank = t.isna().to_numpy()
     if thousands:
         grouped = t.str.fullmatch(r"-?\d{1,3}(?:" + re.escape(thousands) + r"\d{3})+")

@@ -155,10 +155,11 @@ def _zonal(
     Returns the statistics (one row per unit, in order) and the covered share per unit; raises
     for units outside the raster's valid cells and warns for partly covered ones.
     """
-    import geopandas as gpd
     import rasterio
     import shapely
     from exactextract import exact_extract
+
+    from ._extract import WkbFeatures, raster_source
 
     path = Path(raster)
     try:
@@ -178,14 +179,18 @@ def _zonal(
         # area on the sphere; on a projected grid every cell has the same area.
         weight = "area_spherical_m2" if crs.is_geographic else "fraction"
         ops = [f"mean=mean(coverage_weight={weight})"]
-    local = gpd.GeoDataFrame(
-        {"_uid": np.arange(len(units))}, geometry=units.geometry.to_crs(crs).to_numpy(), crs=crs
-    )
+    geoms = units.geometry.to_crs(crs).to_numpy()
     with rasterio.open(path) as src:
-        out = exact_extract(src, local, [*ops, "count"], include_cols=["_uid"], output="pandas")
+        out = exact_extract(
+            raster_source(src),
+            WkbFeatures(geoms, crs.wkt),
+            [*ops, "count"],
+            include_cols=["_uid"],
+            output="pandas",
+        )
     out = out.set_index("_uid").reindex(np.arange(len(units)))
     # Planar area in the raster's own units, the same units as the cell size.
-    area = shapely.area(local.geometry.to_numpy())
+    area = shapely.area(geoms)
     covered = np.clip(out["count"].fillna(0).to_numpy() * res / np.where(area > 0, area, 1), 0, 1)
     share = pd.Series(covered, index=units.index, name="covered")
     outside = share <= 0

@@ -21,6 +21,7 @@ import pandas as pd
 
 from ..errors import DataWarning, InputError
 from ._names import Matcher
+from ._order import one_row_per_unit_week
 from ._parse import flag as _flag
 from ._parse import parse_table as _parse_table
 from ._parse import read_tables, text_frame
@@ -104,6 +105,8 @@ def as_of(counts: pd.DataFrame, date: object = None) -> pd.DataFrame:
     out = counts
     if date is not None:
         out = out[out["received"] <= pd.Timestamp(date)]
+    elif one_row_per_unit_week(out):  # already a view (e.g. first_cases of an as-of view)
+        return out.reset_index(drop=True)
     # Stable sort: for equal received dates the later row of the later file wins.
     out = out.sort_values(["unit_id", "week", "received"], kind="stable")
     out = out.drop_duplicates(["unit_id", "week"], keep="last")

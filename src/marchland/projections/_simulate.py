@@ -54,8 +54,16 @@ def simulate_paths(
         mu = endemic[s][:, None] + lam * y
         if wt is not None:
             mu += phi * (wt @ y)
-        y = rng.poisson(rng.gamma(size, mu / size)).astype(float)
-        paths[s] = y
         if keep_means:
             means[s] = mu
+        # Each (units x paths) array is 0.4 GB at 50,000 units and 1,000 paths: the scale
+        # reuses the mean's buffer and the draws land in the previous counts' buffer (the
+        # same numbers and the same random stream as building new arrays).
+        g = rng.gamma(size, np.divide(mu, size, out=mu))
+        del mu
+        k = rng.poisson(g)
+        del g
+        np.copyto(y, k)
+        del k
+        paths[s] = y
     return (paths, means) if keep_means else paths

@@ -204,10 +204,11 @@ class Replay:
     ``rows`` are the versions sorted as :func:`marchland.inputs.reports.as_of` sorts them (unit,
     week, received; stable), with ``next_received`` the receipt of the next version of the same
     unit-week: a row is in the view of ``date`` when it was received by then and its successor
-    was not. ``gaps`` are the versions sorted by receipt (stable), so the
-    versions known on a date are a prefix. ``first_receipt`` is, per unit-week with cases, when
-    the first positive version arrived and its delay (``_first_positive``). Every as-of
-    quantity is then a mask or a slice.
+    was not. ``gaps`` are the versions in the order the reporting triangle sorts them (unit
+    ids as text, week, receipt; stable), so the triangle of every date is a mask of them and
+    is not sorted again (``delays._triangle.unit_cells``). ``first_receipt`` is, per unit-week
+    with cases, when the first positive version arrived and its delay (``_first_positive``).
+    Every as-of quantity is then a mask.
     """
 
     rows: pd.DataFrame
@@ -231,7 +232,7 @@ class Replay:
             same = (uid[1:] == uid[:-1]) & (wk[1:] == wk[:-1])
             nxt[:-1] = np.where(same, rec[1:], never)
         # Categorical ids stay categorical: delays factorises them from their codes.
-        gaps = counts.sort_values("received", kind="stable").reset_index(drop=True)
+        gaps = counts.iloc[_triangle_order(counts)].reset_index(drop=True)
         return cls(
             rows,
             rec,
@@ -250,9 +251,27 @@ class Replay:
     def known(self, date: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
         """Return the versions received by ``date`` and the first positive receipts by then."""
         d = pd.Timestamp(date).as_unit("ns").value
-        k = int(np.searchsorted(self.gaps_received, d, side="right"))
         first = self.first_receipt
-        return self.gaps.iloc[:k], first[first["received"] <= pd.Timestamp(date)]
+        return self.gaps[self.gaps_received <= d], first[first["received"] <= pd.Timestamp(date)]
+
+
+def _triangle_order(counts: pd.DataFrame) -> np.ndarray:
+    """Positions of ``counts`` sorted by unit id as text, week and receipt (stable).
+
+    The order ``delays._triangle.unit_cells`` sorts the versions known on a date into; any
+    subset of rows keeps it.
+    """
+    ids = counts["unit_id"]
+    if isinstance(ids.dtype, pd.CategoricalDtype):
+        names = np.asarray(ids.cat.categories, dtype=object)
+        rank = np.empty(len(names), dtype=np.int64)
+        rank[np.argsort(names, kind="stable")] = np.arange(len(names))
+        unit = rank[ids.cat.codes.to_numpy()]
+    else:
+        unit = pd.factorize(ids.to_numpy(dtype=object), sort=True)[0]
+    week = counts["week"].to_numpy("datetime64[ns]").view(np.int64)
+    rec = counts["received"].to_numpy("datetime64[ns]").view(np.int64)
+    return np.lexsort((rec, week, unit))
 
 
 def _filled(known: pd.DataFrame, static: rf.Static, weeks: pd.DatetimeIndex, date) -> np.ndarray:
