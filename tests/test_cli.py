@@ -356,3 +356,20 @@ def test_as_of_before_any_data_is_one_line_before_the_analysis(
     )
     err = _one_error_line(res)
     assert "as_of" in err and "2020-01-01" in err and "no report of 2026-10" in err
+
+
+def test_the_console_script_ends_with_the_commands_exit_code_and_output(tmp_path):
+    # main() ends the process without the interpreter's teardown: what the command printed
+    # must still arrive and its exit code must be the process's.
+    def run(*args: str) -> subprocess.CompletedProcess:
+        code = "import sys; from marchland.cli import main; sys.argv[0] = 'marchland'; main()"
+        return subprocess.run(
+            [sys.executable, "-c", code, *args], capture_output=True, text=True, timeout=120
+        )
+
+    ok = run("--version")
+    assert ok.returncode == 0 and ok.stdout.strip().startswith("marchland ")
+    bad = run("run", "no-such.toml", "--month", "2026-10")
+    assert bad.returncode == 2 and "no-such.toml" in bad.stderr
+    usage = run("run", "--month", "2026-13")
+    assert usage.returncode == 2 and "needs YYYY-MM" in usage.stderr

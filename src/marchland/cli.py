@@ -11,6 +11,7 @@ stderr, no traceback); 1 an unexpected error (a hint to rerun with ``-v`` for th
 from __future__ import annotations
 
 import logging
+import os
 import re
 import sys
 import time
@@ -615,8 +616,31 @@ def _fmt(v: Any) -> str:
 
 
 def main() -> None:
-    """Console-script entry point (``marchland``)."""
-    cli.main(prog_name="marchland")
+    """Console-script entry point (``marchland``).
+
+    Once the command is done (every file written and closed), the process ends without the
+    interpreter's teardown: the exit handlers run and the streams are flushed, but a month's
+    objects are not freed one by one (0.7 s of the demo's 15 s, measured).
+    """
+    try:
+        cli.main(prog_name="marchland")
+        code = 0
+    except SystemExit as exc:
+        if exc.code is not None and not isinstance(exc.code, int):
+            print(exc.code, file=sys.stderr)
+        code = exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+    _leave(code)
+
+
+def _leave(code: int) -> None:
+    import atexit
+    import logging
+
+    atexit._run_exitfuncs()  # what a normal exit runs (multiprocessing, finalizers, ...)
+    logging.shutdown()
+    sys.stdout.flush()
+    sys.stderr.flush()
+    os._exit(code)
 
 
 if __name__ == "__main__":  # pragma: no cover
