@@ -457,12 +457,13 @@ def run_month(
         ctx = run("set-up", set_up, data_limited=False)
         run.timings["set-up"] = round(run.timings["set-up"] + config_s, 3)  # reading the config
 
-        fields.update(run("rates", ctx.rates) or {})
-        fields.update(run("nowcast", ctx.nowcast) or {})
         # The forecast with its backtest, the longest analysis, needs only the filled panel:
-        # it runs in a forked copy while hotspots, spread, risk and clusters go on here.
+        # it runs in a forked copy while rates, nowcast, hotspots, spread, risk and clusters
+        # go on here.
         ahead = _outlook.start_forecast(ctx)
         try:
+            fields.update(run("rates", ctx.rates) or {})
+            fields.update(run("nowcast", ctx.nowcast) or {})
             fields.update(run("hotspots", ctx.hotspots) or {})
             fields.update(run("spread", ctx.spread) or {})
             risk = run("border risk", ctx.risk)
