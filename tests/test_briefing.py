@@ -217,3 +217,21 @@ def test_figures_are_the_same_files_whoever_draws_them(month, tmp_path):
     assert drawn[1][1] == drawn[2][1]
     pages = len(re.findall(rb"/Type\s*/Page\b(?!s)", drawn[1][1]))
     assert pages == len(drawn[1][0]) + 1  # a cover page, then one page per figure
+
+
+def test_long_unit_tables_show_their_head_and_point_to_the_csv(month, monkeypatch):
+    # A continent's month has tens of thousands of candidates: the page prints the first
+    # PAGE_ROWS of the risk and priority tables (ranked) and says the rest are in the CSV.
+    from marchland.pack import _briefing as briefing
+    from marchland.pack import _sections as sections
+
+    result, _ = month
+    n_risk, n_prio = len(result.risk), len(result.priorities)
+    assert n_risk > 1 and n_prio > 1
+    monkeypatch.setattr(sections, "PAGE_ROWS", 1)
+    monkeypatch.setattr(briefing, "PAGE_ROWS", 1)
+    html = sections._risk_section(result, {})
+    assert f"First 1 of {n_risk:,} rows; all are in the CSV." in html
+    ranked = result.risk.sort_values("rank").index
+    assert f">{ranked[0]}<" in html and f">{ranked[1]}<" not in html
+    assert f"First 1 of {n_prio:,} rows; all are in the CSV." in briefing.priority_block(result)

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from ._html import esc, table_html
+from ._html import PAGE_ROWS, esc, table_html
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
@@ -326,6 +326,7 @@ def priority_block(result: MonthResult) -> str:
             "expected_cases": "int",
             "distance_km": "int",
         },
+        limit=PAGE_ROWS,  # the ranked list's head; every row is in tables/priorities.csv
     )
     return body
 

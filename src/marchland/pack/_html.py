@@ -137,6 +137,10 @@ def table_html(
     return out
 
 
+#: Rows of a per-unit table printed on the page (the rest are in its CSV): at 50,000 units the
+#: full risk-candidate and priority tables were 5.4 MB of the page.
+PAGE_ROWS = 300
+
 #: Colours kept when a figure is re-encoded for the page. Our maps are flat class colours,
 #: grey borders and text: 256 palette entries draw them without visible loss (common practice
 #: for web maps), at a third of the size of the full-colour PNG.

@@ -19,6 +19,7 @@ from ._briefing import (
 )
 from ._html import (
     CAUTIONS,
+    PAGE_ROWS,
     _absent,
     _by_country_label,
     _figure,
@@ -282,7 +283,7 @@ def _risk_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
             "parts (contribution to the linear predictor). Silent units sent no report "
             "lately: they may have undetected cases and are not safely unaffected.</p>"
             + '<div class="scroll">'
-            + table_html(r, cols, index="unit_id", kinds={"probability": "pct"})
+            + table_html(r, cols, index="unit_id", kinds={"probability": "pct"}, limit=PAGE_ROWS)
             + "</div>"
         )
     return _section("Border risk", body, "risk")
