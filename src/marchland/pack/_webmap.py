@@ -102,10 +102,7 @@ def _rate_layer(result: MonthResult) -> Layer | None:
     r = result.rates
     if r is None:
         return None
-    hist = result.rates_history
-    bins = mc._rate_bounds(hist if hist is not None else r["month_rate"], 5)
     rate = r["month_rate"].where(r["month_weeks_reported"] > 0)
-    fill, classes = mc._rate_colours(rate, bins)
     text = (
         _fmt_series(rate, ",.1f")
         + " per 100,000 (95% CI "
@@ -115,12 +112,22 @@ def _rate_layer(result: MonthResult) -> Layer | None:
         + "); "
         + _fmt_series(r["month_cases"], ",.0f")
         + " cases"
-    ).where(classes != -2, "no report in the month")
+    )
+    return _rate_classes_layer(result, "rate", "Attack rate per 100,000, the month", rate, text)
+
+
+def _rate_classes_layer(
+    result: MonthResult, key: str, title: str, rate: pd.Series, text: pd.Series
+) -> Layer:
+    """Return a layer of month rates in the static maps' shared classes (six months pooled)."""
+    hist = result.rates_history
+    bins = mc._rate_bounds(hist if hist is not None else result.rates["month_rate"], 5)
+    fill, classes = mc._rate_colours(rate, bins)
     return Layer(
-        "rate",
-        "Attack rate per 100,000, the month",
+        key,
+        title,
         fill,
-        text,
+        text.where(classes != -2, "no report in the month"),
         _entries(mc._rate_entries(bins, classes)),
         hatched=pd.Series(classes == -2, index=rate.index),
     )
@@ -201,21 +208,10 @@ def _nowcast_rate_layer(result: MonthResult) -> Layer | None:
     r = result.rates
     if r is None or "month_adjusted_rate" not in r:
         return None
-    hist = result.rates_history
-    bins = mc._rate_bounds(hist if hist is not None else r["month_rate"], 5)
     rate = r["month_adjusted_rate"].astype(float)
-    fill, classes = mc._rate_colours(rate, bins)
-    text = (_fmt_series(rate, ",.1f") + " per 100,000 (nowcast-adjusted)").where(
-        classes != -2, "no report in the month"
-    )
-    return Layer(
-        "rate_nowcast",
-        "Attack rate per 100,000, nowcast-adjusted",
-        fill,
-        text,
-        _entries(mc._rate_entries(bins, classes)),
-        hatched=pd.Series(classes == -2, index=rate.index),
-    )
+    text = _fmt_series(rate, ",.1f") + " per 100,000 (nowcast-adjusted)"
+    title = "Attack rate per 100,000, nowcast-adjusted"
+    return _rate_classes_layer(result, "rate_nowcast", title, rate, text)
 
 
 def _emerging_layer(result: MonthResult) -> Layer | None:
