@@ -336,6 +336,39 @@ def test_errors_name_file_and_column(tmp_path: Path, units: pd.DataFrame) -> Non
         )
 
 
+def test_sources_read_by_two_processes_equal_one(tmp_path: Path, units: pd.DataFrame) -> None:
+    """The demo's four sources read by forked copies give the same tables, warnings, errors."""
+    import warnings
+
+    from marchland.config import load_config
+    from marchland.demo import scenario_path
+    from marchland.inputs.units import units_from_config
+
+    cfg = load_config(scenario_path())
+    all_units = units_from_config(cfg)
+    got = {}
+    for workers in (1, 2):
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", DataWarning)
+            got[workers] = (
+                read_reports(cfg, all_units, today="2026-11-05", workers=workers),
+                sorted(str(w.message) for w in caught if issubclass(w.category, DataWarning)),
+            )
+    (one, warned_one), (two, warned_two) = got[1], got[2]
+    assert len(one.counts) > 10_000 and len(one.rejects) > 0
+    for name in ("counts", "rejects", "matches", "completeness", "accounting"):
+        pd.testing.assert_frame_equal(getattr(one, name), getattr(two, name))
+    assert warned_one == warned_two
+    # An error in a source read by a copy is raised here, naming file and column.
+    path = write(tmp_path / "w.csv", "district,week,cases,received\nAst,2026-01-05,1,2026-01-06\n")
+    cols = dict(place="district", week="week", cases="cases", received="received")
+    fine = spec(path, columns=cols)
+    bad = [fine, fine, spec(path, columns=WEEKLY_COLS)]
+    with pytest.raises(InputError) as info:
+        read_reports(bad, units, today=TODAY, workers=2)
+    assert info.value.file.endswith("w.csv") and info.value.column == "district_code"
+
+
 # --- property: every generated row is counted or rejected ----------------------------------
 NAMES = ["Ast", "ast", "Bel Orme", "Saint Eloi", "North Varre", "Kessel", "Nowhere", "", "Orlane"]
 CELLS = st.one_of(st.integers(-3, 30).map(str), st.sampled_from(["", "x", "2.5", " 4 "]))

@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from ..compute import get_executor, share_tasks
 from ..errors import DataWarning, InputError
 from ._names import Matcher
 from ._order import one_row_per_unit_week
@@ -506,6 +507,7 @@ def read_reports(
     matching: MatchingConfig | None = None,
     checks: ChecksConfig | None = None,
     today: object = None,
+    workers: int | None = None,
 ) -> Reports:
     r"""Read every report source into counts (all versions), rejects and match tables.
 
@@ -526,6 +528,10 @@ def read_reports(
     today : date-like, optional
         Weeks after this (or after the row's received date) are rejected as "future-week".
         Default: today's date.
+    workers : int, optional
+        Processes reading sources at once (this one and forked copies; results are the same
+        with any number). Default: the config's ``[compute]`` workers when given a whole
+        ``Config`` without a Dask scheduler, else 1.
 
     Returns
     -------
@@ -572,6 +578,8 @@ def read_reports(
         checks = checks or cfg.checks
         aliases = aliases if aliases is not None else cfg.matching.aliases
         calendar = cfg.region.calendar
+        if workers is None and getattr(cfg.compute, "scheduler", None) is None:
+            workers = get_executor(cfg.compute).workers
     elif isinstance(specs, ReportSpec):
         specs = [specs]
     if calendar not in CALENDARS:
@@ -582,10 +590,16 @@ def read_reports(
     checks = checks or ChecksConfig()
     today = pd.Timestamp(today if today is not None else pd.Timestamp.now()).normalize()
     alias_table = load_aliases(aliases, units)
-    results = [
-        _read_source(s, f"reports[{i}]", units, alias_table, calendar, matching, checks, today)
-        for i, s in enumerate(specs)
-    ]
+    specs = list(specs)
+
+    def one(i: int) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame, dict]:
+        return _read_source(
+            specs[i], f"reports[{i}]", units, alias_table, calendar, matching, checks, today
+        )
+
+    # Sources are independent: local forked copies share them (results in source order, the
+    # same with any number of workers; one worker, or no fork on this platform: one by one).
+    results = share_tasks(one, len(specs), workers=max(1, workers or 1))
     return _assemble(results, units, specs, calendar)
 
 
