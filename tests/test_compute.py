@@ -298,3 +298,28 @@ def test_background_work_returns_its_value_warnings_and_errors():
     for workers in (1, 2):
         with pytest.raises(InputError, match="no such column"):
             in_background(fails, workers=workers).result()
+
+
+def _resident_mb() -> float:
+    with open("/proc/self/status", encoding="ascii") as fh:
+        return int(fh.read().split("VmRSS:")[1].split()[0]) / 1024
+
+
+@pytest.mark.skipif(
+    not sys.platform.startswith("linux"), reason="reads /proc; glibc's heap is Linux's"
+)
+def test_release_memory_hands_freed_heap_back():
+    from marchland.compute import _malloc_trim, release_memory
+
+    if _malloc_trim() is None:
+        pytest.skip("this C library has no malloc_trim (not glibc)")
+    # 200 MB in 4 kB blocks (glibc's heap, not Python's small-object arenas); every 64th kept,
+    # so the freed blocks sit between live ones and the heap cannot shrink from its top alone.
+    blocks = [bytearray(4096) for _ in range(50_000)]
+    kept = blocks[::64]
+    del blocks
+    before = _resident_mb()
+    release_memory()
+    after = _resident_mb()
+    assert len(kept) == 782
+    assert before - after > 100, (before, after)

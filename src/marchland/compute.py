@@ -21,8 +21,8 @@ Two more shapes of parallel work use the same forked copies (and run in this pro
 forking is unsafe or one worker is set): :func:`share_tasks`, tasks of uneven cost that each
 process takes in turn (the month's figures), and :func:`in_background`, one long piece of work
 that runs while this process goes on (the forecast beside the other analyses; the bundle's
-tables and layers beside the figures). A copy's warnings are raised again here and its errors
-raised here, so a run behaves the same with any number of workers.
+tables, layers and interactive map beside the figures). A copy's warnings are raised again here
+and its errors raised here, so a run behaves the same with any number of workers.
 
 This module sits low in the layering (it imports only :mod:`marchland.errors`) and imports
 joblib and distributed only when a parallel map is asked for, so ``marchland check`` and
@@ -31,6 +31,7 @@ joblib and distributed only when a parallel map is asked for, so ``marchland che
 
 from __future__ import annotations
 
+import functools
 import os
 import re
 import sys
@@ -43,7 +44,14 @@ import numpy as np
 
 from .errors import InputError
 
-__all__ = ["SCHEDULER_PATTERN", "Executor", "default_workers", "get_executor", "share_tasks"]
+__all__ = [
+    "SCHEDULER_PATTERN",
+    "Executor",
+    "default_workers",
+    "get_executor",
+    "release_memory",
+    "share_tasks",
+]
 
 #: Accepted scheduler addresses: a Dask network protocol, a host and an optional port (or an
 #: in-process ``inproc://`` address, as a ``LocalCluster(processes=False)`` has).
@@ -56,6 +64,37 @@ def default_workers() -> int:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # pragma: no cover  (not on Linux)
         return max(1, os.cpu_count() or 1)
+
+
+def release_memory() -> None:
+    """Hand memory this process has freed back to the operating system.
+
+    Between the steps of a large run most freed memory stays with the allocators (glibc's
+    heap, Arrow's pool of string columns) and keeps counting in the process's resident size,
+    which every forked copy then starts from: at 10,000 units it was 0.19 of 0.80 GB after
+    reading the inputs. Nothing is freed that is in use; no values change. Where glibc is not
+    the C library (macOS, Windows, musl) only Arrow's pool is asked.
+    """
+    pa = sys.modules.get("pyarrow")
+    if pa is not None:
+        pa.default_memory_pool().release_unused()
+    trim = _malloc_trim()
+    if trim is not None:
+        trim(0)
+
+
+@functools.cache
+def _malloc_trim() -> Any:
+    """Return glibc's ``malloc_trim``, or None where the C library has none."""
+    import ctypes
+    import ctypes.util
+
+    if not sys.platform.startswith("linux"):
+        return None
+    try:
+        return ctypes.CDLL(ctypes.util.find_library("c") or "libc.so.6").malloc_trim
+    except (OSError, AttributeError):  # pragma: no cover  (musl and others)
+        return None
 
 
 @dataclass

@@ -152,7 +152,9 @@ def _contents(sections: Sequence[tuple[str, str]]) -> str:
     return f'<nav class="sub">{links}</nav>'
 
 
-def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
+def render_report(
+    result: MonthResult, figures: Mapping[str, Any], *, map_html: str | None = None
+) -> str:
     """Render the month's report as one HTML string.
 
     Parameters
@@ -160,6 +162,9 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
     result : MonthResult
     figures : Mapping
         Figure name -> ``{"path": PNG path, "caption": str}`` (from the bundle's maps).
+    map_html : str, optional
+        The interactive map's section when already made (:func:`_webmap.map_section`, which
+        needs no figure: the bundle makes it while the figures are drawn).
 
     Returns
     -------
@@ -204,7 +209,7 @@ def render_report(result: MonthResult, figures: Mapping[str, Any]) -> str:
             ]
         ),
         _section("Headline", _headline(result), "headline"),
-        _webmap.map_section(result),
+        _webmap.map_section(result) if map_html is None else map_html,
         # Reading order: how the counts move, how complete the last weeks are, then where.
         _epi_section(result, figures),
         nowcast_section(result, figures),

@@ -134,21 +134,26 @@ def _write_all(
     from ..compute import in_background
     from ._drawing import figure_workers
 
-    def tables_and_layers() -> dict[str, float]:
+    def alongside_figures() -> tuple[dict[str, float], str]:
+        from ._webmap import map_section
+
         own: dict[str, float] = {}
-        for name, write in (
+        made = {}
+        for name, make in (
             ("bundle: tables", lambda: _write_tables(result, root)),
             ("bundle: layers", lambda: _write_layers(result, root / "layers.gpkg")),
+            ("bundle: interactive map", lambda: map_section(result)),
         ):
             t0 = time.perf_counter()
-            write()
+            made[name] = make()
             own[name] = round(time.perf_counter() - t0, 3)
-        return own
+        return own, made["bundle: interactive map"]
 
-    # Tables and layers are written by a forked copy while the figures are drawn (in one
-    # process, in turn, where there is no second CPU or forking is unsafe).
+    # Tables, layers and the report's interactive map (which needs no figure) are made by a
+    # forked copy while the figures are drawn (in one process, in turn, where there is no
+    # second CPU or forking is unsafe).
     side = timed(
-        "bundle: start", lambda: in_background(tables_and_layers, workers=figure_workers(result))
+        "bundle: start", lambda: in_background(alongside_figures, workers=figure_workers(result))
     )
     token = _PROGRESS.set(progress)
     try:
@@ -157,8 +162,8 @@ def _write_all(
         _PROGRESS.reset(token)
         if "bundle: maps" not in timings:
             side.cancel()
-    alongside = timed("bundle: tables and layers", side.result)
-    timed("bundle: report", lambda: _write_report(result, root, figures))
+    alongside, map_html = timed("bundle: tables, layers, map", side.result)
+    timed("bundle: report", lambda: _write_report(result, root, figures, map_html))
     _write_manifest(result, root, timings, alongside)
 
 
@@ -383,10 +388,12 @@ def _write_figures(result: MonthResult, root: Path) -> dict[str, dict[str, Any]]
     return write_figures(result, root, workers=figure_workers(result), progress=_PROGRESS.get())
 
 
-def _write_report(result: MonthResult, root: Path, figures: Mapping[str, Any]) -> None:
+def _write_report(
+    result: MonthResult, root: Path, figures: Mapping[str, Any], map_html: str | None = None
+) -> None:
     from ._report import render_report
 
-    html = render_report(result, figures)
+    html = render_report(result, figures, map_html=map_html)
     (root / "report.html").write_text(html, encoding="utf-8")
 
 

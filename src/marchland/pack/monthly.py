@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..compute import release_memory
 from ..config.load import load_config
 from ..config.schema import Config
 from ..errors import DataWarning, InputError
@@ -363,6 +364,9 @@ class _Runner:
             # go on, so the rest of the month's bundle is still written.
             self.absent[name] = f"not computable on this month's data: {exc}"
             value = None
+        # What the step freed goes back to the system (milliseconds), so the next step and
+        # the forked copies start from a smaller process.
+        release_memory()
         self.timings[name] = round(time.perf_counter() - t0, 3)
         if self.progress is not None:
             self.progress(name, "done", self.timings[name])
