@@ -131,14 +131,13 @@ def endemic_design(angles: np.ndarray, z: np.ndarray, seasonal: bool) -> np.ndar
 
 
 def nb_logpmf(y: np.ndarray, mu: np.ndarray, psi) -> np.ndarray:
-    """Negative binomial log-probability with mean ``mu`` and size ``psi`` (NB2, broadcast)."""
-    return (
-        special.gammaln(y + psi)
-        - special.gammaln(psi)
-        - special.gammaln(y + 1)
-        + psi * np.log(psi / (psi + mu))
-        + special.xlogy(y, mu / (psi + mu))
-    )
+    """Negative binomial log-probability with mean ``mu`` and size ``psi`` (NB2, broadcast).
+
+    The log-gamma terms depend on ``y`` and ``psi`` only: they are taken at those two's
+    broadcast shape (one per observation when ``mu`` holds many paths per observation).
+    """
+    coeff = special.gammaln(y + psi) - special.gammaln(psi) - special.gammaln(y + 1)
+    return coeff + psi * np.log(psi / (psi + mu)) + special.xlogy(y, mu / (psi + mu))
 
 
 @dataclass(frozen=True)
