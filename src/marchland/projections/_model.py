@@ -207,7 +207,9 @@ class Problem:
     def mean(self, theta: np.ndarray, *, parts: bool = False):
         """Mean per row and the pieces the gradient needs."""
         p = self.x.shape[1]
-        en = self.e * np.exp(self.x @ theta[:p])
+        # einsum, not BLAS: a matrix-vector product this thin (a column or a few) costs more in
+        # OpenBLAS's thread hand-over than in arithmetic, and its threads spin on shared cores.
+        en = self.e * np.exp(np.einsum("mp,p->m", self.x, theta[:p]))
         mu = en.copy()
         k = p
         lam = phi = d = 0.0
@@ -270,7 +272,7 @@ class Problem:
         y = self.y
         ratio = (y + psi) / (psi + mu)
         g = y / mu - ratio  # d loglik / d mu
-        grad = [self.x.T @ (g * en)]
+        grad = [np.einsum("mp,m->p", self.x, g * en)]
         if self.spec.autoregressive:
             grad.append([np.sum(g * lam * self.ylag)])
         if self.has_ne:

@@ -67,6 +67,19 @@ class OrderMatrix:
         """The distinct log orders (a handful: one per graph step up to ``max_order``)."""
         return np.unique(self.log_order)
 
+    @cached_property
+    def _level_counts(self) -> np.ndarray:
+        """(n, levels) how many units each sender reaches at each order level.
+
+        A sender's sum of ``o^-d`` over its neighbours is ``sum_k c_jk o_k^-d`` with ``c_jk``
+        its count of neighbours at order ``o_k``: five terms per sender at each likelihood
+        evaluation instead of one per pair (about a million at 10,000 units).
+        """
+        _, _, _, code, _ = self._csr
+        k = len(self._levels)
+        flat = np.bincount(self.sender * k + code, minlength=self.n * k)
+        return flat.reshape(self.n, k).astype(float)
+
     def _matrix(self, values: np.ndarray):
         """CSR matrix of ``values`` given in CSR order (no per-call index checks or sort)."""
         _, indices, indptr, _, _ = self._csr
@@ -97,11 +110,10 @@ class OrderMatrix:
         and what their derivative in ``d`` needs (``dw_ji/dd = w_ji (m_j - log o_ji)``).
         """
         levels = np.exp(-d * self._levels)
-        _, _, _, code, _ = self._csr
-        u = levels[code]
-        s = np.bincount(self.sender, weights=u, minlength=self.n)
-        w = u / s[self.sender]
-        mean_log = np.bincount(self.sender, weights=w * self.log_order, minlength=self.n)
+        counts = self._level_counts
+        s = np.einsum("nk,k->n", counts, levels)  # einsum, not BLAS: see Problem.mean
+        log_sum = np.einsum("nk,k->n", counts, levels * self._levels)
+        mean_log = np.divide(log_sum, s, out=np.zeros(self.n), where=s > 0)
         return levels, s, mean_log
 
     def _weights(self, d: float, derivative: bool):
