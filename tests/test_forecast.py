@@ -106,6 +106,35 @@ def test_small_countries_share_one_size():
     assert names == ("all",) and codes.tolist() == [0, 0, 0, 0, 0]
 
 
+@pytest.mark.parametrize("zero_share", [0.5, 0.97])
+def test_sparse_and_dense_neighbour_sums_give_the_same_likelihood(monkeypatch, zero_share):
+    # Our own check of the two ways CellSums adds the neighbourhood part (the statistic itself
+    # is checked against scipy/statsmodels in tests/reference): listing the non-zero lagged
+    # counts once, or multiplying the whole weight matrix, must give the same log-likelihood
+    # and gradient to the last bit, with few or many zeros among the counts.
+    from marchland.projections import _weights
+
+    units, g = lattice(10)
+    bg = as_border_graph(g, countries=units["country"])
+    orders = OrderMatrix.from_graph(bg, units.index, 5)
+    s = simulate_outbreak(10, 12, seed=4, **{k: v for k, v in TRUE.items() if k != "lambda"})
+    block = s.panel.to_numpy(dtype=float, copy=True)
+    block[np.random.default_rng(1).uniform(size=block.shape) < zero_share] = 0.0
+    block[0, -1] = np.nan  # an unknown count: no row, and no lag beyond the carried one
+    e = units["population"].to_numpy() / 100_000
+    args = (block, e, np.zeros((100, 0)), week_angles(s.panel.columns[1:]), orders)
+    spec = ModelSpec(dispersion="country")
+    out = []
+    for share in (np.inf, 0.0):  # sparse list always, then never
+        monkeypatch.setattr(_weights, "SPARSE_SHARE", share)
+        prob = Problem.build(*args, spec, (), units["country"].to_numpy())
+        assert (prob.neighbour_sums.contrib is None) == (share == 0.0)
+        theta = prob.start() + np.random.default_rng(2).normal(0, 0.3, len(prob.names))
+        out.append(prob.nll_grad(theta))
+    assert out[0][0] == out[1][0]
+    np.testing.assert_array_equal(out[0][1], out[1][1])
+
+
 # --- the forecast object -----------------------------------------------------------------------
 def test_forecast_table_and_parameters(sim):
     f = forecast(

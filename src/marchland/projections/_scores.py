@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import optimize, special, stats
 
 from ._model import nb_logpmf
 
@@ -24,8 +24,15 @@ BASELINE_FLOOR = 0.1  # a baseline predicting 0 gets this mean, so a case is not
 
 
 def nb_cdf(y: np.ndarray, mu: np.ndarray, psi: float) -> np.ndarray:
-    """NB2 cdf at ``y`` (``y < 0`` gives 0); mean ``mu``, size ``psi``."""
-    return np.where(y < 0, 0.0, stats.nbinom.cdf(y, psi, psi / (psi + mu)))
+    """NB2 cdf at ``y`` (``y < 0`` gives 0); mean ``mu``, size ``psi``.
+
+    The regularised incomplete beta ``I_p(psi, floor(y) + 1)``, ``p = psi / (psi + mu)``:
+    the closed form ``scipy.stats.nbinom.cdf`` evaluates (the same numbers), without its
+    argument checks, which cost as much again on millions of (observation, path) pairs.
+    """
+    y = np.asarray(y, dtype=float)
+    k = np.floor(np.maximum(y, 0.0)) + 1  # y < 0 is 0 below
+    return np.where(y < 0, 0.0, special.betainc(psi, k, psi / (psi + mu)))
 
 
 def mixture_scores(y, means, psi, rng):
@@ -62,7 +69,9 @@ def _mixture_parts(y, means, size):
     logp = nb_logpmf(yy, means, size)
     log_score = -(np.logaddexp.reduce(logp, axis=-1) - np.log(means.shape[-1]))
     hi = nb_cdf(yy, means, size).mean(axis=-1)
-    lo = nb_cdf(yy - 1, means, size).mean(axis=-1)
+    lo = np.zeros(y.shape)
+    c = y > 0  # F(y - 1) = 0 for a zero count (most of them): evaluated for the others only
+    lo[c] = nb_cdf(yy[c] - 1, means[c], size[c] if np.ndim(size) else size).mean(axis=-1)
     return log_score, lo, hi
 
 
