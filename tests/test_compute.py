@@ -323,3 +323,22 @@ def test_release_memory_hands_freed_heap_back():
     after = _resident_mb()
     assert len(kept) == 782
     assert before - after > 100, (before, after)
+
+
+def _blas_threads() -> list[int]:
+    from threadpoolctl import threadpool_info
+
+    return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+
+def test_one_blas_thread_here_and_in_forked_copies():
+    from marchland.compute import in_background, one_blas_thread, share_tasks
+
+    before = _blas_threads()
+    assert before, "numpy's BLAS is found by threadpoolctl"
+    with one_blas_thread():
+        assert _blas_threads() == [1] * len(before)
+        # Forked copies inherit the setting (figures, backtest origins, the forecast).
+        assert share_tasks(lambda i: _blas_threads(), 2, workers=2) == [[1] * len(before)] * 2
+        assert in_background(_blas_threads, workers=2).result() == [1] * len(before)
+    assert _blas_threads() == before

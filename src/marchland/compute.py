@@ -31,12 +31,13 @@ joblib and distributed only when a parallel map is asked for, so ``marchland che
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import os
 import re
 import sys
 import warnings
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -49,6 +50,7 @@ __all__ = [
     "Executor",
     "default_workers",
     "get_executor",
+    "one_blas_thread",
     "release_memory",
     "share_tasks",
 ]
@@ -64,6 +66,22 @@ def default_workers() -> int:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # pragma: no cover  (not on Linux)
         return max(1, os.cpu_count() or 1)
+
+
+@contextlib.contextmanager
+def one_blas_thread() -> Iterator[None]:
+    """Run the enclosed code with the BLAS library (OpenBLAS, MKL) on one thread.
+
+    marchland's parallel work is processes (forked copies, Dask workers), each busy with its
+    own task: BLAS threads on top would only compete for the same cores (OpenBLAS threads
+    also spin while they wait, which counts as CPU time). One thread also makes matrix
+    products add up in the same order on every machine, whatever its number of cores, so a
+    month's numbers do not depend on where it ran. Forked copies inherit the setting.
+    """
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
 
 
 def release_memory() -> None:

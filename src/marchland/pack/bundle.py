@@ -123,6 +123,15 @@ def write_month(
 def _write_all(
     result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None = None
 ) -> None:
+    from ..compute import one_blas_thread
+
+    with one_blas_thread():  # as in the analysis: processes, not BLAS threads, share the CPUs
+        _write_steps(result, root, progress)
+
+
+def _write_steps(
+    result: MonthResult, root: Path, progress: Callable[[str, int, int], None] | None
+) -> None:
     timings: dict[str, float] = {}
 
     def timed(name: str, fn: Callable[[], Any]) -> Any:

@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..compute import release_memory
+from ..compute import one_blas_thread, release_memory
 from ..config.load import load_config
 from ..config.schema import Config
 from ..errors import DataWarning, InputError
@@ -438,7 +438,8 @@ def run_month(
         judged = as_of_ts.normalize()
     else:  # the latest month: not known before reading, so today's date (recorded)
         judged = pd.Timestamp.now().normalize()
-    with warnings.catch_warnings(record=True) as caught:
+    # BLAS on one thread: the parallel work is processes, and sums keep one order everywhere.
+    with warnings.catch_warnings(record=True) as caught, one_blas_thread():
         warnings.simplefilter("always", DataWarning)
         region = run("read inputs", lambda: _open_region(cfg, judged), data_limited=False)
         if region is None:
