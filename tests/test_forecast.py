@@ -136,6 +136,40 @@ def test_sparse_and_dense_neighbour_sums_give_the_same_likelihood(monkeypatch, z
 
 
 # --- the forecast object -----------------------------------------------------------------------
+def test_paths_drawn_in_blocks(monkeypatch):
+    """Blocks of paths are consecutive draws of one stream; one-step means match the model."""
+    from scipy import stats
+
+    from marchland.projections import _simulate
+
+    # A ring of 6 units, neighbours one step either side (orders 1 and 2 within the ring).
+    n = 6
+    j, i = np.divmod(np.arange(n * n), n)
+    hop = np.minimum((i - j) % n, (j - i) % n)
+    keep = (hop >= 1) & (hop <= 2)
+    orders = OrderMatrix(j[keep], i[keep], np.log(hop[keep].astype(float)), n)
+    start = np.array([0.0, 3.0, 10.0, 0.0, 1.0, 25.0])
+    endemic = np.tile(np.array([0.5, 1.0, 0.2, 2.0, 0.1, 1.5]), (3, 1))
+    kw = dict(lam=0.4, phi=0.3, d=1.2, psi=np.full(n, 2.5), orders=orders)
+
+    monkeypatch.setattr(_simulate, "PATH_BLOCK_CELLS", n * 7)  # blocks of 7 paths
+    rng = np.random.default_rng(3)
+    blocked = _simulate.simulate_paths(start, endemic, n_paths=20, rng=rng, **kw)
+    rng = np.random.default_rng(3)
+    parts = [_simulate.simulate_paths(start, endemic, n_paths=k, rng=rng, **kw) for k in (7, 7, 6)]
+    np.testing.assert_array_equal(blocked, np.concatenate(parts, axis=2))
+
+    # First week: negative binomial around lambda y + phi W^T y + endemic (scipy's nbinom as
+    # the reference for its spread; 4 standard errors of the mean).
+    many = _simulate.simulate_paths(
+        start, endemic, n_paths=40_000, rng=np.random.default_rng(4), **kw
+    )
+    mu = endemic[0] + kw["lam"] * start + kw["phi"] * (orders.weights(kw["d"]) @ start)
+    size = kw["psi"]
+    sd = stats.nbinom(size, size / (size + mu)).std()
+    assert np.all(np.abs(many[0].mean(axis=1) - mu) < 4 * sd / np.sqrt(40_000))
+
+
 def test_forecast_table_and_parameters(sim):
     f = forecast(
         sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=3, n_paths=400, window_weeks=20
