@@ -168,3 +168,30 @@ def test_cli_progress_bar_counts_on_a_terminal_only():
     with _StepDisplay(Console(file=plain, force_terminal=False)) as steps:
         steps.count("maps and atlas pages", 1, 4)
     assert plain.getvalue() == ""
+
+
+def test_province_fan_charts_made_only_for_the_provinces_drawn(grid_month, monkeypatch):
+    """Choosing the drawn provinces from summed totals equals building every panel first."""
+    from marchland.figures import maps
+    from marchland.pack import _outlook, _steps
+
+    result, _ = grid_month
+    monkeypatch.setattr(_steps, "MAX_PROVINCE_PANELS", 1)  # the grid has 2 per country
+    fc = result.forecast
+    prov = _steps.province_of(result.units)
+    every = _outlook._fan_series(result, prov, fc)  # a frame for every province, as before
+    country_of = result.units.groupby(prov)["country"].first()
+    notes = maps.MapNotes("2026-11-03", "test", "grid")
+    made = {
+        name: fn
+        for name, fn, _ in _outlook.outlook_figures(result, notes, None)
+        if name.startswith("epi_forecast_provinces_")
+    }
+    assert sorted(made) == ["epi_forecast_provinces_AAA", "epi_forecast_provinces_BBB"]
+    for country in ("AAA", "BBB"):
+        ids = sorted(p for p in every if country_of[p] == country)
+        (want,) = _steps.busiest(ids, every, "filled")
+        panels = made[f"epi_forecast_provinces_{country}"].__defaults__[0]
+        (label,) = panels
+        assert label.endswith(f"({want})")
+        pd.testing.assert_frame_equal(panels[label], every[want])

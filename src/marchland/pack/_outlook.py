@@ -15,7 +15,7 @@ from ..figures import maps
 from ..figures.outlook import cluster_outline_map, fan_charts
 from ._html import _absent, _figure, _fmt, _section, esc, table_html
 from ._outlooksteps import CLUSTER_MAX_UNITS, clusters_layer
-from ._steps import busiest, province_of
+from ._steps import province_of, top_areas
 
 if TYPE_CHECKING:  # pragma: no cover
     from .monthly import MonthResult
@@ -91,11 +91,18 @@ def outlook_figures(
     names = {}
     if result.all_units is not None and "name" in result.all_units:
         names = result.all_units["name"].to_dict()
-    per = _fan_series(result, prov, fc)
+    # Every province's sums at once; a frame per panel only for the provinces drawn (at
+    # 10,000 units a frame for each of ~500 provinces was most of the figures' set-up).
+    agg = fc.aggregate(prov)
+    filled = _filled_by(result, prov)
+    weeks = filled.columns[filled.columns <= fc.origin_week][-HISTORY_WEEKS:]
+    totals = filled[weeks].sum(axis=1)
     country_of = units.groupby(prov)["country"].first()
+    groups = [str(g) for g in sorted(agg.index.unique())]
     for country in sorted(units["country"].unique()):
-        ids = sorted(p for p in per if country_of[p] == country)
-        shown = busiest(ids, per, "filled")
+        ids = sorted(p for p in groups if country_of[p] == country)
+        shown = top_areas(ids, totals.reindex(ids).fillna(0.0))
+        per = _fan_series(result, prov, fc, agg=agg, filled=filled, only=shown)
         panels = {f"{names.get(p, p)} ({p})": per[p] for p in shown}
         extra = (
             f", the {len(shown)} of its {len(ids)} provinces with the most cases in the weeks "
@@ -119,18 +126,37 @@ def outlook_figures(
             )
 
 
-def _fan_series(result: MonthResult, key: pd.Series, fc: Any) -> dict[str, pd.DataFrame]:
-    """Per group: reported and filled weekly cases, then the forecast median and band."""
-    agg = fc.aggregate(key)
+def _filled_by(result: MonthResult, key: pd.Series) -> pd.DataFrame:
+    """Nowcast-filled weekly cases summed by group (groups x weeks)."""
+    return result.filled_panel.groupby(key.reindex(result.filled_panel.index)).sum(min_count=1)
+
+
+def _fan_series(
+    result: MonthResult,
+    key: pd.Series,
+    fc: Any,
+    *,
+    agg: pd.DataFrame | None = None,
+    filled: pd.DataFrame | None = None,
+    only: list[str] | None = None,
+) -> dict[str, pd.DataFrame]:
+    """Per group: reported and filled weekly cases, then the forecast median and band.
+
+    ``only`` limits the groups made; ``agg`` and ``filled`` are ``fc.aggregate(key)`` and
+    :func:`_filled_by` when already made.
+    """
+    agg = fc.aggregate(key) if agg is None else agg
+    filled = _filled_by(result, key) if filled is None else filled
     w = result.weekly
+    if only is not None:
+        w = w[w["unit_id"].map(key).isin(only)]
     rep = (
         w.assign(g=w["unit_id"].map(key), cases=w["cases"].astype(float))
         .groupby(["g", "week"])["cases"]
         .sum(min_count=1)
     )
-    filled = result.filled_panel.groupby(key.reindex(result.filled_panel.index)).sum(min_count=1)
     out = {}
-    for g in sorted(agg.index.unique()):
+    for g in sorted(agg.index.unique()) if only is None else only:
         f = filled.loc[g] if g in filled.index else pd.Series(dtype=float)
         f = f[f.index <= fc.origin_week].iloc[-HISTORY_WEEKS:]
         df = pd.DataFrame({"filled": f})

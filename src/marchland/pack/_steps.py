@@ -395,11 +395,24 @@ MAX_PROVINCE_PANELS = 12
 
 
 def busiest(
-    ids: list[str], series: dict[str, pd.DataFrame], column: str, k: int = MAX_PROVINCE_PANELS
+    ids: list[str], series: dict[str, pd.DataFrame], column: str, k: int | None = None
 ) -> list[str]:
     """Return the ``k`` areas whose ``column`` sums highest (ties by id), in id order."""
+    if len(ids) <= (MAX_PROVINCE_PANELS if k is None else k):
+        return ids
+    return top_areas(
+        ids, pd.Series({p: float(np.nansum(series[p][column].to_numpy())) for p in ids}), k
+    )
+
+
+def top_areas(ids: list[str], totals: pd.Series, k: int | None = None) -> list[str]:
+    """Return the ``k`` of ``ids`` with the highest ``totals`` (ties by id), in id order.
+
+    ``k`` defaults to :data:`MAX_PROVINCE_PANELS`.
+    """
+    k = MAX_PROVINCE_PANELS if k is None else k
     if len(ids) <= k:
         return ids
-    total = pd.Series({p: float(np.nansum(series[p][column].to_numpy())) for p in ids})
+    total = totals.reindex(ids).astype(float)
     top = total.sort_index().sort_values(ascending=False, kind="stable").index[:k]
     return sorted(top)
