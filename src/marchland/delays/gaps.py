@@ -10,9 +10,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..errors import InputError
 from ._groups import check_args, country_of, province_of
 from ._pattern import to_final
-from ._triangle import unit_cells
+from ._triangle import Cells, Versions, unit_cells
 
 PANEL_STATUSES = ("reported", "nowcast", "imputed", "unknown")
 AGG_BY = ("region", "country", "province")
@@ -84,8 +85,9 @@ def fill_gaps(
     ['imputed', 'nowcast', 'reported']
     """
     stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
+    cells = unit_cells(counts, stamp, max_delay_weeks)
     ids, u_country, weeks, cases, latest, has, young, start = _fill(
-        counts, units, stamp, max_delay_weeks, recent_weeks
+        cells, units, max_delay_weeks, recent_weeks
     )
     status = np.where(
         has,
@@ -106,7 +108,7 @@ def fill_gaps(
 
 
 def filled_cases(
-    counts: pd.DataFrame,
+    counts: pd.DataFrame | Versions,
     units: pd.DataFrame,
     *,
     as_of: object,
@@ -120,7 +122,11 @@ def filled_cases(
 
     Parameters
     ----------
-    counts, units, as_of, max_delay_weeks, recent_weeks
+    counts : pandas.DataFrame or Versions
+        As in :func:`fill_gaps`, or the versions arranged once for many dates
+        (``delays._triangle.Versions(counts, max_delay_weeks)``; the same result, without
+        sorting and placing every version again at each date).
+    units, as_of, max_delay_weeks, recent_weeks
         As in :func:`fill_gaps`.
 
     Returns
@@ -144,16 +150,32 @@ def filled_cases(
     >>> bool(np.isfinite(cases).all())
     True
     """
-    stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
-    _, _, weeks, cases, _, _, _, start = _fill(counts, units, stamp, max_delay_weeks, recent_weeks)
+    if isinstance(counts, Versions):
+        if counts.max_delay != max_delay_weeks:
+            raise ValueError(
+                f"the versions were arranged for max_delay_weeks={counts.max_delay}, "
+                f"not {max_delay_weeks}"
+            )
+        stamp = pd.Timestamp(as_of)
+        if not len(counts.received) or stamp < pd.Timestamp(int(counts.received.min()), unit="D"):
+            raise InputError(
+                f"as_of {stamp.date()} is before the first report was received: nothing was "
+                "known then",
+                column="received",
+                value=str(stamp.date()),
+            )
+        cells = counts.cells(stamp)
+    else:
+        stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
+        cells = unit_cells(counts, stamp, max_delay_weeks)
+    _, _, weeks, cases, _, _, _, start = _fill(cells, units, max_delay_weeks, recent_weeks)
     before = np.arange(len(weeks))[None, :] < start[:, None]
     return weeks, np.where(before, np.nan, cases)
 
 
-def _fill(counts, units, stamp, max_delay_weeks, recent_weeks):
-    """Compute the arrays behind :func:`fill_gaps` (see there)."""
+def _fill(cells: Cells, units, max_delay_weeks, recent_weeks):
+    """Compute the arrays behind :func:`fill_gaps` from a date's triangle (see there)."""
     n_d = max_delay_weeks
-    cells = unit_cells(counts, stamp, n_d)
     ids = pd.Index(units.index, name="unit_id")
     u_country = country_of(ids, units).astype(str)
     countries, ci = np.unique(u_country, return_inverse=True)
