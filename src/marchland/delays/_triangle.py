@@ -119,6 +119,11 @@ class Versions:
         self.max_delay = int(max_delay)
         self._values: dict[int, np.ndarray] = {}
 
+    def prepare(self, dates) -> None:
+        """Place the versions for the weekdays of ``dates`` now (e.g. before forking workers)."""
+        for d in pd.DatetimeIndex(dates):
+            self.values((np.datetime64(d, "ns") - np.datetime64(0, "ns")) // DAY)
+
     def values(self, a: int) -> np.ndarray:
         """Forward-filled values of every unit-week at every delay for dates on ``a``'s weekday."""
         r = int(a) % 7
