@@ -8,11 +8,12 @@ time, this process's CPU time and a digest of the predictions (equal digests: eq
         python benchmarks/bench_backtest.py demo_data/scenario.toml --workers 1 2 [--profile]
 
 ``--cache FILE`` keeps the opened region in a pickle for later runs (opening the 10k world takes
-one to two minutes). ``--n-jobs`` passes ``n_jobs=`` instead of an executor (the call older
-versions take, for before/after timings). With ``--profile`` the serial run is profiled with
-cProfile on CPU time (the wall clock counts other work on a shared machine) and the top
-functions printed. The CPU time of local worker processes is read with psutil (workers started
-for the run are counted whole, start-up included).
+one to two minutes). ``--every K`` keeps every K-th origin week, as the month does at 10,000
+units and more (K = units // 2000). ``--n-jobs`` passes ``n_jobs=`` instead of an executor (the
+call older versions take, for before/after timings). With ``--profile`` the serial run is
+profiled with cProfile on CPU time (the wall clock counts other work on a shared machine) and
+the top functions printed. The CPU time of local worker processes is read with psutil (workers
+started for the run are counted whole, start-up included).
 """
 
 from __future__ import annotations
@@ -56,6 +57,9 @@ def main() -> None:
     ap.add_argument("--profile", action="store_true")
     ap.add_argument("--cache", help="pickle of the opened region: written once, then read")
     ap.add_argument("--n-jobs", action="store_true", help="pass n_jobs, not an executor")
+    ap.add_argument(
+        "--every", type=int, default=1, help="every k-th origin week (the month: units // 2000)"
+    )
     a = ap.parse_args()
 
     from marchland.compute import Executor
@@ -93,6 +97,7 @@ def main() -> None:
                 top_k=cfg.risk.top_k,
                 **run,
                 covariates=cov,
+                **({"every_weeks": a.every} if a.every > 1 else {}),
                 **risk_options(cfg.risk),
             )
 

@@ -221,3 +221,52 @@ def test_as_of_before_the_data(lattice, planted):
 def test_api_misuse(lattice, planted, kwargs, message):
     with pytest.raises(ValueError, match=message):
         emerging_clusters(None, lattice, as_of=AS_OF, panel=planted[0], **kwargs)
+
+
+@pytest.mark.parametrize("method", ["space-time permutation", "poisson"])
+def test_null_maxima_equal_every_cylinder_evaluated(method):
+    """The kernel's pruning and its walk over live units only change no maximum (any bit).
+
+    Reference: every cylinder of every simulated table scored with ``poisson_llr`` (the
+    formula of Kulldorff et al. 2005), no pruning, every unit walked; most units empty.
+    """
+    from marchland.clusters import _scan
+
+    rng = np.random.default_rng(5)
+    n, weeks, h = 150, 6, 3
+    table = np.zeros((n, weeks))
+    busy = rng.choice(n, 25, replace=False)
+    table[busy] = rng.poisson(2.0, (25, weeks))
+    table[busy[:4], -2:] += 6  # an excess, so the maxima run over a range
+    total = float(table.sum())
+    xy = rng.uniform(0, 100, (n, 2))
+    if method == "poisson":
+        size = rng.uniform(1e3, 1e5, n)
+        cell = np.outer(size / size.sum(), np.full(weeks, 1 / weeks)) * total
+    else:
+        size = table.sum(axis=1)
+        cell = np.outer(size, table.sum(axis=0)) / total
+    order, valid, _, mu, _ = _scan.candidates(table, cell, xy, size, 0.5 * size.sum(), h)
+    live = cell[:, -h:].sum(axis=1) > 0
+    assert 0 < live.sum() < n if method != "poisson" else live.all()  # population: all live
+
+    def draws(seed):
+        g = np.random.default_rng(seed)
+        if method == "poisson":
+            return _scan.multinomial_draw(int(total), cell, g)
+        return _scan.permutation_draw(table, g)
+
+    got = _scan.null_maxima(draws(9), 40, order, mu, valid, total, h, n_weeks=weeks, live=live)
+    tables = draws(9)(40)
+    want = [
+        np.where(
+            valid,
+            _scan.poisson_llr(_scan.cylinder_counts(_scan.recent_sums(t, h), order), mu, total),
+            0,
+        ).max()
+        for t in tables
+    ]
+    np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-12)
+    # Walking every unit gives the same maxima to the bit.
+    every = _scan.null_maxima(draws(9), 40, order, mu, valid, total, h, n_weeks=weeks)
+    assert np.array_equal(got, every)

@@ -306,6 +306,41 @@ def test_filled_cases_array_is_fill_gaps_cases(sim):
     np.testing.assert_array_equal(arr, want)
 
 
+@pytest.mark.parametrize("categorical", [False, True])
+def test_versions_arranged_once_give_every_dates_triangle(sim, categorical):
+    # The backtest places every version once (delays._triangle.Versions) and asks for the
+    # triangle of each origin: it must equal unit_cells on the versions known then, field by
+    # field, on any weekday, with rows in any order, revisions, gaps and missing cases.
+    from marchland.delays._triangle import Versions, unit_cells
+    from marchland.delays.gaps import filled_cases
+
+    week = pd.Timedelta(days=7)
+    rng = np.random.default_rng(3)
+    c = sim.loc[:, ["unit_id", "week", "cases", "received"]].sample(frac=1, random_state=4)
+    c = c[~(c["unit_id"].str.startswith("OSK") & (c["week"] < c["week"].min() + week * 6))]
+    c["cases"] = c["cases"].astype(float).mask(rng.random(len(c)) < 0.02)
+    if categorical:
+        names = sorted(c["unit_id"].unique(), reverse=True)  # categories not in sorted order
+        c["unit_id"] = pd.Categorical(c["unit_id"], categories=names)
+    v = Versions(c, 8)
+    start, end = c["received"].min(), c["received"].max()
+    dates = [start + pd.Timedelta(days=d) for d in (0, 3, 40, 41, 200, 203, 300)]
+    for when in [*dates, end, end + pd.Timedelta(days=30)]:
+        got = v.cells(when)
+        want = unit_cells(c[c["received"] <= when], when, 8)
+        assert got.units.equals(want.units) and got.weeks.equals(want.weeks)
+        for f in ("age", "pair_unit", "pair_week", "values", "latest", "row_unit"):
+            np.testing.assert_array_equal(getattr(got, f), getattr(want, f), err_msg=f)
+        np.testing.assert_array_equal(got.row_received, want.row_received)
+    ids = pd.Index(sorted(sim["unit_id"].unique()), name="unit_id")
+    units = pd.DataFrame({"country": ids.str[:3]}, index=ids)
+    for when in dates[2:]:
+        wk, arr = filled_cases(v, units, as_of=when)
+        wk2, arr2 = filled_cases(c, units, as_of=when)
+        assert wk.equals(wk2)
+        np.testing.assert_array_equal(arr, arr2)
+
+
 def test_gap_with_nothing_to_go_on_is_unknown():
     c = pd.DataFrame(
         {

@@ -224,8 +224,9 @@ def emerging_clusters(
         attrs["note"] = "no cylinder had more cases than expected"
         empty.attrs.update(attrs)
         return empty
+    live = cell[:, -max_weeks:].sum(axis=1) > 0
     null = _scan.null_maxima(
-        draw, permutations, order, mu, valid, total, max_weeks, n_weeks=n_weeks
+        draw, permutations, order, mu, valid, total, max_weeks, n_weeks=n_weeks, live=live
     )
     rows = []
     for h, i, k in picks:

@@ -85,6 +85,95 @@ def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cel
     )
 
 
+class Versions:
+    """Every version of the counts arranged once: the triangle of any as-of date is then a mask.
+
+    ``versions.cells(as_of)`` equals ``unit_cells(counts, as_of, max_delay)`` (every field),
+    without sorting or placing the versions again: for callers asking for many dates (the
+    border-risk backtest makes one filled panel per origin week, each over the whole history).
+    A version's delay depends on the as-of date ``A`` only through ``A``'s weekday: moving ``A``
+    by whole weeks moves a week's age ``(A - last_day) // 7`` and the version's snapshot offset
+    ``(A - received) // 7`` by the same number, and the delay is their difference. So every
+    version's cell and the forward-filled values of every unit-week are made once per weekday,
+    and a date keeps the unit-weeks reported by then, their cells up to their age (a version
+    received after ``A`` always falls in a cell beyond the week's age) and the latest version
+    received by then (the versions of a unit-week stand in received order).
+    """
+
+    def __init__(self, counts: pd.DataFrame, max_delay: int) -> None:
+        week = (counts["week"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+        rec = (counts["received"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+        cases = counts["cases"].to_numpy(dtype=float, na_value=np.nan)
+        ok = ~np.isnan(cases)
+        u, self.names = _sorted_codes(counts["unit_id"], ok)
+        # The order unit_cells puts the rows of any date in (stable: the later row wins ties).
+        order = np.lexsort((rec[ok], week[ok], u))
+        self.unit, self.week = u[order], week[ok][order]
+        self.received, self.cases = rec[ok][order], cases[ok][order]
+        n = len(order)
+        new = np.r_[True, (self.unit[1:] != self.unit[:-1]) | (self.week[1:] != self.week[:-1])]
+        self.start = np.flatnonzero(new) if n else np.zeros(0, dtype=np.int64)
+        self.end = np.r_[self.start[1:], n].astype(np.int64)
+        self.pair_unit = self.unit[self.start]
+        self.pair_week = self.week[self.start]
+        self.max_delay = int(max_delay)
+        self._values: dict[int, np.ndarray] = {}
+
+    def prepare(self, dates) -> None:
+        """Place the versions for the weekdays of ``dates`` now (e.g. before forking workers)."""
+        for d in pd.DatetimeIndex(dates):
+            self.values((np.datetime64(d, "ns") - np.datetime64(0, "ns")) // DAY)
+
+    def values(self, a: int) -> np.ndarray:
+        """Forward-filled values of every unit-week at every delay for dates on ``a``'s weekday."""
+        r = int(a) % 7
+        if r not in self._values:
+            d = np.maximum(0, (a - self.week - 6) // 7 - (a - self.received) // 7)
+            n_d = self.max_delay + 1
+            vals = np.full((len(self.start), n_d), np.nan)
+            pair = np.repeat(np.arange(len(self.start)), self.end - self.start)
+            inside = d <= self.max_delay
+            # Assigning in received order leaves the latest revision in each cell (unit_cells).
+            vals[pair[inside], d[inside]] = self.cases[inside]
+            last = np.maximum.accumulate(np.where(np.isnan(vals), 0, np.arange(n_d)), axis=1)
+            self._values[r] = vals[np.arange(len(vals))[:, None], last]
+        return self._values[r]
+
+    def cells(self, as_of: pd.Timestamp) -> Cells:
+        """Return the triangle of ``as_of``: ``unit_cells(counts, as_of, max_delay)``."""
+        a = (np.datetime64(as_of, "ns") - np.datetime64(0, "ns")) // DAY
+        all_values = self.values(a)
+        by_then = self.received <= a
+        seen = np.concatenate([[0], np.cumsum(by_then)])
+        n_seen = seen[self.end] - seen[self.start]
+        idx = np.flatnonzero((self.pair_week + 6 <= a) & (n_seen > 0))
+        pw = self.pair_week[idx]
+        first = pw.min() if len(idx) else a
+        n_weeks = int((a - first - 6) // 7 + 1) if len(idx) else 0
+        weeks = pd.date_range(pd.Timestamp(int(first), unit="D"), periods=n_weeks, freq="7D")
+        weeks = weeks.astype("datetime64[ns]")
+        age = ((a - (first + 7 * np.arange(n_weeks)) - 6) // 7).astype(np.int64)
+        # Units known by then, numbered in their sorted order as unit_cells numbers them.
+        used = np.zeros(len(self.names), dtype=bool)
+        used[self.pair_unit[idx]] = True
+        code = np.cumsum(used) - 1
+        pair_week = (pw - first) // 7
+        values = all_values[idx]
+        values[np.arange(self.max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
+        rows = by_then & (self.week + 6 <= a)
+        return Cells(
+            pd.Index(self.names[used], name="unit_id"),
+            weeks,
+            age,
+            code[self.pair_unit[idx]],
+            pair_week,
+            values,
+            self.cases[self.start[idx] + n_seen[idx] - 1],
+            code[self.unit[rows]],
+            self.received[rows],
+        )
+
+
 def _in_order(key: np.ndarray, received: np.ndarray) -> bool:
     """Whether rows already stand as the stable sort by (key, received) would put them."""
     if len(key) < 2:

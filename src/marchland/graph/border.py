@@ -153,7 +153,12 @@ class BorderGraph:
     @cached_property
     def islands(self) -> list:
         """Units with no neighbour, links included."""
-        return self.ids[~self.ids.isin(self.edges["focal"])].tolist()
+        # Positions of the focal ids, not Index.isin: on arrow strings that is a Python loop
+        # (0.6 s at 10,000 units, paid by every step that builds the graph's matrices).
+        at = self.ids.get_indexer_for(pd.unique(self.edges["focal"].to_numpy(dtype=object)))
+        linked = np.zeros(len(self.ids), dtype=bool)
+        linked[at[at >= 0]] = True
+        return self.ids[~linked].tolist()
 
     def short_joins(self, facing_below_m: float) -> pd.DataFrame:
         """Return the pairs joined across a gap that face each other along less than given.

@@ -285,6 +285,9 @@ def run(
     }
     # The versions sorted once: each origin's as-of view is then a mask, not a sort.
     replay = Replay.build(slim, static)
+    # The versions placed for the origins' weekday here, once, not in every worker.
+    lag = pd.Timedelta(days=report_lag_days)
+    replay.versions.prepare([grid[t] + pd.Timedelta(days=6) + lag for t in idx[:1]])
     if (
         executor.backend == "processes"
         and not executor.forks

@@ -118,11 +118,12 @@ def fit_cloglog(
     ybar = min(max(y.mean(), 1e-3), 1 - 1e-3) if n else 0.5
     b = b0.copy()
     b[0] = np.log(-np.log1p(-ybar))
-    dev_old = _penalised_deviance(z, y, b, pen, b0)
+    dev_old, eta, mu = _penalised_deviance(z, y, b, pen, b0)
     converged = False
     for it in range(1, max_iter + 1):  # noqa: B007 - the count is reported
-        eta = z @ b
-        mu = np.clip(inverse_cloglog(eta), _EPS, 1 - _EPS)
+        if eta is None:
+            eta = z @ b
+            mu = np.clip(inverse_cloglog(eta), _EPS, 1 - _EPS)
         # d mu / d eta for the cloglog link: exp(eta - exp(eta)).
         e = np.exp(np.minimum(eta, _ETA_MAX))
         dmu = np.maximum(e * np.exp(-e), _EPS)
@@ -131,9 +132,13 @@ def fit_cloglog(
         zw = z * w[:, None]
         step = np.linalg.solve(zw.T @ z + np.diag(pen), zw.T @ work + pen * b0) - b
         # Step halving keeps the penalised deviance falling (it can rise far from the optimum).
+        # The accepted step's linear predictor and means are the next iteration's (the same
+        # numbers: they were computed from the same coefficients), not computed twice.
+        eta = mu = None
         for _ in range(30):
-            dev = _penalised_deviance(z, y, b + step, pen, b0)
+            dev, eta_new, mu_new = _penalised_deviance(z, y, b + step, pen, b0)
             if np.isfinite(dev) and dev <= dev_old + 1e-9 * (abs(dev_old) + 1):
+                eta, mu = eta_new, mu_new
                 break
             step = step / 2
         b = b + step
@@ -141,8 +146,9 @@ def fit_cloglog(
         if np.max(np.abs(step)) <= tol:
             converged = True
             break
-    eta = z @ b
-    mu = np.clip(inverse_cloglog(eta), _EPS, 1 - _EPS)
+    if eta is None:
+        eta = z @ b
+        mu = np.clip(inverse_cloglog(eta), _EPS, 1 - _EPS)
     e = np.exp(np.minimum(eta, _ETA_MAX))
     dmu = np.maximum(e * np.exp(-e), _EPS)
     w = dmu**2 / (mu * (1 - mu))
@@ -172,10 +178,12 @@ def fit_cloglog(
     return Fit(b, cov, cov_cluster, center, scale, converged, it, deviance)
 
 
-def _penalised_deviance(z, y, b, pen, b0) -> float:
-    mu = np.clip(inverse_cloglog(z @ b), _EPS, 1 - _EPS)
+def _penalised_deviance(z, y, b, pen, b0) -> tuple[float, np.ndarray, np.ndarray]:
+    """Penalised deviance at ``b``, with the linear predictor and the means it used."""
+    eta = z @ b
+    mu = np.clip(inverse_cloglog(eta), _EPS, 1 - _EPS)
     dev = -2 * np.sum(y * np.log(mu) + (1 - y) * np.log1p(-mu))
-    return float(dev + np.sum(pen * (b - b0) ** 2))
+    return float(dev + np.sum(pen * (b - b0) ** 2)), eta, mu
 
 
 def auc(score: np.ndarray, outcome: np.ndarray) -> float:

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..delays.gaps import filled_cases
+from ..delays.gaps import Versions, filled_cases
 from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
@@ -43,6 +43,8 @@ PRIOR_COEFFICIENTS: dict[str, float] = {
 #: with no recent incidence: 1 - exp(-exp(-4)) = 1.8 % a week (judgement). For a horizon of h
 #: weeks the intercept is this plus log(h), the cloglog's grouped-time property.
 PRIOR_WEEKLY_INTERCEPT = -4.0
+#: Age (weeks) from which a week's count is taken as complete by the filled panel (fill_gaps).
+MAX_DELAY_WEEKS = 8
 _PRIOR_REFERENCE = {"log_population": math.log(1e5)}
 
 
@@ -204,18 +206,16 @@ class Replay:
     ``rows`` are the versions sorted as :func:`marchland.inputs.reports.as_of` sorts them (unit,
     week, received; stable), with ``next_received`` the receipt of the next version of the same
     unit-week: a row is in the view of ``date`` when it was received by then and its successor
-    was not. ``gaps`` are the versions in the order the reporting triangle sorts them (unit
-    ids as text, week, receipt; stable), so the triangle of every date is a mask of them and
-    is not sorted again (``delays._triangle.unit_cells``). ``first_receipt`` is, per unit-week
-    with cases, when the first positive version arrived and its delay (``_first_positive``).
-    Every as-of quantity is then a mask.
+    was not. ``versions`` are the versions placed once in the reporting triangle of every date
+    (``delays._triangle.Versions``): the filled panel of a date does not sort or place the
+    versions again. ``first_receipt`` is, per unit-week with cases, when the first positive
+    version arrived and its delay (``_first_positive``). Every as-of quantity is then a mask.
     """
 
     rows: pd.DataFrame
     received: np.ndarray
     next_received: np.ndarray
-    gaps: pd.DataFrame
-    gaps_received: np.ndarray
+    versions: Versions
     first_receipt: pd.DataFrame
 
     @classmethod
@@ -232,15 +232,8 @@ class Replay:
             same = (uid[1:] == uid[:-1]) & (wk[1:] == wk[:-1])
             nxt[:-1] = np.where(same, rec[1:], never)
         # Categorical ids stay categorical: delays factorises them from their codes.
-        gaps = counts.iloc[_triangle_order(counts)].reset_index(drop=True)
-        return cls(
-            rows,
-            rec,
-            nxt,
-            gaps,
-            gaps["received"].to_numpy("datetime64[ns]").view(np.int64),
-            _first_positive(counts, static),
-        )
+        versions = Versions(counts, MAX_DELAY_WEEKS)
+        return cls(rows, rec, nxt, versions, _first_positive(counts, static))
 
     def view(self, date: pd.Timestamp) -> pd.DataFrame:
         """Return the as-of view of ``date``, equal to ``reports.as_of(counts, date)``."""
@@ -248,39 +241,22 @@ class Replay:
         keep = (self.received <= d) & (self.next_received > d)
         return self.rows[keep].reset_index(drop=True)
 
-    def known(self, date: pd.Timestamp) -> tuple[pd.DataFrame, pd.DataFrame]:
-        """Return the versions received by ``date`` and the first positive receipts by then."""
-        d = pd.Timestamp(date).as_unit("ns").value
+    def known(self, date: pd.Timestamp) -> tuple[Versions, pd.DataFrame]:
+        """Return the versions (for the triangle of ``date``) and the first positive receipts."""
         first = self.first_receipt
-        return self.gaps[self.gaps_received <= d], first[first["received"] <= pd.Timestamp(date)]
+        return self.versions, first[first["received"] <= pd.Timestamp(date)]
 
 
-def _triangle_order(counts: pd.DataFrame) -> np.ndarray:
-    """Positions of ``counts`` sorted by unit id as text, week and receipt (stable).
-
-    The order ``delays._triangle.unit_cells`` sorts the versions known on a date into; any
-    subset of rows keeps it.
-    """
-    ids = counts["unit_id"]
-    if isinstance(ids.dtype, pd.CategoricalDtype):
-        names = np.asarray(ids.cat.categories, dtype=object)
-        rank = np.empty(len(names), dtype=np.int64)
-        rank[np.argsort(names, kind="stable")] = np.arange(len(names))
-        unit = rank[ids.cat.codes.to_numpy()]
-    else:
-        unit = pd.factorize(ids.to_numpy(dtype=object), sort=True)[0]
-    week = counts["week"].to_numpy("datetime64[ns]").view(np.int64)
-    rec = counts["received"].to_numpy("datetime64[ns]").view(np.int64)
-    return np.lexsort((rec, week, unit))
-
-
-def _filled(known: pd.DataFrame, static: rf.Static, weeks: pd.DatetimeIndex, date) -> np.ndarray:
+def _filled(
+    known: pd.DataFrame | Versions, static: rf.Static, weeks: pd.DatetimeIndex, date
+) -> np.ndarray:
     """Nowcast-adjusted cases on the unit x week grid (NaN unknown), from delays.fill_gaps.
 
-    ``known`` holds the versions received by ``date`` (unit ids as strings or categories).
+    ``known`` holds the versions received by ``date`` (unit ids as strings or categories), or
+    every version arranged once (``Replay.versions``; those received later are not used).
     """
     units = pd.DataFrame({"country": static.country}, index=static.ids)
-    gap_weeks, cases = filled_cases(known, units, as_of=date)
+    gap_weeks, cases = filled_cases(known, units, as_of=date, max_delay_weeks=MAX_DELAY_WEEKS)
     out = np.full((len(static.ids), len(weeks)), np.nan)
     wi = weeks.get_indexer(gap_weeks)
     ok = wi >= 0
