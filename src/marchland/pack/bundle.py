@@ -330,17 +330,16 @@ def _portable(units: Any, result: MonthResult) -> Any:
     if "source" not in units.columns or getattr(result, "config", None) is None:
         return units
     base = result.config.base_dir
-    return units.assign(
-        source=units["source"].map(lambda p: _rel(Path(p), base) if isinstance(p, str) else p)
-    )
+    # Once per boundary file, not per unit: path arithmetic for each of 10,000 units was
+    # most of writing the units layer (benchmarks/bench_cores.py).
+    rel = {p: _rel(Path(p), base) for p in units["source"].unique() if isinstance(p, str)}
+    return units.assign(source=units["source"].map(lambda p: rel[p] if isinstance(p, str) else p))
 
 
 def _write_layers(result: MonthResult, path: Path) -> None:
     units = _portable(result.units, result)
     layers: dict[str, Any] = {
-        "units": units.assign(
-            **{c: _flat(units[[c]])[c] for c in units.columns if c != "geometry"}
-        ),
+        "units": units,  # flattened with every layer in _write_layer_files
         "rates": _geo(units, result.rates),
         "hotspots": _geo(units, result.hotspots),
         "spread": _geo(units, result.fronts),
