@@ -134,5 +134,5 @@ def test_svg_paths_keep_shared_borders_shared():
     assert shapely.intersection(simple[0], simple[1]).area == pytest.approx(0, abs=1e-12)
     assert all(p.startswith("M") and p.endswith("z") for p in paths)
     assert _webmap.svg_paths([box(0, 0, 1, 1)], tolerance=0)[0] == [
-        "M10000 10000l0 -10000 -10000 0 0 10000z"  # box() runs from (1, 0) anticlockwise
+        "M10000 10000l0-10000-10000 0 0 10000z"  # box() runs from (1, 0) anticlockwise
     ]

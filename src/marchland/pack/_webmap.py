@@ -209,8 +209,9 @@ class Texts:
         for values, spec in self.fields:
             comma, dec = _SPEC.match(spec).groups()  # type: ignore[union-attr]
             n = _scaled(values.reindex(index), int(dec))[rows]
-            nums = [None if not np.isfinite(x) else int(x) for x in n.tolist()]
-            fields.append([int(dec), int(bool(comma)), nums])
+            nums = np.where(np.isfinite(n), n, 0).astype(np.int64).astype(object)
+            nums[~np.isfinite(n)] = None
+            fields.append([int(dec), int(bool(comma)), nums.tolist()])
         out: dict[str, Any] = {
             "t": list(templates if (which == len(self.templates)).any() else self.templates)
         }
@@ -263,9 +264,15 @@ def codes(values: np.ndarray) -> str | list[int]:
     return "".join(np.array(list(_ALPHABET))[v].tolist())
 
 
+_LOOKUP = np.full(128, -1, dtype=np.int64)
+_LOOKUP[np.frombuffer(_ALPHABET.encode("ascii"), dtype=np.uint8)] = np.arange(len(_ALPHABET))
+
+
 def uncodes(enc: str | list[int], n: int) -> list[int]:
     """Inverse of :func:`codes`."""
-    return list(enc) if isinstance(enc, list) else [_ALPHABET.index(ch) for ch in enc]
+    if isinstance(enc, list):
+        return list(enc)
+    return _LOOKUP[np.frombuffer(enc.encode("ascii"), dtype=np.uint8)].tolist()
 
 
 # --- the layers (same classes as the static maps: figures/_mapclass) ----------------------------
@@ -456,7 +463,7 @@ def svg_paths(geometry: Any, *, tolerance: float | None = None) -> tuple[list[st
     >>> from shapely.geometry import box
     >>> paths, size = svg_paths([box(0, 0, 1, 1), box(1, 0, 2, 1)], tolerance=0)
     >>> paths[0], size
-    ('M5000 5000l0 -5000 -5000 0 0 5000z', (10000, 5000))
+    ('M5000 5000l0-5000-5000 0 0 5000z', (10000, 5000))
     """
     geoms = np.asarray(getattr(geometry, "values", geometry), dtype=object)
     minx, miny, maxx, maxy = shapely.total_bounds(geoms)
@@ -483,9 +490,12 @@ def svg_paths(geometry: Any, *, tolerance: float | None = None) -> tuple[list[st
     keep = first | (~last & (d != 0).any(axis=1))
     q, d, first, vertex_ring = q[keep], d[keep], first[keep], vertex_ring[keep]
     prev_first = np.r_[False, first[:-1]]
-    core = np.char.add(np.char.add(d[:, 0].astype(str), " "), d[:, 1].astype(str))
+    # A minus sign separates numbers by itself (SVG path grammar): no space before one.
+    mid = np.where(d[:, 1] < 0, "", " ")
+    core = np.char.add(np.char.add(d[:, 0].astype(str), mid), d[:, 1].astype(str))
     head = np.char.add(np.char.add(q[:, 0].astype(str), " "), q[:, 1].astype(str))
-    tok = np.where(first, np.char.add("M", head), np.char.add(np.where(prev_first, "l", " "), core))
+    lead = np.where(prev_first, "l", np.where(d[:, 0] < 0, "", " "))
+    tok = np.where(first, np.char.add("M", head), np.char.add(lead, core))
     ring_end = np.r_[first[1:], True]
     tok = np.where(ring_end, np.char.add(tok, "z"), tok)
     unit = part_of[ring_of[vertex_ring]]
@@ -720,12 +730,15 @@ def map_section(result: MonthResult) -> str:
             f"url(#ml-h{hatched.index(key)})" if key.endswith("|h") else key
             for key in first["palette"]
         ]
-        fills = [paint[c] for c in uncodes(first["cls"], len(paths))]
+        fills = np.asarray(paint, dtype=object)[uncodes(first["cls"], len(paths))].tolist()
     # The k-th path is the k-th unit (the script counts them): no index attribute per path.
-    body = "".join(
-        f'<path d="{p}" fill="{f}"/>' if p else f'<path fill="{f}"/>'
-        for p, f in zip(paths, fills, strict=True)
-    )
+    # The commonest colour is the group's; only the other paths carry their own.
+    common = pd.Series(fills).mode().iloc[0] if fills else OTHER_COLOUR
+    d = np.asarray(paths, dtype=object)
+    f = np.asarray(fills, dtype=object)
+    d_attr = np.where(d != "", ' d="' + d + '"', "")
+    f_attr = np.where(f != common, ' fill="' + f + '"', "")
+    body = "".join(("<path" + d_attr + f_attr + "/>").tolist())
     borders = _country_borders(units)
     payload = json.dumps(data, ensure_ascii=False, separators=(",", ":")).replace("<", "\\u003c")
     switch = "".join(
@@ -748,7 +761,7 @@ def map_section(result: MonthResult) -> str:
         f'<svg id="ml-svg" viewBox="{-pad} {-pad} {w + 2 * pad} {h + 2 * pad}" '
         'role="img" aria-label="Map of the analysis units">'
         f"<defs>{_patterns(hatched)}</defs>"
-        f'<g id="ml-units" stroke="#7d7a72" stroke-width="{GRID // 2000}" '
+        f'<g id="ml-units" fill="{common}" stroke="#7d7a72" stroke-width="{GRID // 2000}" '
         f'stroke-linejoin="round">{body}</g>'
         f'<path id="ml-borders" d="{borders}" fill="none" stroke="#262522" '
         f'stroke-width="{GRID // 600}" pointer-events="none"/>'
