@@ -209,3 +209,13 @@ def test_the_pages_script_shows_the_previous_texts_bars_and_search(month, tmp_pa
     assert got["found"] == "BBB-02-0905"
     assert any("as Old Ninefive" in h for h in got["hits"])
     assert got["panels"][target][1].startswith("BBB-02-0905 · ")
+
+
+def test_plain_strings_from_a_registered_layer_come_back_as_written():
+    # register_layer builders may give one string per unit: a table of the distinct strings.
+    s = pd.Series(["a {0} }", "b", "a {0} }", None], index=list("wxyz"))
+    t = _webmap.Texts.from_strings(s)
+    assert t.strings().tolist() == ["a {0} }", "b", "a {0} }", "–"]
+    enc = t.encode(pd.Index(list("wxyzq")))  # q: a unit the layer does not know
+    assert _webmap.decode(enc, 5) == ["a {0} }", "b", "a {0} }", "–", "–"]
+    assert len(enc["t"]) == 4 and "f" not in enc
