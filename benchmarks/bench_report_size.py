@@ -23,19 +23,29 @@ MB = 1e6
 def breakdown(month_dir: Path) -> dict[str, float]:
     """Return the report's size parts in MB."""
     html = (month_dir / "report.html").read_text(encoding="utf-8")
+
+    def mb(parts: list[str]) -> float:
+        return sum(len(x.encode("utf-8")) for x in parts) / MB
+
     total = len(html.encode("utf-8"))
     imgs = re.findall(r'src="data:image/[a-z]+;base64,[A-Za-z0-9+/=]+"', html)
-    scripts = re.findall(r"<script\b.*?</script>", html, flags=re.S)
+    svg = re.findall(r'<svg id="ml-svg".*?</svg>', html, flags=re.S)
+    data = re.findall(r'<script type="application/json" id="ml-data">.*?</script>', html, re.S)
+    script = re.findall(r"<script>.*?</script>", html, flags=re.S)
+    tables = re.findall(r"<table\b.*?</table>", html, flags=re.S)
     maps = sorted((month_dir / "maps").glob("*.png"))
+    parts = {
+        "embedded figures": mb(imgs),
+        "map SVG (one path per unit)": mb(svg),
+        "map data block (JSON)": mb(data),
+        "map script": mb(script),
+        "tables": mb(tables),
+    }
     return {
         "report.html": total / MB,
-        "embedded figures": sum(map(len, imgs)) / MB,
+        **parts,
         "figures embedded (count)": len(imgs),
-        "map page script + data": sum(len(s.encode("utf-8")) for s in scripts) / MB,
-        "rest (tables, prose, styles)": (
-            total - sum(map(len, imgs)) - sum(len(s.encode("utf-8")) for s in scripts)
-        )
-        / MB,
+        "rest (prose, styles, markup)": total / MB - sum(parts.values()),
         "maps/*.png on disk": sum(p.stat().st_size for p in maps) / MB,
     }
 

@@ -235,3 +235,18 @@ def test_long_unit_tables_show_their_head_and_point_to_the_csv(month, monkeypatc
     ranked = result.risk.sort_values("rank").index
     assert f">{ranked[0]}<" in html and f">{ranked[1]}<" not in html
     assert f"First 1 of {n_prio:,} rows; all are in the CSV." in briefing.priority_block(result)
+
+
+def test_the_provinces_table_shows_the_highest_rates_and_points_to_the_csv(month, monkeypatch):
+    # At 50,000 units the provinces' table was 2,500 rows (0.52 MB of the page).
+    from marchland.pack import _sections as sections
+
+    result, _ = month
+    a = result.rates_by_area
+    prov = a[(a["level"] == "province") & (a["window"] == "month")]
+    assert len(prov) > 1
+    monkeypatch.setattr(sections, "PAGE_ROWS", 1)
+    html = sections._rates_section(result, {})
+    assert f"First 1 of {len(prov):,} rows; all are in the CSV." in html
+    ranked = prov.sort_values("rate", ascending=False)["group"]
+    assert f">{ranked.iloc[0]}<" in html and f">{ranked.iloc[1]}<" not in html

@@ -62,6 +62,7 @@ def _rates_section(result: MonthResult, figures: Mapping[str, Any]) -> str:
                 cols,
                 index="province",
                 kinds={"population": "int", "cases": "int"},
+                limit=PAGE_ROWS,  # the highest rates; every row is in tables/rates_by_area.csv
             )
             + "</div>"
         )

@@ -10,6 +10,11 @@ class of each unit and the text shown for it, and per unit its name, the names i
 JavaScript, no library) adds the layer switch, hover, click with an epi-curve sparkline, and the
 name search. Nothing is fetched: the page stays one file.
 
+The block is compact because it grows with the units (at 50,000 units the written-out texts were
+16 MB): texts are :class:`Texts` (templates, a code per unit, rounded numbers the script writes
+out as Python's ``format`` would), classes and countries one character per unit
+(:func:`codes`), weekly cases one string (:func:`_epi`).
+
 Layers are data-driven: :data:`LAYERS` is a list of builders ``f(result) -> Layer | None``
 (``None``: the month has nothing for it); :func:`register_layer` adds one, so a new result field
 plugs in without touching the page code.
@@ -20,7 +25,8 @@ from __future__ import annotations
 import base64
 import hashlib
 import json
-from collections.abc import Callable, Sequence
+import re
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from importlib import resources
 from typing import TYPE_CHECKING, Any
@@ -57,8 +63,9 @@ class Layer:
         Shown in the switch and above the legend.
     fill : pandas.Series
         Colour (hex) per unit id; units missing get ``default``.
-    text : pandas.Series
-        What hovering or clicking a unit shows for this layer (plain text, escaped by the page).
+    text : Texts or pandas.Series
+        What hovering or clicking a unit shows for this layer (plain text, escaped by the page):
+        templates and numbers (:class:`Texts`), or one string per unit id.
     legend : sequence of (label, colour, hatched)
     hatched : pandas.Series, optional
         True where the static map hatches the unit (no report; not tested).
@@ -69,7 +76,7 @@ class Layer:
     key: str
     title: str
     fill: pd.Series
-    text: pd.Series
+    text: Texts | pd.Series
     legend: Sequence[tuple[str, str, bool]]
     hatched: pd.Series | None = None
     default: str = OTHER_COLOUR
@@ -89,12 +96,188 @@ def _entries(entries: Sequence[tuple[str, dict]]) -> list[tuple[str, str, bool]]
     return out
 
 
-def _fmt(v: Any, spec: str) -> str:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return "–"
-    return "–" if not np.isfinite(f) else format(f, spec)
+# --- per-unit texts as templates + numbers ------------------------------------------------------
+_SPEC = re.compile(r"^(,?)\.(\d)f$")
+_SLOT = re.compile(r"\{\{|\}\}|\{(\d+)\}")
+DASH = "–"  # shown for a missing number
+
+
+def literal(text: str) -> str:
+    """Return ``text`` as a template that shows it as written (braces doubled)."""
+    return text.replace("{", "{{").replace("}", "}}")
+
+
+def _scaled(values: pd.Series, decimals: int) -> np.ndarray:
+    """Return ``values * 10**decimals`` rounded as ``format(v, ".<decimals>f")`` rounds (NaN kept).
+
+    numpy's rounding multiplies first, so a value within a rounding error of a half (``0.25`` at
+    one decimal) may round the other way from Python's correctly rounded ``format``; those few
+    are taken from ``format`` itself.
+    """
+    v = pd.to_numeric(values, errors="coerce").to_numpy(dtype=float)
+    v = np.where(np.isfinite(v), v, np.nan)
+    y = v * 10.0**decimals
+    n = np.rint(y)
+    frac = np.abs(y - np.trunc(y))
+    near = np.isfinite(y) & (np.abs(frac - 0.5) <= 1e-9 * np.maximum(1.0, np.abs(y)))
+    for i in np.flatnonzero(near):  # ties and near-ties only: a handful, if any
+        n[i] = float(format(v[i], f".{decimals}f").replace(".", ""))
+    return n
+
+
+def format_number(n: float | None, decimals: int, comma: bool) -> str:
+    """Format a scaled integer as the page's script does (``None``: a dash).
+
+    >>> format_number(1234567, 1, True), format_number(5, 3, False), format_number(None, 0, True)
+    ('123,456.7', '0.005', '–')
+    """
+    if n is None:
+        return DASH
+    s = str(abs(int(n))).rjust(decimals + 1, "0")
+    whole, frac = s[: len(s) - decimals], s[len(s) - decimals :]
+    if comma:
+        whole = f"{int(whole):,}"
+    return ("-" if n < 0 else "") + whole + ("." + frac if decimals else "")
+
+
+@dataclass(frozen=True)
+class Texts:
+    """What the map says about each unit for one layer or fact: a template per unit, its numbers.
+
+    A template is plain text with ``{k}`` where the ``k``-th field's number goes (``{{`` and
+    ``}}`` for braces). The page stores each template once, a template code per unit and the
+    numbers already rounded to what is shown (as integers scaled by the decimals), and
+    ``webmap.js`` writes the text; at 50,000 units this is a fraction of the size of every text
+    written out. :meth:`strings` gives the same texts in Python.
+
+    Attributes
+    ----------
+    templates : tuple of str
+    which : pandas.Series
+        Template index per unit id.
+    fields : tuple of (pandas.Series, str)
+        Numbers per unit id and their format: ``".Nf"`` or ``",.Nf"`` (thousands separated);
+        missing or non-finite numbers show as a dash.
+    """
+
+    templates: tuple[str, ...]
+    which: pd.Series
+    fields: tuple[tuple[pd.Series, str], ...] = ()
+
+    @classmethod
+    def of(cls, template: str, index: pd.Index, *fields: tuple[pd.Series, str]) -> Texts:
+        """Return one template for every unit of ``index``."""
+        for _, spec in fields:
+            if not _SPEC.match(spec):
+                raise ValueError(f"number format {spec!r}: only '.Nf' and ',.Nf' are supported")
+        return cls((template,), pd.Series(0, index=index), tuple(fields))
+
+    @classmethod
+    def from_strings(cls, text: pd.Series) -> Texts:
+        """Return plain per-unit strings as a table of the distinct strings and a code per unit."""
+        codes, uniques = pd.factorize(text.fillna(DASH).astype(str))
+        return cls(tuple(literal(u) for u in uniques), pd.Series(codes, index=text.index))
+
+    def where(self, keep: pd.Series | np.ndarray, other: str) -> Texts:
+        """Return these texts where ``keep`` holds and the template ``other`` elsewhere."""
+        keep = np.asarray(keep, dtype=bool)
+        code = len(self.templates)
+        which = self.which.where(keep, code)
+        return Texts((*self.templates, other), which, self.fields)
+
+    def labelled(self, labels: pd.Series, template: str) -> Texts:
+        """Return ``template`` with ``{label}`` replaced by each unit's label (a few distinct)."""
+        lab = labels.reindex(self.which.index).astype(str)
+        codes, uniques = pd.factorize(lab)
+        base = len(self.templates)
+        parts = tuple(template.replace("{label}", literal(u)) for u in uniques)
+        which = pd.Series(codes + base, index=self.which.index)
+        return Texts((*self.templates, *parts), which, self.fields)
+
+    def _uses_fields(self) -> np.ndarray:
+        return np.array(
+            [bool(_SLOT.search(t.replace("{{", "").replace("}}", ""))) for t in self.templates]
+            + [False]
+        )
+
+    def encode(self, index: pd.Index) -> dict[str, Any]:
+        """Return the JSON form for the units of ``index`` (a unit not in ``which``: a dash).
+
+        ``t`` the templates; ``w`` the template code per unit (:func:`codes`), left out when
+        every unit has template 0; ``f`` per field ``[decimals, comma, numbers]`` with numbers
+        only for the units whose template has a number slot, in unit order (``null``: a dash).
+        """
+        templates = (*self.templates, DASH)
+        which = self.which.reindex(index).fillna(len(self.templates)).astype(np.int64).to_numpy()
+        rows = self._uses_fields()[which]
+        fields = []
+        for values, spec in self.fields:
+            comma, dec = _SPEC.match(spec).groups()  # type: ignore[union-attr]
+            n = _scaled(values.reindex(index), int(dec))[rows]
+            nums = np.where(np.isfinite(n), n, 0).astype(np.int64).astype(object)
+            nums[~np.isfinite(n)] = None
+            fields.append([int(dec), int(bool(comma)), nums.tolist()])
+        out: dict[str, Any] = {
+            "t": list(templates if (which == len(self.templates)).any() else self.templates)
+        }
+        if which.any():
+            out["w"] = codes(which)
+        if fields:
+            out["f"] = fields
+        return out
+
+    def strings(self) -> pd.Series:
+        """Return the text per unit, formatted exactly as the page's script formats it."""
+        enc = self.encode(self.which.index)
+        return pd.Series(decode(enc, len(self.which)), index=self.which.index)
+
+
+def decode(enc: Mapping[str, Any], n: int) -> list[str]:
+    """Return the ``n`` texts of an encoded :class:`Texts` (what ``webmap.js`` does, in Python)."""
+    templates = enc["t"]
+    which = uncodes(enc.get("w", ""), n) if "w" in enc else [0] * n
+    fields = enc.get("f", [])
+    out = []
+    row = 0
+    for c in which:
+        t = templates[c]
+        has = bool(_SLOT.search(t.replace("{{", "").replace("}}", "")))
+
+        def sub(m: re.Match, r: int = row) -> str:
+            if m.group(1) is None:
+                return m.group(0)[0]
+            dec, comma, nums = fields[int(m.group(1))]
+            return format_number(nums[r], dec, bool(comma))
+
+        out.append(_SLOT.sub(sub, t))
+        row += has
+    return out
+
+
+_ALPHABET = "0123456789abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ"
+
+
+def codes(values: np.ndarray) -> str | list[int]:
+    """Return small non-negative codes as one character each (a list when there are too many).
+
+    >>> codes(np.array([0, 1, 11])), codes(np.array([0, 70]))
+    ('01b', [0, 70])
+    """
+    v = np.asarray(values, dtype=np.int64)
+    if len(v) and (v.max() >= len(_ALPHABET) or v.min() < 0):
+        return v.tolist()
+    return "".join(np.array(list(_ALPHABET))[v].tolist())
+
+
+_LOOKUP = np.full(128, -1, dtype=np.int64)
+_LOOKUP[np.frombuffer(_ALPHABET.encode("ascii"), dtype=np.uint8)] = np.arange(len(_ALPHABET))
+
+
+def uncodes(enc: str | list[int], n: int) -> list[int]:
+    """Inverse of :func:`codes`."""
+    if isinstance(enc, list):
+        return list(enc)
+    return _LOOKUP[np.frombuffer(enc.encode("ascii"), dtype=np.uint8)].tolist()
 
 
 # --- the layers (same classes as the static maps: figures/_mapclass) ----------------------------
@@ -103,21 +286,19 @@ def _rate_layer(result: MonthResult) -> Layer | None:
     if r is None:
         return None
     rate = r["month_rate"].where(r["month_weeks_reported"] > 0)
-    text = (
-        _fmt_series(rate, ",.1f")
-        + " per 100,000 (95% CI "
-        + _fmt_series(r["month_lower"], ",.1f")
-        + " to "
-        + _fmt_series(r["month_upper"], ",.1f")
-        + "); "
-        + _fmt_series(r["month_cases"], ",.0f")
-        + " cases"
+    text = Texts.of(
+        "{0} per 100,000 (95% CI {1} to {2}); {3} cases",
+        r.index,
+        (rate, ",.1f"),
+        (r["month_lower"], ",.1f"),
+        (r["month_upper"], ",.1f"),
+        (r["month_cases"], ",.0f"),
     )
     return _rate_classes_layer(result, "rate", "Attack rate per 100,000, the month", rate, text)
 
 
 def _rate_classes_layer(
-    result: MonthResult, key: str, title: str, rate: pd.Series, text: pd.Series
+    result: MonthResult, key: str, title: str, rate: pd.Series, text: Texts
 ) -> Layer:
     """Return a layer of month rates in the static maps' shared classes (six months pooled)."""
     hist = result.rates_history
@@ -153,7 +334,9 @@ def _hotspot_layer(result: MonthResult) -> Layer | None:
         )
     )
     q = hs["q"].reindex(lab.index) if "q" in hs else pd.Series(np.nan, index=lab.index)
-    text = lab.fillna("not in the analysis").astype(str) + " (q = " + _fmt_series(q, ".3f") + ")"
+    text = Texts((), pd.Series(0, index=lab.index), ((q, ".3f"),)).labelled(
+        lab.fillna("not in the analysis"), "{label} (q = {0})"
+    )
     return Layer("hotspots", "Hotspots (local Moran's I)", fill, text, legend, lab.isin(untested))
 
 
@@ -166,15 +349,18 @@ def _risk_layer(result: MonthResult) -> Layer | None:
         affected = result.fronts.index[result.fronts["first_week"].notna()]
     fill, cls = mc._risk_colours(risk["probability"], affected)
     silent = bool(risk["silent"].astype(bool).any()) if "silent" in risk else False
-    text = pd.Series("not a candidate", index=result.units.index, dtype=object)
-    text.loc[text.index.intersection(pd.Index(affected))] = "affected (cases by the as-of date)"
-    cand = (
-        _fmt_series(risk["probability"] * 100, ".1f")
-        + "% chance of a first case (rank "
-        + _fmt_series(risk["rank"], ".0f")
-        + ")"
+    index = result.units.index
+    cand = index.isin(risk.index)
+    text = (
+        Texts.of(
+            "{0}% chance of a first case (rank {1})",
+            index,
+            (risk["probability"].reindex(index) * 100, ".1f"),
+            (risk["rank"].reindex(index), ".0f"),
+        )
+        .where(cand | ~index.isin(pd.Index(affected)), "affected (cases by the as-of date)")
+        .where(cand | index.isin(pd.Index(affected)), "not a candidate")
     )
-    text.loc[cand.index.intersection(text.index)] = cand
     horizon = result.config.risk.horizon_weeks
     return Layer(
         "risk",
@@ -191,14 +377,14 @@ def _priority_layer(result: MonthResult) -> Layer | None:
     if p is None:
         return None
     fill = mc._priority_colours(p["rank"])
-    text = pd.Series("not a candidate", index=result.units.index, dtype=object)
-    t = (
-        "rank "
-        + _fmt_series(p["rank"], ".0f")
-        + "; planning cases "
-        + _fmt_series(p.get("planning_cases", pd.Series(np.nan, index=p.index)), ",.0f")
-    )
-    text.loc[t.index.intersection(text.index)] = t
+    index = result.units.index
+    planning = p.get("planning_cases", pd.Series(np.nan, index=p.index))
+    text = Texts.of(
+        "rank {0}; planning cases {1}",
+        index,
+        (p["rank"].reindex(index), ".0f"),
+        (planning.reindex(index), ",.0f"),
+    ).where(index.isin(p.index), "not a candidate")
     legend = _entries(mc._priority_entries(None, None, None))
     return Layer("priorities", "Pre-positioning priorities", fill, text, legend)
 
@@ -209,7 +395,7 @@ def _nowcast_rate_layer(result: MonthResult) -> Layer | None:
     if r is None or "month_adjusted_rate" not in r:
         return None
     rate = r["month_adjusted_rate"].astype(float)
-    text = _fmt_series(rate, ",.1f") + " per 100,000 (nowcast-adjusted)"
+    text = Texts.of("{0} per 100,000 (nowcast-adjusted)", r.index, (rate, ",.1f"))
     title = "Attack rate per 100,000, nowcast-adjusted"
     return _rate_classes_layer(result, "rate_nowcast", title, rate, text)
 
@@ -223,23 +409,23 @@ def _emerging_layer(result: MonthResult) -> Layer | None:
     cl = cl[cl["p"] <= 0.05] if "p" in cl else cl
     if not len(cl):
         return None
-    lab = pd.Series(np.nan, index=result.units.index, dtype=object)
-    text = pd.Series("in no emerging cluster", index=result.units.index, dtype=object)
+    index = result.units.index
+    lab = pd.Series(np.nan, index=index, dtype=object)
+    number = pd.Series(np.nan, index=index)
+    p = pd.Series(np.nan, index=index)
     # One row per cluster (a handful): the loop is over clusters, not units.
     for i, row in enumerate(cl.itertuples(index=False), start=1):
-        members = pd.Index(list(row.units)).intersection(lab.index)
+        members = pd.Index(list(row.units)).intersection(index)
         lab.loc[members] = "emerging cluster"
-        p = getattr(row, "p", np.nan)
-        text.loc[members] = f"cluster {i}: p = {_fmt(p, '.3f')}"
+        number.loc[members] = i
+        p.loc[members] = getattr(row, "p", np.nan)
+    text = Texts.of("cluster {0}: p = {1}", index, (number, ".0f"), (p, ".3f")).where(
+        lab.notna().to_numpy(), "in no emerging cluster"
+    )
     colours = {"emerging cluster": mc.FRONT_COLOUR} if hasattr(mc, "FRONT_COLOUR") else {}
     fill = mc._cluster_colours(lab, colours)
     legend = _entries(mc._cluster_entries(lab, colours, legend=None, always=(), untested=set()))
     return Layer("emerging", "Emerging space-time clusters", fill, text, legend)
-
-
-def _fmt_series(s: pd.Series, spec: str) -> pd.Series:
-    v = pd.to_numeric(s, errors="coerce").astype(float)
-    return v.map(lambda x: "–" if not np.isfinite(x) else format(x, spec))
 
 
 LAYERS: list[LayerBuilder] = [
@@ -282,7 +468,7 @@ def svg_paths(geometry: Any, *, tolerance: float | None = None) -> tuple[list[st
     >>> from shapely.geometry import box
     >>> paths, size = svg_paths([box(0, 0, 1, 1), box(1, 0, 2, 1)], tolerance=0)
     >>> paths[0], size
-    ('M5000 5000l0 -5000 -5000 0 0 5000z', (10000, 5000))
+    ('M5000 5000l0-5000-5000 0 0 5000z', (10000, 5000))
     """
     geoms = np.asarray(getattr(geometry, "values", geometry), dtype=object)
     minx, miny, maxx, maxy = shapely.total_bounds(geoms)
@@ -309,9 +495,12 @@ def svg_paths(geometry: Any, *, tolerance: float | None = None) -> tuple[list[st
     keep = first | (~last & (d != 0).any(axis=1))
     q, d, first, vertex_ring = q[keep], d[keep], first[keep], vertex_ring[keep]
     prev_first = np.r_[False, first[:-1]]
-    core = np.char.add(np.char.add(d[:, 0].astype(str), " "), d[:, 1].astype(str))
+    # A minus sign separates numbers by itself (SVG path grammar): no space before one.
+    mid = np.where(d[:, 1] < 0, "", " ")
+    core = np.char.add(np.char.add(d[:, 0].astype(str), mid), d[:, 1].astype(str))
     head = np.char.add(np.char.add(q[:, 0].astype(str), " "), q[:, 1].astype(str))
-    tok = np.where(first, np.char.add("M", head), np.char.add(np.where(prev_first, "l", " "), core))
+    lead = np.where(prev_first, "l", np.where(d[:, 0] < 0, "", " "))
+    tok = np.where(first, np.char.add("M", head), np.char.add(lead, core))
     ring_end = np.r_[first[1:], True]
     tok = np.where(ring_end, np.char.add(tok, "z"), tok)
     unit = part_of[ring_of[vertex_ring]]
@@ -343,12 +532,13 @@ def style() -> str:
 
 
 def _find_names(result: MonthResult) -> pd.Series:
-    """Every name a unit is known by: its id and name, alias-table rows, report spellings."""
+    """Return the names a unit is known by beyond its id and name (aliases, report spellings).
+
+    ``"a|b"`` per unit id, in first-seen order without repeats; ``""`` for most units. The page
+    searches ``id|name|`` these (the id and name are in the data block already).
+    """
     units = result.units
-    parts = [
-        pd.Series(units.index.to_numpy(), index=units.index),
-        pd.Series(units["name"].astype(str).to_numpy(), index=units.index),
-    ]
+    parts = []
     m = result.matches
     if isinstance(m, pd.DataFrame) and {"place", "unit_id"} <= set(m.columns):
         ok = m[m["unit_id"].isin(units.index)]
@@ -364,8 +554,13 @@ def _find_names(result: MonthResult) -> pd.Series:
         if al is not None:
             al = al[al["unit_id"].isin(units.index)]
             parts.append(pd.Series(al["alias"].astype(str).to_numpy(), index=al["unit_id"]))
+    if not parts:
+        return pd.Series("", index=units.index, dtype=object)
     allnames = pd.concat(parts)
-    allnames = allnames[allnames.str.len() > 0]
+    own_id = pd.Series(allnames.index.astype(str), index=allnames.index)
+    own_name = units["name"].astype(str).reindex(allnames.index)
+    keep = (allnames.str.len() > 0) & (allnames != own_id) & (allnames != own_name)
+    allnames = allnames[keep.to_numpy()]
     joined = (
         allnames.groupby(level=0, sort=False)
         .agg(lambda s: "|".join(dict.fromkeys(s)))
@@ -374,22 +569,53 @@ def _find_names(result: MonthResult) -> pd.Series:
     return joined.fillna("")
 
 
-def _epi(result: MonthResult) -> tuple[list[str], list]:
+def _epi(result: MonthResult) -> tuple[list[str], str]:
+    """Return the sparkline weeks and every unit's weekly cases as one compact string.
+
+    Units are separated by ``;``, weeks by ``,``; a zero is an empty field, a week not reported
+    is ``x`` and trailing zeros are left out (most units have no case in most weeks), so
+    ``",,3,x"`` is 0, 0, 3, not reported, then zeros. :func:`epi_rows` reads it back.
+    """
     w = result.weekly
+    n = len(result.units)
     if w is None or not len(w):
-        return [], [[] for _ in range(len(result.units))]
+        return [], ";" * (n - 1) if n else ""
     weeks = pd.DatetimeIndex(sorted(pd.to_datetime(w["week"]).unique()))[-EPI_WEEKS:]
     sub = w[pd.to_datetime(w["week"]).isin(weeks)]
     table = sub.pivot_table(index="unit_id", columns="week", values="cases", aggfunc="sum")
     table = table.reindex(index=result.units.index, columns=weeks)
     arr = table.to_numpy(dtype=float)
-    rows = np.where(np.isfinite(arr), arr, -1).astype(np.int64).tolist()
-    return [f"{x:%Y-%m-%d}" for x in weeks], rows
+    cells = np.where(np.isfinite(arr), arr, -1).astype(np.int64)
+    tok = np.where(cells < 0, "x", np.where(cells == 0, "", cells.astype(str))).astype(object)
+    # Trailing zeros dropped: keep each row up to its last non-zero week.
+    nz = cells != 0
+    last = np.where(nz.any(axis=1), nz.shape[1] - np.argmax(nz[:, ::-1], axis=1), 0)
+    tok[np.arange(cells.shape[1])[None, :] >= last[:, None]] = None
+    return [f"{x:%Y-%m-%d}" for x in weeks], _join_rows(tok)
 
 
-def _facts(result: MonthResult) -> tuple[list[str], list[list[str]]]:
+def _join_rows(tok: np.ndarray) -> str:
+    """Join a units x weeks token array (``None``: cut) into ``a,b;c,,d;...``."""
+    flat = pd.Series(tok.ravel())
+    unit = np.repeat(np.arange(tok.shape[0]), tok.shape[1])
+    keep = flat.notna().to_numpy()
+    joined = flat[keep].groupby(unit[keep]).agg(",".join)
+    return ";".join(joined.reindex(range(tok.shape[0]), fill_value="").tolist())
+
+
+def epi_rows(enc: str, weeks: int) -> list[list[int]]:
+    """Read :func:`_epi`'s string back (what ``webmap.js`` does): ``-1`` is not reported."""
+    out = []
+    for row in enc.split(";"):
+        t = row.split(",") if row else []
+        out.append([(-1 if v == "x" else int(v or 0)) for v in t] + [0] * (weeks - len(t)))
+    return out
+
+
+def _facts(result: MonthResult) -> tuple[list[str], list[Texts]]:
     units = result.units
-    cols = {"population": _fmt_series(units["population"], ",.0f")}
+    index = units.index
+    cols = {"population": Texts.of("{0}", index, (units["population"], ",.0f"))}
     r = result.rates
     if r is not None:
         for c, label, spec in (
@@ -399,54 +625,75 @@ def _facts(result: MonthResult) -> tuple[list[str], list[list[str]]]:
             ("cumulative_rate", "rate since the start /100,000", ",.1f"),
         ):
             if c in r:
-                cols[label] = _fmt_series(r[c].reindex(units.index), spec)
+                cols[label] = Texts.of("{0}", index, (r[c].reindex(index), spec))
         if "cfr" in r:
-            cols["CFR since the start"] = (
-                _fmt_series(r["cfr"].reindex(units.index) * 100, ".1f") + "%"
+            cols["CFR since the start"] = Texts.of(
+                "{0}%", index, (r["cfr"].reindex(index) * 100, ".1f")
             )
-    labels = list(cols)
-    return labels, [cols[k].reindex(units.index).fillna("–").tolist() for k in labels]
+    return list(cols), list(cols.values())
 
 
 def map_data(result: MonthResult) -> tuple[dict, list[Layer]]:
-    """Return the page's data block (JSON-ready) and the layers it holds."""
+    """Return the page's data block (JSON-ready) and the layers it holds.
+
+    Compact where it grows with the units: texts as :class:`Texts` (templates, codes,
+    numbers), colour classes and countries as :func:`codes`, weekly cases as :func:`_epi`'s
+    string, and ``find`` only the names beyond a unit's id and name, for the units that have
+    any (``{index: "a|b"}``).
+    """
     units = result.units
+    index = units.index
     layers = [lay for b in LAYERS if (lay := b(result)) is not None]
     out_layers = []
     for lay in layers:
-        fill = lay.fill.reindex(units.index).fillna(lay.default).astype(str)
+        fill = lay.fill.reindex(index).fillna(lay.default).astype(str)
         hatched = (
-            lay.hatched.reindex(units.index).fillna(False).astype(bool)
+            lay.hatched.reindex(index).fillna(False).astype(bool)
             if lay.hatched is not None
-            else pd.Series(False, index=units.index)
+            else pd.Series(False, index=index)
         )
         key = fill + np.where(hatched, "|h", "")
-        codes, uniques = pd.factorize(key)
+        cls, uniques = pd.factorize(key)
         legend = [[label, colour + ("|h" if h else "")] for label, colour, h in lay.legend]
+        text = lay.text if isinstance(lay.text, Texts) else Texts.from_strings(lay.text)
         out_layers.append(
             {
                 "key": lay.key,
                 "title": lay.title,
                 "palette": list(uniques),
-                "cls": codes.tolist(),
-                "text": lay.text.reindex(units.index).fillna("–").astype(str).tolist(),
+                "cls": codes(cls),
+                "text": text.encode(index),
                 "legend": legend,
             }
         )
     weeks, epi = _epi(result)
     fact_labels, fact_values = _facts(result)
+    country, countries = pd.factorize(units["country"].map(result.config.country_label).astype(str))
+    ids = index.astype(str).tolist()
+    names = units["name"].astype(str).tolist()
+    extra = _find_names(result).reset_index(drop=True)
+    extra = extra[extra.str.len() > 0]
     data = {
-        "id": units.index.astype(str).tolist(),
-        "name": units["name"].astype(str).tolist(),
-        "country": units["country"].map(result.config.country_label).astype(str).tolist(),
-        "find": _find_names(result).tolist(),
+        "id": ids,
+        "name": names,
+        "countries": list(countries),
+        "country": codes(country),
+        "find": {str(i): v for i, v in extra.items()},
         "weeks": weeks,
         "epi": epi,
         "facts": fact_labels,
-        "factValues": fact_values,
+        "factValues": [t.encode(index) for t in fact_values],
         "layers": out_layers,
     }
     return data, layers
+
+
+def hatch_keys(layers: Sequence[Mapping[str, Any]]) -> list[str]:
+    """Return the hatched colour keys the layers use, in the order of the page's patterns."""
+    return sorted(
+        {p for lay in layers for p in lay["palette"] if p.endswith("|h")}
+        | {c for lay in layers for _, c in lay["legend"] if c.endswith("|h")}
+    )
 
 
 def _patterns(palettes: Sequence[str]) -> str:
@@ -477,22 +724,26 @@ def map_section(result: MonthResult) -> str:
     data, _ = map_data(result)
     units = result.units
     paths, (w, h) = svg_paths(units.geometry)
-    hatched = sorted(
-        {p for lay in data["layers"] for p in lay["palette"] if p.endswith("|h")}
-        | {c for lay in data["layers"] for _, c in lay["legend"] if c.endswith("|h")}
-    )
+    hatched = hatch_keys(data["layers"])
     data["hatch"] = hatched
     first = data["layers"][0] if data["layers"] else None
 
-    def paint(i: int) -> str:
-        if first is None:
-            return OTHER_COLOUR
-        key = first["palette"][first["cls"][i]]
-        return f"url(#ml-h{hatched.index(key)})" if key.endswith("|h") else key
-
-    body = "".join(
-        f'<path d="{p}" fill="{paint(i)}" data-i="{i}"/>' for i, p in enumerate(paths) if p
-    )
+    if first is None:
+        fills = [OTHER_COLOUR] * len(paths)
+    else:
+        paint = [
+            f"url(#ml-h{hatched.index(key)})" if key.endswith("|h") else key
+            for key in first["palette"]
+        ]
+        fills = np.asarray(paint, dtype=object)[uncodes(first["cls"], len(paths))].tolist()
+    # The k-th path is the k-th unit (the script counts them): no index attribute per path.
+    # The commonest colour is the group's; only the other paths carry their own.
+    common = pd.Series(fills).mode().iloc[0] if fills else OTHER_COLOUR
+    d = np.asarray(paths, dtype=object)
+    f = np.asarray(fills, dtype=object)
+    d_attr = np.where(d != "", ' d="' + d + '"', "")
+    f_attr = np.where(f != common, ' fill="' + f + '"', "")
+    body = "".join(("<path" + d_attr + f_attr + "/>").tolist())
     borders = _country_borders(units)
     payload = json.dumps(data, ensure_ascii=False, separators=(",", ":")).replace("<", "\\u003c")
     switch = "".join(
@@ -515,7 +766,7 @@ def map_section(result: MonthResult) -> str:
         f'<svg id="ml-svg" viewBox="{-pad} {-pad} {w + 2 * pad} {h + 2 * pad}" '
         'role="img" aria-label="Map of the analysis units">'
         f"<defs>{_patterns(hatched)}</defs>"
-        f'<g id="ml-units" stroke="#7d7a72" stroke-width="{GRID // 2000}" '
+        f'<g id="ml-units" fill="{common}" stroke="#7d7a72" stroke-width="{GRID // 2000}" '
         f'stroke-linejoin="round">{body}</g>'
         f'<path id="ml-borders" d="{borders}" fill="none" stroke="#262522" '
         f'stroke-width="{GRID // 600}" pointer-events="none"/>'

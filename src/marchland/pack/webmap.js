@@ -2,9 +2,62 @@
   "use strict";
   var D = JSON.parse(document.getElementById("ml-data").textContent);
   var svg = document.getElementById("ml-svg");
-  var paths = svg.querySelectorAll("#ml-units path");
-  var byIndex = [];
-  for (var k = 0; k < paths.length; k++) byIndex[+paths[k].getAttribute("data-i")] = paths[k];
+  // The k-th path is the k-th unit.
+  var byIndex = Array.prototype.slice.call(svg.querySelectorAll("#ml-units path"));
+  var indexOf = new Map();
+  byIndex.forEach(function (p, k) { indexOf.set(p, k); });
+  var N = D.id.length;
+  // Codes written one character each (or a plain list when there are many).
+  var ALPHA = "0123456789abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ";
+  function uncodes(c) {
+    if (typeof c !== "string") return c;
+    var out = new Array(c.length);
+    for (var i = 0; i < c.length; i++) out[i] = ALPHA.indexOf(c.charAt(i));
+    return out;
+  }
+  // A number stored as an integer scaled by its decimals, written as the report writes it.
+  function num(n, dec, comma) {
+    if (n === null || n === undefined) return "\u2013";
+    var s = String(Math.abs(n));
+    while (s.length <= dec) s = "0" + s;
+    var whole = s.slice(0, s.length - dec), frac = s.slice(s.length - dec);
+    if (comma) whole = whole.replace(/\B(?=(\d{3})+(?!\d))/g, ",");
+    return (n < 0 ? "-" : "") + whole + (dec ? "." + frac : "");
+  }
+  // Per-unit texts: a template per unit ({k}: the k-th number), numbers for the units whose
+  // template has a slot, in unit order.
+  var SLOT = /\{\{|\}\}|\{(\d+)\}/g;
+  function texts(T) {
+    var which = T.w === undefined ? null : uncodes(T.w), f = T.f || [];
+    var slots = T.t.map(function (t) { return /\{\d+\}/.test(t.replace(/\{\{|\}\}/g, "")); });
+    var row = new Array(N), r = 0;
+    for (var i = 0; i < N; i++) row[i] = slots[which ? which[i] : 0] ? r++ : -1;
+    return function (i) {
+      return T.t[which ? which[i] : 0].replace(SLOT, function (m, k) {
+        if (k === undefined) return m.charAt(0);
+        return num(f[+k][2][row[i]], f[+k][0], f[+k][1]);
+      });
+    };
+  }
+  D.layers.forEach(function (L) { L.cls = uncodes(L.cls); L.say = texts(L.text); });
+  var facts = D.factValues.map(texts);
+  var country = uncodes(D.country).map(function (c) { return D.countries[c]; });
+  // Every name a unit is known by: its id, its name, then the others (aliases, report spellings).
+  var find = D.id.map(function (id, i) {
+    var names = [id];
+    if (D.name[i] && D.name[i] !== id) names.push(D.name[i]);
+    return names.concat(D.find[i] ? D.find[i].split("|") : []);
+  });
+  // Weekly cases: units split by ";", weeks by ","; "" is 0, "x" not reported, trailing zeros cut.
+  var epiRows = D.epi.split(";");
+  function epi(i) {
+    var t = epiRows[i] ? epiRows[i].split(",") : [], out = [];
+    for (var w = 0; w < D.weeks.length; w++) {
+      var v = t[w];
+      out.push(v === "x" ? -1 : v ? +v : 0);
+    }
+    return out;
+  }
   var tip = document.getElementById("ml-tip");
   var info = document.getElementById("ml-info");
   var legendBox = document.getElementById("ml-legend");
@@ -85,33 +138,33 @@
   function showUnit(i) {
     chosen = i;
     var p = byIndex[i];
-    sel.setAttribute("d", p ? p.getAttribute("d") : "");
+    sel.setAttribute("d", (p && p.getAttribute("d")) || "");
     info.textContent = "";
     var h = el("h3", D.name[i]);
     info.appendChild(h);
-    info.appendChild(el("div", D.id[i] + " \u00b7 " + D.country[i]));
+    info.appendChild(el("div", D.id[i] + " \u00b7 " + country[i]));
     var tb = el("table"), body = el("tbody");
     D.layers.forEach(function (L, n) {
       var tr = el("tr");
       var th = el("th", L.title); if (n === current) th.style.fontWeight = "bold";
-      tr.appendChild(th); tr.appendChild(el("td", L.text[i])); body.appendChild(tr);
+      tr.appendChild(th); tr.appendChild(el("td", L.say(i))); body.appendChild(tr);
     });
     D.facts.forEach(function (f, n) {
       var tr = el("tr");
-      tr.appendChild(el("th", f)); tr.appendChild(el("td", D.factValues[n][i]));
+      tr.appendChild(el("th", f)); tr.appendChild(el("td", facts[n](i)));
       body.appendChild(tr);
     });
     tb.appendChild(body); info.appendChild(tb);
     if (D.weeks.length) {
       info.appendChild(el("h3", "Weekly cases, " + D.weeks[0] + " to " + D.weeks[D.weeks.length - 1]));
-      info.appendChild(sparkline(D.epi[i]));
+      info.appendChild(sparkline(epi(i)));
       info.appendChild(el("p", "Grey ticks: no report that week (not a zero)."));
     }
     info.setAttribute("data-unit", D.id[i]);
   }
   function unitOf(target) {
-    var a = target && target.getAttribute && target.getAttribute("data-i");
-    return a === null || a === undefined ? -1 : +a;
+    var k = indexOf.get(target);
+    return k === undefined ? -1 : k;
   }
   svg.addEventListener("mousemove", function (ev) {
     var i = unitOf(ev.target);
@@ -119,7 +172,7 @@
     var box = svg.parentNode.getBoundingClientRect();
     tip.textContent = "";
     tip.appendChild(el("b", D.name[i]));
-    tip.appendChild(el("div", D.layers.length ? D.layers[current].text[i] : ""));
+    tip.appendChild(el("div", D.layers.length ? D.layers[current].say(i) : ""));
     tip.setAttribute("data-unit", D.id[i]);
     tip.hidden = false;
     tip.style.left = Math.min(ev.clientX - box.left + 12, box.width - 150) + "px";
@@ -137,10 +190,10 @@
   function norm(s) {
     return s.normalize("NFD").replace(/[\u0300-\u036f]/g, "").toLowerCase();
   }
-  var keys = D.find.map(function (f, i) { return norm(f + "|" + D.name[i]); });
+  var keys = find.map(function (f, i) { return norm(f.join("|") + "|" + D.name[i]); });
   function zoomTo(i) {
     var p = byIndex[i];
-    if (!p) return;
+    if (!p || !p.getAttribute("d")) return;
     var b = p.getBBox(), m = Math.max(b.width, b.height) * 2 + 200;
     svg.setAttribute("viewBox", [b.x + b.width / 2 - m, b.y + b.height / 2 - m, 2 * m, 2 * m].join(" "));
   }
@@ -160,8 +213,8 @@
     }
     found.forEach(function (i) {
       var li = el("li", D.name[i] + " ");
-      var names = D.find[i].split("|").filter(function (n) { return norm(n).indexOf(t) >= 0; });
-      li.appendChild(el("small", D.country[i] + (names.length && names[0] !== D.name[i] ? " \u00b7 as " + names[0] : "")));
+      var names = find[i].filter(function (n) { return norm(n).indexOf(t) >= 0; });
+      li.appendChild(el("small", country[i] + (names.length && names[0] !== D.name[i] ? " \u00b7 as " + names[0] : "")));
       li.setAttribute("data-i", i);
       li.addEventListener("click", function () { choose(i); });
       hits.appendChild(li);
