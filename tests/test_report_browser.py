@@ -14,12 +14,12 @@ Chromium is a failure.
 from __future__ import annotations
 
 import json
-import os
 import re
 import shutil
 import subprocess
 
 import pytest
+from system_tools import need
 
 _CHECK = """<script>
 window.addEventListener("load", function () {
@@ -37,14 +37,7 @@ window.addEventListener("load", function () {
 
 
 def _chromium() -> str:
-    for name in ("chromium", "chromium-browser"):
-        path = shutil.which(name)
-        if path:
-            return path
-    msg = "Chromium is not installed (Debian: apt-get install chromium); report not rendered"
-    if os.environ.get("CI", "").lower() == "true":
-        pytest.fail(msg + " - required under CI=true")
-    pytest.skip(msg)
+    return need(("chromium", "chromium-browser"), "Chromium", "chromium", "report not rendered")
 
 
 def _render(html_path, tmp_path) -> dict:

@@ -13,23 +13,17 @@ Without Chromium or pdftotext the tests skip with a reason on a user's machine; 
 from __future__ import annotations
 
 import html
-import os
 import re
 import shutil
 import subprocess
 
 import pytest
+from system_tools import need
 from test_report_browser import _chromium
 
 
 def _pdftotext() -> str:
-    path = shutil.which("pdftotext")
-    if path:
-        return path
-    msg = "pdftotext is not installed (Debian: apt-get install poppler-utils); print not checked"
-    if os.environ.get("CI", "").lower() == "true":
-        pytest.fail(msg + " - required under CI=true")
-    pytest.skip(msg)
+    return need(("pdftotext",), "pdftotext", "poppler-utils", "print not checked")
 
 
 def _printed_text(page, tmp_path) -> str:

@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import json
 import os
-import shutil
 import subprocess
 
 import numpy as np
@@ -21,6 +20,7 @@ import pandas as pd
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
+from system_tools import need
 
 from marchland.pack import _webmap
 
@@ -165,13 +165,7 @@ def test_a_spec_the_script_cannot_write_is_refused():
 
 
 def _node() -> str:
-    path = shutil.which("node")
-    if path:
-        return path
-    msg = "Node.js is not installed (Debian: apt-get install nodejs); map script not run"
-    if os.environ.get("CI", "").lower() == "true":
-        pytest.fail(msg + " - required under CI=true")
-    pytest.skip(msg)
+    return need(("node",), "Node.js", "nodejs", "map script not run")
 
 
 def test_the_pages_script_shows_the_previous_texts_bars_and_search(month, tmp_path):
