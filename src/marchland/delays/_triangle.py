@@ -36,15 +36,12 @@ class Cells:
 def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cells:
     """Place every revision received by ``as_of`` into its (unit, week, delay) cell."""
     # Whole days since the epoch: integer arithmetic is much faster than datetime64 on millions.
-    a = (np.datetime64(as_of, "ns") - np.datetime64(0, "ns")) // DAY
-    week_all = (counts["week"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
-    rec_all = (counts["received"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+    a = _day(as_of)
+    week_all, rec_all = _days(counts["week"]), _days(counts["received"])
     cases_all = counts["cases"].to_numpy(dtype=float, na_value=np.nan)
     ok = ~np.isnan(cases_all) & (rec_all <= a) & (week_all + 6 <= a)
     week, received, cases = week_all[ok], rec_all[ok], cases_all[ok]
-    age_row = (a - week - 6) // 7
-    # The first delay whose snapshot date A - 7 (k - d) is on or after the received date.
-    delay = np.maximum(0, age_row - (a - received) // 7)
+    delay = _delay(a, week, received)
     u, units = _sorted_codes(counts["unit_id"], ok)
     first = week.min() if len(week) else a
     n_weeks = int((a - first - 6) // 7 + 1) if len(week) else 0
@@ -62,14 +59,9 @@ def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cel
     pair_key = key[is_last]
     pair_unit, pair_week = u[is_last], t[is_last]
     latest = cases[is_last]
-    values = np.full((len(pair_key), max_delay + 1), np.nan)
     inside = delay <= max_delay
     pos = np.searchsorted(pair_key, key[inside])
-    # Assigning in received order leaves the latest revision in each (unit-week, delay) cell.
-    values[pos, delay[inside]] = cases[inside]
-    # Carry each cell's value to the later delays until the next revision (forward fill).
-    last = np.maximum.accumulate(np.where(np.isnan(values), 0, np.arange(max_delay + 1)), axis=1)
-    values = values[np.arange(len(values))[:, None], last]
+    values = _placed(len(pair_key), pos, delay[inside], cases[inside], max_delay)
     # Cells after the as-of date are unknown, not the last value carried on.
     values[np.arange(max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
     return Cells(
@@ -101,8 +93,7 @@ class Versions:
     """
 
     def __init__(self, counts: pd.DataFrame, max_delay: int) -> None:
-        week = (counts["week"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
-        rec = (counts["received"].to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+        week, rec = _days(counts["week"]), _days(counts["received"])
         cases = counts["cases"].to_numpy(dtype=float, na_value=np.nan)
         ok = ~np.isnan(cases)
         u, self.names = _sorted_codes(counts["unit_id"], ok)
@@ -122,26 +113,23 @@ class Versions:
     def prepare(self, dates) -> None:
         """Place the versions for the weekdays of ``dates`` now (e.g. before forking workers)."""
         for d in pd.DatetimeIndex(dates):
-            self.values((np.datetime64(d, "ns") - np.datetime64(0, "ns")) // DAY)
+            self.values(_day(d))
 
     def values(self, a: int) -> np.ndarray:
         """Forward-filled values of every unit-week at every delay for dates on ``a``'s weekday."""
         r = int(a) % 7
         if r not in self._values:
-            d = np.maximum(0, (a - self.week - 6) // 7 - (a - self.received) // 7)
-            n_d = self.max_delay + 1
-            vals = np.full((len(self.start), n_d), np.nan)
+            d = _delay(a, self.week, self.received)
             pair = np.repeat(np.arange(len(self.start)), self.end - self.start)
             inside = d <= self.max_delay
-            # Assigning in received order leaves the latest revision in each cell (unit_cells).
-            vals[pair[inside], d[inside]] = self.cases[inside]
-            last = np.maximum.accumulate(np.where(np.isnan(vals), 0, np.arange(n_d)), axis=1)
-            self._values[r] = vals[np.arange(len(vals))[:, None], last]
+            self._values[r] = _placed(
+                len(self.start), pair[inside], d[inside], self.cases[inside], self.max_delay
+            )
         return self._values[r]
 
     def cells(self, as_of: pd.Timestamp) -> Cells:
         """Return the triangle of ``as_of``: ``unit_cells(counts, as_of, max_delay)``."""
-        a = (np.datetime64(as_of, "ns") - np.datetime64(0, "ns")) // DAY
+        a = _day(as_of)
         all_values = self.values(a)
         by_then = self.received <= a
         seen = np.concatenate([[0], np.cumsum(by_then)])
@@ -172,6 +160,39 @@ class Versions:
             code[self.unit[rows]],
             self.received[rows],
         )
+
+
+def _day(date: object) -> int:
+    """Whole days since the epoch (integer arithmetic is much faster than datetime64)."""
+    return (np.datetime64(pd.Timestamp(date), "ns") - np.datetime64(0, "ns")) // DAY
+
+
+def _days(dates: pd.Series) -> np.ndarray:
+    """:func:`_day` of every date of a column."""
+    return (dates.to_numpy("datetime64[ns]") - np.datetime64(0, "ns")) // DAY
+
+
+def _delay(a: int, week: np.ndarray, received: np.ndarray) -> np.ndarray:
+    """Return each version's delay for as-of day ``a``.
+
+    The first delay whose snapshot date ``A - 7 (k - d)`` is on or after the version's received
+    date (``k``: its week's age).
+    """
+    return np.maximum(0, (a - week - 6) // 7 - (a - received) // 7)
+
+
+def _placed(
+    n_pairs: int, pair: np.ndarray, delay: np.ndarray, cases: np.ndarray, max_delay: int
+) -> np.ndarray:
+    """Value of each unit-week at each delay from its versions (given in received order).
+
+    Assigning in received order leaves the latest revision in each (unit-week, delay) cell;
+    each cell's value is then carried to the later delays until the next revision.
+    """
+    values = np.full((n_pairs, max_delay + 1), np.nan)
+    values[pair, delay] = cases
+    last = np.maximum.accumulate(np.where(np.isnan(values), 0, np.arange(max_delay + 1)), axis=1)
+    return values[np.arange(n_pairs)[:, None], last]
 
 
 def _in_order(key: np.ndarray, received: np.ndarray) -> bool:

@@ -16,6 +16,8 @@ from ._pattern import to_final
 from ._triangle import Cells, Versions, unit_cells
 
 PANEL_STATUSES = ("reported", "nowcast", "imputed", "unknown")
+#: Age (weeks) from which a week's count is taken as complete (default of fill_gaps).
+MAX_DELAY_WEEKS = 8
 AGG_BY = ("region", "country", "province")
 
 
@@ -37,7 +39,7 @@ def fill_gaps(
     units: pd.DataFrame,
     *,
     as_of: object,
-    max_delay_weeks: int = 8,
+    max_delay_weeks: int = MAX_DELAY_WEEKS,
     recent_weeks: int = 8,
 ) -> pd.DataFrame:
     """Complete unit x week panel of cases, each value marked by where it came from.
@@ -115,7 +117,7 @@ def filled_cases(
     units: pd.DataFrame,
     *,
     as_of: object,
-    max_delay_weeks: int = 8,
+    max_delay_weeks: int = MAX_DELAY_WEEKS,
     recent_weeks: int = 8,
 ) -> tuple[pd.DatetimeIndex, np.ndarray]:
     """Return the ``cases`` of :func:`fill_gaps` as a units x weeks array, not a long table.

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..delays.gaps import Versions, filled_cases
+from ..delays.gaps import MAX_DELAY_WEEKS, Versions, filled_cases
 from ..errors import InputError
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
@@ -43,8 +43,6 @@ PRIOR_COEFFICIENTS: dict[str, float] = {
 #: with no recent incidence: 1 - exp(-exp(-4)) = 1.8 % a week (judgement). For a horizon of h
 #: weeks the intercept is this plus log(h), the cloglog's grouped-time property.
 PRIOR_WEEKLY_INTERCEPT = -4.0
-#: Age (weeks) from which a week's count is taken as complete by the filled panel (fill_gaps).
-MAX_DELAY_WEEKS = 8
 _PRIOR_REFERENCE = {"log_population": math.log(1e5)}
 
 
