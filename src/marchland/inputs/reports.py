@@ -45,6 +45,8 @@ COUNT_COLUMNS = ("unit_id", "week", "cases", "deaths", "received", "source", "ro
 # Beside the contract's columns: the file and sheet a row came from, and whether a zero is
 # implied by the source's convention (a listed week without the unit) rather than written.
 EXTRA_COUNT_COLUMNS = ("file", "sheet", "implied")
+# The counts' columns that label where a row came from: held as categories.
+_LABEL_COLUMNS = ("source", "file", "sheet")
 REJECT_COLUMNS = ("source", "file", "sheet", "row", "column", "value", "reason", "candidates")
 MATCH_COLUMNS = (
     "source",
@@ -395,6 +397,9 @@ def _read_source(
     zeros = _implied_zeros(counts, spec, cands.index, calendar)
     if len(zeros):
         counts = pd.concat([counts, zeros], ignore_index=True)
+    # One source, a few files and sheets repeated on every row: small codes, not a string
+    # per row, while the sources wait to be put together.
+    counts = counts.astype({c: "category" for c in _LABEL_COLUMNS})
     acct = {
         "source": spec.name,
         "country": spec.country,
@@ -447,19 +452,27 @@ def reporting_completeness(
     exp = exp.merge(levels.drop_duplicates(), on=["country", "level"])
     exp = exp.set_index(units.index.name or "unit_id")[["country", "level"]]
     exp = exp[~exp.index.duplicated()]
-    counts = counts.assign(country=counts["unit_id"].map(exp["country"]))
-    last = counts["week"].max() if len(counts) else pd.NaT
-    start = counts.groupby("country")["week"].min()
-    n_weeks = (((last - start).dt.days // 7) + 1).reindex(exp["country"].unique()).fillna(0)
-    g = counts.groupby("unit_id")
+    # On integer codes of the unit ids: mapping or grouping millions of string ids turns each
+    # into a Python object (at 50,000 units about 1 GB for the three steps it took).
+    codes, ids = pd.factorize(counts["unit_id"])
+    week = counts["week"]
+    g = week.groupby(codes)
     per = pd.DataFrame(
         {
-            "reported_weeks": g["week"].nunique(),
-            "first_week": g["week"].min(),
-            "last_week": g["week"].max(),
-            "last_received": g["received"].max(),
+            "reported_weeks": g.nunique(),
+            "first_week": g.min(),
+            "last_week": g.max(),
+            "last_received": counts["received"].groupby(codes).max(),
         }
     )
+    # Each unit's country (NaN for a unit outside every source), and each row's through it.
+    unit_country = pd.Series(ids).map(exp["country"])
+    last = week.max() if len(counts) else pd.NaT
+    start = per["first_week"].groupby(unit_country).min()
+    n_weeks = (((last - start).dt.days // 7) + 1).reindex(exp["country"].unique()).fillna(0)
+    per.index = pd.Index(ids[per.index.to_numpy()], name=exp.index.name)
+    ccodes, cnames = pd.factorize(unit_country)
+    row_country = ccodes[codes]
     unit = exp.join(per, how="left")
     unit["reported_weeks"] = unit["reported_weeks"].fillna(0).astype(int)
     unit["expected_weeks"] = unit["country"].map(n_weeks).astype(int)
@@ -487,7 +500,10 @@ def reporting_completeness(
         }
     )
     country["share"] = country["reported_weeks"] / country["expected_weeks"].clip(lower=1)
-    sent = counts.groupby("country")["week"].nunique().reindex(country.index).fillna(0)
+    known = row_country >= 0
+    sent = week[known].groupby(row_country[known]).nunique()
+    sent.index = cnames[sent.index.to_numpy()]
+    sent = sent.reindex(country.index).fillna(0)
     country["gap_weeks"] = (country.index.map(n_weeks).to_numpy() - sent).astype(int)
     country.index.name = "country"
     return unit, country
@@ -607,16 +623,24 @@ def _assemble(
     results: list, units: pd.DataFrame, specs: Sequence[ReportSpec], calendar: str
 ) -> Reports:
     count_cols = [*COUNT_COLUMNS, *EXTRA_COUNT_COLUMNS]
-    counts = [r[0] for r in results if len(r[0])]
-    counts = pd.concat(counts, ignore_index=True) if counts else _empty(count_cols)
+    parts = [r[0] for r in results if len(r[0])]
+    # Each source's frame goes once it is in the whole (the caller's list lets go of it too).
+    results[:] = [(None, *r[1:]) for r in results]
+    # Categories shared by every part, so they stay categories when put together (sorted, as
+    # a category of the whole would be).
+    for col in _LABEL_COLUMNS:
+        cats = sorted(set().union(*(p[col].cat.categories for p in parts)))
+        parts = [p.assign(**{col: p[col].cat.set_categories(cats)}) for p in parts]
+    counts = pd.concat(parts, ignore_index=True) if parts else _empty(count_cols)
+    del parts
     counts = counts.astype({"cases": "Int64", "deaths": "Int64", "row": "Int64", "implied": bool})
     counts["week"] = pd.to_datetime(counts["week"]).astype("datetime64[ns]")
     counts["received"] = pd.to_datetime(counts["received"]).astype("datetime64[ns]")
-    counts = counts.sort_values(["unit_id", "week", "received"], kind="stable")
-    counts = counts.reset_index(drop=True)
     # A handful of sources, files and sheets repeated on millions of rows: categories hold
     # them as small codes (at 50,000 units about 200 MB less than one string per row).
-    counts = counts.astype({"source": "category", "file": "category", "sheet": "category"})
+    counts = counts.astype({c: "category" for c in _LABEL_COLUMNS})
+    counts = counts.sort_values(["unit_id", "week", "received"], kind="stable")
+    counts = counts.reset_index(drop=True)
     rejects = [r[1] for r in results if len(r[1])]
     rejects = (pd.concat(rejects, ignore_index=True) if rejects else _empty(REJECT_COLUMNS)).loc[
         :, list(REJECT_COLUMNS)
