@@ -573,3 +573,19 @@ def test_country_names_reach_maps_and_country_tables(world, monkeypatch):
     assert seen["country_names"] == {"AAA": "Aland", "BBB": "Bellmark"}
     texts = {t.get_text() for ax in fig.axes for t in ax.texts}
     assert {"Aland", "Bellmark"} <= texts
+
+
+def test_units_layer_names_boundary_files_relative_to_the_config(tmp_path):
+    # The units layer carries each unit's boundary file as a path relative to the config's
+    # folder (no machine paths in a shared bundle); a unit without one keeps it missing.
+    from types import SimpleNamespace
+
+    base = tmp_path / "scenario"
+    src = [str(base / "boundaries" / "a.gpkg"), None, str(tmp_path / "elsewhere" / "b.gpkg")]
+    units = pd.DataFrame({"source": pd.array(src, dtype="str")}, index=["u1", "u2", "u3"])
+    result = SimpleNamespace(config=SimpleNamespace(base_dir=base))
+    out = bundle._portable(units, result)["source"]
+    assert out.dtype == units["source"].dtype
+    assert out.iloc[0] == os.path.join("boundaries", "a.gpkg")
+    assert out.iloc[2] == os.path.join("..", "elsewhere", "b.gpkg")
+    assert pd.isna(out.iloc[1])

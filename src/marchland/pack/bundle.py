@@ -332,8 +332,11 @@ def _portable(units: Any, result: MonthResult) -> Any:
     base = result.config.base_dir
     # Once per boundary file, not per unit: path arithmetic for each of 10,000 units was
     # most of writing the units layer (benchmarks/bench_cores.py).
-    rel = {p: _rel(Path(p), base) for p in units["source"].unique() if isinstance(p, str)}
-    return units.assign(source=units["source"].map(lambda p: rel[p] if isinstance(p, str) else p))
+    src = units["source"]
+    rel = {p: _rel(Path(p), base) for p in src.unique() if isinstance(p, str)}
+    # A dict lookup, not a Python call per unit; the column keeps its text dtype, so the
+    # layer writer has no object column to scan (together ~25 ms of ~300 at 10,000 units).
+    return units.assign(source=src.map(rel).where(src.isin(list(rel)), src))
 
 
 def _write_layers(result: MonthResult, path: Path) -> None:
