@@ -589,3 +589,20 @@ def test_units_layer_names_boundary_files_relative_to_the_config(tmp_path):
     assert out.iloc[0] == os.path.join("boundaries", "a.gpkg")
     assert out.iloc[2] == os.path.join("..", "elsewhere", "b.gpkg")
     assert pd.isna(out.iloc[1])
+
+
+def test_flat_joins_list_cells_and_leaves_text_alone():
+    import numpy as np
+
+    df = pd.DataFrame(
+        {
+            "ids": [["a", "b"], None, ("c",), np.array([1, 2]), {"d"}],
+            "mixed": [["x"], 2, "y", None, 3.5],
+            "text": ["p", None, "q", "r", "s"],
+        }
+    )
+    out = bundle._flat(df)
+    assert out["ids"].tolist()[:1] + out["ids"].tolist()[2:] == ["a; b", "c", "1; 2", "d"]
+    assert pd.isna(out["ids"].iloc[1])
+    assert out["mixed"].tolist()[:3] == ["x", 2, "y"]
+    pd.testing.assert_series_equal(out["text"], df["text"])
