@@ -47,7 +47,10 @@ test suite.
     $ ... python benchmarks/bench_cores.py --world /tmp/worlds/world50000 --repeats 3
 
 ``--profile`` prints a cProfile of one call of each of our steps (cumulative time, top 25).
-``--no-write`` prints the table without touching results.json and RESULTS.md.
+``--no-write`` prints the table without touching results.json and RESULTS.md. ``--merge`` with
+``--steps`` replaces only those steps' rows of the label's stored run (the others and its
+header stay, and the re-run's date, load and repeats are listed under its table); without it
+a run replaces the label's whole entry.
 """
 
 from __future__ import annotations
@@ -505,6 +508,11 @@ def _section(cores: dict) -> str:
                     f"{c.get('both_write')})"
                 )
             lines.append(f"- {r['step']}: {extra}.")
+        for m in run.get("merged", []):
+            lines.append(
+                f"- Re-run alone on {m['date']} ({m['repeats']} repeats, load average "
+                f"{m['load_start']} at start, {m['load_end']} at end): {', '.join(m['steps'])}."
+            )
     lines += ["", END]
     return "\n".join(lines)
 
@@ -531,6 +539,7 @@ def main() -> None:
     ap.add_argument("--label", help="key in results.json (default: demo or the world's name)")
     ap.add_argument("--profile", action="store_true", help="cProfile one call of each of ours")
     ap.add_argument("--no-write", action="store_true", help="print only")
+    ap.add_argument("--merge", action="store_true", help="replace only the rows of the steps run")
     a = ap.parse_args()
 
     from marchland import open_region
@@ -576,6 +585,16 @@ def main() -> None:
     store = HERE / "results.json"
     results = json.loads(store.read_text()) if store.exists() else {}
     cores = results.setdefault("cores", {})
+    if a.merge and label in cores:
+        done = {r["step"] for r in recs}
+        old = cores[label]
+        kept = [r for r in old["steps"] if r["step"] not in done]
+        order = [r["step"] for r in old["steps"]]
+        steps = sorted(kept + recs, key=lambda r: order.index(r["step"]) if r["step"] in
+                       order else len(order))  # fmt: skip
+        rerun = {k: run[k] for k in ("date", "repeats", "load_start", "load_end")}
+        merged = [m for m in old.get("merged", []) if not set(m["steps"]) <= done]
+        run = {**old, "steps": steps, "merged": [*merged, {**rerun, "steps": sorted(done)}]}
     cores[label] = run
     store.write_text(json.dumps(results, indent=1) + "\n", encoding="utf-8")
     write_markdown(cores, HERE / "RESULTS.md")

@@ -9,6 +9,8 @@ networkx, the demo's truth) are in tests/reference/test_graph_reference.py.
 
 from __future__ import annotations
 
+import sys
+
 import geopandas as gpd
 import numpy as np
 import pandas as pd
@@ -341,6 +343,34 @@ def voronoi_layer(n, seed, countries=2):
         index=pd.Index([f"V{k:03d}" for k in range(len(cells))], name="unit_id"),
         crs=CRS,
     )
+
+
+@pytest.mark.parametrize("rule", ["queen", "rook"])
+def test_coordinate_hash_collisions_fall_back_to_an_exact_sort(monkeypatch, rule):
+    # Vertices and segments are joined by sorting a 64-bit hash of their coordinates; two
+    # different coordinates with one hash must not split a run of equal ones. With every
+    # multiplier zero, all rows of a file share one hash: the exact lexsort must take over and
+    # give the very same graph (edges, shared lengths, left-out pairs).
+    from marchland.graph import _contiguity
+
+    layer = voronoi_layer(80, seed=6)
+    ref = border_graph(layer, tolerance=300, rule=rule)
+    zero = tuple(np.uint64(0) for _ in _contiguity._HASH_MULTIPLIERS)
+    monkeypatch.setattr(_contiguity, "_HASH_MULTIPLIERS", zero)
+    calls = []
+    lexsort = np.lexsort
+
+    def spy(keys, *args, **kwargs):
+        calls.append(sys._getframe(1).f_code.co_name)  # who sorted (pandas may too)
+        return lexsort(keys, *args, **kwargs)
+
+    monkeypatch.setattr(np, "lexsort", spy)
+    bg = border_graph(layer, tolerance=300, rule=rule)
+    # Once for the segments, and for the vertices under queen.
+    assert calls.count("_sorted_runs") == (2 if rule == "queen" else 1)
+    pd.testing.assert_frame_equal(bg.edges, ref.edges)
+    pd.testing.assert_frame_equal(bg.left_out, ref.left_out)
+    assert (ref.edges["kind"] == "shared-boundary").sum() > 100
 
 
 @pytest.mark.parametrize("ids", ["string", "integer-like", "integer"])

@@ -21,6 +21,9 @@ import numpy as np
 import pandas as pd
 import pytest
 import shapely
+import shapely.affinity
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from libpysal.graph import Graph
 from libpysal.weights import Queen
 
@@ -409,3 +412,154 @@ def test_virginia_split_into_two_files_keeps_every_rook_neighbour(split, move):
     assert joined_within(bg, layer, 150)
     if split == "east-west":
         assert found == cross_rook
+
+
+# --- within-file neighbours (the vertex join) against libpysal ----------------------------------
+# border_graph joins units of one file on their vertex coordinates (queen: a shared vertex; rook:
+# a shared segment) instead of calling libpysal's vertex-based Graph.build_contiguity. Both must
+# give libpysal's pairs: on every polygon layer libpysal ships offline (tokyomet262 is left out:
+# its geometry is invalid, which border_graph refuses) and on generated coverages.
+SHIPPED = [
+    "10740.shp",  # Albuquerque census tracts
+    "Chicago77.shp",  # Chicago community areas
+    "columbus.shp",  # Anselin (1988) Columbus neighbourhoods
+    "G_utm.shp",  # Georgia counties (MultiPolygons)
+    "mexicojoin.shp",  # Mexican states (MultiPolygons)
+    "sids2.shp",  # North Carolina counties (MultiPolygons, islands)
+    "stl_hom.shp",  # St Louis region counties
+    "us48.shp",  # lower 48 US states
+    "vautm17n.shp",  # Virginia counties and independent cities (enclaves)
+    "lattice10x10.shp",  # 10 x 10 lattice: queen and rook differ at every inner corner
+    "rook31.shp",
+]
+
+
+def within_file_edges(bg, layer):
+    src = layer["source"]
+    e = bg.edges
+    same = src.loc[e["focal"]].to_numpy() == src.loc[e["neighbor"]].to_numpy()
+    return edge_set(e["focal"][same], e["neighbor"][same])
+
+
+def libpysal_per_file(layer, *, rook):
+    ref = set()
+    for _, part in layer.groupby("source"):
+        ref |= libpysal_edges(part.geometry, rook=rook)  # Graph.build_contiguity per file
+    return ref
+
+
+@pytest.mark.parametrize("name", SHIPPED)
+@pytest.mark.parametrize("rule", ["queen", "rook"])
+def test_within_file_pairs_equal_libpysal_on_shipped_layers(name, rule):
+    df = gpd.read_file(libpysal.examples.get_path(name))
+    layer = gpd.GeoDataFrame(
+        {"country": "AAA", "source": "one"},
+        geometry=df.geometry.to_numpy(),  # no CRS: some are lon/lat, and tolerance 0 needs none
+        index=pd.Index([f"u{k:03d}" for k in range(len(df))], name="unit_id"),
+    )
+    ref = libpysal_edges(layer.geometry, rook=rule == "rook")
+    assert ref, "the layer has neighbours to compare"
+    assert bg_edges(border_graph(layer, rule=rule)) == ref
+    # Scattered over three files (shuffled): inside each file still libpysal's pairs there.
+    rng = np.random.default_rng(len(df))
+    split = layer.assign(source=rng.choice(["a", "b", "c"], len(layer))).sample(
+        frac=1.0, random_state=1
+    )
+    bg = border_graph(split, rule=rule)
+    assert within_file_edges(bg, split) == libpysal_per_file(split, rook=rule == "rook")
+
+
+@st.composite
+def coverages(draw):
+    """A quadrilateral mesh with random inner nodes, some edges carrying an extra vertex (on
+    both sides, or on one side only: a T-junction that is queen but not rook under the vertex
+    rule), some cells joined into MultiPolygon units, some dropped, some holding an enclave
+    in a hole, spread over one to three files, in random order; coordinates around 0 so that
+    -0.0 and 0.0 occur."""
+    nx_ = draw(st.integers(2, 7))
+    ny = draw(st.integers(2, 7))
+    seed = draw(st.integers(0, 2**32 - 1))
+    files = draw(st.integers(1, 3))
+    rng = np.random.default_rng(seed)
+    cell = 1000.0
+    gx, gy = np.meshgrid(np.arange(nx_ + 1) * cell, np.arange(ny + 1) * cell, indexing="ij")
+    inner = (slice(1, -1), slice(1, -1))
+    gx[inner] += rng.uniform(-0.3, 0.3, gx[inner].shape) * cell
+    gy[inner] += rng.uniform(-0.3, 0.3, gy[inner].shape) * cell
+    gx -= cell * rng.integers(0, nx_ + 1)  # a column of nodes at x = 0 ...
+    gx[gx == 0] *= rng.choice([1.0, -1.0], (gx == 0).sum())  # ... some of them -0.0
+    # Extra vertex at each edge's midpoint: 0 none, 1 in both cells, 2 in the first only.
+    mid_v = rng.choice(3, (nx_ + 1, ny), p=[0.6, 0.25, 0.15])  # vertical edges
+    mid_h = rng.choice(3, (nx_, ny + 1), p=[0.6, 0.25, 0.15])  # horizontal edges
+
+    def node(c, r):
+        return (gx[c, r], gy[c, r])
+
+    def mid(a, b):
+        return ((a[0] + b[0]) / 2, (a[1] + b[1]) / 2)
+
+    cells = []
+    for c in range(nx_):
+        for r in range(ny):
+            ring = []
+            # counter-clockwise: bottom, right, top, left edges; "first" cell of an edge is
+            # the one to its left (vertical) or below (horizontal).
+            corners = [node(c, r), node(c + 1, r), node(c + 1, r + 1), node(c, r + 1)]
+            kinds = [
+                mid_h[c, r] == 1,  # bottom edge: this cell is above it (second)
+                mid_v[c + 1, r] in (1, 2),  # right edge: this cell is left of it (first)
+                mid_h[c, r + 1] in (1, 2),  # top edge: this cell is below it (first)
+                mid_v[c, r] == 1,  # left edge: this cell is right of it (second)
+            ]
+            for k in range(4):
+                ring.append(corners[k])
+                if kinds[k]:
+                    ring.append(mid(corners[k], corners[(k + 1) % 4]))
+            cells.append(shapely.Polygon(ring))
+    units = []
+    for poly in cells:
+        roll = rng.random()
+        if roll < 0.1:
+            continue  # dropped: a gap in the coverage
+        if roll < 0.25:  # an enclave in a hole, sharing the hole's vertices
+            inner_ring = shapely.get_coordinates(shapely.affinity.scale(poly, 0.4, 0.4))
+            units += [shapely.Polygon(poly.exterior.coords, [inner_ring]),
+                      shapely.Polygon(inner_ring)]  # fmt: skip
+            continue
+        units.append(poly)
+    # Join some pairs of units that do not touch into one MultiPolygon unit.
+    joined = []
+    rest = list(rng.permutation(len(units)))
+    while rest:
+        a = units[rest.pop()]
+        if rest and rng.random() < 0.15 and shapely.distance(a, units[rest[-1]]) > 0:
+            a = shapely.MultiPolygon([a, units[rest.pop()]])
+        joined.append(a)
+    layer = gpd.GeoDataFrame(
+        {"country": "AAA", "source": rng.choice(["a", "b", "c"][:files], len(joined))},
+        geometry=joined,
+        index=pd.Index([f"q{k:03d}" for k in range(len(joined))], name="unit_id"),
+    )
+    return layer
+
+
+@settings(max_examples=60, deadline=None)
+@given(layer=coverages(), rule=st.sampled_from(["queen", "rook"]))
+def test_within_file_pairs_equal_libpysal_on_generated_coverages(layer, rule):
+    assert shapely.is_valid(layer.geometry.to_numpy()).all()
+    bg = border_graph(layer, rule=rule)
+    assert within_file_edges(bg, layer) == libpysal_per_file(layer, rook=rule == "rook")
+
+
+def test_negative_zero_is_the_same_vertex_as_libpysal_finds():
+    # Two squares meeting along x = 0, written -0.0 in one and 0.0 in the other: Python (and
+    # so libpysal's vertex dict) holds them equal, and the join must too.
+    a = shapely.Polygon([(-1.0, 0.0), (-0.0, 0.0), (-0.0, 1.0), (-1.0, 1.0)])
+    b = shapely.Polygon([(0.0, 0.0), (1.0, 0.0), (1.0, 1.0), (0.0, 1.0)])
+    layer = gpd.GeoDataFrame(
+        {"country": "AAA"}, geometry=[a, b], index=pd.Index(["a", "b"], name="unit_id")
+    )
+    for rook in (False, True):
+        ref = libpysal_edges(layer.geometry, rook=rook)
+        assert ref == {frozenset(("a", "b"))}
+        assert bg_edges(border_graph(layer, rule="rook" if rook else "queen")) == ref

@@ -27,7 +27,8 @@ def border_graph(
     """Build the cross-border contiguity graph of analysis units.
 
     Within one boundary file (column ``source``) units are neighbours by exact contiguity
-    (libpysal ``Graph.build_contiguity``). Units of different files or different countries are
+    (the pairs of libpysal ``Graph.build_contiguity``, found by a vectorised join on the
+    vertex coordinates). Units of different files or different countries are
     neighbours when their boundaries truly share a line (up to 1 cm of reprojection roundoff),
     or come within ``tolerance`` metres along a positive length of at least ``min_shared_m``
     metres (the corner rule, stated in :mod:`marchland.graph._contiguity`). Pairs within the
