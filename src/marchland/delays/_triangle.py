@@ -41,13 +41,16 @@ def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cel
     cases_all = counts["cases"].to_numpy(dtype=float, na_value=np.nan)
     ok = ~np.isnan(cases_all) & (rec_all <= a) & (week_all + 6 <= a)
     week, received, cases = week_all[ok], rec_all[ok], cases_all[ok]
+    del week_all, rec_all, cases_all  # each as long as the counts (4 million rows at 50k)
     delay = _delay(a, week, received)
     u, units = _sorted_codes(counts["unit_id"], ok)
+    del ok
     first = week.min() if len(week) else a
     n_weeks = int((a - first - 6) // 7 + 1) if len(week) else 0
     weeks = pd.date_range(pd.Timestamp(int(first), unit="D"), periods=n_weeks, freq="7D")
     weeks = weeks.astype("datetime64[ns]")
     t = (week - first) // 7
+    del week
     age = ((a - (first + 7 * np.arange(n_weeks)) - 6) // 7).astype(np.int64)
     key = u.astype(np.int64) * max(n_weeks, 1) + t
     if not _in_order(key, received):  # callers replaying many dates pass rows in this order
@@ -59,9 +62,14 @@ def unit_cells(counts: pd.DataFrame, as_of: pd.Timestamp, max_delay: int) -> Cel
     pair_key = key[is_last]
     pair_unit, pair_week = u[is_last], t[is_last]
     latest = cases[is_last]
+    del is_last, t
     inside = delay <= max_delay
     pos = np.searchsorted(pair_key, key[inside])
-    values = _placed(len(pair_key), pos, delay[inside], cases[inside], max_delay)
+    del key
+    delay, cases = delay[inside], cases[inside]
+    del inside
+    values = _placed(len(pair_key), pos, delay, cases, max_delay)
+    del pos, delay, cases
     # Cells after the as-of date are unknown, not the last value carried on.
     values[np.arange(max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
     return Cells(
