@@ -87,6 +87,13 @@ def poisson_llr(c: np.ndarray, mu: np.ndarray, total: float) -> np.ndarray:
     """
     c = np.asarray(c, dtype=float)
     mu = np.broadcast_to(mu, c.shape)
+    if c.ndim == 3:
+        # One height at a time: the temporaries below (up to six arrays as large as the
+        # cylinders with an excess) are then a quarter of the (H, n, K) block each.
+        out = np.empty(c.shape)
+        for h in range(c.shape[0]):  # a loop over heights only
+            out[h] = poisson_llr(c[h], mu[h], total)
+        return out
     up = (c > mu) & (mu > 0)
     out = np.zeros(c.shape)
     cc, mm = c[up], mu[up]
@@ -140,7 +147,8 @@ def null_maxima(
     packed = np.zeros((n, n_c), dtype=np.int64)
     packed[rows, at] = number[order[rows, cols]]
     mu_c = np.zeros((max_weeks, n, n_c))
-    mu_c[:, rows, at] = mu[:, rows, cols]
+    for h in range(max_weeks):  # one height at a time: no (H, cylinders) gathered copy
+        mu_c[h, rows, at] = mu[h, rows, cols]
     # LLR = c log c - c log mu + (C-c) log(C-c) - (C-c) log(C-mu): the mu parts once, here.
     # In place (log 1 = 0 exactly where mu is 0): no temporaries the size of mu_c.
     log_mu = np.zeros_like(mu_c)
