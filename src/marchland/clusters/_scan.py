@@ -75,7 +75,8 @@ def recent_sums(table: np.ndarray, max_weeks: int) -> np.ndarray:
 
 def cylinder_counts(recent: np.ndarray, order: np.ndarray) -> np.ndarray:
     """Observed cases of every cylinder: ``(..., H, n) -> (..., H, n, K)``."""
-    return np.cumsum(recent[..., order], axis=-1)
+    out = recent[..., order]
+    return np.cumsum(out, axis=-1, out=out)  # in place: one (..., H, n, K) block, not two
 
 
 def poisson_llr(c: np.ndarray, mu: np.ndarray, total: float) -> np.ndarray:
@@ -86,6 +87,13 @@ def poisson_llr(c: np.ndarray, mu: np.ndarray, total: float) -> np.ndarray:
     """
     c = np.asarray(c, dtype=float)
     mu = np.broadcast_to(mu, c.shape)
+    if c.ndim == 3:
+        # One height at a time: the temporaries below (up to six arrays as large as the
+        # cylinders with an excess) are then a quarter of the (H, n, K) block each.
+        out = np.empty(c.shape)
+        for h in range(c.shape[0]):  # a loop over heights only
+            out[h] = poisson_llr(c[h], mu[h], total)
+        return out
     up = (c > mu) & (mu > 0)
     out = np.zeros(c.shape)
     cc, mm = c[up], mu[up]
@@ -139,10 +147,15 @@ def null_maxima(
     packed = np.zeros((n, n_c), dtype=np.int64)
     packed[rows, at] = number[order[rows, cols]]
     mu_c = np.zeros((max_weeks, n, n_c))
-    mu_c[:, rows, at] = mu[:, rows, cols]
+    for h in range(max_weeks):  # one height at a time: no (H, cylinders) gathered copy
+        mu_c[h, rows, at] = mu[h, rows, cols]
     # LLR = c log c - c log mu + (C-c) log(C-c) - (C-c) log(C-mu): the mu parts once, here.
-    log_mu = np.log(np.where(mu_c > 0, mu_c, 1.0))
-    log_rest = np.log(np.maximum(total - mu_c, 1e-300))
+    # In place (log 1 = 0 exactly where mu is 0): no temporaries the size of mu_c.
+    log_mu = np.zeros_like(mu_c)
+    np.log(mu_c, out=log_mu, where=mu_c > 0)
+    log_rest = np.subtract(total, mu_c)
+    np.maximum(log_rest, 1e-300, out=log_rest)
+    np.log(log_rest, out=log_rest)
     blocks = max(1, numba.get_num_threads())
     out = np.empty(n_sims)
     done = 0
@@ -299,5 +312,6 @@ def candidates(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max_uni
     # Expected count of every cylinder: the cell expectations summed the same way as cases.
     mu = cylinder_counts(recent_sums(cell, max_weeks), order)
     obs = cylinder_counts(recent_sums(table, max_weeks), order)
-    llr = np.where(valid, poisson_llr(obs, mu, total), 0.0)
+    llr = poisson_llr(obs, mu, total)
+    llr[:, ~valid] = 0.0  # in place: np.where kept a second (H, n, K) block
     return order, valid, obs, mu, llr

@@ -17,6 +17,9 @@ _EXPORTS = {
     "STATUSES": "nowcasting",
     "fill_gaps": "gaps",
     "aggregate_panel": "gaps",
+    "filled": "gaps",
+    "aggregate_filled": "gaps",
+    "Filled": "gaps",
     "PANEL_STATUSES": "gaps",
 }
 __all__ = list(_EXPORTS)

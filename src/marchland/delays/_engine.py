@@ -12,7 +12,7 @@ from ..errors import DataWarning
 from ._calendar import MONTH_END_SPAN, choose, month_end
 from ._groups import country_of, group_of
 from ._pattern import calibrate, nb_bounds, point
-from ._triangle import Cells, group_sums, unit_cells
+from ._triangle import group_sums, unit_cells
 
 # A province or unit uses its own delay pattern only with this many cases in the weeks the
 # pattern is estimated from (common practice: below ~100 events chain-ladder factors are noisy)
@@ -36,7 +36,6 @@ class Estimate:
     phi: np.ndarray  # (G, T) NB size of the remainder
     fallback: np.ndarray  # (G,) True: as reported (no usable delay history)
     pattern: np.ndarray  # (G,) whose delay pattern was used
-    cells: Cells
     C: np.ndarray  # (G, T, D+1) the group triangle
     unit_group: np.ndarray  # (U,) group position of each unit in cells.units
 
@@ -89,14 +88,25 @@ def estimate(
     # Countries: the pattern every group falls back on.
     Sc = S if by in ("country", "region") else group_sums(cells, ci, len(countries))
     Cc, _ = _trim(Sc["C"], age, keep)
-    Foc, Fec, phic = _pattern(Cc, ag, n_d, window, n_past, method, me)
+    del Sc
     # Countries without a usable history: no week that reached the last delay (fewer than
     # max_delay + 1 weeks of data), or every revision received on one day (no delays to learn).
-    pair = pd.DataFrame({"c": ci[cells.row_unit], "r": cells.row_received})
-    n_dates = pair.drop_duplicates().groupby("c").size().reindex(range(len(countries)))
-    n_dates = n_dates.fillna(0)
+    # Distinct (country, received day) pairs as one integer each: a frame of every revision
+    # and its drop_duplicates held several copies of it.
+    r = cells.row_received
+    r0 = int(r.min()) if len(r) else 0
+    span = int(r.max()) - r0 + 1 if len(r) else 1
+    pairs = np.unique(ci[cells.row_unit].astype(np.int64) * span + (r - r0))
+    n_dates = pd.Series(np.bincount(pairs // span, minlength=len(countries)))
     first_c = np.full(len(countries), len(cells.weeks))
     np.minimum.at(first_c, ci[cells.pair_unit], cells.pair_week)
+    first = np.full(len(groups), len(cells.weeks))
+    np.minimum.at(first, gi[cells.pair_unit], cells.pair_week)
+    weeks = cells.weeks
+    # The unit cells are done with: the patterns below need only the group triangles (at
+    # 50,000 units the cells are ~0.5 GB, and the calibration's own arrays came on top).
+    del cells, pairs, r
+    Foc, Fec, phic = _pattern(Cc, ag, n_d, window, n_past, method, me)
     complete_c = np.where(first_c < len(age), age[np.minimum(first_c, len(age) - 1)] - n_d + 1, 0)
     bad_c = (complete_c < 1) | (n_dates.to_numpy() < 2)
     if bad_c.any() and warn:
@@ -121,13 +131,11 @@ def estimate(
             F_other[own], F_end[own], phi[own] = Fo, Fe, phio
         pattern = np.where(own, groups, pattern)
     p = point(S["C"], age, (F_other, F_end, me_all), 0)
-    first = np.full(len(groups), len(cells.weeks))
-    np.minimum.at(first, gi[cells.pair_unit], cells.pair_week)
     phi_t = phi[:, np.clip(age, 0, n_d - 1)]
     return Estimate(
         groups=groups,
         country=g_country,
-        weeks=cells.weeks,
+        weeks=weeks,
         age=age,
         first=first,
         reported=S["latest"],
@@ -137,7 +145,6 @@ def estimate(
         phi=phi_t,
         fallback=bad_c[cidx],
         pattern=pattern,
-        cells=cells,
         C=S["C"],
         unit_group=gi,
     )

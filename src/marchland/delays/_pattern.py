@@ -71,12 +71,21 @@ def _nb_loglik(z: np.ndarray, mu: np.ndarray) -> np.ndarray:
     """NB log-likelihood of z with means mu per size in PHI_GRID, less terms free of size."""
     phi = PHI_GRID
     z, mu = z[..., None], mu[..., None]
-    return (
-        special.gammaln(z + phi)
-        - special.gammaln(phi)
-        + phi * np.log(phi / (phi + mu))
-        + z * np.log(mu / (phi + mu))
-    )
+    # The four terms added in the same order as ``a - b + c + d``, in place: the expression
+    # held five (groups x weeks x sizes) temporaries at once (0.7 GB at 2,500 provinces).
+    out = special.gammaln(z + phi)
+    out -= special.gammaln(phi)
+    tmp = np.add(phi, mu)
+    np.divide(phi, tmp, out=tmp)
+    np.log(tmp, out=tmp)
+    np.multiply(phi, tmp, out=tmp)
+    out += tmp
+    np.add(phi, mu, out=tmp)
+    np.divide(mu, tmp, out=tmp)
+    np.log(tmp, out=tmp)
+    np.multiply(z, tmp, out=tmp)
+    out += tmp
+    return out
 
 
 def calibrate(
@@ -110,7 +119,8 @@ def calibrate(
         amu = np.abs(mu)
         # A zero mean says nothing about dispersion (the model puts all mass on 0).
         ok = np.isfinite(amu) & (amu > 0)
-        lik = _nb_loglik(z, np.where(ok, amu, 1.0)) * ok[..., None]
+        lik = _nb_loglik(z, np.where(ok, amu, 1.0))
+        lik *= ok[..., None]
         onehot = (k[:, None] == np.arange(n_d)).astype(float)  # (S, D)
         ll += np.einsum("gsp,sd->gdp", lik, onehot)
         npts += ok.astype(float) @ onehot

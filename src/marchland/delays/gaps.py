@@ -7,6 +7,9 @@ countries or the region and carries the estimated part (or flags the week incomp
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
+import numba
 import numpy as np
 import pandas as pd
 
@@ -19,6 +22,47 @@ PANEL_STATUSES = ("reported", "nowcast", "imputed", "unknown")
 #: Age (weeks) from which a week's count is taken as complete (default of fill_gaps).
 MAX_DELAY_WEEKS = 8
 AGG_BY = ("region", "country", "province")
+_NOWCAST, _IMPUTED, _UNKNOWN = (PANEL_STATUSES.index(s) for s in ("nowcast", "imputed", "unknown"))
+
+
+@dataclass(frozen=True)
+class Filled:
+    """The :func:`fill_gaps` panel as units x weeks arrays (its long table without strings).
+
+    ``fill_gaps`` has a row for unit ``u`` and week ``t`` where ``t >= start[u]``
+    (:attr:`rows`); elsewhere ``cases`` and ``reported`` are NaN.
+    """
+
+    ids: pd.Index  # (U,) unit ids, in the order of ``units``
+    country: np.ndarray  # (U,) country of each unit
+    weeks: pd.DatetimeIndex  # (T,)
+    cases: np.ndarray  # (U, T) float, NaN unknown or no row
+    reported: np.ndarray  # (U, T) float, NaN where nothing was reported
+    status: np.ndarray  # (U, T) int8 position in PANEL_STATUSES
+    start: np.ndarray  # (U,) first week with a row (the country's first reported week)
+
+    @property
+    def rows(self) -> np.ndarray:
+        """(U, T) True where ``fill_gaps`` has a row."""
+        return np.arange(len(self.weeks))[None, :] >= self.start[:, None]
+
+    def long(self, weeks: np.ndarray | None = None) -> pd.DataFrame:
+        """Return the long table of :func:`fill_gaps` (a row per unit and week from ``start``).
+
+        ``weeks`` (T,) bool: only the rows of those weeks.
+        """
+        rows = self.rows if weeks is None else self.rows & np.asarray(weeks)[None, :]
+        u, t = np.nonzero(rows)
+        return pd.DataFrame(
+            {
+                "unit_id": self.ids.to_numpy()[u],
+                "week": self.weeks[t],
+                "country": self.country[u],
+                "cases": self.cases[u, t],
+                "reported": self.reported[u, t],
+                "status": np.asarray(PANEL_STATUSES, dtype=object)[self.status[u, t]],
+            }
+        )
 
 
 def _rolling(values: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -89,27 +133,39 @@ def fill_gaps(
     >>> sorted(panel["status"].unique())
     ['imputed', 'nowcast', 'reported']
     """
+    return filled(
+        counts, units, as_of=as_of, max_delay_weeks=max_delay_weeks, recent_weeks=recent_weeks
+    ).long()
+
+
+def filled(
+    counts: pd.DataFrame,
+    units: pd.DataFrame,
+    *,
+    as_of: object,
+    max_delay_weeks: int = MAX_DELAY_WEEKS,
+    recent_weeks: int = 8,
+) -> Filled:
+    """Return :func:`fill_gaps`'s panel as units x weeks arrays (:class:`Filled`).
+
+    The same numbers without the long table: at 50,000 units its string columns (unit,
+    country, status repeated on 4 million rows) held more memory than the estimate.
+    """
     stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
     cells = unit_cells(counts, stamp, max_delay_weeks)
     ids, u_country, weeks, cases, latest, has, young, start = _fill(
         cells, units, max_delay_weeks, recent_weeks
     )
+    del cells
     status = np.where(
         has,
-        np.where(young, "nowcast", "reported"),
-        np.where(np.isnan(cases), "unknown", "imputed"),
-    )
-    u, t = np.nonzero(np.arange(len(weeks))[None, :] >= start[:, None])
-    return pd.DataFrame(
-        {
-            "unit_id": ids.to_numpy()[u],
-            "week": weeks[t],
-            "country": u_country[u],
-            "cases": cases[u, t],
-            "reported": latest[u, t],
-            "status": status[u, t],
-        }
-    )
+        np.where(young, np.int8(PANEL_STATUSES.index("nowcast")), np.int8(0)),
+        np.where(np.isnan(cases), np.int8(_UNKNOWN), np.int8(_IMPUTED)),
+    ).astype(np.int8)
+    before = np.arange(len(weeks))[None, :] < start[:, None]
+    cases[before] = np.nan
+    latest[before] = np.nan
+    return Filled(ids, u_country, weeks, cases, latest, status, start)
 
 
 def filled_cases(
@@ -271,35 +327,121 @@ def aggregate_panel(
     """
     if by not in AGG_BY:
         raise ValueError(f"'by' needs to be one of {AGG_BY}. {by!r} was given instead.")
-    key = {"region": "region", "country": "country", "province": "province"}[by]
-    p = panel.assign(
-        region="region",
-        province=province_of(pd.Index(panel["unit_id"]), units),
-        _est=np.where(
-            panel["status"].isin(["nowcast", "imputed"]),
-            panel["cases"] - panel["reported"].fillna(0),
-            0.0,
-        ),
-        _imp=panel["status"].eq("imputed"),
-        _unk=panel["status"].eq("unknown"),
+    if isinstance(panel, Filled):
+        return aggregate_filled(panel, units, by=by)
+    # The long table back onto the units x weeks grid (one row per unit and week, as
+    # fill_gaps gives it), units in the order they first appear.
+    uc, uids = pd.factorize(panel["unit_id"])
+    tc, weeks = pd.factorize(panel["week"], sort=True)
+    shape = (len(uids), len(weeks))
+    grid = {c: np.full(shape, np.nan) for c in ("cases", "reported")}
+    for c, a in grid.items():
+        a[uc, tc] = panel[c].to_numpy(dtype=float, na_value=np.nan)
+    status = np.zeros(shape, dtype=np.int8)
+    status[uc, tc] = pd.Categorical(panel["status"], categories=PANEL_STATUSES).codes
+    rows = np.zeros(shape, dtype=bool)
+    rows[uc, tc] = True
+    country = np.empty(len(uids), dtype=object)
+    country[uc[::-1]] = panel["country"].to_numpy(dtype=object)[::-1]  # each unit's first row
+    return _aggregate(
+        pd.Index(uids, name="unit_id"),
+        country,
+        pd.DatetimeIndex(weeks, name="week"),
+        grid["cases"],
+        grid["reported"],
+        status,
+        rows,
+        units,
+        by,
     )
-    if units is not None and "population" in units:
-        p["_pop"] = pd.Series(units["population"]).reindex(p["unit_id"]).to_numpy(dtype=float)
-    g = p.groupby([key, "week"], sort=True)
-    out = g.agg(
-        cases=("cases", "sum"),
-        reported=("reported", "sum"),
-        estimated=("_est", "sum"),
-        units=("unit_id", "size"),
-        units_imputed=("_imp", "sum"),
-        units_unknown=("_unk", "sum"),
+
+
+def aggregate_filled(filled: Filled, units: pd.DataFrame | None = None, *, by: str = "region"):
+    """:func:`aggregate_panel` of a :class:`Filled` panel (the same table, no long one)."""
+    if by not in AGG_BY:
+        raise ValueError(f"'by' needs to be one of {AGG_BY}. {by!r} was given instead.")
+    f = filled
+    return _aggregate(f.ids, f.country, f.weeks, f.cases, f.reported, f.status, f.rows, units, by)
+
+
+def _aggregate(ids, country, weeks, cases, reported, status, rows, units, by):
+    """Sum the units x weeks panel to groups (see :func:`aggregate_panel`).
+
+    The float sums add the units of each group in unit order with the compensated summation
+    pandas uses for a grouped sum of the long table (:func:`_group_sum`), so the table is the
+    one the long panel gave, to the last digit; cells without a row are NaN, which the sum
+    skips as it skips absent rows. Counts are exact integer sums.
+    """
+    if by == "region":
+        key = np.full(len(ids), "region", dtype=object)
+    elif by == "country":
+        key = np.asarray(country, dtype=object)
+    else:
+        key = province_of(ids, units)
+    codes, labels = pd.factorize(key, sort=True)
+    n_g, n_t = len(labels), len(weeks)
+
+    def gsum(a: np.ndarray) -> np.ndarray:
+        return _group_sum(np.ascontiguousarray(a, dtype=np.float64), codes.astype(np.intp), n_g)
+
+    def count(a: np.ndarray) -> np.ndarray:
+        cell = (codes[:, None] * n_t + np.arange(n_t)[None, :])[a]
+        return np.bincount(cell, minlength=n_g * n_t).reshape(n_g, n_t)
+
+    est = np.where(
+        (status == _NOWCAST) | (status == _IMPUTED), cases - np.nan_to_num(reported), 0.0
     )
+    est[~rows] = np.nan
+    n_units = count(rows)
+    g, t = np.nonzero(n_units)
+    name = {"region": "region", "country": "country", "province": "province"}[by]
+    out = pd.DataFrame(
+        {
+            name: labels[g],
+            "week": weeks[t],
+            "cases": gsum(cases)[g, t],
+            "reported": gsum(reported)[g, t],
+            "estimated": gsum(est)[g, t],
+            "units": n_units[g, t],
+            "units_imputed": count(rows & (status == _IMPUTED))[g, t],
+            "units_unknown": count(rows & (status == _UNKNOWN))[g, t],
+        }
+    )
+    del est
     incomplete = out["units_unknown"] > 0
     out.loc[incomplete, "cases"] = np.nan
     out["status"] = np.where(
         incomplete, "incomplete", np.where(out["estimated"] != 0, "estimated", "reported")
     )
-    if "_pop" in p:
-        out["population"] = g["_pop"].sum()
+    if units is not None and "population" in units:
+        pop = pd.Series(units["population"]).reindex(ids).to_numpy(dtype=float)
+        out["population"] = gsum(np.where(rows, pop[:, None], np.nan))[g, t]
         out["rate"] = out["cases"] / out["population"] * 100_000
-    return out.reset_index()
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _group_sum(values, labels, n_groups):  # pragma: no cover - compiled
+    """Per group and column, the compensated (Kahan) sum of ``values``' rows in row order.
+
+    The arithmetic of pandas' grouped sum (``groupby(...).sum()``: Kahan compensation, NaN
+    skipped, the compensation reset when an infinity makes it NaN), applied to a units x
+    weeks grid instead of a long table: the same sums of the same values in the same order.
+    Written here because pandas offers it only on a long table, which at 50,000 units cost
+    more memory than the whole estimate.
+    """
+    n, k = values.shape
+    out = np.zeros((n_groups, k))
+    comp = np.zeros((n_groups, k))
+    for i in range(n):
+        g = labels[i]
+        for j in range(k):
+            val = values[i, j]
+            if val != val:
+                continue
+            y = val - comp[g, j]
+            t = out[g, j] + y
+            c = t - out[g, j] - y
+            comp[g, j] = 0.0 if c != c else c
+            out[g, j] = t
+    return out

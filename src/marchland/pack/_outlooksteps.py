@@ -46,13 +46,18 @@ def filled_panel(ctx: Any) -> pd.DataFrame:
     cached = getattr(ctx, "_filled_wide", None)
     if cached is not None:
         return cached
-    d = _need("delays", "fill_gaps")
-    long = d.fill_gaps(ctx.counts, ctx.units, as_of=ctx.as_of)
-    wide = long.pivot(index="unit_id", columns="week", values="cases")
-    wide = wide.reindex(ctx.units.index).sort_index(axis=1)
-    wide.columns = pd.DatetimeIndex(wide.columns, name="week")
-    status = long.pivot(index="unit_id", columns="week", values="status").reindex(wide.index)
-    wide.attrs["status"] = status.reindex(columns=wide.columns)
+    d = _need("delays", "filled")
+    # Straight from fill_gaps' units x weeks arrays: its long table and two pivots of it held
+    # about 1 GB at 50,000 units for a panel of 33 MB.
+    f = d.filled(ctx.counts, ctx.units, as_of=ctx.as_of)
+    rows = f.rows
+    cols = slice(int(f.start.min()) if len(f.start) else 0, None)  # weeks with a row
+    weeks = pd.DatetimeIndex(f.weeks[cols], name="week")
+    wide = pd.DataFrame(f.cases[:, cols], index=f.ids, columns=weeks).reindex(ctx.units.index)
+    names = np.asarray(d.PANEL_STATUSES, dtype=object)[f.status[:, cols]]
+    names[~rows[:, cols]] = np.nan
+    status = pd.DataFrame(names, index=f.ids, columns=weeks).reindex(ctx.units.index)
+    wide.attrs["status"] = status
     ctx._filled_wide = wide
     return wide
 

@@ -109,7 +109,7 @@ def recent_weeks(
         ``month_adjusted`` (per unit: ``reported_cases adjusted_cases adjusted_rate``),
         ``month_adjusted_by_area`` (per level and group) and ``month_coverage``.
     """
-    from ..delays import aggregate_panel, fill_gaps, nowcast
+    from ..delays import aggregate_filled, filled, nowcast
 
     units = units.copy()
     if province is None:
@@ -118,13 +118,15 @@ def recent_weeks(
     # aggregate_panel reads provinces from parent_id: make every unit's parent its province.
     units["parent_id"] = province.reindex(units.index)
     units["level"] = 2
-    panel = fill_gaps(counts, units, as_of=as_of, max_delay_weeks=max_delay_weeks)
+    # The filled panel as units x weeks arrays (fill_gaps' long table without its strings:
+    # at 50,000 units that table and its grouped copies were most of the step's memory).
+    panel = filled(counts, units, as_of=as_of, max_delay_weeks=max_delay_weeks)
     frames = []
     bad = [lv for lv in levels if lv not in LEVELS]
     if bad:
         raise ValueError(f"'levels' must be drawn from {LEVELS}; got {bad}.")
     for level in levels:
-        agg = aggregate_panel(panel, units, by=level).rename(columns={level: "group"})
+        agg = aggregate_filled(panel, units, by=level).rename(columns={level: "group"})
         nc = nowcast(
             counts,
             as_of=as_of,
@@ -154,7 +156,8 @@ def recent_weeks(
     t = t[(week_month(t["week"]) <= period).to_numpy()]
     table = t.loc[:, list(NOWCAST_COLUMNS)].reset_index(drop=True)
 
-    in_month = panel[(week_month(panel["week"]) == period).to_numpy()]
+    in_month = panel.long((week_month(pd.Series(panel.weeks)) == period).to_numpy())
+    del panel
     g = in_month.groupby("unit_id")
     per_unit = pd.DataFrame(
         {

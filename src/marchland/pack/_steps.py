@@ -144,7 +144,7 @@ class _Context:
 
     # -- nowcast ---------------------------------------------------------------------------
     def nowcast(self) -> dict[str, Any]:
-        _need("delays", "nowcast", "fill_gaps", "aggregate_panel")
+        _need("delays", "nowcast", "filled", "aggregate_filled")
         from ._recent import recent_weeks
 
         return recent_weeks(
