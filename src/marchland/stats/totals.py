@@ -24,7 +24,8 @@ from .rates import (
 # --- windows from the counts table -----------------------------------------------------------
 def _floats(column: pd.Series, rows: np.ndarray) -> np.ndarray:
     """``column`` at ``rows`` as floats, ``<NA>`` as NaN."""
-    return column.iloc[rows].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
+    taken = pd.Series(column.array.take(rows))  # no index of every row beside the values
+    return taken.astype("Float64").to_numpy(dtype=float, na_value=np.nan)
 
 
 def window_counts(
@@ -92,7 +93,7 @@ def window_counts(
     as_of_ts = pd.Timestamp(as_of)
     # The view's rows and the four columns summed, not a copy of every column of the view.
     rows = as_of_rows(counts, as_of_ts)
-    weeks = counts["week"].iloc[rows].reset_index(drop=True)
+    weeks = pd.Series(counts["week"].array.take(rows))
     current = (weeks <= as_of_ts).to_numpy()
     if not current.all():
         rows, weeks = rows[current], weeks[current].reset_index(drop=True)
