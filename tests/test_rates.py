@@ -27,6 +27,7 @@ from marchland.stats import (
     smooth_rates,
     window_counts,
 )
+from marchland.stats._align import unit_positions
 
 IDS = ["TVR-01-01", "TVR-01-02", "OSK-02-01", "OSK-02-02"]
 
@@ -324,3 +325,15 @@ def test_spatial_eb_shrinks_islands_by_the_global_estimator():
     assert spatial["island"] < 100 < 375
     assert spatial.attrs["islands_global"] == ["island"]
     assert spatial["a"] != pytest.approx(global_["a"])  # others keep their local prior
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    ids=st.lists(st.sampled_from(["a", "b", "TVR-01", "é", "", "zz"]), max_size=20),
+    units=st.lists(st.sampled_from(["a", "b", "TVR-01", "é", "q"]), unique=True, max_size=5),
+)
+def test_unit_positions_are_pandas_get_indexer(ids, units) -> None:
+    # The Arrow lookup of text ids against pandas' own Index.get_indexer on the same values.
+    index = pd.Index(units, dtype=object)
+    got = unit_positions(pd.Series(ids, dtype="str"), index)
+    np.testing.assert_array_equal(got, index.get_indexer(pd.Series(ids, dtype=object)))

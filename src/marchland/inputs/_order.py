@@ -1,4 +1,9 @@
-"""Whether a counts table is already an as-of view (private to ``reports.as_of``)."""
+"""Whether a counts table is already in as-of order (private to ``reports.as_of``).
+
+The reader hands out versions sorted by (unit_id, week, received). On such a table the as-of
+view is a mask of run ends, found by comparing neighbouring rows: no sort, and no hash of
+millions of text ids (at 50,000 units that factorisation was most of the view's memory).
+"""
 
 from __future__ import annotations
 
@@ -6,28 +11,66 @@ import numpy as np
 import pandas as pd
 
 
-def one_row_per_unit_week(frame: pd.DataFrame) -> bool:
-    """Whether rows are strictly increasing in (unit_id, week): sorting would change nothing.
+def _id_steps(ids: pd.Series) -> tuple[np.ndarray, np.ndarray] | None:
+    """Per neighbouring pair of ids: (same, later), compared as the sort compares them.
 
-    Ids compare as the sort compares them: category order for categorical ids, else as text.
-    Anything else (missing values, mixed types) answers False and takes the sort.
+    Category order for categorical ids, else as text (Arrow-backed text by its bytes, which
+    orders as Python's code points do). ``None`` where ids are missing or of mixed types.
     """
-    if len(frame) < 2:
-        return False
-    ids = frame["unit_id"]
-    if isinstance(ids.dtype, pd.CategoricalDtype):
+    dtype = ids.dtype
+    if isinstance(dtype, pd.CategoricalDtype):
         u = ids.cat.codes.to_numpy()
         if (u < 0).any():
-            return False
-    else:
-        u = ids.to_numpy(dtype=object)
-        if pd.isna(u).any():
-            return False
-    w = frame["week"].to_numpy("datetime64[ns]")
-    if np.isnat(w).any():
-        return False
+            return None
+        return u[1:] == u[:-1], u[1:] > u[:-1]
+    if getattr(dtype, "storage", None) == "pyarrow" or isinstance(dtype, pd.ArrowDtype):
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        a = pa.array(ids.array)  # the column's own Arrow data, not a copy
+        if a.null_count:
+            return None
+        try:
+            same = pc.equal(a[1:], a[:-1]).to_numpy(zero_copy_only=False)
+            later = pc.greater(a[1:], a[:-1]).to_numpy(zero_copy_only=False)
+        except pa.ArrowNotImplementedError:
+            return None
+        return same, later
+    u = ids.to_numpy(dtype=object)
+    if pd.isna(u).any():
+        return None
     try:
-        later = (u[1:] > u[:-1]) | ((u[1:] == u[:-1]) & (w[1:] > w[:-1]))
+        return u[1:] == u[:-1], u[1:] > u[:-1]
     except TypeError:  # ids of mixed types
-        return False
-    return bool(np.all(later))
+        return None
+
+
+def _times(frame: pd.DataFrame, column: str) -> np.ndarray | None:
+    t = frame[column].to_numpy("datetime64[ns]")
+    return None if np.isnat(t).any() else t
+
+
+def latest_rows(frame: pd.DataFrame, date: pd.Timestamp | None) -> np.ndarray | None:
+    """Rows of the as-of view on ``date`` if ``frame`` is sorted by (unit_id, week, received).
+
+    Per (unit_id, week) the last row received by ``date`` (``None``: the last row), as the
+    stable sort and ``drop_duplicates(keep="last")`` of ``reports.as_of`` would pick it. A
+    frame in any other order (or with missing keys) answers ``None``: the caller sorts.
+    """
+    if len(frame) < 2:
+        return None
+    steps = _id_steps(frame["unit_id"])
+    w = _times(frame, "week")
+    r = _times(frame, "received")
+    if steps is None or w is None or r is None:
+        return None
+    same_id, later_id = steps
+    same_week = same_id & (w[1:] == w[:-1])
+    in_order = later_id | (same_id & (w[1:] > w[:-1])) | (same_week & (r[1:] >= r[:-1]))
+    if not in_order.all():
+        return None
+    # Within a (unit, week) run received dates never fall, so the rows known by date are the
+    # run's first ones: keep a known row whose successor is another unit-week or not known.
+    known = np.ones(len(frame), dtype=bool) if date is None else r <= date.to_datetime64()
+    last = np.append(~same_week, True)
+    return known & (last | ~np.append(known[1:], False))

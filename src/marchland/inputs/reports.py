@@ -22,7 +22,7 @@ import pandas as pd
 from ..compute import get_executor, share_tasks
 from ..errors import DataWarning, InputError
 from ._names import Matcher
-from ._order import one_row_per_unit_week
+from ._order import latest_rows
 from ._parse import flag as _flag
 from ._parse import parse_table as _parse_table
 from ._parse import read_tables, text_frame
@@ -34,6 +34,7 @@ if TYPE_CHECKING:  # pragma: no cover
 __all__ = [
     "Reports",
     "as_of",
+    "as_of_rows",
     "epi_week",
     "load_aliases",
     "read_reports",
@@ -105,15 +106,36 @@ def as_of(counts: pd.DataFrame, date: object = None) -> pd.DataFrame:
     >>> as_of(c)["cases"].tolist()
     [5, 1]
     """
-    out = counts
-    if date is not None:
-        out = out[out["received"] <= pd.Timestamp(date)]
-    elif one_row_per_unit_week(out):  # already a view (e.g. first_cases of an as-of view)
-        return out.reset_index(drop=True)
+    rows = as_of_rows(counts, date)
+    if len(rows) == len(counts) and np.array_equal(rows, np.arange(len(counts))):
+        return counts.reset_index(drop=True)  # a view already: nothing to copy
+    return counts.iloc[rows].reset_index(drop=True)
+
+
+def as_of_rows(counts: pd.DataFrame, date: object = None) -> np.ndarray:
+    """Positions in ``counts`` of the rows of :func:`as_of` ``(counts, date)``, in its order.
+
+    For callers that need a few columns of the view, not a copy of every column.
+
+    Examples
+    --------
+    >>> c = pd.DataFrame({"unit_id": ["a", "a", "b"],
+    ...                   "week": pd.to_datetime(["2026-01-05"] * 3),
+    ...                   "received": pd.to_datetime(["2026-01-13", "2026-01-27", "2026-01-20"])})
+    >>> as_of_rows(c, "2026-01-21").tolist(), as_of_rows(c).tolist()
+    ([0, 2], [1, 2])
+    """
+    ts = None if date is None else pd.Timestamp(date)
+    # Versions as the reader sorts them, or a view already (the usual cases): a mask, no sort.
+    keep = latest_rows(counts, ts) if ts is None or ts.tz is None else None
+    if keep is not None:
+        return np.flatnonzero(keep)
+    key = counts[["unit_id", "week", "received"]].reset_index(drop=True)
+    if ts is not None:
+        key = key[key["received"] <= ts]
     # Stable sort: for equal received dates the later row of the later file wins.
-    out = out.sort_values(["unit_id", "week", "received"], kind="stable")
-    out = out.drop_duplicates(["unit_id", "week"], keep="last")
-    return out.reset_index(drop=True)
+    key = key.sort_values(["unit_id", "week", "received"], kind="stable")
+    return key.drop_duplicates(["unit_id", "week"], keep="last").index.to_numpy()
 
 
 # --- the result ------------------------------------------------------------------------------

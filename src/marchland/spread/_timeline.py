@@ -13,6 +13,8 @@ from numbers import Integral
 import numpy as np
 import pandas as pd
 
+from ..stats._align import unit_positions
+
 WEEK = pd.Timedelta(days=7)
 
 
@@ -58,26 +60,42 @@ class Timeline:
     quiet: np.ndarray
 
 
-def build_timeline(view: pd.DataFrame, min_cases: int) -> Timeline:
-    """Spread an as-of view (one row per unit-week) onto a unit x week grid."""
-    view = view[view["cases"].notna()]
-    ids = pd.Index(pd.unique(view["unit_id"]), name="unit_id").sort_values()
-    if view.empty:
+def build_timeline(counts: pd.DataFrame, rows: np.ndarray, min_cases: int) -> Timeline:
+    """Spread the as-of view (``counts`` at ``rows``, one row per unit-week) onto a grid.
+
+    Only the view's ids, weeks and cases are taken from ``counts``: no copy of the view.
+    """
+    # Arrays taken at rows, not Series: those would carry an index of every row as well.
+    cases_in = counts["cases"].array.take(rows)
+    reported = ~np.asarray(cases_in.isna())
+    if not reported.all():
+        rows, cases_in = rows[reported], cases_in[reported]
+    del reported
+    ids = pd.Index(pd.unique(counts["unit_id"].array.take(rows)), name="unit_id").sort_values()
+    if len(rows) == 0:
         empty = np.zeros((len(ids), 0), dtype=bool)
         return Timeline(ids, pd.DatetimeIndex([]), empty.astype(float), empty, empty)
-    week = pd.DatetimeIndex(view["week"])
+    week = pd.DatetimeIndex(counts["week"].array.take(rows))
     start = week.min()
-    offset = (week - start) / WEEK
-    if not np.allclose(offset, np.round(offset)):
-        raise ValueError(
-            "'week' values need to be whole weeks apart (one calendar, week start dates); "
-            "found dates that are not"
-        )
-    col = np.round(offset).astype(int)
+    # Whole weeks apart, checked on the integer ticks (no float temporaries of every row);
+    # anything else takes the tolerant float check.
+    ticks = (week - start).asi8
+    col, rest = np.divmod(ticks, WEEK.as_unit(week.unit).value)
+    del ticks
+    if rest.any():
+        offset = (week - start) / WEEK
+        if not np.allclose(offset, np.round(offset)):
+            raise ValueError(
+                "'week' values need to be whole weeks apart (one calendar, week start dates); "
+                "found dates that are not"
+            )
+        col = np.round(offset).astype(int)
+    del rest
     weeks = pd.date_range(start, periods=int(col.max()) + 1, freq="7D", unit=week.unit)
-    row = ids.get_indexer(view["unit_id"])
+    del week
+    row = unit_positions(counts["unit_id"], ids)[rows]
     cases = np.full((len(ids), len(weeks)), np.nan)
-    cases[row, col] = view["cases"].to_numpy(dtype=float)
+    cases[row, col] = cases_in.to_numpy(dtype=float)
     reported = ~np.isnan(cases)
     positive = reported & (np.nan_to_num(cases) >= min_cases)
     quiet = reported & ~positive

@@ -16,7 +16,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from ..inputs.reports import as_of as _as_of_view
+from ..inputs.reports import as_of_rows
 from ._arrival import (
     FIRST_WEEK,
     centroids_km,
@@ -94,8 +94,7 @@ def first_cases(
     Name: first_week, dtype: datetime64[...]
     """
     confirm = check_rules(min_cases, confirm, reintroduction_weeks)
-    view = _as_of_view(counts, as_of)
-    tl = build_timeline(view, min_cases)
+    tl = build_timeline(counts, as_of_rows(counts, as_of), min_cases)
     found = pd.Index(pd.unique(counts["unit_id"]), name="unit_id").sort_values()
     index = _index_with(found, units)
     if reintroduction_weeks is None:
@@ -155,7 +154,7 @@ def affected_episodes(
     1
     """
     confirm = check_rules(min_cases, confirm, reintroduction_weeks)
-    tl = build_timeline(_as_of_view(counts, as_of), min_cases)
+    tl = build_timeline(counts, as_of_rows(counts, as_of), min_cases)
     return episodes(tl, confirm, reintroduction_weeks)
 
 

@@ -48,12 +48,17 @@ def window_masks(
 
 
 def sum_windows(
-    known: pd.DataFrame, units: pd.Index, masks: dict[str, np.ndarray]
+    unit_pos: np.ndarray,
+    cases: np.ndarray,
+    deaths: np.ndarray,
+    units: pd.Index,
+    masks: dict[str, np.ndarray],
 ) -> dict[tuple[str, str], object]:
-    """Per unit and window: sums over reported rows (``<NA>`` where none was reported)."""
-    cases = known["cases"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
-    deaths = known["deaths"].astype("Float64").to_numpy(dtype=float, na_value=np.nan)
-    unit_pos = units.get_indexer(known["unit_id"])
+    """Per unit and window: sums over reported rows (``<NA>`` where none was reported).
+
+    ``unit_pos`` gives each row's position in ``units``; ``cases`` and ``deaths`` are floats
+    with NaN where not reported.
+    """
     fields: dict[tuple[str, str], object] = {}
     n_units = len(units)
     for window, mask in masks.items():

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataWarning, InputError
-from ._align import align_units
+from ._align import align_units, unit_positions
 from ._windows import sum_windows, window_masks
 from .rates import (
     WINDOW_FIELDS,
@@ -22,6 +22,12 @@ from .rates import (
 
 
 # --- windows from the counts table -----------------------------------------------------------
+def _floats(column: pd.Series, rows: np.ndarray) -> np.ndarray:
+    """``column`` at ``rows`` as floats, ``<NA>`` as NaN."""
+    taken = pd.Series(column.array.take(rows))  # no index of every row beside the values
+    return taken.astype("Float64").to_numpy(dtype=float, na_value=np.nan)
+
+
 def window_counts(
     counts: pd.DataFrame,
     as_of: object,
@@ -82,17 +88,22 @@ def window_counts(
     >>> w["weeks_reported"]["month"].tolist()
     [2, 1]
     """
-    from ..inputs.reports import as_of as _as_of
+    from ..inputs.reports import as_of_rows
 
     as_of_ts = pd.Timestamp(as_of)
-    known = _as_of(counts, as_of_ts)
-    known = known[known["week"] <= as_of_ts]
+    # The view's rows and the four columns summed, not a copy of every column of the view.
+    rows = as_of_rows(counts, as_of_ts)
+    weeks = pd.Series(counts["week"].array.take(rows))
+    current = (weeks <= as_of_ts).to_numpy()
+    if not current.all():
+        rows, weeks = rows[current], weeks[current].reset_index(drop=True)
     if units is None:
         units = pd.Index(pd.unique(counts["unit_id"]), name="unit_id")
     units = pd.Index(units, name="unit_id")
-    outside = ~known["unit_id"].isin(units)
+    unit_pos = unit_positions(counts["unit_id"], units)[rows]
+    outside = unit_pos < 0
     if outside.any():
-        bad = known.loc[outside].iloc[0]
+        bad = counts.iloc[rows[np.flatnonzero(outside)[0]]]
         raise InputError(
             f"counts name unit {bad['unit_id']!r}, which is not among the units",
             file=bad["source"],
@@ -100,8 +111,11 @@ def window_counts(
             column="unit_id",
             value=bad["unit_id"],
         )
-    masks, spans, last_complete = window_masks(known["week"], as_of_ts, windows_weeks, month)
-    fields = sum_windows(known, units, masks)
+    masks, spans, last_complete = window_masks(weeks, as_of_ts, windows_weeks, month)
+    del weeks
+    fields = sum_windows(
+        unit_pos, _floats(counts["cases"], rows), _floats(counts["deaths"], rows), units, masks
+    )
     out = pd.DataFrame(fields, index=units)
     out.columns = pd.MultiIndex.from_tuples(out.columns, names=["field", "window"])
     out = out.reindex(
