@@ -35,8 +35,10 @@ def _square(x: int) -> int:
 def cluster():
     distributed = pytest.importorskip("distributed")
     # Threads in this process: quick to start, and enough to exercise scatter/map/gather.
+    # The HTTP server on a free port: with none given it takes 8787 and warns (an error
+    # here) when another cluster, e.g. a second test worker's, holds it.
     with distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None
+        n_workers=2, threads_per_worker=1, processes=False, dashboard_address=":0"
     ) as c:
         yield c
 

@@ -372,8 +372,10 @@ def test_backtest_is_the_same_on_every_executor(sim, monkeypatch):
     monkeypatch.setattr(_backtest, "SERIAL_BELOW", 0)  # small work: start the workers anyway
     runs["n_jobs=2"] = run_backtest(sim.counts, sim.units, sim.graph, n_jobs=2, **kw)
     with (
+        # The HTTP server on a free port: with none given it takes 8787 and warns (an error
+        # here) when another cluster, e.g. a second test worker's, holds it.
         distributed.LocalCluster(
-            n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None
+            n_workers=2, threads_per_worker=1, processes=False, dashboard_address=":0"
         ) as cluster,
         Executor(scheduler=cluster.scheduler_address) as ex,
     ):
