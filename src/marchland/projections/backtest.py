@@ -18,7 +18,6 @@ from ..compute import Executor
 from ._model import ModelSpec
 from ._scores import (
     BASELINE_FLOOR,
-    MIXTURE_BLOCK,
     Rows,
     crps,
     fit_size,
@@ -48,6 +47,9 @@ from .projection import (
 )
 
 MODELS = ("endemic-epidemic", "last-week", "mean-4-weeks")
+#: Scored rows per block of :func:`_scored` (each CRPS temporary is rows x paths floats: 8 MB
+#: at 200 paths).
+SCORE_BLOCK = 5_000
 
 
 def backtest_forecast(
@@ -265,8 +267,8 @@ def _scored(base, model, y, samples, scores, conf) -> pd.DataFrame:
     n = len(y)
     mean, crps_v, expected = np.empty(n), np.empty(n), np.empty(n)
     covered = np.empty(n, dtype=bool)
-    for i in range(0, n, MIXTURE_BLOCK):
-        j = min(i + MIXTURE_BLOCK, n)
+    for i in range(0, n, SCORE_BLOCK):
+        j = min(i + SCORE_BLOCK, n)
         s, yb = samples[i:j], y[i:j]
         lo, hi = np.quantile(s, [a, 1 - a], axis=-1, method="inverted_cdf")
         mean[i:j] = s.mean(axis=-1)
