@@ -170,6 +170,48 @@ def test_paths_drawn_in_blocks(monkeypatch):
     assert np.all(np.abs(many[0].mean(axis=1) - mu) < 4 * sd / np.sqrt(40_000))
 
 
+def test_path_store_holds_the_drawn_paths(monkeypatch):
+    """The compact store gives back the dense simulation exactly: per unit block, group sums."""
+    from scipy import sparse
+
+    from marchland.projections import _paths, _simulate
+
+    n = 6
+    j, i = np.divmod(np.arange(n * n), n)
+    hop = np.minimum((i - j) % n, (j - i) % n)
+    keep = (hop >= 1) & (hop <= 2)
+    orders = OrderMatrix(j[keep], i[keep], np.log(hop[keep].astype(float)), n)
+    start = np.array([0.0, 3.0, 10.0, 0.0, 1.0, 25.0])
+    endemic = np.tile(np.array([0.5, 1.0, 0.2, 0.0, 0.1, 1.5]), (5, 1))
+    kw = dict(lam=0.4, phi=0.3, d=1.2, psi=np.full(n, 2.5), orders=orders, n_paths=20)
+    monkeypatch.setattr(_simulate, "PATH_BLOCK_CELLS", n * 7)  # blocks of 7 paths
+    dense = _simulate.simulate_paths(start, endemic, rng=np.random.default_rng(3), **kw)
+    blocks = _simulate.path_blocks(start, endemic, rng=np.random.default_rng(3), **kw)
+    store = _paths.PathStore.from_blocks(
+        ((lo, hi, p[1:]) for lo, hi, p, _ in blocks), n_paths=20
+    )  # a lead week dropped, as run_origin does
+    np.testing.assert_array_equal(store.toarray(), dense[1:])
+    assert store.toarray().dtype == np.int32 and store.shape == dense[1:].shape
+    np.testing.assert_array_equal(store.units(2, 5), dense[1:, 2:5])
+    g = sparse.csr_matrix(np.array([[1.0, 0, 1, 0, 0, 1], [0, 1.0, 0, 1, 1, 0]]))
+    np.testing.assert_array_equal(store.group_sums(g), np.stack([g @ d for d in dense[1:]]))
+
+    # Each week takes the narrowest type holding its counts; mostly-zero weeks stay sparse,
+    # full ones dense, and a count above 65,535 keeps int32.
+    p = np.zeros((3, 50, 40), dtype=np.int32)
+    p[0, 3, 5] = 7
+    p[1] = 300
+    p[2, 1, 2] = 70_000
+    s = _paths.PathStore.from_blocks([(0, 40, p)], n_paths=40)
+    kinds = [(type(m).__name__, m.dtype) for m in s._steps]
+    assert kinds[0][1] == np.uint8 and sparse.issparse(s._steps[0])
+    assert kinds[1] == ("ndarray", np.uint16)
+    assert kinds[2][1] == np.int32 and sparse.issparse(s._steps[2])
+    np.testing.assert_array_equal(s.toarray(), p)
+    with pytest.raises(ValueError, match="in order"):
+        _paths.PathStore.from_blocks([(0, 10, p[:, :, :10]), (20, 40, p[:, :, 20:])], n_paths=40)
+
+
 def test_forecast_table_and_parameters(sim):
     f = forecast(
         sim.counts, sim.units, sim.graph, as_of=_as_of(sim), seed=3, n_paths=400, window_weeks=20

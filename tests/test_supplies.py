@@ -143,13 +143,15 @@ def test_affected_quantities_are_per_case_amounts_times_quantile_of_summed_paths
     assert out.attrs["quantile"] == q and out.attrs["weeks"] == 4
 
 
-def test_affected_quantities_from_a_real_forecast():
+def test_affected_quantities_from_a_real_forecast(monkeypatch):
     # The functions read a projections.Forecast as it is (paths, units, weeks).
+    import types
     import warnings
 
     from marchland.errors import DataWarning
     from marchland.projections import forecast
     from marchland.projections._synthetic import simulate_outbreak
+    from marchland.supplies import plan as plan_module
 
     sim = simulate_outbreak(3, 14, seed=2)
     with warnings.catch_warnings():
@@ -169,6 +171,13 @@ def test_affected_quantities_from_a_real_forecast():
     expect = pd.Series(upper * 30.0, index=fc.units.index)
     np.testing.assert_array_equal(out["aqua_tabs"].astype(float), expect.reindex(out.index))
     assert len(out) == len(units)
+    # Read a few units at a time from the forecast's compact paths: the same totals as from
+    # its dense paths in one go.
+    monkeypatch.setattr(plan_module, "TOTALS_BLOCK", 2)
+    dense = types.SimpleNamespace(paths=fc.paths, units=fc.units, weeks=fc.weeks)
+    pd.testing.assert_frame_equal(
+        forecast_case_totals(fc, quantile=0.9), forecast_case_totals(dense, quantile=0.9)
+    )
 
 
 def test_affected_bad_input():

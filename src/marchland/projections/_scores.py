@@ -39,10 +39,12 @@ def mixture_scores(y, means, psi, rng):
     """Log score, randomised PIT and ``F(y - 1)``, ``F(y)`` under a mixture of NB2.
 
     The mixture is over the last axis of ``means``; ``psi`` is one size or one per observation.
+    For one-dimensional ``y``, ``means`` may also be anything whose row slices ``means[i:j]``
+    give those rows as an array (:class:`Rows`): it is read ``MIXTURE_BLOCK`` rows at a time.
     """
     y = np.asarray(y, dtype=float)
     size = np.asarray(psi, dtype=float)
-    if y.ndim != 1 or len(y) <= MIXTURE_BLOCK:
+    if y.ndim != 1:
         log_score, lo, hi = _mixture_parts(y, means, size)
     else:
         # A block of observations at a time: each holds (observations x paths) temporaries,
@@ -50,13 +52,30 @@ def mixture_scores(y, means, psi, rng):
         parts = [
             _mixture_parts(
                 y[i : i + MIXTURE_BLOCK],
-                means[i : i + MIXTURE_BLOCK],
+                np.asarray(means[i : i + MIXTURE_BLOCK], dtype=float),
                 size[i : i + MIXTURE_BLOCK] if size.ndim else size,
             )
-            for i in range(0, len(y), MIXTURE_BLOCK)
+            for i in range(0, max(len(y), 1), MIXTURE_BLOCK)
         ]
         log_score, lo, hi = (np.concatenate(p) for p in zip(*parts, strict=True))
     return log_score, lo + rng.uniform(size=hi.shape) * (hi - lo), lo, hi
+
+
+class Rows:
+    """Rows ``(h[k], u[k])`` of a (week, unit, path) array, taken a slice of ``k`` at a time.
+
+    Stands for ``array[h, u]`` (observations x paths) without making that copy whole.
+    """
+
+    def __init__(self, array: np.ndarray, h: np.ndarray, u: np.ndarray):
+        self.array, self.h, self.u = array, h, u
+        self.shape = (len(h), array.shape[-1])
+
+    def __len__(self) -> int:
+        return len(self.h)
+
+    def __getitem__(self, rows: slice) -> np.ndarray:
+        return self.array[self.h[rows], self.u[rows]]
 
 
 #: Observations scored at a time by :func:`mixture_scores` (bounds its temporaries).

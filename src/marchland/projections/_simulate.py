@@ -47,10 +47,47 @@ def simulate_paths(
         The conditional mean of each draw (used for exact predictive probabilities).
     """
     steps, n = endemic.shape
-    start = np.asarray(start, dtype=float).reshape(n, -1)
-    wt = orders.weights(d) if (phi > 0 and not orders.empty) else None
     paths = np.empty((steps, n, n_paths), dtype=np.int32)
     means = np.empty((steps, n, n_paths), dtype=np.float32) if keep_means else None
+    for lo, hi, y, mu in path_blocks(
+        start,
+        endemic,
+        lam=lam,
+        phi=phi,
+        d=d,
+        psi=psi,
+        orders=orders,
+        n_paths=n_paths,
+        rng=rng,
+        keep_means=keep_means,
+    ):
+        paths[:, :, lo:hi] = y
+        if keep_means:
+            means[:, :, lo:hi] = mu
+    return (paths, means) if keep_means else paths
+
+
+def path_blocks(
+    start: np.ndarray,
+    endemic: np.ndarray,
+    *,
+    lam: float,
+    phi: float,
+    d: float,
+    psi,
+    orders: OrderMatrix,
+    n_paths: int,
+    rng: np.random.Generator,
+    keep_means: bool = False,
+):
+    """Yield ``(lo, hi, paths, means)`` for paths ``lo`` to ``hi``, as :func:`simulate_paths`.
+
+    ``paths`` is (steps, n, hi - lo) int32, ``means`` (steps, n, hi - lo) float32 or None.
+    The blocks come in order; together they are exactly :func:`simulate_paths`' arrays.
+    """
+    steps, n = endemic.shape
+    start = np.asarray(start, dtype=float).reshape(n, -1)
+    wt = orders.weights(d) if (phi > 0 and not orders.empty) else None
     size = np.asarray(psi, dtype=float)
     size = size.reshape(n, 1) if size.ndim else size
     # Paths are independent of each other: they are drawn a block at a time, so the working
@@ -61,6 +98,8 @@ def simulate_paths(
     block = max(1, PATH_BLOCK_CELLS // max(n, 1))
     for lo in range(0, n_paths, block):
         hi = min(lo + block, n_paths)
+        paths = np.empty((steps, n, hi - lo), dtype=np.int32)
+        means = np.empty((steps, n, hi - lo), dtype=np.float32) if keep_means else None
         first = start if start.shape[1] == 1 else start[:, lo:hi]
         y = np.broadcast_to(first, (n, hi - lo)).copy()
         for s in range(steps):
@@ -68,10 +107,10 @@ def simulate_paths(
             if wt is not None:
                 mu += phi * (wt @ y)
             if keep_means:
-                means[s, :, lo:hi] = mu
+                means[s] = mu
             g = rng.gamma(size, np.divide(mu, size, out=mu))
             del mu
             y = rng.poisson(g).astype(float)
             del g
-            paths[s, :, lo:hi] = y
-    return (paths, means) if keep_means else paths
+            paths[s] = y
+        yield lo, hi, paths, means

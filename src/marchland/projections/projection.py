@@ -16,6 +16,7 @@ from scipy import sparse
 
 from ..graph.border import BorderGraph, as_border_graph
 from ._model import DISPERSIONS, ModelSpec
+from ._paths import PathStore
 from ._setup import (
     DEFAULT_SKIP_RECENT_WEEKS,
     DEFAULT_WINDOW_WEEKS,
@@ -27,7 +28,7 @@ from ._setup import (
     last_week_over,
     weeks_panel,
 )
-from ._simulate import simulate_paths
+from ._simulate import path_blocks, simulate_paths
 from ._weights import OrderMatrix
 
 TABLE_COLUMNS = ("week", "horizon", "mean", "median", "lower", "upper", "p_any", "note")
@@ -53,12 +54,16 @@ class Forecast:
         ``estimate lower upper`` (95 % Wald interval, natural scale), ``se`` (on ``scale``),
         ``scale`` and ``at_bound``.
     paths : numpy.ndarray
-        Simulated counts, int32, shape (horizon, unit, path), units in ``units`` order.
+        Simulated counts, int32, shape (horizon, unit, path), units in ``units`` order: made
+        from ``path_store`` at each access (0.8 GB at 50,000 units x 4 weeks x 1,000 paths);
+        :meth:`aggregate` and :meth:`unit_paths` read the store without making it whole.
+    path_store : PathStore
+        The same counts held compactly (one sparse unit x path matrix per week, mostly zeros).
     """
 
     table: pd.DataFrame
     parameters: pd.DataFrame
-    paths: np.ndarray
+    path_store: PathStore
     weeks: pd.DatetimeIndex
     units: pd.DataFrame  # country and province per unit_id, plus whether its start is known
     origin_week: pd.Timestamp
@@ -66,6 +71,15 @@ class Forecast:
     window_weeks: int
     conf: float
     notes: tuple[str, ...] = field(default=())
+
+    @property
+    def paths(self) -> np.ndarray:
+        """Simulated counts, dense int32 (horizon, unit, path), made anew at each access."""
+        return self.path_store.toarray()
+
+    def unit_paths(self, start: int, stop: int) -> np.ndarray:
+        """Dense int32 paths (horizon, unit, path) of the units at positions ``start:stop``."""
+        return self.path_store.units(start, stop)
 
     def aggregate(self, by: str | pd.Series = "country", *, conf: float | None = None):
         """Sum the simulated paths over groups of units and summarise each group and week.
@@ -115,7 +129,7 @@ class Forecast:
         g = sparse.csr_matrix(
             (known.astype(float), (codes, np.arange(len(codes)))), shape=(len(groups), len(codes))
         )
-        sums = np.stack([g @ self.paths[h] for h in range(len(self.weeks))])
+        sums = self.path_store.group_sums(g)
         out = summarise_paths(sums, groups, self.weeks, self.conf if conf is None else conf)
         out["n_units"] = np.tile(np.bincount(codes, minlength=len(groups)), len(self.weeks))
         out["n_unknown"] = np.tile(
@@ -130,8 +144,13 @@ class Forecast:
 SUMMARY_BLOCK = 2_000
 
 
-def summarise_paths(paths: np.ndarray, ids, weeks: pd.DatetimeIndex, conf: float) -> pd.DataFrame:
-    """Mean, median, central interval and P(Y > 0) per (id, week) from (week, id, path) draws."""
+def summarise_paths(
+    paths: np.ndarray | PathStore, ids, weeks: pd.DatetimeIndex, conf: float
+) -> pd.DataFrame:
+    """Mean, median, central interval and P(Y > 0) per (id, week) from (week, id, path) draws.
+
+    ``paths`` is an array or a :class:`PathStore` (read a block of units at a time).
+    """
     a = (1 - conf) / 2
     steps, n = paths.shape[:2]
     q = np.empty((3, steps, n))
@@ -139,7 +158,11 @@ def summarise_paths(paths: np.ndarray, ids, weeks: pd.DatetimeIndex, conf: float
     # A block of units at a time: np.quantile sorts a copy of its input, and at 50,000 units
     # x 1,000 paths a copy of every path is 0.8 GB (each unit's numbers do not change).
     for lo in range(0, n, SUMMARY_BLOCK):
-        b = paths[:, lo : lo + SUMMARY_BLOCK]
+        b = (
+            paths.units(lo, lo + SUMMARY_BLOCK)
+            if isinstance(paths, PathStore)
+            else paths[:, lo : lo + SUMMARY_BLOCK]
+        )
         q[:, :, lo : lo + SUMMARY_BLOCK] = np.quantile(
             b, [a, 0.5, 1 - a], axis=2, method="inverted_cdf"
         )
@@ -167,16 +190,20 @@ def _provinces(units: pd.DataFrame) -> pd.Series:
     return parent.where((level != 1) & parent.notna(), pd.Series(units.index, index=units.index))
 
 
-def run_origin(origin: Origin, *, horizon_weeks: int, n_paths: int, seed, keep_means=False):
-    """Simulate from the fit end through the origin week to ``horizon_weeks`` after it."""
+def run_origin(
+    origin: Origin, *, horizon_weeks: int, n_paths: int, seed, keep_means=False, store=False
+):
+    """Simulate from the fit end through the origin week to ``horizon_weeks`` after it.
+
+    With ``store`` the paths come as a :class:`PathStore` (compressed block by block as drawn,
+    the same counts), else as a dense int32 array.
+    """
     fit = origin.fit
     lead = int(round((origin.origin_week - origin.fit_end) / WEEK))
     steps = lead + horizon_weeks
     weeks = pd.date_range(origin.fit_end + WEEK, periods=steps, freq="7D")
     start = np.nan_to_num(origin.start, nan=0.0)
-    out = simulate_paths(
-        start,
-        origin.endemic(weeks),
+    kw = dict(
         lam=fit.value("log_lambda"),
         phi=fit.value("log_phi"),
         d=fit.value("log_d", 1.0),
@@ -184,8 +211,15 @@ def run_origin(origin: Origin, *, horizon_weeks: int, n_paths: int, seed, keep_m
         orders=origin.orders,
         n_paths=n_paths,
         rng=np.random.default_rng(seed),
-        keep_means=keep_means,
     )
+    if store:
+        if keep_means:
+            raise ValueError("'keep_means' needs dense paths (store=False)")
+        blocks = path_blocks(start, origin.endemic(weeks), **kw)
+        # Only the horizon weeks are kept: the lead weeks of each block are dropped first.
+        kept = ((lo, hi, p[lead:]) for lo, hi, p, _ in blocks)
+        return PathStore.from_blocks(kept, n_paths=n_paths), weeks[lead:]
+    out = simulate_paths(start, origin.endemic(weeks), keep_means=keep_means, **kw)
     if keep_means:
         return out[0][lead:], out[1][lead:], weeks[lead:]
     return out[lead:], weeks[lead:]
@@ -321,7 +355,9 @@ def forecast(
         covariates=z,
         groups=size_labels(units, ids),
     )
-    paths, weeks = run_origin(origin, horizon_weeks=horizon_weeks, n_paths=n_paths, seed=seed)
+    paths, weeks = run_origin(
+        origin, horizon_weeks=horizon_weeks, n_paths=n_paths, seed=seed, store=True
+    )
     table = summarise_paths(paths, ids, weeks, conf)
     known = np.isfinite(origin.start)
     table["note"] = ""
@@ -345,7 +381,7 @@ def forecast(
     return Forecast(
         table=table.loc[:, list(TABLE_COLUMNS)],
         parameters=origin.fit.table(),
-        paths=paths,
+        path_store=paths,
         weeks=weeks,
         units=unit_info,
         origin_week=origin_week,
