@@ -21,6 +21,7 @@ from ._model import (
     _fit,
     _panel_at,
     complete_weeks,
+    slim_counts,
 )
 
 #: Below this many unit-origins (units x origin weeks) loky worker processes are not started:
@@ -228,20 +229,9 @@ def run(
     cluster); every origin's result depends on its week only, and the shares are put back in
     origin order, so the result is the same on every backend and any number of workers.
     """
-    slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
-    if as_of is not None:
-        slim = slim[slim["received"] <= pd.Timestamp(as_of)]
-    unknown = ~slim["unit_id"].isin(static.ids)
-    if unknown.any():
-        raise InputError(
-            "counts name units that are not analysis units of the graph; aggregate counts to "
-            "the analysis units first",
-            column="unit_id",
-            value=slim["unit_id"].to_numpy()[unknown.to_numpy()][0],
-        )
     # Unit ids as categories of the graph's ids: the as-of view at every origin sorts by unit,
     # and sorting category codes is several times faster than sorting strings.
-    slim = slim.assign(unit_id=pd.Categorical(slim["unit_id"], categories=static.ids))
+    slim = slim_counts(counts, static, as_of)
     final = _as_of_view(slim, None)
     empty = _backtest(_empty_predictions(), top_k, horizon_weeks)
     if final.empty:
