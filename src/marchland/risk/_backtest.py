@@ -17,10 +17,10 @@ from ._model import (
     _MODEL_FEATURES,
     MODELS,
     Replay,
+    _complete_from,
     _complete_week,
     _fit,
     _panel_at,
-    complete_weeks,
     slim_counts,
 )
 
@@ -239,11 +239,15 @@ def run(
     grid = rf.week_grid(final["week"].min(), final["week"].max())
     final_panel_cases = np.zeros((len(static.ids), len(grid)))
     ui = final["unit_id"].cat.codes.to_numpy()
+    wi = grid.get_indexer(final["week"])
     c = pd.to_numeric(final["cases"], errors="coerce").fillna(0).to_numpy(dtype=float)
-    np.add.at(final_panel_cases, (ui, grid.get_indexer(final["week"])), c)
+    del final  # a copy of every version: not kept while the origins run
+    np.add.at(final_panel_cases, (ui, wi), c)
     pos = final_panel_cases >= min_cases
-    final_pos = np.concatenate([np.zeros((len(static.ids), 1)), np.cumsum(pos, axis=1)], axis=1)
-    final_complete = complete_weeks(slim, static, len(grid) - 1)
+    del final_panel_cases, ui, wi, c
+    # Positive weeks to date per unit: whole numbers, exact in int32 (half of int64/float64).
+    final_pos = np.zeros((len(static.ids), len(grid) + 1), dtype=np.int32)
+    np.cumsum(pos, axis=1, dtype=np.int32, out=final_pos[:, 1:])
     last = len(grid) - 1 - horizon_weeks
     if origins is None:
         any_case = np.flatnonzero(pos.any(axis=0))
@@ -275,6 +279,8 @@ def run(
     }
     # The versions sorted once: each origin's as-of view is then a mask, not a sort.
     replay = Replay.build(slim, static)
+    # complete_weeks of the final data, from the first positive receipts Replay found once.
+    final_complete = _complete_from(replay.first_receipt, static, len(grid) - 1)
     # The versions placed for the origins' weekday here, once, not in every worker.
     lag = pd.Timedelta(days=report_lag_days)
     replay.versions.prepare([grid[t] + pd.Timedelta(days=6) + lag for t in idx[:1]])

@@ -201,6 +201,10 @@ def _panel_at(
     weeks = grid[: t0 + 1]
     view = view[view["week"] <= weeks[-1]]
     first = first_cases(view, min_cases=min_cases)
+    # The view's numbers on the grid; the view itself (a row per reported unit-week) is let
+    # go before the filled panel is made, the step's largest moment.
+    placed = rf.place_view(view, static, weeks)
+    del view
     if replay is None:
         by_then = (counts["received"] <= date).to_numpy()
         known = counts if by_then.all() else counts[by_then]
@@ -213,8 +217,8 @@ def _panel_at(
         first_positive = _first_positive(known, static)
     else:
         gap_counts, first_positive = replay.known(date)
-    panel = rf.build_panel(
-        view,
+    panel = rf.panel_from(
+        *placed,
         first,
         static,
         weeks,
