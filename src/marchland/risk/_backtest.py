@@ -99,7 +99,7 @@ def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
 
 def _origins_task(
     origins: Sequence[int],
-    counts: pd.DataFrame,
+    counts: pd.DataFrame | None,
     replay: Replay,
     final_pos: np.ndarray,
     final_complete: np.ndarray,
@@ -110,6 +110,8 @@ def _origins_task(
     """Score every model at each origin (a worker's share of the backtest).
 
     Returns ``(origin index, predictions)`` pairs, so shares can be put back in origin order.
+    ``counts`` (the versions) is needed only when the forecast model is scored: ``replay``
+    gives every origin's panel.
     """
     h = params["horizon_weeks"]
     lag = pd.Timedelta(days=params["report_lag_days"])
@@ -293,7 +295,11 @@ def run(
     k = max(1, min(executor.parallelism, len(idx)))
     # Interleaved shares balance early (small) and late (large) origins across workers.
     shares = [idx[i::k] for i in range(k)]
-    args = (slim, replay, final_pos, final_complete, static, grid, params)
+    # Replay holds the versions (sorted) for the origins; the slim frame, another copy of
+    # them, is kept only for the forecast model's paths.
+    forecast_counts = slim if forecast is not None else None
+    del slim
+    args = (forecast_counts, replay, final_pos, final_complete, static, grid, params)
     parts = executor.map(_origins_task, shares, *args)
     frames = [f for _, f in sorted((p for part in parts for p in part), key=lambda p: p[0])]
     if not frames:
