@@ -289,8 +289,10 @@ def _filled(
     """
     units = pd.DataFrame({"country": static.country}, index=static.ids)
     gap_weeks, cases = filled_cases(known, units, as_of=date, max_delay_weeks=MAX_DELAY_WEEKS)
-    out = np.full((len(static.ids), len(weeks)), np.nan)
     wi = weeks.get_indexer(gap_weeks)
+    if np.array_equal(wi, np.arange(len(weeks))):
+        return cases  # the same grid (the usual case): no second units x weeks array
+    out = np.full((len(static.ids), len(weeks)), np.nan)
     ok = wi >= 0
     out[:, wi[ok]] = cases[:, ok]
     return out
