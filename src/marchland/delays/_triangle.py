@@ -130,9 +130,16 @@ class Versions:
             d = _delay(a, self.week, self.received)
             pair = np.repeat(np.arange(len(self.start)), self.end - self.start)
             inside = d <= self.max_delay
-            self._values[r] = _placed(
+            values = _placed(
                 len(self.start), pair[inside], d[inside], self.cases[inside], self.max_delay
             )
+            # Kept for every date of the weekday: in float32 when that holds every value
+            # exactly (whole counts below 2**24), half the memory (0.15 GB at 50,000 units);
+            # cells() hands them back as float64, the same numbers.
+            small = values.astype(np.float32)
+            if np.array_equal(small, values, equal_nan=True):
+                values = small
+            self._values[r] = values
         return self._values[r]
 
     def cells(self, as_of: pd.Timestamp) -> Cells:
@@ -154,7 +161,7 @@ class Versions:
         used[self.pair_unit[idx]] = True
         code = np.cumsum(used) - 1
         pair_week = (pw - first) // 7
-        values = all_values[idx]
+        values = all_values[idx].astype(np.float64, copy=False)
         values[np.arange(self.max_delay + 1)[None, :] > age[pair_week][:, None]] = np.nan
         rows = by_then & (self.week + 6 <= a)
         return Cells(

@@ -8,6 +8,7 @@ countries or the region and carries the estimated part (or flags the week incomp
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import partial
 
 import numba
 import numpy as np
@@ -225,13 +226,16 @@ def filled_cases(
                 column="received",
                 value=str(stamp.date()),
             )
-        cells = counts.cells(stamp)
+        cells_of = counts.cells
     else:
         stamp = check_args(counts, as_of, "unit", "chain-ladder", max_delay_weeks, 0.5)
-        cells = unit_cells(counts, stamp, max_delay_weeks)
-    _, _, weeks, cases, _, _, _, start = _fill(cells, units, max_delay_weeks, recent_weeks)
-    before = np.arange(len(weeks))[None, :] < start[:, None]
-    return weeks, np.where(before, np.nan, cases)
+        cells_of = partial(unit_cells, counts, max_delay=max_delay_weeks)
+    # The cells are handed over, not kept here: _fill lets their per-delay values go once it
+    # has the revision factors, before its units x weeks arrays are made.
+    fill = _fill(cells_of(stamp), units, max_delay_weeks, recent_weeks)
+    _, _, weeks, cases, _, _, _, start = fill
+    cases[np.arange(len(weeks))[None, :] < start[:, None]] = np.nan
+    return weeks, cases
 
 
 def _fill(cells: Cells, units, max_delay_weeks, recent_weeks):
@@ -263,14 +267,19 @@ def _fill(cells: Cells, units, max_delay_weeks, recent_weeks):
         pu, pt, known = pos[cells.pair_unit], cells.pair_week, cells.latest
     else:
         pu, pt, known = pos[cells.pair_unit][keep], cells.pair_week[keep], cells.latest[keep]
+    weeks, age = cells.weeks, cells.age
+    # The per-delay values (unit-weeks x delays) have given the factors: let them go (when
+    # the caller handed the cells over) before the units x weeks arrays below.
+    del X, cells, recent, cp, a_pair
     latest = np.full((n_u, n_t), np.nan)
     latest[pu, pt] = known
-    k = np.minimum(cells.age, n_d)
+    k = np.minimum(age, n_d)
     value = latest * F[:, k][ci]
-    young = (cells.age < n_d)[None, :]
+    young = (age < n_d)[None, :]
     level_sum, level_n = _rolling(latest, recent_weeks)
     with np.errstate(invalid="ignore", divide="ignore"):
         level = level_sum / level_n
+    del level_sum, level_n
     has = ~np.isnan(latest)
     # Per country and week: estimate over reporting units, and their summed recent level.
     # (bincount adds in unit order, as np.add.at did, many times faster on units x weeks)
@@ -283,13 +292,15 @@ def _fill(cells: Cells, units, max_delay_weeks, recent_weeks):
     with np.errstate(invalid="ignore", divide="ignore"):
         ratio = np.where(any_rep & (lev > 0), est / lev, np.nan)[ci]
     imputed = np.where(np.isnan(ratio), level, level * ratio)
+    del ratio, level
     cases = np.where(has, value, imputed)
+    del imputed, value
     # First reported week per country (a bincount of country-weeks: np.minimum.at over every
     # unit-week took a fifth of the backtest's filled panel at 10,000 units).
     seen = np.bincount(ci[pu] * n_t + pt, minlength=size).reshape(-1, n_t) > 0
     first = np.where(seen.any(axis=1), seen.argmax(axis=1), n_t)
     young = np.broadcast_to(young, has.shape)
-    return ids, u_country, cells.weeks, cases, latest, has, young, first[ci]
+    return ids, u_country, weeks, cases, latest, has, young, first[ci]
 
 
 def aggregate_panel(

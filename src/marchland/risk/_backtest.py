@@ -17,10 +17,11 @@ from ._model import (
     _MODEL_FEATURES,
     MODELS,
     Replay,
+    _complete_from,
     _complete_week,
     _fit,
     _panel_at,
-    complete_weeks,
+    slim_counts,
 )
 
 #: Below this many unit-origins (units x origin weeks) loky worker processes are not started:
@@ -98,7 +99,7 @@ def _table(pred: pd.DataFrame, top_k: int, by: str | None) -> pd.DataFrame:
 
 def _origins_task(
     origins: Sequence[int],
-    counts: pd.DataFrame,
+    counts: pd.DataFrame | None,
     replay: Replay,
     final_pos: np.ndarray,
     final_complete: np.ndarray,
@@ -109,6 +110,8 @@ def _origins_task(
     """Score every model at each origin (a worker's share of the backtest).
 
     Returns ``(origin index, predictions)`` pairs, so shares can be put back in origin order.
+    ``counts`` (the versions) is needed only when the forecast model is scored: ``replay``
+    gives every origin's panel.
     """
     h = params["horizon_weeks"]
     lag = pd.Timedelta(days=params["report_lag_days"])
@@ -228,20 +231,9 @@ def run(
     cluster); every origin's result depends on its week only, and the shares are put back in
     origin order, so the result is the same on every backend and any number of workers.
     """
-    slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
-    if as_of is not None:
-        slim = slim[slim["received"] <= pd.Timestamp(as_of)]
-    unknown = ~slim["unit_id"].isin(static.ids)
-    if unknown.any():
-        raise InputError(
-            "counts name units that are not analysis units of the graph; aggregate counts to "
-            "the analysis units first",
-            column="unit_id",
-            value=slim["unit_id"].to_numpy()[unknown.to_numpy()][0],
-        )
     # Unit ids as categories of the graph's ids: the as-of view at every origin sorts by unit,
     # and sorting category codes is several times faster than sorting strings.
-    slim = slim.assign(unit_id=pd.Categorical(slim["unit_id"], categories=static.ids))
+    slim = slim_counts(counts, static, as_of)
     final = _as_of_view(slim, None)
     empty = _backtest(_empty_predictions(), top_k, horizon_weeks)
     if final.empty:
@@ -249,11 +241,15 @@ def run(
     grid = rf.week_grid(final["week"].min(), final["week"].max())
     final_panel_cases = np.zeros((len(static.ids), len(grid)))
     ui = final["unit_id"].cat.codes.to_numpy()
+    wi = grid.get_indexer(final["week"])
     c = pd.to_numeric(final["cases"], errors="coerce").fillna(0).to_numpy(dtype=float)
-    np.add.at(final_panel_cases, (ui, grid.get_indexer(final["week"])), c)
+    del final  # a copy of every version: not kept while the origins run
+    np.add.at(final_panel_cases, (ui, wi), c)
     pos = final_panel_cases >= min_cases
-    final_pos = np.concatenate([np.zeros((len(static.ids), 1)), np.cumsum(pos, axis=1)], axis=1)
-    final_complete = complete_weeks(slim, static, len(grid) - 1)
+    del final_panel_cases, ui, wi, c
+    # Positive weeks to date per unit: whole numbers, exact in int32 (half of int64/float64).
+    final_pos = np.zeros((len(static.ids), len(grid) + 1), dtype=np.int32)
+    np.cumsum(pos, axis=1, dtype=np.int32, out=final_pos[:, 1:])
     last = len(grid) - 1 - horizon_weeks
     if origins is None:
         any_case = np.flatnonzero(pos.any(axis=0))
@@ -285,6 +281,8 @@ def run(
     }
     # The versions sorted once: each origin's as-of view is then a mask, not a sort.
     replay = Replay.build(slim, static)
+    # complete_weeks of the final data, from the first positive receipts Replay found once.
+    final_complete = _complete_from(replay.first_receipt, static, len(grid) - 1)
     # The versions placed for the origins' weekday here, once, not in every worker.
     lag = pd.Timedelta(days=report_lag_days)
     replay.versions.prepare([grid[t] + pd.Timedelta(days=6) + lag for t in idx[:1]])
@@ -297,7 +295,11 @@ def run(
     k = max(1, min(executor.parallelism, len(idx)))
     # Interleaved shares balance early (small) and late (large) origins across workers.
     shares = [idx[i::k] for i in range(k)]
-    args = (slim, replay, final_pos, final_complete, static, grid, params)
+    # Replay holds the versions (sorted) for the origins; the slim frame, another copy of
+    # them, is kept only for the forecast model's paths.
+    forecast_counts = slim if forecast is not None else None
+    del slim
+    args = (forecast_counts, replay, final_pos, final_complete, static, grid, params)
     parts = executor.map(_origins_task, shares, *args)
     frames = [f for _, f in sorted((p for part in parts for p in part), key=lambda p: p[0])]
     if not frames:

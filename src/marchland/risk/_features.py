@@ -163,7 +163,9 @@ def build_static(units, graph, covariates: pd.DataFrame | None = None) -> Static
 def _rolling(a: np.ndarray, window: int, lag: int = 0) -> np.ndarray:
     """Sum over weeks (t - lag - window, t - lag] along axis 1 (zeros before the start)."""
     nt = a.shape[1]
-    c = np.concatenate([np.zeros((a.shape[0], window + lag)), np.cumsum(a, axis=1)], axis=1)
+    # The cumulative sum written straight after its zero columns (no concatenated copy).
+    c = np.zeros((a.shape[0], window + lag + nt))
+    np.cumsum(a, axis=1, out=c[:, window + lag :])
     return c[:, window : window + nt] - c[:, :nt]
 
 
@@ -174,8 +176,13 @@ def _rolling_known(a: np.ndarray, window: int, lag: int = 0) -> np.ndarray:
     """
     known = np.isfinite(a)
     total = _rolling(np.where(known, a, 0.0), window, lag)
-    n = _rolling(known.astype(float), window, lag)
-    return np.divide(total * window, n, out=np.full_like(total, np.nan), where=n > 0)
+    n = _rolling(known, window, lag)
+    del known
+    total *= window
+    some = n > 0
+    np.divide(total, n, out=total, where=some)
+    total[~some] = np.nan
+    return total
 
 
 def _known_mean(w: sparse.csr_matrix, v: np.ndarray) -> np.ndarray:
@@ -186,8 +193,12 @@ def _known_mean(w: sparse.csr_matrix, v: np.ndarray) -> np.ndarray:
     known = np.isfinite(v)
     num = w @ np.where(known, v, 0.0)
     den = w @ known.astype(float)
-    full = np.asarray(w.sum(axis=1)).reshape(-1, 1)
-    return np.divide(num * full, den, out=np.zeros_like(num), where=den > 0)
+    del known
+    num *= np.asarray(w.sum(axis=1)).reshape(-1, 1)
+    some = den > 0
+    np.divide(num, den, out=num, where=some)
+    num[~some] = 0.0
+    return num
 
 
 @dataclass(frozen=True, eq=False)
@@ -228,6 +239,31 @@ def build_panel(
     reported cases are used with unreported weeks unknown. ``complete`` gives per unit the
     last week whose count is taken as complete (default: the last week).
     """
+    cases, reported, counted = place_view(view, static, weeks)
+    return panel_from(
+        cases,
+        reported,
+        counted,
+        first_week,
+        static,
+        weeks,
+        recent_weeks=recent_weeks,
+        reintroduction_weeks=reintroduction_weeks,
+        min_cases=min_cases,
+        filled=filled,
+        complete=complete,
+    )
+
+
+def place_view(
+    view: pd.DataFrame, static: Static, weeks: pd.DatetimeIndex
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Place an as-of view on the unit x week grid: ``cases``, ``reported`` and ``counted``.
+
+    ``counted`` marks reports with a number of cases (spread counts a row without cases as no
+    report). The arrays are what :func:`panel_from` needs of the view, so a caller can let the
+    view (a frame of every reported unit-week) go before the filled panel is made.
+    """
     n, nt = len(static.ids), len(weeks)
     v = view[view["week"].isin(weeks)]
     ui = static.ids.get_indexer(v["unit_id"])
@@ -250,6 +286,25 @@ def build_panel(
     # Counted as spread counts them (spread._timeline): a row without cases is not a report.
     counted = np.zeros((n, nt), dtype=bool)
     counted[ui, wi] = c_raw.notna().to_numpy()
+    return cases, reported, counted
+
+
+def panel_from(
+    cases: np.ndarray,
+    reported: np.ndarray,
+    counted: np.ndarray,
+    first_week: pd.Series,
+    static: Static,
+    weeks: pd.DatetimeIndex,
+    *,
+    recent_weeks: int = 3,
+    reintroduction_weeks: int | None = None,
+    min_cases: int = 1,
+    filled: np.ndarray | None = None,
+    complete: np.ndarray | None = None,
+) -> Panel:
+    """:func:`build_panel` from the arrays :func:`place_view` made of the view."""
+    n, nt = len(static.ids), len(weeks)
     fw = first_week.reindex(static.ids)
     fwi = np.full(n, nt, dtype=np.int64)
     known = fw.notna().to_numpy()
@@ -274,19 +329,26 @@ def build_panel(
     # Incidence from the nowcast-adjusted panel, or the reports; a week nobody reported is
     # unknown (left out, the window's known weeks scaled up), not zero.
     base = np.where(counted, cases, np.nan) if filled is None else filled
+    del filled  # Every units x weeks array goes as soon as its features are made.
     recent = _rolling_known(base, recent_weeks)
-    inc = recent / pop[:, None] * 1e5
-    near_raw = _known_mean(static.w1, inc)
-    near = np.log1p(near_raw)
+    before = _rolling_known(base, recent_weeks, lag=recent_weeks)
+    del base
+    growth = np.log1p(static.reach @ np.nan_to_num(recent))
+    nb_before = static.reach @ np.nan_to_num(before)
+    del before
+    growth -= np.log1p(nb_before, out=nb_before)
+    del nb_before
+    inc = recent / pop[:, None]
+    del recent
+    inc *= 1e5
+    near = np.log1p(_known_mean(static.w1, inc))
+    far = np.log1p(_known_mean(static.w2, inc))
     inc0 = np.nan_to_num(inc)
+    del inc
     near0 = static.w1 @ inc0
     # The cross-border share among the known neighbours (renormalising cancels in the ratio).
     cross = np.divide(static.w1_cross @ inc0, near0, out=np.zeros_like(near0), where=near0 > 0)
-    far = np.log1p(_known_mean(static.w2, inc))
-    before = _rolling_known(base, recent_weeks, lag=recent_weeks)
-    nb_now = static.reach @ np.nan_to_num(recent)
-    nb_before = static.reach @ np.nan_to_num(before)
-    growth = np.log1p(nb_now) - np.log1p(nb_before)
+    del near0
     # Distance to the nearest affected unit within two steps: the smallest pair distance
     # among neighbours affected by week t, as a running minimum over weeks.
     dist = np.full((n, nt + 1), np.inf)
@@ -319,7 +381,7 @@ def build_panel(
     at_risk = free & within2
     if complete is None:
         complete = np.full(n, nt - 1, dtype=np.int64)
-    return Panel(weeks, cases, reported, fwi, np.nan_to_num(inc), feats, at_risk, complete)
+    return Panel(weeks, cases, reported, fwi, inc0, feats, at_risk, complete)
 
 
 def future_any(cases: np.ndarray, horizon: int, min_cases: int = 1) -> np.ndarray:

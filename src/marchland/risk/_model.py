@@ -141,6 +141,30 @@ def _check_counts(counts: pd.DataFrame) -> None:
         raise InputError(f"counts need columns {list(need)}; missing {missing}", column=missing[0])
 
 
+def slim_counts(counts: pd.DataFrame, static: rf.Static, as_of: object = None) -> pd.DataFrame:
+    """Keep the four columns the model reads, received by ``as_of``, ids as categories.
+
+    The categories are the graph's ids (``static.ids``): the as-of views sort and group the
+    category codes, not a Python string per row (at 50,000 units four million of them, and
+    every copy of the frame carried them). Used by :func:`border_risk` and the backtest alike.
+    """
+    slim = counts.loc[:, ["unit_id", "week", "cases", "received"]]
+    if as_of is not None:
+        keep = slim["received"] <= pd.Timestamp(as_of)
+        if not keep.all():
+            slim = slim[keep]
+    unknown = ~slim["unit_id"].isin(static.ids).to_numpy()
+    if unknown.any():
+        bad = slim["unit_id"].to_numpy()[unknown]
+        raise InputError(
+            "counts name units that are not analysis units of the graph: "
+            f"{sorted(set(map(str, bad)))[:5]}; aggregate counts to the analysis units first",
+            column="unit_id",
+            value=bad[0],
+        )
+    return slim.assign(unit_id=pd.Categorical(slim["unit_id"], categories=static.ids))
+
+
 def _panel_at(
     counts: pd.DataFrame,
     static: rf.Static,
@@ -177,14 +201,24 @@ def _panel_at(
     weeks = grid[: t0 + 1]
     view = view[view["week"] <= weeks[-1]]
     first = first_cases(view, min_cases=min_cases)
+    # The view's numbers on the grid; the view itself (a row per reported unit-week) is let
+    # go before the filled panel is made, the step's largest moment.
+    placed = rf.place_view(view, static, weeks)
+    del view
     if replay is None:
-        known = counts[counts["received"] <= date]
-        gap_counts = known.assign(unit_id=known["unit_id"].astype(str))
+        by_then = (counts["received"] <= date).to_numpy()
+        known = counts if by_then.all() else counts[by_then]
+        # Categorical ids (slim_counts) stay categorical: delays factorises their codes.
+        gap_counts = (
+            known
+            if isinstance(known["unit_id"].dtype, pd.CategoricalDtype)
+            else known.assign(unit_id=known["unit_id"].astype(str))
+        )
         first_positive = _first_positive(known, static)
     else:
         gap_counts, first_positive = replay.known(date)
-    panel = rf.build_panel(
-        view,
+    panel = rf.panel_from(
+        *placed,
         first,
         static,
         weeks,
@@ -255,8 +289,10 @@ def _filled(
     """
     units = pd.DataFrame({"country": static.country}, index=static.ids)
     gap_weeks, cases = filled_cases(known, units, as_of=date, max_delay_weeks=MAX_DELAY_WEEKS)
-    out = np.full((len(static.ids), len(weeks)), np.nan)
     wi = weeks.get_indexer(gap_weeks)
+    if np.array_equal(wi, np.arange(len(weeks))):
+        return cases  # the same grid (the usual case): no second units x weeks array
+    out = np.full((len(static.ids), len(weeks)), np.nan)
     ok = wi >= 0
     out[:, wi[ok]] = cases[:, ok]
     return out
@@ -283,14 +319,18 @@ def _first_positive(known: pd.DataFrame, static: rf.Static) -> pd.DataFrame:
     The delay is in whole weeks after the week ended (0 at the least), as a float.
     """
     pos = known[pd.to_numeric(known["cases"], errors="coerce").fillna(0) > 0]
-    first_rec = pos.groupby([pos["unit_id"].astype(str), pos["week"]], observed=True)[
-        "received"
-    ].min()
+    ids = pos["unit_id"]
+    if isinstance(ids.dtype, pd.CategoricalDtype) and ids.cat.categories.equals(static.ids):
+        # Grouped by position among the graph's ids (slim_counts), not by a string per row.
+        key = pd.Series(ids.cat.codes.to_numpy(), index=pos.index)
+        country_of = pd.Series(static.country)
+    else:
+        key = ids.astype(str)
+        country_of = pd.Series(static.country, index=static.ids)
+    first_rec = pos.groupby([key, pos["week"]], observed=True)["received"].min()
     wk = first_rec.index.get_level_values(1)
     delay = (first_rec.to_numpy() - (wk + pd.Timedelta(days=7))) // pd.Timedelta(days=7)
-    country = pd.Series(static.country, index=static.ids).reindex(
-        first_rec.index.get_level_values(0)
-    )
+    country = country_of.reindex(first_rec.index.get_level_values(0))
     return pd.DataFrame(
         {
             "received": first_rec.to_numpy(),

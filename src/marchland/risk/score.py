@@ -61,6 +61,7 @@ from ._model import (
     _fit,
     _panel_at,
     _score,
+    slim_counts,
 )
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -90,7 +91,7 @@ def _known_panel(
     static = rf.build_static(units, graph, covariates)
     date = pd.Timestamp(as_of)
     panel, week = _panel_at(
-        counts,
+        slim_counts(counts, static, date),
         static,
         date,
         week0=None,
