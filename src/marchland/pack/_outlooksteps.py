@@ -105,10 +105,13 @@ def start_forecast(ctx: Any) -> Any:
     import contextlib
     import time
 
-    from ..compute import in_background
+    from ..compute import in_background, release_memory
 
     with contextlib.suppress(Exception):
         filled_panel(ctx)
+    # What filling the panel freed goes back before the fork: the copy's resident pages start
+    # from this process's.
+    release_memory()
     panel = getattr(ctx, "_filled_wide", None)
     ex = _executor(ctx.cfg)
     workers = ex.workers if ex.backend == "processes" else 1
