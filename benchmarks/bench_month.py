@@ -91,18 +91,54 @@ print(json.dumps(out))
 """
 
 
+def _tree_pss_mb(root: int) -> float:
+    """Summed proportional set size (MB) of ``root`` and every process below it.
+
+    A forked copy's resident set counts the pages it still shares with its parent, so the
+    largest RSS overstates what a run holds; PSS splits each shared page between its sharers
+    and sums to the memory the run takes from the machine (Linux ``smaps_rollup``).
+    """
+    kids: dict[int, list[int]] = {}
+    for d in os.listdir("/proc"):
+        if d.isdigit():
+            try:
+                stat = Path(f"/proc/{d}/stat").read_text()
+                kids.setdefault(int(stat.rsplit(")", 1)[1].split()[1]), []).append(int(d))
+            except OSError:
+                pass
+    todo, total = [root], 0.0
+    while todo:
+        pid = todo.pop()
+        todo += kids.get(pid, [])
+        try:
+            for line in Path(f"/proc/{pid}/smaps_rollup").read_text().splitlines():
+                if line.startswith("Pss:"):
+                    total += int(line.split()[1]) / 1024
+        except OSError:
+            pass
+    return total
+
+
 def _timed_run(cmd: list[str], log: Path) -> dict:
-    """Run ``cmd`` in a fresh process; return wall, CPU, peak RSS and the exit code."""
+    """Run ``cmd`` in a fresh process; return wall, CPU, peak RSS, peak tree PSS, exit code."""
     use_time = _TIME.exists()
     full = [str(_TIME), "-v", *cmd] if use_time else cmd
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
+    pss = 0.0
     with open(log, "w", encoding="utf-8") as err:
-        proc = subprocess.run(full, stdout=err, stderr=subprocess.STDOUT, check=False)
+        proc = subprocess.Popen(full, stdout=err, stderr=subprocess.STDOUT)
+        can_sample = Path(f"/proc/{proc.pid}/smaps_rollup").exists()
+        while proc.poll() is None:
+            if can_sample:
+                pss = max(pss, _tree_pss_mb(proc.pid))
+            time.sleep(0.5)
     wall = time.perf_counter() - t0
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     text = log.read_text(encoding="utf-8", errors="replace")
     rec = {"wall_s": wall, "returncode": proc.returncode}
+    if pss:
+        rec["tree_pss_mb"] = pss  # sampled every 0.5 s
     if use_time:
         for label, key in _TIME_FIELDS.items():
             m = re.search(rf"{re.escape(label)}: ([\d.]+)", text)
@@ -255,6 +291,10 @@ def write_markdown(results: dict, path: Path) -> None:
     row("month: wall, s", [_fmt(r["month"]["wall_s"]) for r in runs])
     row("month: CPU (user+sys), s", [_fmt(r["month"]["cpu_s"]) for r in runs])
     row("month: peak RSS, MB", [_fmt(r["month"]["rss_kb"] / 1024, 0) for r in runs])
+    row(
+        "month: peak summed PSS of the process tree, MB",
+        [_fmt(r["month"].get("tree_pss_mb"), 0) for r in runs],
+    )
     row("month: exit code", [str(r["month"]["returncode"]) for r in runs])
     row("load average at start", [_fmt(r["load_at_start"]) for r in runs])
     steps: list[str] = []
