@@ -691,3 +691,11 @@ def test_backtest_leaves_out_late_reported_old_cases_and_censored_windows():
     # The outcome is exactly a true first case within the horizon.
     within = (truth > origin) & (truth <= origin + np.timedelta64(14, "D"))
     np.testing.assert_array_equal(p["outcome"].to_numpy(), within)
+
+
+def test_counts_on_a_unit_outside_the_graph_are_refused_by_name(sim, sim_as_of):
+    # The risk step and the backtest share one error for counts on unknown units.
+    stray = sim.counts.iloc[:1].assign(unit_id="NOWHERE-99")
+    counts = pd.concat([sim.counts, stray], ignore_index=True)
+    with pytest.raises(InputError, match=r"not analysis units of the graph: \['NOWHERE-99'\]"):
+        border_risk(counts, sim.units, sim.graph, as_of=sim_as_of)

@@ -215,6 +215,16 @@ class Panel:
     complete: np.ndarray  # per unit, the last week index whose cases are taken as complete
 
 
+def units_not_in_graph(bad: np.ndarray) -> InputError:
+    """Return the error for counts on ``bad`` ids, units not among the graph's analysis units."""
+    return InputError(
+        "counts name units that are not analysis units of the graph: "
+        f"{sorted(set(map(str, bad)))[:5]}; aggregate counts to the analysis units first",
+        column="unit_id",
+        value=bad[0],
+    )
+
+
 def week_grid(start: pd.Timestamp, end: pd.Timestamp) -> pd.DatetimeIndex:
     """Weekly steps from ``start`` to ``end`` inclusive."""
     return pd.date_range(start, end, freq="7D")
@@ -269,13 +279,7 @@ def place_view(
     ui = static.ids.get_indexer(v["unit_id"])
     unknown = ui < 0
     if unknown.any():
-        bad = v["unit_id"].to_numpy()[unknown]
-        raise InputError(
-            "counts name units that are not analysis units of the graph: "
-            f"{sorted(set(bad))[:5]}; aggregate counts to the analysis units first",
-            column="unit_id",
-            value=bad[0],
-        )
+        raise units_not_in_graph(v["unit_id"].to_numpy()[unknown])
     wi = weeks.get_indexer(v["week"])
     cases = np.zeros((n, nt))
     c_raw = pd.to_numeric(v["cases"], errors="coerce")

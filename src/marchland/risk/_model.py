@@ -155,13 +155,7 @@ def slim_counts(counts: pd.DataFrame, static: rf.Static, as_of: object = None) -
             slim = slim[keep]
     unknown = ~slim["unit_id"].isin(static.ids).to_numpy()
     if unknown.any():
-        bad = slim["unit_id"].to_numpy()[unknown]
-        raise InputError(
-            "counts name units that are not analysis units of the graph: "
-            f"{sorted(set(map(str, bad)))[:5]}; aggregate counts to the analysis units first",
-            column="unit_id",
-            value=bad[0],
-        )
+        raise rf.units_not_in_graph(slim["unit_id"].to_numpy()[unknown])
     return slim.assign(unit_id=pd.Categorical(slim["unit_id"], categories=static.ids))
 
 
