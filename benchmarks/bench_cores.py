@@ -503,10 +503,15 @@ def _section(cores: dict) -> str:
             else:
                 extra = (
                     f"{c.get('rows', 0):,} rows, {len(c.get('columns', []))} columns; "
-                    f"GeoPackage layers read back equal: {c.get('same_layer')}; GeoParquet "
-                    f"copies equal: {c.get('same_parquet')} (both sides write "
-                    f"{c.get('both_write')})"
+                    f"GeoPackage layers read back equal: {c.get('same_layer')}; "
                 )
+                if "both_write" in c:
+                    extra += (
+                        f"GeoParquet copies equal: {c.get('same_parquet')} (both sides write "
+                        f"{c['both_write']})"
+                    )
+                else:  # a record from before the core wrote the GeoParquet copy too
+                    extra += f"ours also writes {c.get('ours_also_writes')}"
             lines.append(f"- {r['step']}: {extra}.")
         for m in run.get("merged", []):
             lines.append(
