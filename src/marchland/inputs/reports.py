@@ -474,8 +474,8 @@ def reporting_completeness(
     exp = exp.merge(levels.drop_duplicates(), on=["country", "level"])
     exp = exp.set_index(units.index.name or "unit_id")[["country", "level"]]
     exp = exp[~exp.index.duplicated()]
-    # On integer codes of the unit ids: mapping or grouping millions of string ids turns each
-    # into a Python object (at 50,000 units about 1 GB for the three steps it took).
+    # On integer codes of the unit ids: mapping or grouping millions of string ids made a
+    # Python string of each (at 50,000 units 1.9 s of CPU; 1.1 s on codes).
     codes, ids = pd.factorize(counts["unit_id"])
     week = counts["week"]
     g = week.groupby(codes)
