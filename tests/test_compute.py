@@ -344,3 +344,61 @@ def test_one_blas_thread_here_and_in_forked_copies():
         assert share_tasks(lambda i: _blas_threads(), 2, workers=2) == [[1] * len(before)] * 2
         assert in_background(_blas_threads, workers=2).result() == [1] * len(before)
     assert _blas_threads() == before
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="PR_SET_PDEATHSIG is Linux's")
+@pytest.mark.parametrize("how", ["in_background", "share_tasks"])
+def test_forked_copies_die_with_a_killed_parent(how, tmp_path):
+    # A run killed midway (SIGKILL) must not leave its forked copies working on: they would
+    # keep writing into the month's partial folder that the next run clears.
+    import signal
+    import subprocess
+    import time
+
+    pids = tmp_path / "pids"
+    work = (
+        "compute.in_background(lambda: (note(), time.sleep(120)))"
+        if how == "in_background"
+        else "compute.share_tasks(lambda i: (note(), time.sleep(120)), 2, workers=2)"
+    )
+    script = f"""
+import os, time
+from marchland import compute
+def note():
+    with open({str(pids)!r}, "a") as f:
+        f.write(f"{{os.getpid()}}\\n")
+job = {work}
+time.sleep(120)
+"""
+    parent = subprocess.Popen([sys.executable, "-c", script])
+    try:
+        deadline = time.monotonic() + 60
+        while time.monotonic() < deadline and not (pids.exists() and pids.read_text()):
+            time.sleep(0.1)
+        # (share_tasks runs a task in the calling process too: that one is the parent)
+        deadline = time.monotonic() + 60
+        copies: list[int] = []
+        while time.monotonic() < deadline and not copies:
+            copies = [int(p) for p in pids.read_text().split() if int(p) != parent.pid]
+            time.sleep(0.1)
+        assert copies
+        parent.send_signal(signal.SIGKILL)
+        parent.wait(timeout=30)
+        deadline = time.monotonic() + 20
+        alive = copies
+        while alive and time.monotonic() < deadline:
+            alive = [p for p in copies if _running(p)]
+            time.sleep(0.1)
+        assert not alive, f"forked copies {alive} outlived their killed parent"
+    finally:
+        if parent.poll() is None:
+            parent.kill()
+
+
+def _running(pid: int) -> bool:
+    """True unless ``pid`` is gone or a zombie (dead, waiting to be reaped)."""
+    try:
+        with open(f"/proc/{pid}/stat") as f:
+            return f.read().rsplit(")", 1)[1].split()[0] != "Z"
+    except OSError:
+        return False

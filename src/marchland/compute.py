@@ -333,7 +333,7 @@ def share_tasks(
     counter = ctx.Value("i", 0)
     results = ctx.Queue()
     procs = [
-        ctx.Process(target=_take_tasks, args=(fn, n, counter, results), daemon=True)
+        ctx.Process(target=_take_tasks, args=(fn, n, counter, results, os.getpid()), daemon=True)
         for _ in range(min(workers, n) - 1)
     ]
     for p in procs:
@@ -392,8 +392,9 @@ def _next_task(counter: Any, n: int) -> int | None:
     return i
 
 
-def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any) -> None:
+def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any, parent: int) -> None:
     """Take tasks until none is left, sending back each result or the error (a forked copy)."""
+    _die_with_parent(parent)
     while (i := _next_task(counter, n)) is not None:
         ok, payload = _captured(fn, i)
         results.put((i, ok, payload))
@@ -401,6 +402,25 @@ def _take_tasks(fn: Callable[[int], Any], n: int, counter: Any, results: Any) ->
             break
     results.close()
     results.join_thread()
+
+
+def _die_with_parent(parent: int) -> None:
+    """In a forked copy: be killed when ``parent``, the process that forked it, dies (Linux).
+
+    A run killed midway (SIGKILL, no clean-up) must not leave a copy working on: one writing
+    a month's tables into the partial folder would write again into what the next run clears.
+    Linux's ``PR_SET_PDEATHSIG`` through libc; elsewhere nothing is done.
+    """
+    import ctypes
+    import signal
+
+    try:
+        prctl = ctypes.CDLL(None, use_errno=True).prctl
+    except (OSError, AttributeError):  # not Linux
+        return
+    prctl(1, signal.SIGKILL)  # 1: PR_SET_PDEATHSIG
+    if os.getppid() != parent:  # the parent died before the call above
+        os._exit(1)
 
 
 def _start(process: Any) -> None:
@@ -469,7 +489,7 @@ class Background:
         ctx = mp.get_context("fork")
         self._conn, child = ctx.Pipe(duplex=False)
         # Not a daemon: the work may share its own tasks with forked copies (share_tasks).
-        self._process = ctx.Process(target=_send_back, args=(fn, child))
+        self._process = ctx.Process(target=_send_back, args=(fn, child, os.getpid()))
         _start(self._process)
         child.close()
 
@@ -523,6 +543,7 @@ def in_background(fn: Callable[[], Any], *, workers: int = 2) -> Background:
     return Background(fn, fork=workers > 1 and _can_fork())
 
 
-def _send_back(fn: Callable[[], Any], conn: Any) -> None:
+def _send_back(fn: Callable[[], Any], conn: Any, parent: int) -> None:
+    _die_with_parent(parent)
     conn.send(_captured(fn))
     conn.close()
