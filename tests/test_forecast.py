@@ -136,6 +136,14 @@ def test_sparse_and_dense_neighbour_sums_give_the_same_likelihood(monkeypatch, z
 
 
 # --- the forecast object -----------------------------------------------------------------------
+def _ring_orders(n: int) -> OrderMatrix:
+    """A ring of ``n`` units: neighbours one and two steps either side (orders 1 and 2)."""
+    j, i = np.divmod(np.arange(n * n), n)
+    hop = np.minimum((i - j) % n, (j - i) % n)
+    keep = (hop >= 1) & (hop <= 2)
+    return OrderMatrix(j[keep], i[keep], np.log(hop[keep].astype(float)), n)
+
+
 def test_paths_drawn_in_blocks(monkeypatch):
     """Blocks of paths are consecutive draws of one stream; one-step means match the model."""
     from scipy import stats
@@ -144,10 +152,7 @@ def test_paths_drawn_in_blocks(monkeypatch):
 
     # A ring of 6 units, neighbours one step either side (orders 1 and 2 within the ring).
     n = 6
-    j, i = np.divmod(np.arange(n * n), n)
-    hop = np.minimum((i - j) % n, (j - i) % n)
-    keep = (hop >= 1) & (hop <= 2)
-    orders = OrderMatrix(j[keep], i[keep], np.log(hop[keep].astype(float)), n)
+    orders = _ring_orders(n)
     start = np.array([0.0, 3.0, 10.0, 0.0, 1.0, 25.0])
     endemic = np.tile(np.array([0.5, 1.0, 0.2, 2.0, 0.1, 1.5]), (3, 1))
     kw = dict(lam=0.4, phi=0.3, d=1.2, psi=np.full(n, 2.5), orders=orders)
@@ -177,10 +182,7 @@ def test_path_store_holds_the_drawn_paths(monkeypatch):
     from marchland.projections import _paths, _simulate
 
     n = 6
-    j, i = np.divmod(np.arange(n * n), n)
-    hop = np.minimum((i - j) % n, (j - i) % n)
-    keep = (hop >= 1) & (hop <= 2)
-    orders = OrderMatrix(j[keep], i[keep], np.log(hop[keep].astype(float)), n)
+    orders = _ring_orders(n)
     start = np.array([0.0, 3.0, 10.0, 0.0, 1.0, 25.0])
     endemic = np.tile(np.array([0.5, 1.0, 0.2, 0.0, 0.1, 1.5]), (5, 1))
     kw = dict(lam=0.4, phi=0.3, d=1.2, psi=np.full(n, 2.5), orders=orders, n_paths=20)
