@@ -178,6 +178,29 @@ def test_page_copy_of_a_figure_keeps_its_colours_and_is_smaller(tmp_path):
     assert src.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # file on disk left as it was
 
 
+def test_page_copy_from_opaque_pixels_skips_nothing_the_white_underlay_would_change(tmp_path):
+    # Opaque pixels (every figure is saved on white) take a shortcut past laying them on
+    # white: the copy must be the same bytes as the one made through the underlay, from the
+    # file, with anti-aliased (many-colour) and flat (few-colour) pictures alike.
+    import numpy as np
+    from PIL import Image
+
+    from marchland.pack._html import page_png
+
+    rng = np.random.default_rng(11)
+    for colours in (30, 4000):
+        flat = rng.integers(0, 256, size=(colours, 3), dtype=np.uint8)
+        idx = rng.integers(0, colours, size=(120, 160))
+        rgba = np.dstack([flat[idx], np.full(idx.shape, 255, np.uint8)]).astype(np.uint8)
+        src = tmp_path / f"o{colours}.png"
+        Image.fromarray(rgba, "RGBA").save(src)
+        assert page_png(src, rgba) == page_png(src)
+        # One see-through pixel: the underlay is needed and applied.
+        rgba[0, 0, 3] = 0
+        Image.fromarray(rgba, "RGBA").save(src)
+        assert page_png(src, rgba) == page_png(src)
+
+
 def test_risk_png_points_to_the_backtest_table_the_atlas_shows_it(month):
     from marchland.pack import _figures
 

@@ -86,10 +86,15 @@ def write_figures(
         if progress is not None:
             progress("maps and atlas pages", k, n)
 
-    # Taken from the end of the atlas: the multi-panel epi curves and fan charts come last in
-    # it and cost most, so drawing them first leaves the quick maps to even out the finish.
+    # The cover page is drawn here before any copy is forked: it loads the PDF writer and its
+    # font subsetter (fontTools, about a second), which every copy would otherwise load again.
     n = len(plans) + 1
-    share_tasks(lambda k: task(n - 1 - k), n, workers=workers, done=done)
+    task(0)
+    done(1, n)
+    # The rest is taken from the end of the atlas: the multi-panel epi curves and fan charts
+    # come last in it and cost most, so drawing them first leaves the quick maps to even out
+    # the finish.
+    share_tasks(lambda k: task(n - 1 - k), n - 1, workers=workers, done=lambda k, _: done(k + 1, n))
     _join_pages(
         [work / f"{i:03d}.pdf" for i in range(n)],
         root / "atlas.pdf",
