@@ -461,3 +461,24 @@ def test_grid_group_sum_equals_pandas_grouped_sum(seed, n, k):
     got = _group_sum(values, labels, n_groups)
     want = pd.DataFrame(values).groupby(labels).sum().reindex(range(n_groups), fill_value=0.0)
     np.testing.assert_array_equal(got, want.to_numpy())
+
+
+def test_versions_block_helpers_equal_their_whole_array_forms():
+    # The float32 check and the float64 gather work a block of rows at a time to spare memory:
+    # with blocks smaller than the array (boundaries inside it) they must answer exactly as
+    # numpy's whole-array forms (property check against numpy, invented numbers).
+    from marchland.delays._triangle import _exact_in_float32, _rows_as_float64
+
+    rng = np.random.default_rng(3)
+    whole = rng.integers(0, 5000, size=(11, 4)).astype(float)
+    whole[rng.random(whole.shape) < 0.3] = np.nan
+    for block in (1, 3, 4, 11, 50):
+        assert _exact_in_float32(whole, block=block)
+        off = whole.copy()
+        off[9, 2] = 2.0**24 + 1  # not exact in float32, in the last block
+        assert not _exact_in_float32(off, block=block)
+        small = whole.astype(np.float32)
+        rows = rng.integers(0, len(small), size=17)
+        got = _rows_as_float64(small, rows, block=block)
+        assert got.dtype == np.float64
+        np.testing.assert_array_equal(got, small[rows].astype(np.float64))
