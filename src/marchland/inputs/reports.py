@@ -22,7 +22,7 @@ import pandas as pd
 from ..compute import get_executor, share_tasks
 from ..errors import DataWarning, InputError
 from ._names import Matcher
-from ._order import latest_rows
+from ._order import grouped_latest, latest_rows
 from ._parse import flag as _flag
 from ._parse import parse_table as _parse_table
 from ._parse import read_tables, text_frame
@@ -130,6 +130,10 @@ def as_of_rows(counts: pd.DataFrame, date: object = None) -> np.ndarray:
     keep = latest_rows(counts, ts) if ts is None or ts.tz is None else None
     if keep is not None:
         return np.flatnonzero(keep)
+    # Categorical ids whose units come in blocks in another order than the categories'.
+    rows = grouped_latest(counts, ts) if ts is None or ts.tz is None else None
+    if rows is not None:
+        return rows
     key = counts[["unit_id", "week", "received"]].reset_index(drop=True)
     if ts is not None:
         key = key[key["received"] <= ts]

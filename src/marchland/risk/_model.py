@@ -14,6 +14,7 @@ import pandas as pd
 
 from ..delays.gaps import MAX_DELAY_WEEKS, Versions, filled_cases
 from ..errors import InputError
+from ..inputs._order import grouped_order
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
 from . import _features as rf
@@ -247,7 +248,12 @@ class Replay:
     @classmethod
     def build(cls, counts: pd.DataFrame, static: rf.Static) -> Replay:
         """Arrange ``counts`` (``unit_id week cases received``) for replay."""
-        rows = counts.sort_values(["unit_id", "week", "received"], kind="stable")
+        # The same order: whole blocks of units moved, when they come in blocks (the reader's).
+        order = grouped_order(counts)
+        if order is None:
+            rows = counts.sort_values(["unit_id", "week", "received"], kind="stable")
+        else:
+            rows = counts.take(order)
         rows = rows.reset_index(drop=True)
         rec = rows["received"].to_numpy("datetime64[ns]").view(np.int64)
         never = np.iinfo(np.int64).max
