@@ -195,3 +195,38 @@ def test_province_fan_charts_made_only_for_the_provinces_drawn(grid_month, monke
         (label,) = panels
         assert label.endswith(f"({want})")
         pd.testing.assert_frame_equal(panels[label], every[want])
+
+
+def test_a_step_import_does_not_keep_the_steps_data_alive(tmp_path, monkeypatch):
+    # A library that keeps an exception from its own import (pulp keeps its optional solvers'
+    # import errors) keeps every frame that called the import, and their locals. Steps load
+    # their modules through _load: the data of the step that loaded one must still be freed.
+    import gc
+    import sys
+    import weakref
+
+    from marchland.pack._steps import _load
+
+    (tmp_path / "keeps_its_error.py").write_text(
+        "try:\n    import a_module_that_is_not_there\nexcept ImportError as e:\n    err = e\n"
+        "value = 1\n"
+    )
+    monkeypatch.syspath_prepend(str(tmp_path))
+    monkeypatch.delitem(sys.modules, "keeps_its_error", raising=False)
+
+    class Data:  # stands for a step's inputs
+        pass
+
+    def step() -> weakref.ref:
+        data = Data()
+        mod, missing = _load("keeps_its_error", ("value", "absent_name"))
+        assert mod.value == 1 and missing == ["absent_name"]
+        return weakref.ref(data)
+
+    ref = step()
+    gc.collect()
+    assert ref() is None
+    assert sys.modules["keeps_its_error"].err.__traceback__ is not None  # the trap was set
+    # An import error reaches the caller.
+    with pytest.raises(ModuleNotFoundError):
+        _load("no_such_module_here", ())

@@ -8,6 +8,8 @@ makes that step absent instead of failing the import of the whole package.
 from __future__ import annotations
 
 import importlib
+import sys
+import threading
 import warnings
 from typing import Any
 
@@ -25,15 +27,45 @@ class _Absent(Exception):
 
 def _need(module: str, *names: str) -> Any:
     try:
-        mod = importlib.import_module(f"marchland.{module}")
+        mod, missing = _load(f"marchland.{module}", names)
     except ModuleNotFoundError as exc:
         if exc.name in (f"marchland.{module}",):
             raise _Absent(f"module marchland.{module} is not available yet") from None
         raise
-    missing = [n for n in names if not hasattr(mod, n)]
     if missing:
         raise _Absent(f"marchland.{module} lacks {', '.join(missing)}")
     return mod
+
+
+def _load(qualname: str, names: tuple[str, ...]) -> tuple[Any, list[str]]:
+    """Import ``qualname`` and its lazily loaded ``names`` on a thread of their own.
+
+    Returns the module and the names it lacks. Some libraries keep an exception raised while
+    they are imported (pulp keeps its optional solvers' import errors as class attributes),
+    and with its traceback every frame that called the import: imported inside a step, that
+    kept the step's inputs (all of the month's counts, 0.27 GB at 50,000 units) alive for
+    the rest of the run and in every copy forked later. A thread's frames have no callers
+    from the run. An error is raised here, in the caller's thread.
+    """
+    if qualname in sys.modules and all(n in vars(sys.modules[qualname]) for n in names):
+        mod = sys.modules[qualname]
+        return mod, []
+    box: dict[str, Any] = {}
+
+    def load() -> None:
+        try:
+            mod = importlib.import_module(qualname)
+            box["missing"] = [n for n in names if not hasattr(mod, n)]
+            box["module"] = mod
+        except BaseException as exc:  # handed to the caller's thread below
+            box["error"] = exc
+
+    thread = threading.Thread(target=load, name=f"marchland-import-{qualname}")
+    thread.start()
+    thread.join()
+    if "error" in box:
+        raise box.pop("error")
+    return box["module"], box["missing"]
 
 
 #: Units per week between the month's border-risk backtest origins (see ``_Context.backtest``):
