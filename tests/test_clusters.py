@@ -256,7 +256,10 @@ def test_null_maxima_equal_every_cylinder_evaluated(method):
             return _scan.multinomial_draw(int(total), cell, g)
         return _scan.permutation_draw(table, g)
 
-    got = _scan.null_maxima(draws(9), 40, order, mu, valid, total, h, n_weeks=weeks, live=live)
+    recent_mu = _scan.recent_sums(cell, h)
+    got = _scan.null_maxima(
+        draws(9), 40, order, recent_mu, valid, total, h, n_weeks=weeks, live=live
+    )
     tables = draws(9)(40)
     want = [
         np.where(
@@ -268,5 +271,5 @@ def test_null_maxima_equal_every_cylinder_evaluated(method):
     ]
     np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-12)
     # Walking every unit gives the same maxima to the bit.
-    every = _scan.null_maxima(draws(9), 40, order, mu, valid, total, h, n_weeks=weeks)
+    every = _scan.null_maxima(draws(9), 40, order, recent_mu, valid, total, h, n_weeks=weeks)
     assert np.array_equal(got, every)
