@@ -354,8 +354,9 @@ def best_cylinders(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max
     """Each base's best height: ``order, valid, best, best_h`` (see :func:`select_clusters`).
 
     ``best`` (n, K) is the largest LLR of the base over the heights and ``best_h`` the first
-    height index reaching it (the smallest unsigned integer type that holds it). The heights are scored one at a time, so (H, n, K)
-    blocks of counts and ratios are never held (at 50,000 units 0.16 GB each).
+    height index reaching it (the smallest unsigned integer type that holds it). The heights
+    are scored one at a time, so (H, n, K) blocks of counts and ratios are never held (at
+    50,000 units 0.16 GB each).
     """
     order, valid = zones(xy, adjacency, size, cap, max_units)
     total = float(table.sum())
