@@ -316,11 +316,16 @@ def test_selection_from_each_bases_best_height_equals_the_whole_block(seed):
     assert got == want
 
 
+@pytest.mark.parametrize("chunk", [None, 1, 5000])
 @pytest.mark.parametrize("method", ["space-time permutation", "poisson"])
-def test_best_cylinders_are_the_largest_over_heights(method):
-    """The heights scored one at a time give each base's largest LLR of the whole block, bit
-    for bit, and the first height reaching it (reference: ``candidates``' (H, n, K) block)."""
+def test_best_cylinders_are_the_largest_over_heights(method, chunk, monkeypatch):
+    """The heights scored one at a time (centres in chunks: all, one, a few with a rest) give
+    each base's largest LLR of the whole block, bit for bit, and the first height reaching it
+    (reference: ``candidates``' (H, n, K) block)."""
     from marchland.clusters import _scan
+
+    if chunk is not None:
+        monkeypatch.setattr(_scan, "CHUNK_BYTES", chunk)
 
     panel, _ = planted_panel(8, weeks=8, seed=3)
     table = panel.to_numpy(dtype=float, copy=True)

@@ -20,6 +20,8 @@ from scipy.stats import random_table
 
 # Memory for one batch of simulated cylinder counts (float64), in bytes.
 BATCH_BYTES = 64 * 2**20
+# Memory for the cylinders of one height scored at a time (float64, per array), in bytes.
+CHUNK_BYTES = 16 * 2**20
 
 
 def neighbour_order(
@@ -33,7 +35,7 @@ def neighbour_order(
     n = len(xy)
     k = min(k, n)
     if adjacency is None:
-        _, order = cKDTree(xy).query(xy, k=k)
+        order = cKDTree(xy).query(xy, k=k)[1]  # the distances go at once
         order = np.asarray(order, dtype=np.int64).reshape(n, k)
         # A tie at distance 0 (shared centroids) could put another unit first; the centre leads.
         return _centre_first(order), np.ones((n, k), dtype=bool)
@@ -62,8 +64,11 @@ def zone_limits(
     order: np.ndarray, ok: np.ndarray, size: np.ndarray, cap: float
 ) -> tuple[np.ndarray, np.ndarray]:
     """Cumulative zone size and the mask of zones no larger than ``cap`` (a prefix per row)."""
-    zsize = np.cumsum(np.where(ok, size[order], 0.0), axis=1)
-    valid = np.cumprod(ok & (zsize <= cap * (1 + 1e-12)), axis=1).astype(bool)
+    # In place: one (n, K) float block, not three.
+    zsize = np.asarray(size, dtype=np.float64)[order]
+    zsize[~ok] = 0.0
+    np.cumsum(zsize, axis=1, out=zsize)
+    valid = np.logical_and.accumulate(ok & (zsize <= cap * (1 + 1e-12)), axis=1)
     return zsize, valid
 
 
@@ -304,9 +309,10 @@ def zones(xy, adjacency, size, cap, max_units):
     k = min(limit, 32)
     while True:
         order, ok = neighbour_order(xy, k, adjacency)
-        _, valid = zone_limits(order, ok, size, cap)
+        valid = zone_limits(order, ok, size, cap)[1]
         if k >= limit or not valid[:, -1].any():
             break
+        del order, ok, valid  # before the wider order is made
         k = min(limit, 2 * k)
     width = max(1, int(valid.sum(axis=1).max()))
     return order[:, :width], valid[:, :width]
@@ -355,19 +361,23 @@ def best_cylinders(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max
 
     ``best`` (n, K) is the largest LLR of the base over the heights and ``best_h`` the first
     height index reaching it (the smallest unsigned integer type that holds it). The heights
-    are scored one at a time, so (H, n, K) blocks of counts and ratios are never held (at
-    50,000 units 0.16 GB each).
+    are scored one at a time, for ``CHUNK_BYTES`` of centres at a time, so (H, n, K) blocks
+    of counts and ratios are never held (at 50,000 units 0.16 GB each).
     """
     order, valid = zones(xy, adjacency, size, cap, max_units)
     total = float(table.sum())
     recent_obs, recent_mu = recent_sums(table, max_weeks), recent_sums(cell, max_weeks)
-    best = np.zeros(order.shape)
-    best_h = np.zeros(order.shape, dtype=np.min_scalar_type(max_weeks - 1))
-    for h in range(max_weeks):  # a loop over heights only
-        llr = height_cylinders(recent_obs, recent_mu, order, valid, total, h)[2]
-        up = llr > best  # strictly: a tie keeps the shorter height
-        best[up] = llr[up]
-        best_h[up] = h
+    n, n_k = order.shape
+    best = np.zeros((n, n_k))
+    best_h = np.zeros((n, n_k), dtype=np.min_scalar_type(max_weeks - 1))
+    step = max(1, CHUNK_BYTES // (8 * n_k))
+    for a in range(0, n, step):  # centres a chunk at a time: a few chunks, not a loop over units
+        part = slice(a, a + step)
+        for h in range(max_weeks):
+            llr = height_cylinders(recent_obs, recent_mu, order[part], valid[part], total, h)[2]
+            up = llr > best[part]  # strictly: a tie keeps the shorter height
+            best[part][up] = llr[up]
+            best_h[part][up] = h
     return order, valid, best, best_h
 
 
