@@ -21,7 +21,7 @@ from scipy.stats import random_table
 # Memory for one batch of simulated cylinder counts (float64), in bytes.
 BATCH_BYTES = 64 * 2**20
 # Memory for the cylinders of one height scored at a time (float64, per array), in bytes.
-CHUNK_BYTES = 16 * 2**20
+CHUNK_BYTES = 4 * 2**20
 
 
 def neighbour_order(
