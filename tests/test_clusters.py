@@ -256,7 +256,10 @@ def test_null_maxima_equal_every_cylinder_evaluated(method):
             return _scan.multinomial_draw(int(total), cell, g)
         return _scan.permutation_draw(table, g)
 
-    got = _scan.null_maxima(draws(9), 40, order, mu, valid, total, h, n_weeks=weeks, live=live)
+    recent_mu = _scan.recent_sums(cell, h)
+    got = _scan.null_maxima(
+        draws(9), 40, order, recent_mu, valid, total, h, n_weeks=weeks, live=live
+    )
     tables = draws(9)(40)
     want = [
         np.where(
@@ -268,5 +271,81 @@ def test_null_maxima_equal_every_cylinder_evaluated(method):
     ]
     np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-12)
     # Walking every unit gives the same maxima to the bit.
-    every = _scan.null_maxima(draws(9), 40, order, mu, valid, total, h, n_weeks=weeks)
+    every = _scan.null_maxima(draws(9), 40, order, recent_mu, valid, total, h, n_weeks=weeks)
     assert np.array_equal(got, every)
+
+
+def _first_largest_cylinders(llr, valid, order, max_clusters):
+    """Selection over the whole (H, n, K) block: the first largest cylinder sharing no unit."""
+    used = np.zeros(order.shape[0], dtype=bool)
+    score = np.where(valid, llr, 0.0)
+    picks = []
+    for _ in range(max_clusters):
+        overlap = np.logical_or.accumulate(used[order], axis=1)
+        s = np.where(overlap[None, :, :], 0.0, score)
+        best = int(np.argmax(s))
+        if s.flat[best] <= 0:
+            break
+        h, i, k = np.unravel_index(best, s.shape)
+        picks.append((int(h), int(i), int(k)))
+        used[order[i, : k + 1]] = True
+    return picks
+
+
+@pytest.mark.parametrize("seed", range(40))
+def test_selection_from_each_bases_best_height_equals_the_whole_block(seed):
+    """Keeping each base's best height picks the same cylinders, ties included.
+
+    Reference: the first largest of every (height, centre, base) cylinder, the selection
+    before the heights were folded; LLRs from a few small whole numbers, so ties are common
+    across heights, centres and base sizes.
+    """
+    from marchland.clusters import _scan
+
+    rng = np.random.default_rng(seed)
+    n_h, n, n_k = 4, 25, 6
+    order = np.array(
+        [np.r_[i, rng.permutation(np.delete(np.arange(n), i))[: n_k - 1]] for i in range(n)]
+    )
+    valid = np.arange(n_k)[None, :] < rng.integers(1, n_k + 1, n)[:, None]
+    llr = rng.choice([0.0, 0.0, 1.5, 2.0, 3.0], size=(n_h, n, n_k))
+    llr[:, ~valid] = 0.0
+    want = _first_largest_cylinders(llr, valid, order, 10)
+    assert want
+    got = _scan.select_clusters(llr.max(axis=0), llr.argmax(axis=0), order, 10)
+    assert got == want
+
+
+@pytest.mark.parametrize("chunk", [None, 1, 5000])
+@pytest.mark.parametrize("method", ["space-time permutation", "poisson"])
+def test_best_cylinders_are_the_largest_over_heights(method, chunk, monkeypatch):
+    """The heights scored one at a time (centres in chunks: all, one, a few with a rest) give
+    each base's largest LLR of the whole block, bit for bit, and the first height reaching it
+    (reference: ``candidates``' (H, n, K) block)."""
+    from marchland.clusters import _scan
+
+    if chunk is not None:
+        monkeypatch.setattr(_scan, "CHUNK_BYTES", chunk)
+
+    panel, _ = planted_panel(8, weeks=8, seed=3)
+    table = panel.to_numpy(dtype=float, copy=True)
+    table[:, -2] = 0.0  # a week without cases: (permutation) heights 1 and 2 tie
+    total = float(table.sum())
+    rng = np.random.default_rng(2)
+    xy = rng.uniform(0, 100, (len(table), 2))
+    if method == "poisson":
+        size = rng.uniform(1e3, 1e5, len(table))
+        cell = np.outer(size / size.sum(), np.full(8, 1 / 8)) * total
+    else:
+        size = table.sum(axis=1)
+        cell = np.outer(size, table.sum(axis=0)) / total
+    args = (table, cell, xy, size, 0.3 * size.sum(), 4)
+    order, valid, _, _, llr = _scan.candidates(*args)
+    order2, valid2, best, best_h = _scan.best_cylinders(*args)
+    assert np.array_equal(order, order2) and np.array_equal(valid, valid2)
+    assert np.array_equal(best, llr.max(axis=0))
+    pos = best > 0
+    assert pos.any()
+    assert np.array_equal(best_h[pos], llr.argmax(axis=0)[pos])
+    if method != "poisson":
+        assert (llr[1][pos] == best[pos]).any()  # the tie is there, and goes to the first

@@ -79,7 +79,7 @@ def test_every_cylinder_matches_the_paper(example):
         assert llr[h, i, k] == pytest.approx(r, rel=1e-9, abs=1e-9)
     # The most likely cluster: same cylinder (base and height), same LLR.
     best_ref = max(ref.values(), key=lambda v: v[3])
-    h, i, k = _scan.select_clusters(llr, valid, order, 1)[0]
+    h, i, k = _scan.select_clusters(llr.max(axis=0), llr.argmax(axis=0), order, 1)[0]
     assert frozenset(order[i, : k + 1]) == best_ref[0]
     assert llr[h, i, k] == pytest.approx(best_ref[3], rel=1e-9)
 

@@ -20,6 +20,8 @@ from scipy.stats import random_table
 
 # Memory for one batch of simulated cylinder counts (float64), in bytes.
 BATCH_BYTES = 64 * 2**20
+# Memory for the cylinders of one height scored at a time (float64, per array), in bytes.
+CHUNK_BYTES = 4 * 2**20
 
 
 def neighbour_order(
@@ -33,7 +35,7 @@ def neighbour_order(
     n = len(xy)
     k = min(k, n)
     if adjacency is None:
-        _, order = cKDTree(xy).query(xy, k=k)
+        order = cKDTree(xy).query(xy, k=k)[1]  # the distances go at once
         order = np.asarray(order, dtype=np.int64).reshape(n, k)
         # A tie at distance 0 (shared centroids) could put another unit first; the centre leads.
         return _centre_first(order), np.ones((n, k), dtype=bool)
@@ -62,8 +64,11 @@ def zone_limits(
     order: np.ndarray, ok: np.ndarray, size: np.ndarray, cap: float
 ) -> tuple[np.ndarray, np.ndarray]:
     """Cumulative zone size and the mask of zones no larger than ``cap`` (a prefix per row)."""
-    zsize = np.cumsum(np.where(ok, size[order], 0.0), axis=1)
-    valid = np.cumprod(ok & (zsize <= cap * (1 + 1e-12)), axis=1).astype(bool)
+    # In place: one (n, K) float block, not three.
+    zsize = np.asarray(size, dtype=np.float64)[order]
+    zsize[~ok] = 0.0
+    np.cumsum(zsize, axis=1, out=zsize)
+    valid = np.logical_and.accumulate(ok & (zsize <= cap * (1 + 1e-12)), axis=1)
     return zsize, valid
 
 
@@ -109,7 +114,7 @@ def null_maxima(
     draw,
     n_sims: int,
     order: np.ndarray,
-    mu: np.ndarray,
+    recent_mu: np.ndarray,
     valid: np.ndarray,
     total: float,
     max_weeks: int,
@@ -119,8 +124,11 @@ def null_maxima(
     """Largest LLR of each simulated table, drawn in batches so memory stays bounded.
 
     ``draw(b)`` returns ``b`` tables of shape (n, ``n_weeks``) with the null distribution.
-    The cylinder loop runs in a compiled kernel (:func:`_batch_maxima`) that computes a log only for
-    cylinders whose cheap upper bound can beat the table's current maximum.
+    ``recent_mu`` (H, n) holds each unit's expected cases over the last 1..H weeks
+    (:func:`recent_sums` of the cell expectations); the cylinders' expectations are summed
+    from it one height at a time. The cylinder loop runs in a compiled kernel
+    (:func:`_batch_maxima`) that computes a log only for cylinders whose cheap upper bound can
+    beat the table's current maximum.
 
     ``live`` (n,) marks the units with an expected case in the last ``max_weeks`` weeks; the
     others get none in any simulated table (a cell with no expectation draws no case, under
@@ -128,27 +136,28 @@ def null_maxima(
     its count nor its expectation (both add exactly 0), so that cylinder repeats the one
     before it and cannot raise the maximum: the kernel walks the live units of each base
     only (at 10,000 units, 86 % of them had no case in the window), with the same maxima.
+    The walked cylinders are stored one after another, centre by centre (``start`` marks where
+    each centre's begin), not in an (H, n, K) block: at 50,000 units 0.6 of 5 million.
     """
     n, n_k = order.shape
     batch = int(max(1, min(n_sims, BATCH_BYTES // (n * n_weeks * 8 * 2))))
-    mu = np.ascontiguousarray(np.broadcast_to(mu, (max_weeks, n, n_k)), dtype=np.float64)
     # Bases are prefixes of each centre's neighbour list: only their length is needed.
     width = valid.sum(axis=1).astype(np.int64)
     within = np.arange(n_k)[None, :] < width[:, None]
     if live is None:
         live = np.ones(n, dtype=bool)
-    # Each base's live units packed to the left, numbered among the live units.
+    # Each base's live units, centre by centre, numbered among the live units.
     walk = within & live[order]
-    width = walk.sum(axis=1).astype(np.int64)
-    rows, cols = np.nonzero(walk)
-    at = (np.cumsum(walk, axis=1) - 1)[rows, cols]
-    n_c = max(1, int(width.max()) if n else 1)
+    start = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(walk.sum(axis=1), out=start[1:])
+    rows, cols = np.nonzero(walk)  # row by row: each centre's cylinders in order of size
+    del walk, within
     number = np.cumsum(live) - 1
-    packed = np.zeros((n, n_c), dtype=np.int64)
-    packed[rows, at] = number[order[rows, cols]]
-    mu_c = np.zeros((max_weeks, n, n_c))
-    for h in range(max_weeks):  # one height at a time: no (H, cylinders) gathered copy
-        mu_c[h, rows, at] = mu[h, rows, cols]
+    packed = number[order[rows, cols]]
+    mu_c = np.empty((max_weeks, len(rows)))
+    for h in range(max_weeks):  # one height at a time: one (n, K) block of expectations
+        mu_c[h] = cylinder_counts(recent_mu[h], order)[rows, cols]
+    del rows, cols
     # LLR = c log c - c log mu + (C-c) log(C-c) - (C-c) log(C-mu): the mu parts once, here.
     # In place (log 1 = 0 exactly where mu is 0): no temporaries the size of mu_c.
     log_mu = np.zeros_like(mu_c)
@@ -168,28 +177,31 @@ def null_maxima(
             np.moveaxis(recent_sums(tables.astype(np.float64), max_weeks), 0, -1)
         )
         out[done : done + b] = _batch_maxima(
-            recent, packed, width, mu_c, log_mu, log_rest, total, min(blocks, b)
+            recent, packed, start, mu_c, log_mu, log_rest, total, min(blocks, b)
         )
         done += b
     return out
 
 
 @numba.njit(parallel=True, cache=True, nogil=True)
-def _batch_maxima(recent, order, width, mu, log_mu, log_rest, total, n_blocks):  # pragma: no cover
+def _batch_maxima(recent, packed, start, mu, log_mu, log_rest, total, n_blocks):  # pragma: no cover
     """Largest LLR over every valid cylinder of each table; ``recent`` is (H, units, B).
+
+    Centre ``i``'s cylinders are ``start[i]:start[i + 1]`` of ``packed`` (the unit each adds)
+    and of the (H, cylinders) expectations ``mu``, ``log_mu`` and ``log_rest``.
 
     Pruning: with log x <= x - 1 on both terms, LLR <= (c - mu) (c/mu - (C-c)/(C-mu)); a
     cylinder whose bound is below the current maximum cannot be the maximum, so its logs are
     skipped. The result equals the full evaluation.
 
     The tables are shared out in ``n_blocks`` blocks (one per thread), and a block walks the
-    cylinders once for all its tables: the expectations (``mu``, H x n x K, tens of MB at
-    10,000 units) are read once per block rather than once per table, which made the kernel
+    cylinders once for all its tables: the expectations (``mu``, tens of MB at 50,000 units)
+    are read once per block rather than once per table, which made the kernel
     bound by memory. Each table's counts are summed and compared in the same order as one by
     one, so every maximum is the same to the bit.
     """
     n_h, _, n_b = recent.shape
-    n = order.shape[0]  # centres (``recent`` may hold fewer units: those that can have cases)
+    n = len(start) - 1  # centres (``recent`` may hold fewer units: those that can have cases)
     out = np.zeros(n_b)
     size = (n_b + n_blocks - 1) // n_blocks
     for blk in numba.prange(n_blocks):
@@ -204,9 +216,9 @@ def _batch_maxima(recent, order, width, mu, log_mu, log_rest, total, n_blocks): 
         for h in range(n_h):
             for i in range(n):
                 c[:] = 0.0
-                for k in range(width[i]):
-                    j = order[i, k]
-                    m = mu[h, i, k]
+                for z in range(start[i], start[i + 1]):
+                    j = packed[z]
+                    m = mu[h, z]
                     # The bound is C (c - mu)^2 / (mu (C - mu)): below ``low`` (so below
                     # every table's maximum) while c <= mu + sqrt(low mu (C - mu) / C). A
                     # count up to that (less a margin far above rounding) is passed over with
@@ -226,7 +238,7 @@ def _batch_maxima(recent, order, width, mu, log_mu, log_rest, total, n_blocks): 
                         bound = (cq - m) * (cq / m - rest / (total - m))
                         if bound * (1.0 + 1e-9) + 1e-12 <= best[q]:
                             continue
-                        v = cq * np.log(cq) - cq * log_mu[h, i, k] - rest * log_rest[h, i, k]
+                        v = cq * np.log(cq) - cq * log_mu[h, z] - rest * log_rest[h, z]
                         if rest > 0.0:
                             v += rest * np.log(rest)
                         if v > best[q]:
@@ -263,23 +275,28 @@ def multinomial_draw(total: int, prob: np.ndarray, rng: np.random.Generator):
 
 
 def select_clusters(
-    llr: np.ndarray, valid: np.ndarray, order: np.ndarray, max_clusters: int
+    best: np.ndarray, best_h: np.ndarray, order: np.ndarray, max_clusters: int
 ) -> list[tuple[int, int, int]]:
     """Most likely cylinder, then the best ones sharing no unit with those already chosen.
 
-    Returns ``(h_index, centre, k_index)`` triples, best first; only cylinders with LLR > 0.
+    ``best`` (n, K) is each base's largest LLR over the heights (0 for invalid bases) and
+    ``best_h`` the first height index reaching it (:func:`best_cylinders`). Ties go, as in
+    the first largest of the (H, n, K) cylinders, to the shortest height, then the first
+    centre, then the smallest base. Returns ``(h_index, centre, k_index)`` triples, best
+    first; only cylinders with LLR > 0.
     """
     n = order.shape[0]
     used = np.zeros(n, dtype=bool)
-    score = np.where(valid, llr, 0.0)
     picks: list[tuple[int, int, int]] = []
-    for _ in range(max_clusters):  # one pass per reported cluster, vectorised over cylinders
+    for _ in range(max_clusters):  # one pass per reported cluster, vectorised over bases
         overlap = np.logical_or.accumulate(used[order], axis=1)
-        s = np.where(overlap[None, :, :], 0.0, score)
-        best = int(np.argmax(s))
-        if s.flat[best] <= 0:
+        s = np.where(overlap, 0.0, best)
+        top = s.max()
+        if not top > 0:
             break
-        h, i, k = np.unravel_index(best, s.shape)
+        tied = s == top
+        h = best_h[tied].min()
+        i, k = np.unravel_index(int(np.argmax(tied & (best_h == h))), s.shape)
         picks.append((int(h), int(i), int(k)))
         used[order[i, : k + 1]] = True
     return picks
@@ -292,12 +309,33 @@ def zones(xy, adjacency, size, cap, max_units):
     k = min(limit, 32)
     while True:
         order, ok = neighbour_order(xy, k, adjacency)
-        _, valid = zone_limits(order, ok, size, cap)
+        valid = zone_limits(order, ok, size, cap)[1]
         if k >= limit or not valid[:, -1].any():
             break
+        del order, ok, valid  # before the wider order is made
         k = min(limit, 2 * k)
     width = max(1, int(valid.sum(axis=1).max()))
     return order[:, :width], valid[:, :width]
+
+
+def height_cylinders(
+    recent_obs: np.ndarray,
+    recent_mu: np.ndarray,
+    order: np.ndarray,
+    valid: np.ndarray,
+    total: float,
+    h: int,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Observed, expected and LLR (0 for invalid bases) of every cylinder of height index ``h``.
+
+    ``recent_obs`` and ``recent_mu`` are (H, n) :func:`recent_sums` of the cases and of the
+    cell expectations; the three arrays returned are (n, K).
+    """
+    obs = cylinder_counts(recent_obs[h], order)
+    mu = cylinder_counts(recent_mu[h], order)
+    llr = poisson_llr(obs, mu, total)
+    llr[~valid] = 0.0
+    return obs, mu, llr
 
 
 def candidates(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max_units=None):
@@ -305,13 +343,47 @@ def candidates(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max_uni
 
     ``observed``, ``expected`` and ``llr`` have shape (H, n, K): height index ``h`` (last
     ``h + 1`` weeks), centre, base size index ``k`` (``k + 1`` units, ``order[i, :k + 1]``).
-    ``cell`` holds the expected count of every unit-week under the null.
+    ``cell`` holds the expected count of every unit-week under the null. Three blocks of
+    H x n x K: for small regions and checks; the scan keeps less (:func:`best_cylinders`).
     """
     order, valid = zones(xy, adjacency, size, cap, max_units)
     total = float(table.sum())
-    # Expected count of every cylinder: the cell expectations summed the same way as cases.
-    mu = cylinder_counts(recent_sums(cell, max_weeks), order)
-    obs = cylinder_counts(recent_sums(table, max_weeks), order)
-    llr = poisson_llr(obs, mu, total)
-    llr[:, ~valid] = 0.0  # in place: np.where kept a second (H, n, K) block
+    recent_obs, recent_mu = recent_sums(table, max_weeks), recent_sums(cell, max_weeks)
+    heights = [
+        height_cylinders(recent_obs, recent_mu, order, valid, total, h) for h in range(max_weeks)
+    ]
+    obs, mu, llr = (np.stack(a) for a in zip(*heights, strict=True))
     return order, valid, obs, mu, llr
+
+
+def best_cylinders(table, cell, xy, size, cap, max_weeks, *, adjacency=None, max_units=None):
+    """Each base's best height: ``order, valid, best, best_h`` (see :func:`select_clusters`).
+
+    ``best`` (n, K) is the largest LLR of the base over the heights and ``best_h`` the first
+    height index reaching it (the smallest unsigned integer type that holds it). The heights
+    are scored one at a time, for ``CHUNK_BYTES`` of centres at a time, so (H, n, K) blocks
+    of counts and ratios are never held (at 50,000 units 0.16 GB each).
+    """
+    order, valid = zones(xy, adjacency, size, cap, max_units)
+    total = float(table.sum())
+    recent_obs, recent_mu = recent_sums(table, max_weeks), recent_sums(cell, max_weeks)
+    n, n_k = order.shape
+    best = np.zeros((n, n_k))
+    best_h = np.zeros((n, n_k), dtype=np.min_scalar_type(max_weeks - 1))
+    step = max(1, CHUNK_BYTES // (8 * n_k))
+    for a in range(0, n, step):  # centres a chunk at a time: a few chunks, not a loop over units
+        part = slice(a, a + step)
+        for h in range(max_weeks):
+            llr = height_cylinders(recent_obs, recent_mu, order[part], valid[part], total, h)[2]
+            up = llr > best[part]  # strictly: a tie keeps the shorter height
+            best[part][up] = llr[up]
+            best_h[part][up] = h
+    return order, valid, best, best_h
+
+
+def cylinder_at(recent: np.ndarray, order: np.ndarray, h: int, i: int, k: int) -> float:
+    """Cases (or expectation) of cylinder ``(h, i, k)`` from (H, n) :func:`recent_sums`.
+
+    Summed in the order :func:`cylinder_counts` sums, so the value is the same to the bit.
+    """
+    return float(np.cumsum(recent[h, order[i, : k + 1]])[-1])

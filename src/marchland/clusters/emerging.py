@@ -216,21 +216,29 @@ def emerging_clusters(
         cell = np.outer(size, table.sum(axis=0)) / total
         draw = _scan.permutation_draw(table, rng)
     cap = max_share * size.sum()
-    order, valid, obs, mu, llr = _scan.candidates(
+    order, valid, best, best_h = _scan.best_cylinders(
         table, cell, xy, size, cap, max_weeks, adjacency=adjacency, max_units=max_units
     )
-    picks = _scan.select_clusters(llr, valid, order, max_clusters)
+    picks = _scan.select_clusters(best, best_h, order, max_clusters)
     if not picks:
         attrs["note"] = "no cylinder had more cases than expected"
         empty.attrs.update(attrs)
         return empty
+    # Only the picked cylinders' counts are needed from here.
+    recent_obs = _scan.recent_sums(table, max_weeks)
+    recent_mu = _scan.recent_sums(cell, max_weeks)
+    picked = [
+        (
+            _scan.cylinder_at(recent_obs, order, h, i, k),
+            _scan.cylinder_at(recent_mu, order, h, i, k),
+            best[i, k],
+        )
+        for h, i, k in picks
+    ]
+    del best, best_h
     live = cell[:, -max_weeks:].sum(axis=1) > 0
-    # Only the picked cylinders' counts are needed from here: the (H, n, K) blocks of observed
-    # counts and ratios go before the simulation (at 50,000 units, 0.1-0.2 GB each).
-    picked = [(obs[h, i, k], mu[h, i, k], llr[h, i, k]) for h, i, k in picks]
-    del obs, llr
     null = _scan.null_maxima(
-        draw, permutations, order, mu, valid, total, max_weeks, n_weeks=n_weeks, live=live
+        draw, permutations, order, recent_mu, valid, total, max_weeks, n_weeks=n_weeks, live=live
     )
     rows = []
     for (h, i, k), (c, m, s) in zip(picks, picked, strict=True):
