@@ -135,6 +135,24 @@ def test_sparse_and_dense_neighbour_sums_give_the_same_likelihood(monkeypatch, z
     np.testing.assert_array_equal(out[0][1], out[1][1])
 
 
+def test_order_matrix_is_higher_orders_pairs():
+    # Property check against the earlier formulation: the order matrix read from
+    # higher_order's edge table (unit ids mapped back to positions) must be the one built from
+    # the graph's positional pairs, pair for pair and in the same order, also when the model's
+    # units come in another order than the graph's and the graph holds a unit they lack.
+    units, g = lattice(8)
+    bg = as_border_graph(g, countries=units["country"])
+    ids = pd.Index(np.random.default_rng(3).permutation(units.index)[1:], name="unit_id")
+    e = bg.higher_order(5, lower_order=True).edges
+    j, i = ids.get_indexer(e["focal"]), ids.get_indexer(e["neighbor"])
+    keep = (j >= 0) & (i >= 0)
+    orders = OrderMatrix.from_graph(bg, ids, 5)
+    np.testing.assert_array_equal(orders.sender, j[keep])
+    np.testing.assert_array_equal(orders.receiver, i[keep])
+    np.testing.assert_array_equal(orders.log_order, np.log(e["order"].to_numpy(float)[keep]))
+    assert orders.n == len(ids) and keep.sum() < len(keep) and orders.log_order.max() > 0
+
+
 # --- the forecast object -----------------------------------------------------------------------
 def _ring_orders(n: int) -> OrderMatrix:
     """A ring of ``n`` units: neighbours one and two steps either side (orders 1 and 2)."""
