@@ -153,6 +153,24 @@ def test_order_matrix_is_higher_orders_pairs():
     assert orders.n == len(ids) and keep.sum() < len(keep) and orders.log_order.max() > 0
 
 
+def test_neighbour_contributions_listed_in_blocks(monkeypatch):
+    # Property check against the unblocked listing: the contributions of the sparse neighbour
+    # sums listed a few pairs at a time (blocks cutting through senders' lists) are the same
+    # matrix, entry for entry, and give the same sums as the weight matrix times the counts.
+    from marchland.projections import _weights
+
+    units, g = lattice(8)
+    orders = OrderMatrix.from_graph(as_border_graph(g), units.index, 3)
+    x = np.random.default_rng(5).poisson(0.05, (64, 6)).astype(float)
+    ui, ti = np.nonzero(np.random.default_rng(6).uniform(size=(64, 6)) < 0.8)
+    whole = _weights.CellSums.build(orders, x, ui, ti).contrib
+    monkeypatch.setattr(_weights, "CELL_BLOCK", 7)
+    blocked = _weights.CellSums.build(orders, x, ui, ti)
+    assert whole.nnz > 10 * 7 and (blocked.contrib != whole).nnz == 0
+    np.testing.assert_array_equal(blocked.contrib.indices, whole.indices)
+    np.testing.assert_array_equal(blocked(1.3)[0], (orders.weights(1.3) @ x)[ui, ti])
+
+
 # --- the forecast object -----------------------------------------------------------------------
 def _ring_orders(n: int) -> OrderMatrix:
     """A ring of ``n`` units: neighbours one and two steps either side (orders 1 and 2)."""

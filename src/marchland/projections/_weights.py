@@ -66,8 +66,8 @@ class OrderMatrix:
         index = np.int32 if small else np.int64
         indptr = np.zeros(self.n + 1, dtype=index)
         np.cumsum(np.bincount(self.receiver, minlength=self.n), out=indptr[1:])
-        code = np.unique(self.log_order, return_inverse=True)[1]
-        code = code.astype(np.int8 if code.max(initial=0) < 127 else np.intp)
+        code = np.searchsorted(self._levels, self.log_order)  # np.unique's inverse, no sort
+        code = code.astype(np.int8 if len(self._levels) < 127 else np.intp)
         return self.sender[perm].astype(index), indptr, code, code[perm]
 
     @cached_property
@@ -146,6 +146,8 @@ class OrderMatrix:
 #: The sparse form of :class:`CellSums` is kept while its contributions are at most this share
 #: of the dense product's (pairs x weeks); beyond, the weights are multiplied with ``x``.
 SPARSE_SHARE = 0.25
+#: Pairs listed at a time by :meth:`CellSums.build` (bounds its temporaries: 8 MB each).
+CELL_BLOCK = 1_000_000
 
 
 @dataclass(frozen=True, eq=False)
@@ -180,21 +182,35 @@ class CellSums:
         total = int(reps.sum())
         if total > SPARSE_SHARE * len(orders.sender) * t:
             return cls(orders, x, ui, ti, None)
-        # Every pair (j -> i) of each non-zero x_jt, as the cell (i, t) it adds to.
+        # Every pair (j -> i) of each non-zero x_jt, as the cell (i, t) it adds to, listed for
+        # a block of x_jt at a time (about CELL_BLOCK pairs): each temporary of the listing is
+        # one number per pair (4 million at 50,000 units, 0.4 GB together unblocked).
         by_sender = np.argsort(orders.sender, kind="stable")
         first = np.concatenate([[0], np.cumsum(deg)[:-1]])
-        entry = np.repeat(np.arange(len(jj)), reps)
-        within = np.arange(total) - np.repeat(np.cumsum(reps) - reps, reps)
-        pair = by_sender[first[jj][entry] + within]
         cell_of = np.full((n, t), -1, dtype=np.int64)
         cell_of[ui, ti] = np.arange(len(ui))
-        cell = cell_of[orders.receiver[pair], tt[entry]]
-        keep = cell >= 0
-        pair, entry, cell = pair[keep], entry[keep], cell[keep]
         _, _, code, _ = orders._csr
         k = len(orders._levels)
-        col = orders.sender[pair] * k + code[pair]
-        contrib = sparse.csr_matrix((x[jj, tt][entry], (cell, col)), shape=(len(ui), n * k))
+        xv = x[jj, tt]
+        cuts = np.searchsorted(np.cumsum(reps), np.arange(CELL_BLOCK, total, CELL_BLOCK))
+        bounds = np.concatenate([[0], cuts, [len(jj)]])  # an empty block is harmless
+        cells, cols, vals = [], [], []
+        for a, b in zip(bounds[:-1], bounds[1:], strict=True):
+            r = reps[a:b]
+            entry = np.repeat(np.arange(a, b), r)
+            within = np.arange(len(entry)) - np.repeat(np.cumsum(r) - r, r)
+            pair = by_sender[first[jj[entry]] + within]
+            del within
+            cell = cell_of[orders.receiver[pair], tt[entry]]
+            keep = cell >= 0
+            pair = pair[keep]
+            cells.append(cell[keep].astype(np.int32 if len(ui) < 2**31 else np.int64))
+            cols.append(orders.sender[pair] * k + code[pair])
+            vals.append(xv[entry[keep]])
+        del by_sender, cell_of
+        cell, col, val = (np.concatenate(v) for v in (cells, cols, vals))
+        del cells, cols, vals
+        contrib = sparse.csr_matrix((val, (cell, col)), shape=(len(ui), n * k))
         return cls(orders, x, ui, ti, contrib)
 
     def __call__(self, d: float) -> tuple[np.ndarray, np.ndarray]:
