@@ -246,6 +246,11 @@ def test_path_store_holds_the_drawn_paths(monkeypatch):
     assert kinds[1] == ("ndarray", np.uint16)
     assert kinds[2][1] == np.int32 and sparse.issparse(s._steps[2])
     np.testing.assert_array_equal(s.toarray(), p)
+    h, u = np.array([2, 0, 1, 2, 0, 2]), np.array([1, 3, 9, 1, 0, 49])  # sparse and dense weeks
+    np.testing.assert_array_equal(s.cells(h, u), p[h, u])
+    np.testing.assert_array_equal(
+        store.cells(np.array([3, 0]), np.array([5, 2])), dense[1:][[3, 0], [5, 2]]
+    )
     with pytest.raises(ValueError, match="in order"):
         _paths.PathStore.from_blocks([(0, 10, p[:, :, :10]), (20, 40, p[:, :, 20:])], n_paths=40)
 

@@ -103,6 +103,15 @@ class PathStore:
             out[s] = part if isinstance(part, np.ndarray) else part.toarray()
         return out
 
+    def cells(self, step: np.ndarray, unit: np.ndarray) -> np.ndarray:
+        """Int32 counts (len(step), paths) of (step, unit) pairs, ``toarray()[step, unit]``."""
+        out = np.empty((len(step), self.shape[2]), dtype=np.int32)
+        for s in np.unique(step):  # a few weeks
+            sel = np.flatnonzero(step == s)
+            part = self._steps[s][unit[sel]]
+            out[sel] = part if isinstance(part, np.ndarray) else part.toarray()
+        return out
+
     def group_sums(self, g: sparse.csr_matrix) -> np.ndarray:
         """``g @ paths[s]`` for every step: (steps, groups, paths) float64.
 
