@@ -135,6 +135,42 @@ def test_sparse_and_dense_neighbour_sums_give_the_same_likelihood(monkeypatch, z
     np.testing.assert_array_equal(out[0][1], out[1][1])
 
 
+def test_order_matrix_is_higher_orders_pairs():
+    # Property check against the earlier formulation: the order matrix read from
+    # higher_order's edge table (unit ids mapped back to positions) must be the one built from
+    # the graph's positional pairs, pair for pair and in the same order, also when the model's
+    # units come in another order than the graph's and the graph holds a unit they lack.
+    units, g = lattice(8)
+    bg = as_border_graph(g, countries=units["country"])
+    ids = pd.Index(np.random.default_rng(3).permutation(units.index)[1:], name="unit_id")
+    e = bg.higher_order(5, lower_order=True).edges
+    j, i = ids.get_indexer(e["focal"]), ids.get_indexer(e["neighbor"])
+    keep = (j >= 0) & (i >= 0)
+    orders = OrderMatrix.from_graph(bg, ids, 5)
+    np.testing.assert_array_equal(orders.sender, j[keep])
+    np.testing.assert_array_equal(orders.receiver, i[keep])
+    np.testing.assert_array_equal(orders.log_order, np.log(e["order"].to_numpy(float)[keep]))
+    assert orders.n == len(ids) and keep.sum() < len(keep) and orders.log_order.max() > 0
+
+
+def test_neighbour_contributions_listed_in_blocks(monkeypatch):
+    # Property check against the unblocked listing: the contributions of the sparse neighbour
+    # sums listed a few pairs at a time (blocks cutting through senders' lists) are the same
+    # matrix, entry for entry, and give the same sums as the weight matrix times the counts.
+    from marchland.projections import _weights
+
+    units, g = lattice(8)
+    orders = OrderMatrix.from_graph(as_border_graph(g), units.index, 3)
+    x = np.random.default_rng(5).poisson(0.05, (64, 6)).astype(float)
+    ui, ti = np.nonzero(np.random.default_rng(6).uniform(size=(64, 6)) < 0.8)
+    whole = _weights.CellSums.build(orders, x, ui, ti).contrib
+    monkeypatch.setattr(_weights, "CELL_BLOCK", 7)
+    blocked = _weights.CellSums.build(orders, x, ui, ti)
+    assert whole.nnz > 10 * 7 and (blocked.contrib != whole).nnz == 0
+    np.testing.assert_array_equal(blocked.contrib.indices, whole.indices)
+    np.testing.assert_array_equal(blocked(1.3)[0], (orders.weights(1.3) @ x)[ui, ti])
+
+
 # --- the forecast object -----------------------------------------------------------------------
 def _ring_orders(n: int) -> OrderMatrix:
     """A ring of ``n`` units: neighbours one and two steps either side (orders 1 and 2)."""
@@ -210,6 +246,11 @@ def test_path_store_holds_the_drawn_paths(monkeypatch):
     assert kinds[1] == ("ndarray", np.uint16)
     assert kinds[2][1] == np.int32 and sparse.issparse(s._steps[2])
     np.testing.assert_array_equal(s.toarray(), p)
+    h, u = np.array([2, 0, 1, 2, 0, 2]), np.array([1, 3, 9, 1, 0, 49])  # sparse and dense weeks
+    np.testing.assert_array_equal(s.cells(h, u), p[h, u])
+    np.testing.assert_array_equal(
+        store.cells(np.array([3, 0]), np.array([5, 2])), dense[1:][[3, 0], [5, 2]]
+    )
     with pytest.raises(ValueError, match="in order"):
         _paths.PathStore.from_blocks([(0, 10, p[:, :, :10]), (20, 40, p[:, :, 20:])], n_paths=40)
 

@@ -65,6 +65,7 @@ class Rows:
     """Rows ``(h[k], u[k])`` of a (week, unit, path) array, taken a slice of ``k`` at a time.
 
     Stands for ``array[h, u]`` (observations x paths) without making that copy whole.
+    ``array`` may also be a :class:`~marchland.projections._paths.PathStore` (its ``cells``).
     """
 
     def __init__(self, array: np.ndarray, h: np.ndarray, u: np.ndarray):
@@ -75,6 +76,9 @@ class Rows:
         return len(self.h)
 
     def __getitem__(self, rows: slice) -> np.ndarray:
+        cells = getattr(self.array, "cells", None)
+        if cells is not None:
+            return cells(self.h[rows], self.u[rows])
         return self.array[self.h[rows], self.u[rows]]
 
 

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import DataWarning, InputError
-from ..inputs.reports import as_of as known_as_of
+from ..inputs.reports import as_of_rows
 from ._model import Fit, ModelSpec, Problem, fill_lags
 from ._weights import OrderMatrix
 
@@ -26,11 +26,58 @@ POPULATION_PER = 100_000  # endemic rate nu is per 100,000 people per week
 
 
 def weeks_panel(counts: pd.DataFrame, ids: pd.Index, date) -> pd.DataFrame:
-    """Cases as known on ``date``: unit x week, NaN where nothing was reported."""
-    known = known_as_of(counts, date)
-    known = known[known["unit_id"].isin(ids) & known["cases"].notna()]
-    wide = known.pivot(index="unit_id", columns="week", values="cases").astype(float)
-    return wide.reindex(ids)
+    """Cases as known on ``date``: unit x week, NaN where nothing was reported.
+
+    Columns are the weeks with a known count of a unit in ``ids``. Built from the as-of rows'
+    three columns by position: the as-of copy of every column and a pivot of it took about
+    0.45 GB at 50,000 units for a panel of 40 MB (the same panel).
+    """
+    rows = as_of_rows(counts, date)
+    cases = counts["cases"].array[rows].to_numpy(dtype=float, na_value=np.nan)
+    unit = _unit_positions(counts["unit_id"], pd.Index(ids))[rows]
+    keep = (unit >= 0) & ~np.isnan(cases)
+    week = counts["week"].to_numpy()[rows[keep]]
+    del rows
+    weeks, week = _week_codes(week)
+    out = np.full((len(ids), len(weeks)), np.nan)
+    out[unit[keep], week] = cases[keep]
+    return pd.DataFrame(out, index=ids, columns=pd.DatetimeIndex(weeks, name="week"))
+
+
+def _unit_positions(unit_id: pd.Series, ids: pd.Index) -> np.ndarray:
+    """Position in ``ids`` of every row's unit (-1 if not there), as ``ids.get_indexer``.
+
+    Arrow-backed text is looked up by Arrow itself: no Python string per row (at 50,000 units
+    the ids of the as-of rows and their factorisation held 0.2 GB).
+    """
+    if getattr(unit_id.dtype, "storage", None) == "pyarrow" and ids.inferred_type == "string":
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        try:
+            pos = pc.index_in(pa.array(unit_id.array), value_set=pa.array(ids.to_numpy(object)))
+            return pc.fill_null(pos, -1).to_numpy()
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError, pa.ArrowTypeError):
+            pass
+    codes, uniques = pd.factorize(unit_id.array)
+    return ids.get_indexer(uniques)[codes] if len(codes) else np.zeros(0, np.intp)
+
+
+def _week_codes(week: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``np.unique(week, return_inverse=True)``, by whole days from the first when it can.
+
+    Week starts are whole days a few hundred apart: a count per day finds the distinct ones
+    without sorting millions of rows (the sort's copies were 0.2 GB at 50,000 units).
+    """
+    if len(week) == 0:
+        return np.unique(week, return_inverse=True)
+    first = week.min()
+    days, rest = np.divmod(week - first, np.timedelta64(1, "D"))
+    if rest.any() or days.max() > 100_000:
+        return np.unique(week, return_inverse=True)
+    seen = np.bincount(days, minlength=1) > 0
+    code = np.cumsum(seen) - 1
+    return first + np.flatnonzero(seen) * np.timedelta64(1, "D"), code[days]
 
 
 def last_week_over(anchor: pd.Timestamp, date: pd.Timestamp) -> pd.Timestamp:

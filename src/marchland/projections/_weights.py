@@ -3,7 +3,8 @@
 Written here rather than taken from a library: no Python package we build on fits the
 endemic-epidemic model, so the weights, their derivative in the decay ``d`` and the sparse
 order matrix they rest on are ours. The order matrix comes from
-:meth:`marchland.graph.BorderGraph.higher_order`, so the graph's own hop distances are used.
+:meth:`marchland.graph.BorderGraph.hop_pairs` (the pairs of ``higher_order``), so the graph's
+own hop distances are used.
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ from dataclasses import dataclass
 from functools import cached_property
 
 import numpy as np
+import pandas as pd
 from scipy import sparse
 
 
@@ -30,11 +32,12 @@ class OrderMatrix:
         if len(border_graph.edges) == 0:
             z = np.zeros(0, dtype=np.int64)
             return cls(z, z, np.zeros(0), len(ids))
-        e = border_graph.higher_order(max_order, lower_order=True).edges
-        j = ids.get_indexer(e["focal"])
-        i = ids.get_indexer(e["neighbor"])
+        # Positions, not the unit ids of higher_order's edge table (about 1 GB at 50,000 units).
+        focal, neighbor, steps = border_graph.hop_pairs(max_order, lower_order=True)
+        pos = pd.Index(ids).get_indexer(border_graph.ids)  # graph position -> position in ids
+        j, i = pos[focal], pos[neighbor]
         keep = (j >= 0) & (i >= 0)
-        o = e["order"].to_numpy(dtype=float)[keep]
+        o = steps[keep].astype(float)
         return cls(j[keep].astype(np.int64), i[keep].astype(np.int64), np.log(o), len(ids))
 
     def __getstate__(self) -> dict:
@@ -49,18 +52,23 @@ class OrderMatrix:
         return len(self.sender) == 0
 
     @cached_property
-    def _csr(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def _csr(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """Row-major order of the (receiver, sender) pairs and what the weights need in it.
 
         The sparsity pattern does not change with ``d``: sorting it once here spares the
         optimiser a sort per likelihood evaluation (the pairs are unique, one order each).
-        Returns the permutation, the CSR column indices (senders) and row pointers, and the
-        pairs' order levels as codes into ``_levels``, in pair order and in CSR order.
+        Returns the CSR column indices (senders) and row pointers, and the pairs' order levels
+        as codes into ``_levels``, in pair order and in CSR order. Indices are int32 and codes
+        int8 when they fit (held for the whole fit: 160 MB in int64 at 50,000 units).
         """
         perm = np.lexsort((self.sender, self.receiver))
-        indptr = np.concatenate([[0], np.cumsum(np.bincount(self.receiver, minlength=self.n))])
-        code = np.unique(self.log_order, return_inverse=True)[1].astype(np.intp)
-        return perm, self.sender[perm], indptr, code, code[perm]
+        small = max(self.n, len(self.sender)) < np.iinfo(np.int32).max
+        index = np.int32 if small else np.int64
+        indptr = np.zeros(self.n + 1, dtype=index)
+        np.cumsum(np.bincount(self.receiver, minlength=self.n), out=indptr[1:])
+        code = np.searchsorted(self._levels, self.log_order)  # np.unique's inverse, no sort
+        code = code.astype(np.int8 if len(self._levels) < 127 else np.intp)
+        return self.sender[perm].astype(index), indptr, code, code[perm]
 
     @cached_property
     def _levels(self) -> np.ndarray:
@@ -75,14 +83,14 @@ class OrderMatrix:
         its count of neighbours at order ``o_k``: five terms per sender at each likelihood
         evaluation instead of one per pair (about a million at 10,000 units).
         """
-        _, _, _, code, _ = self._csr
+        _, _, code, _ = self._csr
         k = len(self._levels)
         flat = np.bincount(self.sender * k + code, minlength=self.n * k)
         return flat.reshape(self.n, k).astype(float)
 
     def _matrix(self, values: np.ndarray):
         """CSR matrix of ``values`` given in CSR order (no per-call index checks or sort)."""
-        _, indices, indptr, _, _ = self._csr
+        indices, indptr, _, _ = self._csr
         m = sparse.csr_matrix((self.n, self.n), dtype=float)
         m.data, m.indices, m.indptr = values, indices, indptr
         m.has_sorted_indices = True
@@ -117,14 +125,18 @@ class OrderMatrix:
         return levels, s, mean_log
 
     def _weights(self, d: float, derivative: bool):
-        _, indices, _, _, code_csr = self._csr
+        indices, _, _, code_csr = self._csr
         levels, s, mean_log = self.sender_sums(d)
-        wt = self._matrix(levels[code_csr] / s[indices])
+        # In place: one array per matrix, not three (each is 40 MB at 50,000 units).
+        w = levels[code_csr]
+        w /= s[indices]
+        wt = self._matrix(w)
         if not derivative:
             return wt
-        lo = self._levels[code_csr]
-        dwt = self._matrix(wt.data * (mean_log[indices] - lo))
-        return wt, dwt
+        dw = mean_log[indices]
+        dw -= self._levels[code_csr]
+        dw *= w
+        return wt, self._matrix(dw)
 
     def cell_sums(self, x: np.ndarray, ui: np.ndarray, ti: np.ndarray) -> CellSums:
         """Neighbour sums ``sum_j w_ji(d) x_jt`` at the cells ``(ui, ti)`` of ``x`` (n, T)."""
@@ -134,6 +146,8 @@ class OrderMatrix:
 #: The sparse form of :class:`CellSums` is kept while its contributions are at most this share
 #: of the dense product's (pairs x weeks); beyond, the weights are multiplied with ``x``.
 SPARSE_SHARE = 0.25
+#: Pairs listed at a time by :meth:`CellSums.build` (bounds its temporaries: 8 MB each).
+CELL_BLOCK = 1_000_000
 
 
 @dataclass(frozen=True, eq=False)
@@ -168,21 +182,35 @@ class CellSums:
         total = int(reps.sum())
         if total > SPARSE_SHARE * len(orders.sender) * t:
             return cls(orders, x, ui, ti, None)
-        # Every pair (j -> i) of each non-zero x_jt, as the cell (i, t) it adds to.
+        # Every pair (j -> i) of each non-zero x_jt, as the cell (i, t) it adds to, listed for
+        # a block of x_jt at a time (about CELL_BLOCK pairs): each temporary of the listing is
+        # one number per pair (4 million at 50,000 units, 0.4 GB together unblocked).
         by_sender = np.argsort(orders.sender, kind="stable")
         first = np.concatenate([[0], np.cumsum(deg)[:-1]])
-        entry = np.repeat(np.arange(len(jj)), reps)
-        within = np.arange(total) - np.repeat(np.cumsum(reps) - reps, reps)
-        pair = by_sender[first[jj][entry] + within]
         cell_of = np.full((n, t), -1, dtype=np.int64)
         cell_of[ui, ti] = np.arange(len(ui))
-        cell = cell_of[orders.receiver[pair], tt[entry]]
-        keep = cell >= 0
-        pair, entry, cell = pair[keep], entry[keep], cell[keep]
-        _, _, _, code, _ = orders._csr
+        _, _, code, _ = orders._csr
         k = len(orders._levels)
-        col = orders.sender[pair] * k + code[pair]
-        contrib = sparse.csr_matrix((x[jj, tt][entry], (cell, col)), shape=(len(ui), n * k))
+        xv = x[jj, tt]
+        cuts = np.searchsorted(np.cumsum(reps), np.arange(CELL_BLOCK, total, CELL_BLOCK))
+        bounds = np.concatenate([[0], cuts, [len(jj)]])  # an empty block is harmless
+        cells, cols, vals = [], [], []
+        for a, b in zip(bounds[:-1], bounds[1:], strict=True):
+            r = reps[a:b]
+            entry = np.repeat(np.arange(a, b), r)
+            within = np.arange(len(entry)) - np.repeat(np.cumsum(r) - r, r)
+            pair = by_sender[first[jj[entry]] + within]
+            del within
+            cell = cell_of[orders.receiver[pair], tt[entry]]
+            keep = cell >= 0
+            pair = pair[keep]
+            cells.append(cell[keep].astype(np.int32 if len(ui) < 2**31 else np.int64))
+            cols.append(orders.sender[pair] * k + code[pair])
+            vals.append(xv[entry[keep]])
+        del by_sender, cell_of
+        cell, col, val = (np.concatenate(v) for v in (cells, cols, vals))
+        del cells, cols, vals
+        contrib = sparse.csr_matrix((val, (cell, col)), shape=(len(ui), n * k))
         return cls(orders, x, ui, ti, contrib)
 
     def __call__(self, d: float) -> tuple[np.ndarray, np.ndarray]:

@@ -196,7 +196,8 @@ def run_origin(
     """Simulate from the fit end through the origin week to ``horizon_weeks`` after it.
 
     With ``store`` the paths come as a :class:`PathStore` (compressed block by block as drawn,
-    the same counts), else as a dense int32 array.
+    the same counts), else as a dense int32 array; ``keep_means`` adds the dense float32
+    conditional means after the paths.
     """
     fit = origin.fit
     lead = int(round((origin.origin_week - origin.fit_end) / WEEK))
@@ -213,12 +214,20 @@ def run_origin(
         rng=np.random.default_rng(seed),
     )
     if store:
-        if keep_means:
-            raise ValueError("'keep_means' needs dense paths (store=False)")
-        blocks = path_blocks(start, origin.endemic(weeks), **kw)
-        # Only the horizon weeks are kept: the lead weeks of each block are dropped first.
-        kept = ((lo, hi, p[lead:]) for lo, hi, p, _ in blocks)
-        return PathStore.from_blocks(kept, n_paths=n_paths), weeks[lead:]
+        blocks = path_blocks(start, origin.endemic(weeks), keep_means=keep_means, **kw)
+        means = (
+            np.empty((horizon_weeks, len(start), n_paths), dtype=np.float32) if keep_means else None
+        )
+
+        def kept():
+            # Only the horizon weeks are kept: the lead weeks of each block are dropped first.
+            for lo, hi, p, mu in blocks:
+                if keep_means:
+                    means[:, :, lo:hi] = mu[lead:]
+                yield lo, hi, p[lead:]
+
+        paths = PathStore.from_blocks(kept(), n_paths=n_paths)
+        return (paths, means, weeks[lead:]) if keep_means else (paths, weeks[lead:])
     out = simulate_paths(start, origin.endemic(weeks), keep_means=keep_means, **kw)
     if keep_means:
         return out[0][lead:], out[1][lead:], weeks[lead:]
