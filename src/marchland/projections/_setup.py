@@ -15,6 +15,7 @@ import pandas as pd
 
 from ..errors import DataWarning, InputError
 from ..inputs.reports import as_of_rows
+from ..stats._align import unit_positions
 from ._model import Fit, ModelSpec, Problem, fill_lags
 from ._weights import OrderMatrix
 
@@ -34,7 +35,7 @@ def weeks_panel(counts: pd.DataFrame, ids: pd.Index, date) -> pd.DataFrame:
     """
     rows = as_of_rows(counts, date)
     cases = counts["cases"].array[rows].to_numpy(dtype=float, na_value=np.nan)
-    unit = _unit_positions(counts["unit_id"], pd.Index(ids))[rows]
+    unit = unit_positions(counts["unit_id"], pd.Index(ids))[rows]
     keep = (unit >= 0) & ~np.isnan(cases)
     week = counts["week"].to_numpy()[rows[keep]]
     del rows
@@ -42,25 +43,6 @@ def weeks_panel(counts: pd.DataFrame, ids: pd.Index, date) -> pd.DataFrame:
     out = np.full((len(ids), len(weeks)), np.nan)
     out[unit[keep], week] = cases[keep]
     return pd.DataFrame(out, index=ids, columns=pd.DatetimeIndex(weeks, name="week"))
-
-
-def _unit_positions(unit_id: pd.Series, ids: pd.Index) -> np.ndarray:
-    """Position in ``ids`` of every row's unit (-1 if not there), as ``ids.get_indexer``.
-
-    Arrow-backed text is looked up by Arrow itself: no Python string per row (at 50,000 units
-    the ids of the as-of rows and their factorisation held 0.2 GB).
-    """
-    if getattr(unit_id.dtype, "storage", None) == "pyarrow" and ids.inferred_type == "string":
-        import pyarrow as pa
-        import pyarrow.compute as pc
-
-        try:
-            pos = pc.index_in(pa.array(unit_id.array), value_set=pa.array(ids.to_numpy(object)))
-            return pc.fill_null(pos, -1).to_numpy()
-        except (pa.ArrowInvalid, pa.ArrowNotImplementedError, pa.ArrowTypeError):
-            pass
-    codes, uniques = pd.factorize(unit_id.array)
-    return ids.get_indexer(uniques)[codes] if len(codes) else np.zeros(0, np.intp)
 
 
 def _week_codes(week: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

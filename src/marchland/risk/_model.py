@@ -17,6 +17,7 @@ from ..errors import InputError
 from ..inputs._order import grouped_order
 from ..inputs.reports import as_of as _as_of_view
 from ..spread.arrival import first_cases
+from ..stats._align import unit_positions
 from . import _features as rf
 from . import _hazard
 
@@ -154,15 +155,14 @@ def slim_counts(counts: pd.DataFrame, static: rf.Static, as_of: object = None) -
         keep = slim["received"] <= pd.Timestamp(as_of)
         if not keep.all():
             slim = slim[keep]
-    # Codes from the column's own encoding (Arrow's for text), then its few distinct ids looked
-    # up among the graph's: ``isin`` and ``pd.Categorical`` each made a Python string per row
-    # (0.25 GB each at 50,000 units, a heap that then stayed fragmented under the step's peak).
-    codes, uniques = pd.factorize(slim["unit_id"], use_na_sentinel=True)
-    where = pd.Index(static.ids).get_indexer(pd.Index(uniques, dtype=object))
-    missing = (codes < 0) | (where[codes] < 0)
+    # Positions among the graph's ids looked up by Arrow for text ids: ``isin`` and
+    # ``pd.Categorical`` each made a Python string per row (0.25 GB each at 50,000 units, a
+    # heap that then stayed fragmented under the step's peak).
+    where = unit_positions(slim["unit_id"], pd.Index(static.ids))
+    missing = where < 0
     if missing.any():
         raise rf.units_not_in_graph(slim["unit_id"].to_numpy()[missing])
-    unit = pd.Categorical.from_codes(where[codes], categories=pd.Index(static.ids))
+    unit = pd.Categorical.from_codes(where, categories=pd.Index(static.ids))
     return slim.assign(unit_id=unit)
 
 
